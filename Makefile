@@ -1,0 +1,38 @@
+# Two commands: `make lab` and `make test`.  Both create .venv when missing and
+# install the project into it; nothing else is needed but Python >= 3.11 and make.
+
+PYTHON ?= python3
+VENV ?= .venv
+BIN := $(VENV)/bin
+NOTEBOOK ?= notebooks/01_quickstart.ipynb
+
+.PHONY: lab test install-lab install-test bench clean
+
+$(BIN)/python:
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+
+# A stamp per extra, remade when pyproject.toml changes.
+$(VENV)/.lab-installed: pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e '.[lab]'
+	touch $@
+
+$(VENV)/.test-installed: pyproject.toml | $(BIN)/python
+	$(BIN)/python -m pip install --quiet -e '.[lab,test]'
+	touch $@
+
+install-lab: $(VENV)/.lab-installed
+install-test: $(VENV)/.test-installed
+
+lab: install-lab
+	$(BIN)/jupyter lab $(NOTEBOOK)
+
+# Unit tests, doctests in the package and the notebooks under nbval, in one run.
+test: install-test
+	$(BIN)/python -m pytest --nbval -p no:randomly
+
+bench: install-test
+	$(BIN)/python benchmarks/engine.py
+
+clean:
+	rm -rf build .pytest_cache

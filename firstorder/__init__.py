@@ -1,0 +1,27 @@
+"""firstorder: settling of first-order test fixtures under piecewise-constant drives.
+
+``import firstorder`` loads numpy, quantiphy and pandas only; sympy, ipywidgets
+and bokeh are imported when a derivation or the Bench is first asked for.
+"""
+
+from __future__ import annotations
+
+from .drive import Drive
+from .errors import InputError, TopologyError, ZeroTimeError
+from .fixture import Fixture
+from .response import Response, respond
+from .units import format_value, parse_value
+
+__all__ = [
+    "Drive",
+    "Fixture",
+    "InputError",
+    "Response",
+    "TopologyError",
+    "ZeroTimeError",
+    "format_value",
+    "parse_value",
+    "respond",
+]
+
+__version__ = "0.1.0"

@@ -1,0 +1,30 @@
+"""Atomic file writing: a save never leaves a half-written file behind."""
+
+from __future__ import annotations
+
+import os
+import tempfile
+
+
+def write_atomic(path: str | os.PathLike[str], data: str | bytes) -> None:
+    """Write `data` to a temporary file beside `path`, then rename it over `path`.
+
+    The rename is atomic on POSIX and Windows, so readers see the old file or
+    the new one, never a mix; a failure while writing leaves the old file as it was.
+    """
+    target = os.fspath(path)
+    folder = os.path.dirname(os.path.abspath(target))
+    mode = "wb" if isinstance(data, bytes) else "w"
+    handle, temporary = tempfile.mkstemp(prefix=".firstorder-", suffix=".tmp", dir=folder)
+    try:
+        with os.fdopen(handle, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as stream:
+            stream.write(data)
+            stream.flush()
+            os.fsync(stream.fileno())
+        os.replace(temporary, target)
+    except BaseException:
+        try:
+            os.unlink(temporary)
+        except FileNotFoundError:
+            pass
+        raise

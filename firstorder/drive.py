@@ -1,0 +1,345 @@
+"""Drive: piecewise-constant source levels and switch states.
+
+A drive is a list of change instants ``times``, an ``end``, and one column per
+source or switch.  Segment ``k`` holds on ``[times[k], times[k+1])``; the last one
+on ``[times[-1], end]``.  Which columns are sources and which are switches is
+decided when the drive meets a fixture.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+from collections.abc import Iterable, Mapping, Sequence
+from typing import Any
+
+import numpy as np
+
+from .errors import InputError
+from .units import format_value, parse_value
+
+__all__ = ["Drive"]
+
+_CSV_MAGIC = "# firstorder drive v1"
+_PREVIEW_ROWS = 8
+
+
+def _as_float_array(values: Any, *, field: str, unit: str) -> np.ndarray:
+    """Return `values` as a 1-D float64 array, parsing text only where needed."""
+    if isinstance(values, np.ndarray) and values.dtype.kind in "biuf":
+        array = values.astype(np.float64, copy=True).reshape(-1)
+    else:
+        items = list(values) if not isinstance(values, (str, bytes)) else None
+        if items is None:
+            raise InputError(f"{field}: expected a list or array of values, got {values!r}")
+        if all(isinstance(item, (int, float, np.integer, np.floating)) for item in items):
+            array = np.asarray(items, dtype=np.float64).reshape(-1)
+        else:
+            array = np.array(
+                [parse_value(item, field=f"{field}[{i}]", unit=unit) for i, item in enumerate(items)],
+                dtype=np.float64,
+            )
+    if array.ndim != 1:
+        raise InputError(f"{field}: expected a 1-D list of values, got shape {array.shape}")
+    bad = ~np.isfinite(array)
+    if bad.any():
+        i = int(np.argmax(bad))
+        raise InputError(f"{field}[{i}]: {array[i]!r} is not allowed; expected a finite number")
+    return array
+
+
+class Drive:
+    """Change instants, an end time and one level column per source or switch.
+
+    Parameters
+    ----------
+    times : sequence of float or str
+        Change instants in seconds, strictly increasing; engineering notation
+        such as ``"1m"`` is accepted.  A float array takes a fast path.
+    end : float or str
+        End of the last segment; must be later than the last change.
+    **columns : sequence of float, bool or str
+        One column per source (volts or amps) or switch (1/True closed,
+        0/False open), each as long as `times`.
+
+    Examples
+    --------
+    >>> drive = Drive([0, "1m", "3m"], end="6m", vdac=[0, 2.5, -1.2], k1=[1, 1, 0])
+    >>> drive.durations
+    array([0.001, 0.002, 0.003])
+    >>> drive.level_at("vdac", 0.002)
+    2.5
+    """
+
+    __slots__ = ("_times", "_end", "_columns")
+
+    def __init__(self, times: Any, end: Any, **columns: Any) -> None:
+        time_array = _as_float_array(times, field="drive.times", unit="s")
+        if time_array.size == 0:
+            raise InputError("drive.times: at least one change instant is needed, got none")
+        steps = np.diff(time_array)
+        if steps.size and not (steps > 0).all():
+            i = int(np.argmax(~(steps > 0))) + 1
+            raise InputError(
+                f"drive.times[{i}]: {time_array[i]!r} does not come after "
+                f"drive.times[{i - 1}] = {time_array[i - 1]!r}; times must be strictly increasing"
+            )
+        end_value = parse_value(end, field="drive.end", unit="s")
+        if not end_value > time_array[-1]:
+            raise InputError(
+                f"drive.end: {end!r} must be later than the last change "
+                f"({time_array[-1]!r} s)"
+            )
+        if not columns:
+            raise InputError("drive: no columns; give at least one source or switch column")
+        parsed: dict[str, np.ndarray] = {}
+        for name, values in columns.items():
+            if isinstance(values, (int, float, str, bool, np.number)):
+                values = [values] * time_array.size  # a constant column
+            array = _as_float_array(values, field=f"drive.{name}", unit="")
+            if array.size != time_array.size:
+                raise InputError(
+                    f"drive.{name}: has {array.size} values but drive.times has "
+                    f"{time_array.size}; give one value per change"
+                )
+            array.setflags(write=False)
+            parsed[name] = array
+        time_array.setflags(write=False)
+        self._times = time_array
+        self._end = end_value
+        self._columns = parsed
+
+    # -- construction helpers -------------------------------------------------
+    @classmethod
+    def steps(cls, steps: Iterable[tuple[Any, Any]], end: Any, name: str = "vin") -> "Drive":
+        """Drive one source from ``(time, level)`` pairs.
+
+        Examples
+        --------
+        >>> Drive.steps([(0, 0.0), ("1m", 2.5)], end="4m").levels("vin")
+        array([0. , 2.5])
+        """
+        pairs = list(steps)
+        if not pairs:
+            raise InputError("steps: at least one (time, level) pair is needed")
+        for i, pair in enumerate(pairs):
+            if len(pair) != 2:
+                raise InputError(f"steps[{i}]: expected a (time, level) pair, got {pair!r}")
+        return cls([p[0] for p in pairs], end, **{name: [p[1] for p in pairs]})
+
+    @classmethod
+    def pulses(
+        cls,
+        period: Any,
+        duty: float,
+        high: Any,
+        low: Any = 0.0,
+        count: int = 1,
+        name: str = "vin",
+        start: Any = 0.0,
+    ) -> "Drive":
+        """A train of `count` pulses: `high` for ``duty * period``, then `low`.
+
+        Examples
+        --------
+        >>> d = Drive.pulses(period="1m", duty=0.25, high=5, count=2)
+        >>> d.times
+        array([0.     , 0.00025, 0.001  , 0.00125])
+        >>> float(d.end)
+        0.002
+        """
+        period_value = parse_value(period, field="pulses.period", unit="s", positive=True)
+        duty_value = parse_value(duty, field="pulses.duty")
+        if not 0.0 < duty_value < 1.0:
+            raise InputError(f"pulses.duty: {duty!r} must be between 0 and 1 (exclusive)")
+        if isinstance(count, bool) or not isinstance(count, (int, np.integer)) or count < 1:
+            raise InputError(f"pulses.count: {count!r} must be a whole number >= 1")
+        high_value = parse_value(high, field="pulses.high")
+        low_value = parse_value(low, field="pulses.low")
+        start_value = parse_value(start, field="pulses.start", unit="s")
+        edges = start_value + period_value * np.arange(count, dtype=np.float64)
+        times = np.empty(2 * count)
+        times[0::2] = edges
+        times[1::2] = edges + duty_value * period_value
+        levels = np.empty(2 * count)
+        levels[0::2] = high_value
+        levels[1::2] = low_value
+        return cls(times, start_value + count * period_value, **{name: levels})
+
+    @classmethod
+    def staircase(cls, levels: Sequence[Any], dwell: Any, name: str = "vin", start: Any = 0.0) -> "Drive":
+        """Step through `levels`, holding each for `dwell` seconds.
+
+        Examples
+        --------
+        >>> Drive.staircase([0, 1, 2], dwell="10u").times
+        array([0.e+00, 1.e-05, 2.e-05])
+        """
+        dwell_value = parse_value(dwell, field="staircase.dwell", unit="s", positive=True)
+        start_value = parse_value(start, field="staircase.start", unit="s")
+        level_array = _as_float_array(levels, field="staircase.levels", unit="")
+        if level_array.size == 0:
+            raise InputError("staircase.levels: at least one level is needed")
+        times = start_value + dwell_value * np.arange(level_array.size, dtype=np.float64)
+        return cls(times, start_value + dwell_value * level_array.size, **{name: level_array})
+
+    @classmethod
+    def from_columns(cls, times: Any, end: Any, columns: Mapping[str, Any]) -> "Drive":
+        """Build a drive from a mapping of column name to values."""
+        return cls(times, end, **dict(columns))
+
+    # -- reading ----------------------------------------------------------------
+    @property
+    def times(self) -> np.ndarray:
+        """Change instants (s), read-only."""
+        return self._times
+
+    @property
+    def end(self) -> float:
+        """End of the last segment (s)."""
+        return self._end
+
+    @property
+    def start(self) -> float:
+        """The first change instant (s)."""
+        return float(self._times[0])
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Column names in the order given."""
+        return tuple(self._columns)
+
+    @property
+    def columns(self) -> dict[str, np.ndarray]:
+        """Column name to read-only level array."""
+        return dict(self._columns)
+
+    @property
+    def ends(self) -> np.ndarray:
+        """End instant of every segment (s)."""
+        return np.append(self._times[1:], self._end)
+
+    @property
+    def durations(self) -> np.ndarray:
+        """Length of every segment (s)."""
+        return np.diff(self._times, append=self._end)
+
+    def __len__(self) -> int:
+        return int(self._times.size)
+
+    def levels(self, name: str) -> np.ndarray:
+        """The level column `name`."""
+        try:
+            return self._columns[name]
+        except KeyError:
+            raise InputError(
+                f"drive column {name!r} does not exist; columns are {list(self._columns)}"
+            ) from None
+
+    def segment_at(self, time: Any) -> int:
+        """Index of the segment that holds at `time`."""
+        value = parse_value(time, field="time", unit="s")
+        if not self._times[0] <= value <= self._end:
+            raise InputError(
+                f"time: {value!r} is outside the drive [{self._times[0]!r}, {self._end!r}] s"
+            )
+        return int(np.searchsorted(self._times, value, side="right") - 1)
+
+    def level_at(self, name: str, time: Any) -> float:
+        """The level of column `name` at `time`."""
+        return float(self.levels(name)[self.segment_at(time)])
+
+    def replace(self, *, times: Any = None, end: Any = None, **columns: Any) -> "Drive":
+        """A new drive with some of times, end or columns replaced."""
+        merged = dict(self._columns)
+        merged.update(columns)
+        return Drive(self._times if times is None else times, self._end if end is None else end, **merged)
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, Drive):
+            return NotImplemented
+        return (
+            self._end == other._end
+            and np.array_equal(self._times, other._times)
+            and self._columns.keys() == other._columns.keys()
+            and all(np.array_equal(v, other._columns[k]) for k, v in self._columns.items())
+        )
+
+    __hash__ = None  # type: ignore[assignment]
+
+    # -- CSV ----------------------------------------------------------------------
+    def to_csv(self, path: str | os.PathLike[str] | None = None) -> str:
+        """Write the drive as CSV (exact floats) and return the text.
+
+        The first line names the format, the second holds the end time, then a
+        header ``time,<columns>`` and one row per change.  With `path`, the file
+        is written atomically (temporary file, then rename).
+        """
+        buffer = io.StringIO()
+        buffer.write(f"{_CSV_MAGIC}\n# end,{self._end!r}\n")
+        writer = csv.writer(buffer, lineterminator="\n")
+        writer.writerow(["time", *self._columns])
+        columns = list(self._columns.values())
+        for k, t in enumerate(self._times.tolist()):
+            writer.writerow([repr(t), *(repr(float(c[k])) for c in columns)])
+        text = buffer.getvalue()
+        if path is not None:
+            from ._files import write_atomic
+
+            write_atomic(path, text)
+        return text
+
+    @classmethod
+    def from_csv(cls, source: str | os.PathLike[str]) -> "Drive":
+        """Read a drive written by :meth:`to_csv` (a path, or the CSV text itself)."""
+        text = str(source)
+        if not text.startswith(_CSV_MAGIC):
+            with open(source, encoding="utf-8") as handle:
+                text = handle.read()
+        lines = text.splitlines()
+        if not lines or lines[0].strip() != _CSV_MAGIC:
+            raise InputError(f"drive CSV line 1: expected {_CSV_MAGIC!r}")
+        if len(lines) < 3 or not lines[1].startswith("# end,"):
+            raise InputError("drive CSV line 2: expected '# end,<seconds>'")
+        end = parse_value(lines[1][len("# end,"):], field="drive CSV line 2 (end)", unit="s")
+        rows = list(csv.reader(lines[2:]))
+        header = rows[0]
+        if not header or header[0] != "time" or len(header) < 2:
+            raise InputError("drive CSV line 3: expected a header 'time,<column>,...'")
+        body = rows[1:]
+        if not body:
+            raise InputError("drive CSV: no change rows after the header")
+        values = np.empty((len(body), len(header)))
+        for r, row in enumerate(body):
+            if len(row) != len(header):
+                raise InputError(
+                    f"drive CSV line {r + 4}: {len(row)} cells, expected {len(header)}"
+                )
+            for c, cell in enumerate(row):
+                values[r, c] = parse_value(cell, field=f"drive CSV line {r + 4}, column {header[c]!r}")
+        return cls(values[:, 0], end, **{name: values[:, c] for c, name in enumerate(header) if c})
+
+    # -- display --------------------------------------------------------------------
+    def __repr__(self) -> str:
+        return (
+            f"Drive({len(self)} changes from {format_value(self.start, 's')} to "
+            f"{format_value(self._end, 's')}; columns: {', '.join(self._columns)})"
+        )
+
+    def _repr_html_(self) -> str:
+        from ._html import table
+
+        rows = []
+        shown = range(len(self)) if len(self) <= _PREVIEW_ROWS else [*range(_PREVIEW_ROWS - 2), len(self) - 1]
+        previous = None
+        for k in shown:
+            if previous is not None and k != previous + 1:
+                rows.append(["…"] * (len(self._columns) + 1))
+            rows.append([format_value(float(self._times[k]), "s"), *(f"{float(c[k]):.6g}" for c in self._columns.values())])
+            previous = k
+        caption = (
+            f"Drive: {len(self)} segments, {format_value(self.start, 's')} to "
+            f"{format_value(self._end, 's')}"
+        )
+        return table(["change at", *self._columns], rows, caption=caption)

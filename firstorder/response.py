@@ -1,0 +1,399 @@
+"""Response: a fixture's exact response to a drive, split every useful way.
+
+Components of the state (and of every probe):
+
+* ``total`` = ``zero_input`` + ``zero_state``;
+* ``zero_input``: sources at zero, from the given starting state;
+* ``zero_state``: from a zero state, with the sources as scheduled; it is the
+  sum of the per-source ``contribution`` s;
+* ``forced``: each segment's final value (piecewise constant); for a segment
+  that holds its state it is that held state;
+* ``natural`` = ``total`` - ``forced``.
+"""
+
+from __future__ import annotations
+
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from . import engine
+from .errors import InputError, TopologyError
+from .units import format_value, parse_value
+
+if TYPE_CHECKING:
+    from .drive import Drive
+    from .fixture import Fixture
+
+__all__ = ["Response", "respond", "COMPONENTS"]
+
+#: The component names every response offers besides per-source contributions.
+COMPONENTS = ("total", "zero_input", "zero_state", "forced", "natural")
+
+
+def _match_columns(fixture: "Fixture", drive: "Drive") -> tuple[np.ndarray, np.ndarray]:
+    """Source levels (n, m) and switch states (n, s) from the drive's columns."""
+    sources = [p.name for p in fixture.sources]
+    switches = [p.name for p in fixture.switches]
+    known = set(sources) | set(switches)
+    extra = [name for name in drive.names if name not in known]
+    if extra:
+        raise InputError(
+            f"drive columns {extra} name no source or switch of the fixture; "
+            f"sources are {sources}, switches are {switches}"
+        )
+    missing = [name for name in sources + switches if name not in drive.names]
+    if missing:
+        raise InputError(f"drive: no column for {missing}; the fixture needs one column per source and switch")
+    n = len(drive)
+    levels = np.column_stack([drive.levels(s) for s in sources]) if sources else np.zeros((n, 0))
+    states = np.column_stack([drive.levels(s) for s in switches]) if switches else np.zeros((n, 0))
+    bad = (states != 0) & (states != 1)
+    if bad.any():
+        k, j = np.argwhere(bad)[0]
+        raise InputError(
+            f"drive.{switches[j]}[{k}]: {states[k, j]!r} is not a switch state; use 1/True (closed) or 0/False (open)"
+        )
+    return levels, states.astype(bool)
+
+
+def _configurations(states: np.ndarray) -> tuple[list[tuple[bool, ...]], np.ndarray]:
+    """The distinct switch configurations and, per segment, which one holds."""
+    n, count = states.shape
+    if count == 0:
+        return [()], np.zeros(n, dtype=np.intp)
+    codes = states.astype(np.int64) @ (np.int64(1) << np.arange(count, dtype=np.int64))
+    unique, inverse = np.unique(codes, return_inverse=True)
+    configs = [tuple(bool((code >> j) & 1) for j in range(count)) for code in unique.tolist()]
+    return configs, inverse.reshape(-1)
+
+
+def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response":
+    """Compute the response of `fixture` to `drive` (see :class:`Response`)."""
+    fixture.check()
+    levels, states = _match_columns(fixture, drive)
+    configs, inverse = _configurations(states)
+    first_use = np.zeros(len(configs), dtype=np.intp)
+    first_use[inverse[::-1]] = np.arange(inverse.size)[::-1]
+    reduced = []
+    for c, config in enumerate(configs):
+        k = int(first_use[c])
+        where = f"segment {k} (from {format_value(float(drive.times[k]), 's')}"
+        where += f"; {fixture.describe_states(config)})" if config else ")"
+        reduced.append(fixture.configuration(config, where=where))
+    taus = np.array([r.tau for _, r in reduced])
+    gains = np.array([r.gain for _, r in reduced]).reshape(len(configs), levels.shape[1])
+    drifts = np.array([r.drift for _, r in reduced]).reshape(len(configs), levels.shape[1])
+
+    holding = np.isinf(taus)
+    if holding.any():
+        ramp = (drifts[inverse] * levels != 0).any(axis=1)
+        if ramp.any():
+            k = int(np.argmax(ramp))
+            storage = fixture.storage
+            feeding = [s.name for s, d in zip(fixture.sources, drifts[inverse[k]]) if d != 0]
+            raise TopologyError(
+                f"segment {k} (from {format_value(float(drive.times[k]), 's')}): {storage.kind} "
+                f"'{storage.name}' sees no resistance, yet {feeding} drive it, so its state would "
+                f"ramp without limit. Add a resistance in its path (for example across the "
+                f"{storage.kind} or in series with the source)."
+            )
+    with np.errstate(divide="ignore"):
+        rate_by_config = np.where(holding, 0.0, 1.0 / taus)
+    return Response(fixture, drive, levels, configs, inverse, rate_by_config[inverse], gains, initial)
+
+
+class Response:
+    """The exact response of a fixture to a drive.
+
+    Do not build directly; call :meth:`Fixture.respond` or :func:`respond`.
+
+    Examples
+    --------
+    >>> import firstorder as fo
+    >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 1.0)], end="5m"))
+    >>> round(float(res.total(1e-3)), 4)   # one time constant: 63.2 %
+    0.6321
+    >>> res.boundary
+    array([0.        , 0.99326205])
+    """
+
+    def __init__(self, fixture, drive, levels, configs, inverse, rate, gains, initial) -> None:
+        self.fixture = fixture
+        self.drive = drive
+        self._levels = levels
+        self._configs = configs
+        self._inverse = inverse
+        self._rate = rate
+        self._gains = gains
+        self._starts = drive.times
+        self._decay, self._growth = engine.decay_factors(drive.durations, rate)
+        self.initial_text = initial
+        self.initial = self._initial_state(initial)
+        self._scans: dict[str, np.ndarray] = {}
+
+    # -- per-segment data ------------------------------------------------------------
+    @cached_property
+    def tau(self) -> np.ndarray:
+        """Time constant of every segment (s); ``inf`` where the state is held."""
+        with np.errstate(divide="ignore"):
+            return np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
+
+    @property
+    def starts(self) -> np.ndarray:
+        return self._starts
+
+    @cached_property
+    def ends(self) -> np.ndarray:
+        return self.drive.ends
+
+    @property
+    def holds(self) -> np.ndarray:
+        """True for segments whose configuration holds the state."""
+        return self._rate == 0.0
+
+    @cached_property
+    def _source_finals(self) -> np.ndarray:
+        """(n, m): each source's share of each segment's final value."""
+        return self._gains[self._inverse] * self._levels
+
+    @cached_property
+    def _final_sources_only(self) -> np.ndarray:
+        m = self._levels.shape[1]
+        if m == 1:
+            return self._gains[self._inverse, 0] * self._levels[:, 0]
+        return self._source_finals.sum(axis=1)
+
+    @property
+    def final(self) -> np.ndarray:
+        """The value every segment settles towards (its held state where it holds)."""
+        return self._finals("total")
+
+    @property
+    def configurations(self) -> list[tuple[bool, ...]]:
+        return list(self._configs)
+
+    @property
+    def segment_configuration(self) -> np.ndarray:
+        """Index into :attr:`configurations` for every segment."""
+        return self._inverse
+
+    # -- starting state -------------------------------------------------------------
+    def _initial_state(self, initial: Any) -> float:
+        if isinstance(initial, str) and initial.strip() == "settled":
+            if self._rate[0] == 0.0:
+                raise InputError(
+                    "initial: 'settled' needs a first segment that settles, but segment 0 holds its "
+                    "state (no resistive path); give the starting state as a number"
+                )
+            return float(self._final_sources_only[0])
+        if isinstance(initial, str) and initial.strip() == "periodic":
+            # x_end = A x0 + B, with 1 - A computed without cancellation.
+            exponent = -float(np.sum(self.drive.durations * self._rate))
+            drift = float(engine.affine_scan(self._decay, self._growth * self._final_sources_only, 0.0)[-1])
+            if exponent == 0.0:
+                if drift != 0.0:
+                    raise InputError(
+                        "initial: 'periodic' has no solution; every segment holds the state, so "
+                        "no start repeats at the end"
+                    )
+                return 0.0
+            return drift / -np.expm1(exponent)
+        if isinstance(initial, str) and initial.strip().isalpha():
+            raise InputError(
+                f"initial: {initial!r} is not allowed; give a number (the starting state, in "
+                f"{self.fixture.state_unit}), 'settled' or 'periodic'"
+            )
+        return parse_value(initial, field="initial", unit=self.fixture.state_unit)
+
+    # -- scans --------------------------------------------------------------------------
+    def _component_key(self, component: str) -> str:
+        if component in ("total", "zero_input", "zero_state"):
+            return component
+        names = [p.name for p in self.fixture.sources]
+        if component in names:
+            return component
+        raise InputError(
+            f"component: {component!r} is not one of {list(COMPONENTS)} or a source {names}"
+        )
+
+    def _start(self, key: str) -> float:
+        return self.initial if key in ("total", "zero_input") else 0.0
+
+    def _source_final(self, key: str) -> np.ndarray:
+        if key == "total" or key == "zero_state":
+            return self._final_sources_only
+        if key == "zero_input":
+            return np.zeros(len(self.drive))
+        j = [p.name for p in self.fixture.sources].index(key)
+        return self._source_finals[:, j]
+
+    def _boundary(self, key: str) -> np.ndarray:
+        scan = self._scans.get(key)
+        if scan is None:
+            scan = engine.affine_scan(self._decay, self._growth * self._source_final(key), self._start(key))
+            self._scans[key] = scan
+        return scan
+
+    def _finals(self, key: str) -> np.ndarray:
+        final = self._source_final(key)
+        if self.holds.any():
+            final = np.where(self.holds, self._boundary(key)[:-1], final)
+        return final
+
+    @property
+    def boundary(self) -> np.ndarray:
+        """The state at every change and at the end (length ``len(drive) + 1``)."""
+        return self._boundary("total")
+
+    def boundary_of(self, component: str) -> np.ndarray:
+        """Like :attr:`boundary` for ``"zero_input"``, ``"zero_state"`` or a source."""
+        return self._boundary(self._component_key(component))
+
+    # -- evaluation -------------------------------------------------------------------------
+    def _times(self, t: Any) -> np.ndarray:
+        array = np.asarray(t, dtype=np.float64) if not isinstance(t, str) else np.asarray(
+            parse_value(t, field="t", unit="s"))
+        if array.size == 0:
+            return array.reshape(-1)
+        low, high = float(np.min(array)), float(np.max(array))
+        if not (np.isfinite(low) and np.isfinite(high)):
+            raise InputError("t: contains NaN or inf; times must be finite seconds")
+        if low < self._starts[0] or high > self.drive.end:
+            bad = low if low < self._starts[0] else high
+            raise InputError(
+                f"t: {bad!r} s is outside the drive, which runs from {float(self._starts[0])!r} "
+                f"to {self.drive.end!r} s"
+            )
+        return array
+
+    def locate(self, t: Any) -> engine.SegmentLocator:
+        """Pre-compute where times fall, to evaluate several components at once."""
+        return engine.SegmentLocator(self._times(t).reshape(-1), self._starts, self._rate)
+
+    def evaluate(self, t: Any, components: tuple[str, ...] = ("total",), probe: str | None = None) -> dict[str, np.ndarray]:
+        """Evaluate several components (of the state, or of `probe`) on one time array."""
+        array = self._times(t)
+        locator = engine.SegmentLocator(array.reshape(-1), self._starts, self._rate)
+        rows = self._probe_rows(probe) if probe is not None else None
+        out = {}
+        for component in components:
+            out[component] = self._component(component, locator, rows).reshape(array.shape)
+        return out
+
+    def _component(self, component: str, locator: engine.SegmentLocator, rows) -> np.ndarray:
+        if component in ("forced", "natural"):
+            final = self._finals("total")
+            state_forced = locator.spread(final)
+            if component == "forced":
+                return self._probe_value(state_forced, "total", locator, rows)
+            state = locator.combine(final, self._boundary("total")[:-1])
+            if rows is None:
+                return state - state_forced
+            return locator.spread(rows[:, 0]) * (state - state_forced)
+        key = self._component_key(component)
+        state = locator.combine(self._finals(key), self._boundary(key)[:-1])
+        return self._probe_value(state, key, locator, rows)
+
+    def _probe_value(self, state: np.ndarray, key: str, locator, rows) -> np.ndarray:
+        if rows is None:
+            return state
+        state *= locator.spread(rows[:, 0])
+        if key == "zero_input":
+            return state
+        if key in ("total", "zero_state"):
+            offset = np.einsum("ij,ij->i", rows[:, 1:], self._levels)
+        else:
+            j = [p.name for p in self.fixture.sources].index(key)
+            offset = rows[:, 1 + j] * self._levels[:, j]
+        state += locator.spread(offset)
+        return state
+
+    def _single(self, component: str, t: Any, probe: str | None = None):
+        result = self.evaluate(t, (component,), probe)[component]
+        return float(result) if result.ndim == 0 else result
+
+    def total(self, t: Any):
+        """The state at times `t` (V across the capacitor or A through the inductor)."""
+        return self._single("total", t)
+
+    def zero_input(self, t: Any):
+        """The response from the starting state with every source at zero."""
+        return self._single("zero_input", t)
+
+    def zero_state(self, t: Any):
+        """The response from a zero state to the sources as scheduled."""
+        return self._single("zero_state", t)
+
+    def forced(self, t: Any):
+        """Each segment's final value, piecewise constant."""
+        return self._single("forced", t)
+
+    def natural(self, t: Any):
+        """``total - forced``: the decaying part."""
+        return self._single("natural", t)
+
+    def contribution(self, source: str, t: Any):
+        """The zero-state response to one source alone (they add up to ``zero_state``)."""
+        names = [p.name for p in self.fixture.sources]
+        if source not in names:
+            raise InputError(f"contribution: {source!r} names no source; sources are {names}")
+        return self._single(source, t)
+
+    # -- probes --------------------------------------------------------------------------------
+    def _probe_rows(self, name: str) -> np.ndarray:
+        """(n, 1 + m): the probe as an affine row over [x, u...] in every segment."""
+        from ._network import probe_row
+
+        probes = {p.name: p for p in self.fixture.probes}
+        if name not in probes:
+            raise InputError(f"probe: {name!r} is not a probe of the fixture; probes are {list(probes)}")
+        by_config = np.array([
+            probe_row(layout, self.fixture, reduced, probes[name])
+            for layout, reduced in (self.fixture.configuration(c) for c in self._configs)
+        ])
+        return by_config[self._inverse]
+
+    def probe(self, name: str, t: Any, component: str = "total"):
+        """A probe's value at times `t` (probes may jump at changes)."""
+        return self._single(component, t, probe=name)
+
+    def probe_boundary(self, name: str) -> tuple[np.ndarray, np.ndarray]:
+        """A probe just after each change and just before the next (two arrays of length n)."""
+        rows = self._probe_rows(name)
+        states = self.boundary
+        offset = np.einsum("ij,ij->i", rows[:, 1:], self._levels)
+        return rows[:, 0] * states[:-1] + offset, rows[:, 0] * states[1:] + offset
+
+    # -- display ---------------------------------------------------------------------------------
+    def __repr__(self) -> str:
+        return (
+            f"Response({len(self.drive)} segments, start {format_value(self.initial, self.fixture.state_unit)}, "
+            f"end {format_value(float(self.boundary[-1]), self.fixture.state_unit)})"
+        )
+
+    def _repr_html_(self) -> str:
+        from ._html import table
+
+        unit = self.fixture.state_unit
+        n = len(self.drive)
+        shown = list(range(n)) if n <= 8 else [*range(6), n - 1]
+        rows = []
+        for k in shown:
+            rows.append([
+                k, format_value(float(self._starts[k]), "s"), format_value(float(self.tau[k]), "s"),
+                format_value(float(self.boundary[k]), unit), format_value(float(self.final[k]), unit),
+                format_value(float(self.boundary[k + 1]), unit),
+            ])
+        caption = (
+            f"Response of {self.fixture.storage.kind} '{self.fixture.storage.name}': {n} segments, "
+            f"start {format_value(self.initial, unit)}"
+        )
+        html = table(["segment", "from", "τ", "start value", "final", "value at end"], rows, caption=caption)
+        cautions = getattr(self, "cautions", None)
+        if cautions:
+            from ._html import paragraph
+
+            html += "".join(paragraph(f"⚠ {c}", color="#a33") for c in cautions)
+        return html
