@@ -10,6 +10,7 @@ from .drive import Drive
 from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
 from .response import Response, respond
+from .settling import Tolerance
 from .units import format_value, parse_value
 
 __all__ = [
@@ -17,6 +18,7 @@ __all__ = [
     "Fixture",
     "InputError",
     "Response",
+    "Tolerance",
     "TopologyError",
     "ZeroTimeError",
     "format_value",

@@ -50,7 +50,7 @@ def parse_value(
     value: object,
     *,
     field: str,
-    unit: str = "",
+    unit: str | tuple[str, ...] = "",
     positive: bool = False,
     allow_infinite: bool = False,
 ) -> float:
@@ -62,8 +62,9 @@ def parse_value(
         A number, or engineering notation with an optional unit.
     field : str
         Name used in error messages (for example ``"r"`` or ``"drive.end"``).
-    unit : str, optional
-        The unit expected, such as ``"Ω"``; text carrying another unit is refused.
+    unit : str or tuple of str, optional
+        The unit expected, such as ``"Ω"`` (or several allowed units); text
+        carrying another unit is refused.
     positive : bool, optional
         Require ``value > 0``.
     allow_infinite : bool, optional
@@ -108,7 +109,7 @@ def parse_value(
     return number
 
 
-def _parse_text(text: str, *, field: str, unit: str) -> float:
+def _parse_text(text: str, *, field: str, unit: str | tuple[str, ...]) -> float:
     stripped = text.strip()
     if stripped.lower() in {"inf", "+inf", "infinity"}:
         return math.inf
@@ -124,8 +125,10 @@ def _parse_text(text: str, *, field: str, unit: str) -> float:
         ) from error
     found = quantity.units or ""
     if found:
-        if not unit or found not in UNIT_ALIASES.get(unit, frozenset({unit})):
-            expected = f"'{unit}' or no unit" if unit else "no unit"
+        allowed = (unit,) if isinstance(unit, str) else unit
+        allowed = tuple(u for u in allowed if u)
+        if not any(found in UNIT_ALIASES.get(u, frozenset({u})) for u in allowed):
+            expected = " or ".join(f"'{u}'" for u in allowed) + " or no unit" if allowed else "no unit"
             raise InputError(f"{field}: {text!r} has unit {found!r}; expected {expected}")
     return float(quantity.real)
 
