@@ -6,6 +6,7 @@ and bokeh are imported when a derivation or the Bench is first asked for.
 
 from __future__ import annotations
 
+from .analysis import Analysis
 from .drive import Drive
 from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
@@ -14,6 +15,7 @@ from .settling import Tolerance
 from .units import format_value, parse_value
 
 __all__ = [
+    "Analysis",
     "Drive",
     "Fixture",
     "InputError",
