@@ -108,7 +108,7 @@ class Derivation:
             ("Circuit law at the storage element", self._law()),
             ("The ODE", sp.latex(self.ode)),
             ("Time constant", rf"\tau = {sp.latex(self.tau)}"),
-            ("Final value", rf"{x}(\infty) = {sp.latex(self.final)}"),
+            ("Final value", rf"{sp.latex(self.state.subs(self.symbols['t'], sp.oo))} = {sp.latex(self.final)}"),
             ("Zero-input + zero-state",
              rf"{x} = {sp.latex(self.zero_input)} + \left({sp.latex(self.zero_state)}\right)"),
             ("Natural + forced",
@@ -126,7 +126,7 @@ class Derivation:
 
     def latex(self) -> str:
         """The derivation as one LaTeX ``aligned`` block of steps."""
-        lines = [rf"&\text{{{caption}:}}\\ &\quad {body}" for caption, body in self.steps()]
+        lines = [rf"&\text{{{_latex_text(caption)}:}}\\ &\quad {body}" for caption, body in self.steps()]
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
     def markdown(self) -> str:
@@ -138,6 +138,21 @@ class Derivation:
 
     def _repr_markdown_(self) -> str:
         return self.markdown()
+
+
+_LATEX_TEXT_SPECIALS = {c: "\\" + c for c in "_{}%&#$"}
+_LATEX_TEXT_SPECIALS.update({"\\": r"\textbackslash{}", "^": r"\^{}", "~": r"\~{}"})
+
+
+def _latex_text(text: str) -> str:
+    r"""`text` safe inside ``\text{}``: part names such as ``c_hold`` carry underscores.
+
+    Examples
+    --------
+    >>> _latex_text("capacitor c_hold (k_1 closed)")
+    'capacitor c\\_hold (k\\_1 closed)'
+    """
+    return "".join(_LATEX_TEXT_SPECIALS.get(c, c) for c in text)
 
 
 def _solve(layout: _network.Layout, fixture: "Fixture", conductance) -> sp.Matrix:
