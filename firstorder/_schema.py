@@ -170,10 +170,11 @@ Delay = Annotated[Quantity, _quantity_check("s", non_negative=True)]
 
 
 def _known_version(version: int) -> int:
+    if version > FORMAT_VERSION:
+        raise ValueError(f"version: {version!r} is newer than this firstorder reads (version "
+                         f"{FORMAT_VERSION}); the file was written by a newer firstorder, update to read it")
     if version != FORMAT_VERSION:
-        newer = " (written by a newer firstorder; update firstorder to read it)" if version > FORMAT_VERSION else ""
-        raise ValueError(f"version: {version!r} is not a version this firstorder reads "
-                         f"(it reads version {FORMAT_VERSION}){newer}")
+        raise ValueError(f"version: {version!r} is not a version this firstorder reads (it reads version {FORMAT_VERSION})")
     return version
 
 

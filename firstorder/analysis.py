@@ -181,7 +181,9 @@ def _parse_json(text: str, source: str) -> Any:
     try:
         return json.loads(text, parse_constant=_refuse_constant, object_pairs_hook=_refuse_duplicates)
     except json.JSONDecodeError as error:
-        hint = " (the file ends early; was it cut short?)" if error.pos >= len(text.rstrip()) else ""
+        # An unterminated string, or an error at the very end, means the text stops too soon.
+        ends_early = error.pos >= len(text.rstrip()) or error.msg.startswith("Unterminated string")
+        hint = " (the file ends early; was it cut short?)" if ends_early else ""
         raise InputError(
             f"{source}: not valid JSON at line {error.lineno}, column {error.colno}: {error.msg}{hint}"
         ) from None
@@ -190,7 +192,8 @@ def _parse_json(text: str, source: str) -> Any:
     except InputError as error:
         raise InputError(f"{source}: {error}") from None
     except ValueError as error:  # for example an integer with more digits than Python reads
-        raise InputError(f"{source}: not a readable analysis file: {error}") from None
+        reason = "it holds a number with thousands of digits" if "digits" in str(error) else str(error)
+        raise InputError(f"{source}: not a readable analysis file: {reason}") from None
 
 
 def _embed_safe(text: str) -> str:
@@ -291,12 +294,25 @@ def _describe_validation(error: Any, data: Any) -> str:
     path, first = candidates[0]
     same = [item for p, item in candidates if p == path]
     kinds = [item["type"] for item in same]
+    # A broken limit (too long, not finite) says more than "not an int" from another member.
+    constraints = [item for item in same if item["type"] not in _EXPECTED]
+    if constraints:
+        first = constraints[0]
     value = first.get("input")
     where = _path_text(path)
     if first["type"] == "missing":
         return f"{where}: is missing; this field is required"
     if first["type"] == "extra_forbidden":
-        return f"{where}: is not a field of this format; remove it (values were {_short(value)})"
+        return f"{where}: is not a field of this format; remove it (its value: {_short(value)})"
+    context = first.get("ctx", {})
+    if first["type"] in ("too_long", "too_short"):
+        limit = f"at most {context.get('max_length')}" if first["type"] == "too_long" else f"at least {context.get('min_length')}"
+        return f"{where}: has {context.get('actual_length')} items; {limit} are allowed"
+    if first["type"] in ("string_too_long", "string_too_short"):
+        limit = f"at most {context.get('max_length')}" if first["type"] == "string_too_long" else f"at least {context.get('min_length')}"
+        return f"{where}: is {len(value) if isinstance(value, str) else '?'} characters long; {limit} are allowed"
+    if first["type"] == "finite_number":
+        return f"{where}: {_short(value)} is not allowed; numbers must be finite (a too-large number reads as inf)"
     if first["type"] in ("union_tag_invalid", "union_tag_not_found"):
         expected = first.get("ctx", {}).get("expected_tags", "")
         return f"{where}.kind: {_short(value.get('kind') if isinstance(value, dict) else value)} is not one of {expected}"
@@ -317,12 +333,21 @@ def _describe_validation(error: Any, data: Any) -> str:
 
 
 @contextlib.contextmanager
-def _at(prefix: str) -> Iterator[None]:
-    """Put the JSON path in front of errors raised by the builders."""
+def _at(prefix: str, columns: Sequence[str] = ()) -> Iterator[None]:
+    """Put the JSON path in front of errors raised by the builders.
+
+    The drive names its columns ``drive.<name>``; a file holds them under
+    ``drive.columns``, so messages about `columns` are given that path.
+    """
     try:
         yield
     except InputError as error:
-        raise type(error)(f"{prefix}: {error}") from None
+        message = str(error)
+        for name in columns:
+            if message.startswith((f"drive.{name}:", f"drive.{name}[")):
+                message = _path_text(["drive", "columns", name]) + message[len(f"drive.{name}"):]
+                break
+        raise type(error)(f"{prefix}: {message}") from None
 
 
 # -- the analysis ----------------------------------------------------------------------------------
@@ -569,21 +594,14 @@ class Analysis:
         with _at(f"{source}: fixture"):
             fixture.check()
         drive_data = model.drive
-        try:
+        columns = list(drive_data.columns)
+        with _at(source, columns):
             drive = Drive(drive_data.times, drive_data.end, **drive_data.columns)
-        except InputError as error:
-            message = str(error)
-            for name in drive_data.columns:
-                # The drive names its columns "drive.<name>"; the file holds them under "columns".
-                if message.startswith(f"drive.{name}:") or message.startswith(f"drive.{name}["):
-                    message = _path_text(["drive", "columns", name]) + message[len(f"drive.{name}"):]
-                    break
-            raise type(error)(f"{source}: {message}") from None
         tolerance = None
         if model.tolerance is not None:
             with _at(source):
                 tolerance = Tolerance.from_dict(model.tolerance.model_dump())
-        with _at(source):
+        with _at(source, columns):
             return cls(
                 fixture,
                 drive,
