@@ -74,8 +74,11 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
     fixture.check()
     levels, states = _match_columns(fixture, drive)
     configs, inverse = _configurations(states)
-    first_use = np.zeros(len(configs), dtype=np.intp)
-    first_use[inverse[::-1]] = np.arange(inverse.size)[::-1]
+    if len(configs) == 1:
+        first_use = np.zeros(1, dtype=np.intp)
+    else:
+        # np.unique's return_index gives the first segment of every configuration.
+        _, first_use = np.unique(inverse, return_index=True)
     reduced = []
     for c, config in enumerate(configs):
         k = int(first_use[c])
@@ -87,7 +90,7 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
     drifts = np.array([r.drift for _, r in reduced]).reshape(len(configs), levels.shape[1])
 
     holding = np.isinf(taus)
-    if holding.any():
+    if holding.any() and (drifts != 0).any():
         ramp = (drifts[inverse] * levels != 0).any(axis=1)
         if ramp.any():
             k = int(np.argmax(ramp))
@@ -101,7 +104,11 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
             )
     with np.errstate(divide="ignore"):
         rate_by_config = np.where(holding, 0.0, 1.0 / taus)
-    return Response(fixture, drive, levels, configs, inverse, rate_by_config[inverse], gains, initial)
+    if len(configs) == 1:
+        rate = np.full(len(drive), rate_by_config[0])  # no gather for a fixture without switch changes
+    else:
+        rate = rate_by_config[inverse]
+    return Response(fixture, drive, levels, configs, inverse, rate, gains, initial)
 
 
 class Response:
@@ -161,6 +168,8 @@ class Response:
     @cached_property
     def _final_sources_only(self) -> np.ndarray:
         m = self._levels.shape[1]
+        if m == 1 and len(self._configs) == 1:
+            return self._gains[0, 0] * self._levels[:, 0]
         if m == 1:
             return self._gains[self._inverse, 0] * self._levels[:, 0]
         return self._source_finals.sum(axis=1)
@@ -257,9 +266,14 @@ class Response:
             parse_value(t, field="t", unit="s"))
         if array.size == 0:
             return array.reshape(-1)
-        low, high = float(np.min(array)), float(np.max(array))
-        if not (np.isfinite(low) and np.isfinite(high)):
-            raise InputError("t: contains NaN or inf; times must be finite seconds")
+        flat = array.reshape(-1)
+        if not np.isfinite(flat.sum()):  # one cheap pass; NaN or inf anywhere shows in the sum
+            if not np.isfinite(flat).all():
+                raise InputError("t: contains NaN or inf; times must be finite seconds")
+        if flat.size > 1 and not np.greater(flat[:-1], flat[1:]).any():
+            low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
+        else:
+            low, high = float(flat.min()), float(flat.max())
         if low < self._starts[0] or high > self.drive.end:
             bad = low if low < self._starts[0] else high
             raise InputError(
