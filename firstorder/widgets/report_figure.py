@@ -60,7 +60,7 @@ _TEMPLATE = """
 {% block postamble %}{{ report_head }}{% endblock %}
 {% block contents %}
 {{ report_top }}
-<section id="plot"><h2>Response</h2>
+<section id=plot><h2>Response</h2>
 {{ plot_caption }}
 {% for doc in docs %}{% for root in doc.roots %}{{ embed(root) }}{% endfor %}{% endfor %}
 </section>
