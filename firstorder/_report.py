@@ -53,7 +53,7 @@ _CSS = """
   table.fo { border-collapse: collapse; font-size: 0.88em; margin: 0.4em 0 0.8em; }
   table.fo th, table.fo td { padding: 2px 9px; text-align: left; border-bottom: 1px solid #dde3ea; }
   table.fo th { background: #eef2f6; }
-  table.fo td.num { text-align: right; font-variant-numeric: tabular-nums; }
+  table.fo td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
   tr.bad td { background: #fbeaea; }
   .caution { border-left: 4px solid #b03a2e; background: #fdf2f1; padding: 0.5em 0.8em; margin: 0.4em 0; }
   .fine { color: #2e6b3f; }
@@ -172,7 +172,7 @@ def _settling_cell(column: str, value: Any, unit: str) -> str:
     if isinstance(value, (float, np.floating)):
         number = float(value)
         if math.isnan(number):
-            return "not within the segment" if column == "settle_time" else "—"
+            return "ends first" if column == "settle_time" else "—"
         known = _SETTLING_UNITS.get(column, "")
         return format_value(number, known if known is not None else unit, digits=5)
     return str(value)
@@ -329,8 +329,8 @@ def derivation_steps(derivation: Any) -> list[tuple[str, list[Any]]]:
 
 
 # -- HTML -----------------------------------------------------------------------------------
-def _html_table(header: list[str], rows: list[list[str]], numeric_from: int | None = None) -> str:
-    head = "".join(f"<th>{escape(h)}</th>" for h in header)
+def _html_table(header: list[str] | None, rows: list[list[str]], numeric_from: int | None = None) -> str:
+    head = "<thead><tr>" + "".join(f"<th>{escape(h)}</th>" for h in header) + "</tr></thead>" if header else ""
     body = []
     for row in rows:
         cells = "".join(
@@ -338,7 +338,7 @@ def _html_table(header: list[str], rows: list[list[str]], numeric_from: int | No
             for i, c in enumerate(row)
         )
         body.append(f"<tr>{cells}</tr>")
-    return f"<table class=fo><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+    return f"<table class=fo>{head}<tbody>{''.join(body)}</tbody></table>"
 
 
 def _settling_html(analysis: "Analysis") -> str:
@@ -358,7 +358,8 @@ def _settling_html(analysis: "Analysis") -> str:
     )
     not_settled = int((~table["settled"].to_numpy(dtype=bool)).sum()) if "settled" in table.columns else 0
     failed = int((~table["ok"].to_numpy(dtype=bool)).sum()) if "ok" in table.columns else 0
-    verdict = (f"{not_settled} of {len(table)} segments do not settle within the tolerance before they end"
+    verdict = (f"{not_settled} of {len(table)} segments do not settle within the tolerance before they end "
+               "(settle time \"ends first\")"
                + (f"; {failed} fail at their sample instant" if "ok" in table.columns else "") + ".")
     note = f" {left_out} rows that settled are left out; the CLI's <code>settle</code> lists them all." if left_out else ""
     return (f"<p>Tolerance {escape(str(analysis.tolerance))}. {escape(verdict)}{note}</p>"
@@ -440,7 +441,7 @@ def html_report(analysis: "Analysis", now: str | None = None) -> str:
     if analysis.notes:
         top.append(f"<section id=notes><h2>Notes</h2><div class=notes>{escape(analysis.notes)}</div></section>")
     top.append("<section id=summary><h2>Summary</h2>"
-               + _html_table(["", ""], [list(r) for r in summary_rows(analysis)]) + "</section>")
+               + _html_table(None, [list(r) for r in summary_rows(analysis)]) + "</section>")
     top.append("<section id=parts><h2>Fixture</h2>"
                + _html_table(["name", "kind", "nodes", "as typed", "value"], part_rows(fixture)))
     if fixture.probes:

@@ -14,11 +14,15 @@ Errors go to stderr as one line, with exit code 2; there is never a traceback.
 from __future__ import annotations
 
 import argparse
+import json
+import math
 import os
 import sys
 from collections.abc import Sequence
 from pathlib import Path
 from typing import NoReturn
+
+import numpy as np
 
 __all__ = ["main", "demo_analysis"]
 
@@ -114,10 +118,10 @@ def _settle(arguments: argparse.Namespace) -> None:
         )
     table = analysis.settling()
     if arguments.format == "csv":
-        sys.stdout.write(table.to_csv(float_format=repr))
+        # 17 significant digits: every float reads back exactly.
+        sys.stdout.write(table.to_csv(float_format="%.17g"))
     elif arguments.format == "json":
-        # NaN (a segment that ends before it settles) becomes null.
-        sys.stdout.write(table.reset_index().to_json(orient="records", double_precision=15, indent=1) + "\n")
+        sys.stdout.write(json.dumps(_records(table), indent=1, allow_nan=False) + "\n")
     else:
         from .units import format_value
 
@@ -131,6 +135,23 @@ def _settle(arguments: argparse.Namespace) -> None:
         if "ok" in table.columns:
             line += f"; {int((~table['ok'].to_numpy(dtype=bool)).sum())} fail at their sample"
         print(line + f"; the drive lasts {format_value(analysis.drive.end - analysis.drive.start, 's')}.")
+
+
+def _records(table) -> list[dict[str, object]]:
+    """Rows as plain JSON values, floats exact; NaN (a segment that ends before it settles) as null."""
+    records = []
+    for row in table.reset_index().to_dict(orient="records"):
+        plain: dict[str, object] = {}
+        for key, value in row.items():
+            if isinstance(value, (bool, np.bool_)):
+                plain[key] = bool(value)
+            elif isinstance(value, (int, np.integer)):
+                plain[key] = int(value)
+            else:
+                number = float(value)
+                plain[key] = None if math.isnan(number) else number
+        records.append(plain)
+    return records
 
 
 def _text_table(table, unit: str) -> str:
