@@ -144,7 +144,7 @@ def drive_rows(drive: "Drive") -> tuple[list[str], list[list[str]], bool]:
     for k in shown:
         if previous is not None and k != previous + 1:
             rows.append(["…"] * len(header))
-        rows.append([str(k), format_value(float(drive.times[k]), "s"), *(f"{float(c[k]):.6g}" for c in columns)])
+        rows.append([str(k), format_value(float(drive.times[k]), "s", digits=7), *(f"{float(c[k]):.6g}" for c in columns)])
         previous = k
     return header, rows, n > FULL_DRIVE_ROWS
 
