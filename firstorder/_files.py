@@ -15,7 +15,11 @@ def write_atomic(path: str | os.PathLike[str], data: str | bytes) -> None:
     target = os.fspath(path)
     folder = os.path.dirname(os.path.abspath(target))
     mode = "wb" if isinstance(data, bytes) else "w"
-    handle, temporary = tempfile.mkstemp(prefix=".firstorder-", suffix=".tmp", dir=folder)
+    try:
+        handle, temporary = tempfile.mkstemp(prefix=".firstorder-", suffix=".tmp", dir=folder)
+    except OSError as error:
+        # Name the file the user asked for, not our temporary one.
+        raise type(error)(error.errno, error.strerror, target) from None
     try:
         # mkstemp makes the file private (0600); a saved file should get the
         # permissions an ordinary write would give (or keep the old file's),

@@ -49,3 +49,9 @@ class TestWriteAtomic:
             write_atomic(target, "new contents")
         assert target.read_bytes() == b"old contents"
         assert sorted(p.name for p in tmp_path.iterdir()) == ["a.json"]
+
+    def test_missing_folder_names_the_target(self, tmp_path):
+        target = tmp_path / "no" / "such" / "r.html"
+        with pytest.raises(FileNotFoundError) as caught:
+            write_atomic(target, "x")
+        assert caught.value.filename == str(target)
