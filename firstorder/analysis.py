@@ -672,6 +672,13 @@ class Analysis:
         return markdown_report(self, derivations=derivations)
 
     # -- display -----------------------------------------------------------------------------------------
+    def _repr_html_(self) -> str:
+        from ._html import table
+        from ._report import summary_rows
+
+        caption = f"Analysis: {self._title}" if self._title else "Analysis"
+        return table(["", ""], summary_rows(self), caption=caption)
+
     def __repr__(self) -> str:
         parts = ", ".join(p.name for p in self._fixture.parts if not p.is_source)
         return (

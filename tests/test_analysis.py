@@ -118,6 +118,10 @@ class TestAnalysis:
         with pytest.raises(fo.InputError, match="colour"):
             a.replace(colour="red")
 
+    def test_notebook_display(self):
+        html = general_analysis(title="<b>bold</b>")._repr_html_()
+        assert "Analysis: &lt;b&gt;bold&lt;/b&gt;" in html and "time constant (k1 closed)" in html
+
     def test_derivations_follow_first_use(self):
         states = [s for s, _ in general_analysis().derivations()]
         assert states == [(True,), (False,)]
@@ -484,3 +488,34 @@ class TestImportCost:
                                 env=dict(os.environ, PYTHONPATH=os.path.dirname(os.path.dirname(fo.__file__))))
         assert result.returncode == 0, result.stderr
         assert result.stdout.strip() == "[]"
+
+
+class TestNoEvaluation:
+    def test_load_calls_no_eval_exec_pickle_or_sympy(self, tmp_path):
+        # Loading is parsing and validating only: with eval and exec refusing text (imports still
+        # run module code objects) and pickle refusing everything, a file with text values
+        # everywhere still loads, and sympy (whose sympify evaluates text) stays unloaded.
+        import subprocess
+        import sys
+
+        path = write_json(tmp_path / "a.json", _text_data())
+        code = (
+            "import builtins, pickle, sys\n"
+            "import firstorder as fo, firstorder._schema\n"
+            "def guard(original):\n"
+            "    def run(source, *a, **k):\n"
+            "        if isinstance(source, (str, bytes)):\n"
+            "            raise AssertionError(f'text was evaluated: {source!r:.80}')\n"
+            "        return original(source, *a, **k)\n"
+            "    return run\n"
+            "def refuse(*a, **k):\n"
+            "    raise AssertionError('something was unpickled')\n"
+            "builtins.eval, builtins.exec = guard(builtins.eval), guard(builtins.exec)\n"
+            "pickle.loads = pickle.load = refuse\n"
+            "a = fo.Analysis.load(sys.argv[1])\n"
+            "print(len(a.drive), 'sympy' in sys.modules)\n"
+        )
+        result = subprocess.run([sys.executable, "-c", code, path], capture_output=True, text=True,
+                                env=dict(os.environ, PYTHONPATH=os.path.dirname(os.path.dirname(fo.__file__))))
+        assert result.returncode == 0, result.stderr
+        assert result.stdout.split() == ["4", "False"]
