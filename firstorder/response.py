@@ -262,8 +262,12 @@ class Response:
 
     # -- evaluation -------------------------------------------------------------------------
     def _times(self, t: Any) -> np.ndarray:
-        array = np.asarray(t, dtype=np.float64) if not isinstance(t, str) else np.asarray(
-            parse_value(t, field="t", unit="s"))
+        if isinstance(t, str):
+            array = np.asarray(parse_value(t, field="t", unit="s"))
+        elif isinstance(t, (list, tuple)) and any(isinstance(v, str) for v in t):
+            array = np.array([parse_value(v, field=f"t[{i}]", unit="s") for i, v in enumerate(t)])
+        else:
+            array = np.asarray(t, dtype=np.float64)
         if array.size == 0:
             return array.reshape(-1)
         flat = array.reshape(-1)
