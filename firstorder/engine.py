@@ -110,13 +110,18 @@ class SegmentLocator:
         Segment start instants.
     rate : ndarray, shape (n,)
         ``1 / tau`` per segment (zero where the state is held).
+    is_sorted : bool, optional
+        Whether `t` is non-decreasing, when the caller knows already.
     """
 
     __slots__ = ("_counts", "_index", "decay", "size")
 
-    def __init__(self, t: np.ndarray, starts: np.ndarray, rate: np.ndarray) -> None:
+    def __init__(self, t: np.ndarray, starts: np.ndarray, rate: np.ndarray,
+                 is_sorted: bool | None = None) -> None:
         self.size = t.size
-        if t.size > 1 and not np.greater(t[:-1], t[1:]).any():
+        if is_sorted is None:
+            is_sorted = t.size > 1 and not np.greater(t[:-1], t[1:]).any()
+        if is_sorted and t.size > 1:
             # Sorted times: a run-length per segment, then repeats instead of gathers.
             first = np.searchsorted(t, starts, side="left")
             self._counts = np.diff(first, append=t.size)
