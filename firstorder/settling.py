@@ -582,7 +582,8 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
         aim = limit * (1.0 - _AIM_INSIDE) - _ROUNDING_ULPS * eps * c * max(abs(state), abs(final))
         if aim <= 0.0:
             aim = limit * (1.0 - _AIM_INSIDE)
-        settle = math.log(step / aim) / r if (r > 0.0 and step > aim) else 0.0
+        # Already within the limit: no wait (aiming inside matters only for steps that move).
+        settle = math.log(step / aim) / r if (r > 0.0 and step > limit) else 0.0
         need = settle + float(hold_after[k])
         dwell = max(shortest, need)
         if not dwell > 0.0:
