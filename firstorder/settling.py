@@ -203,8 +203,14 @@ def _settle_times(step: np.ndarray, limit: np.ndarray, rate: np.ndarray) -> np.n
                         / np.where(moving, rate, 1.0), 0.0)
 
 
-def _sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str, what: str) -> np.ndarray:
-    """Delays after each change (s), one per segment, checked to lie inside their segments."""
+def _sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str, what: str,
+                   ends: np.ndarray | None = None) -> np.ndarray:
+    """Delays after each change (s), one per segment, checked to lie inside their segments.
+
+    A delay past its segment's end by no more than the rounding of the instants (a few
+    units in the last place of `ends`) is taken as the end: a drive stores instants, so
+    its durations can differ by that much from the dwells it was built from.
+    """
     n = durations.size
     if isinstance(sample_delay, (str, int, float, np.number)) and not isinstance(sample_delay, bool):
         delays = np.full(n, parse_value(sample_delay, field=field, unit="s"))
@@ -221,6 +227,9 @@ def _sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str, what
                 delays[k] = float(item)
             else:
                 delays[k] = parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
+    if ends is not None:
+        slack = 4.0 * np.spacing(np.abs(ends))
+        delays = np.where((delays > durations) & (delays <= durations + slack), durations, delays)
     bad = ~np.isfinite(delays) | (delays < 0) | (delays > durations)
     if bad.any():
         k = int(np.argmax(bad))
@@ -250,7 +259,8 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
     sample_delay : float, str or sequence, optional
         Seconds after each change at which the sample is taken: one value for
         every segment, or one per segment.  Each must lie within its segment (a
-        delay equal to the segment's length samples just before the next change).
+        delay equal to the segment's length samples just before the next change;
+        one past it by only the rounding of the change instants counts as that).
     probe : str, optional
         Settle this probe instead of the state.  Within a segment a probe is
         ``c*x + offset``, so it settles with the same tau; its error is ``|c|``
@@ -321,7 +331,7 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
         "residual_at_end": residual,
     }
     if sample_delay is not None:
-        delays = _sample_delays(sample_delay, durations, field="sample_delay", what="segment")
+        delays = _sample_delays(sample_delay, durations, field="sample_delay", what="segment", ends=response.ends)
         decay = np.exp(-delays * watched.rate)
         error = step * decay
         columns["sample_time"] = response.starts + delays

@@ -281,6 +281,19 @@ class TestSettlingTable:
         _, before = res.probe_boundary("v_a")
         assert table["value_at_sample"].to_numpy() == pytest.approx(before, rel=1e-12)
 
+    def test_dwells_as_delays_survive_the_rounding_of_instants(self):
+        # Instants built by summing dwells can make a duration an ulp shorter than its dwell;
+        # such a delay is the segment's end, while a real overshoot is still refused.
+        dwells = np.full(40, 0.1)
+        times = np.concatenate([[0.0], np.cumsum(dwells)[:-1]])
+        drive = fo.Drive(times, float(np.sum(dwells)), vin=np.resize([1.0, -1.0], 40))
+        assert (drive.durations < dwells).any()
+        res = fo.Fixture.rc(r="1k", c="1u").respond(drive)
+        table = res.settling(fo.Tolerance.absolute("1m"), sample_delay=dwells)
+        assert table["sample_time"].to_numpy() == pytest.approx(drive.ends, rel=1e-15)
+        with pytest.raises(InputError, match="segment 0"):
+            res.settling(fo.Tolerance.absolute("1m"), sample_delay=dwells * (1 + 1e-12))
+
     @pytest.mark.parametrize("delay, message", [
         (-1e-6, "segment 0"),
         ("2m", "segment 0"),
