@@ -180,7 +180,7 @@ def _check_unit(tolerance: Tolerance, unit: str, label: str) -> None:
 
 def _watched(response: Any, probe: str | None) -> _Watched:
     """The state, or `probe`, of `response` as start/final/rate arrays."""
-    rate = np.where(response.holds, 0.0, 1.0 / np.where(response.holds, 1.0, response.tau))
+    rate = response._rate
     state_start = response.boundary[:-1]
     if probe is None:
         storage = response.fixture.storage
@@ -197,10 +197,12 @@ def _watched(response: Any, probe: str | None) -> _Watched:
 
 def _settle_times(step: np.ndarray, limit: np.ndarray, rate: np.ndarray) -> np.ndarray:
     """``tau * ln(step / limit)`` where the step exceeds the limit, else 0 (closed form)."""
-    moving = (step > limit) & (rate > 0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(moving, np.log(np.where(moving, step / np.where(moving, limit, 1.0), 1.0))
-                        / np.where(moving, rate, 1.0), 0.0)
+    # Where the step is within the limit, or the state is held (rate 0), the quotient is
+    # negative, inf or NaN; those are replaced by 0, so their warnings are noise.
+    with np.errstate(all="ignore"):
+        settle = np.log(step / limit)
+        settle /= rate
+    return np.where((step > limit) & (rate > 0), settle, 0.0)
 
 
 def _sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str, what: str,
@@ -227,7 +229,7 @@ def _sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str, what
                 delays[k] = float(item)
             else:
                 delays[k] = parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
-    if ends is not None:
+    if ends is not None and (delays > durations).any():
         slack = 4.0 * np.spacing(np.abs(ends))
         delays = np.where((delays > durations) & (delays <= durations + slack), durations, delays)
     bad = ~np.isfinite(delays) | (delays < 0) | (delays > durations)
@@ -339,7 +341,8 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
         columns["value_at_sample"] = watched.final + (watched.start - watched.final) * decay
         columns["error_at_sample"] = error
         columns["ok"] = error <= limit
-    table = pd.DataFrame(columns, index=pd.RangeIndex(len(durations), name="segment"))
+    # Every column is a fresh array (or the response's read-only per-segment data): no copy needed.
+    table = pd.DataFrame(columns, index=pd.RangeIndex(len(durations), name="segment"), copy=False)
     table.attrs.update(tolerance=str(tolerance), unit=watched.unit, watched=watched.label)
     return table
 
