@@ -509,6 +509,24 @@ class TestPlanDwells:
                 rest = fo.plan_dwells(fx, {"vin": levels[k + 1:]}, tolerance, initial=state, sample_delay=delay)
                 assert head.end + (rest.end - rest.start) >= best_total * (1 - 1e-12)
 
+    def test_when_tau_changes_lingering_can_help(self):
+        # The limit stated in plan_dwells' notes, shown: a fast step (1 µs) followed by a slow
+        # one (1 ms) just past its level.  Lingering 5 µs in the fast step brings the state
+        # nearer to the slow step's level than the greedy plan leaves it, and saves more than
+        # it costs.
+        fx = fo.Fixture()
+        fx.voltage_source("vin", "in", "gnd")
+        fx.resistor("r", "in", "out", "1M")
+        fx.switch("k", "in", "out", r_on="1k")
+        fx.capacitor("c", "out", "gnd", "1n")
+        tolerance = fo.Tolerance.absolute("1m")
+        levels = {"vin": [1.0, 1.01], "k": [1, 0]}
+        greedy = fo.plan_dwells(fx, levels, tolerance)
+        first = fo.Drive([0.0], greedy.durations[0] + 5e-6, vin=[1.0], k=[1])
+        state = float(fx.respond(first).boundary[-1])
+        rest = fo.plan_dwells(fx, {"vin": [1.01], "k": [0]}, tolerance, initial=state)
+        assert first.end + (rest.end - rest.start) < (greedy.end - greedy.start) - 50e-6
+
     def test_plan_for_a_probe(self):
         fx = switched_fixture()
         levels = {"vdac": [1.0, 4.0, 4.0], "k1": [1, 1, 0]}
