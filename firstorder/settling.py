@@ -217,18 +217,20 @@ def _sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str, what
     if isinstance(sample_delay, (str, int, float, np.number)) and not isinstance(sample_delay, bool):
         delays = np.full(n, parse_value(sample_delay, field=field, unit="s"))
     else:
-        items = list(np.asarray(sample_delay, dtype=object).reshape(-1)) if not isinstance(sample_delay, bool) else None
-        if items is None or len(items) != n:
-            count = "a bool" if items is None else f"{len(items)} values"
+        array = np.asarray(sample_delay) if not isinstance(sample_delay, bool) else None
+        if array is None or array.dtype.kind == "b" or array.size != n:
+            count = "a bool" if array is None or array.dtype.kind == "b" else f"{array.size} values"
             raise InputError(
                 f"{field}: got {count}; give one delay in seconds for all {what}s or one per {what} ({n})"
             )
-        delays = np.empty(n)
-        for k, item in enumerate(items):
-            if isinstance(item, (float, int, np.number)) and not isinstance(item, bool):
-                delays[k] = float(item)
-            else:
-                delays[k] = parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
+        if array.dtype.kind in "iuf":
+            delays = array.astype(np.float64).reshape(-1)
+        else:  # text such as "12u" among the numbers
+            delays = np.array([
+                float(item) if isinstance(item, (float, int, np.number)) and not isinstance(item, bool)
+                else parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
+                for k, item in enumerate(array.reshape(-1).tolist())
+            ])
     if ends is not None and (delays > durations).any():
         slack = 4.0 * np.spacing(np.abs(ends))
         delays = np.where((delays > durations) & (delays <= durations + slack), durations, delays)
@@ -240,10 +242,9 @@ def _sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str, what
             reason = "must be a finite time >= 0"
         else:
             reason = f"falls after the {what}'s end ({what} {k} lasts {format_value(length, 's')})"
-        raise InputError(
-            f"{field} for {what} {k}: {value!r} s {reason}; a sample must fall inside its {what}, "
-            f"from 0 to {format_value(length, 's')} after the change"
-        )
+        inside = (f"; a sample must fall inside its {what}, from 0 to {format_value(length, 's')} "
+                  f"after the change") if math.isfinite(length) else ""
+        raise InputError(f"{field} for {what} {k}: {value!r} s {reason}{inside}")
     return delays
 
 
