@@ -390,6 +390,44 @@ class Response:
         offset = np.einsum("ij,ij->i", rows[:, 1:], self._levels)
         return rows[:, 0] * states[:-1] + offset, rows[:, 0] * states[1:] + offset
 
+    # -- settling ---------------------------------------------------------------------------------
+    def settling(self, tolerance, sample_delay: Any = None, probe: str | None = None):
+        """Per-segment settle times, residuals and sample errors (a pandas DataFrame).
+
+        See :func:`firstorder.settling.settling_table` for the columns.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 5.0)], end="20m"))
+        >>> round(float(res.settling(fo.Tolerance.relative(0.01))["settle_time"].iloc[0]) / 1e-3, 3)
+        4.605
+        """
+        from .settling import settling_table
+
+        return settling_table(self, tolerance, sample_delay=sample_delay, probe=probe)
+
+    def summary(self, tolerance, sample_delay: Any = None, probe: str | None = None):
+        """The worst segment, how many did not settle, total time, smallest margin at the samples.
+
+        See :func:`firstorder.settling.settling_summary`.
+        """
+        from .settling import settling_summary
+
+        return settling_summary(self, tolerance, sample_delay=sample_delay, probe=probe)
+
+    @cached_property
+    def cautions(self) -> list:
+        """Hazards found in this response (high voltage, stored energy), as :class:`Caution` s.
+
+        Checked against the limits in force when first read (see
+        :func:`firstorder.cautions.set_limits`); call
+        :func:`firstorder.cautions.check` for other limits.
+        """
+        from .cautions import check
+
+        return check(self)
+
     # -- display ---------------------------------------------------------------------------------
     def __repr__(self) -> str:
         return (
