@@ -7,24 +7,29 @@ and bokeh are imported when a derivation or the Bench is first asked for.
 from __future__ import annotations
 
 from .analysis import Analysis
+from .cautions import Caution
 from .drive import Drive
 from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
 from .response import Response, respond
-from .settling import Tolerance
+from .settling import SettlingSummary, Tolerance, plan_dwells, plan_table
 from .units import format_value, parse_value
 
 __all__ = [
     "Analysis",
+    "Caution",
     "Drive",
     "Fixture",
     "InputError",
     "Response",
+    "SettlingSummary",
     "Tolerance",
     "TopologyError",
     "ZeroTimeError",
     "format_value",
     "parse_value",
+    "plan_dwells",
+    "plan_table",
     "respond",
 ]
 

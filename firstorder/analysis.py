@@ -460,7 +460,7 @@ class Analysis:
     @property
     def cautions(self) -> list[Any]:
         """The response's safety cautions (empty when there is nothing to warn about)."""
-        return list(getattr(self._response, "cautions", []) or [])
+        return list(self._response.cautions)
 
     def settling(self) -> "pd.DataFrame":
         """The settling table of the state for the analysis's tolerance and sample delay.

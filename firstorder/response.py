@@ -262,15 +262,24 @@ class Response:
 
     # -- evaluation -------------------------------------------------------------------------
     def _times(self, t: Any) -> np.ndarray:
-        array = np.asarray(t, dtype=np.float64) if not isinstance(t, str) else np.asarray(
-            parse_value(t, field="t", unit="s"))
+        return self._checked_times(t)[0]
+
+    def _checked_times(self, t: Any) -> tuple[np.ndarray, bool]:
+        """`t` as a float array inside the drive, and whether it is sorted."""
+        if isinstance(t, str):
+            array = np.asarray(parse_value(t, field="t", unit="s"))
+        elif isinstance(t, (list, tuple)) and any(isinstance(v, str) for v in t):
+            array = np.array([parse_value(v, field=f"t[{i}]", unit="s") for i, v in enumerate(t)])
+        else:
+            array = np.asarray(t, dtype=np.float64)
         if array.size == 0:
-            return array.reshape(-1)
+            return array.reshape(-1), True
         flat = array.reshape(-1)
         if not np.isfinite(flat.sum()):  # one cheap pass; NaN or inf anywhere shows in the sum
             if not np.isfinite(flat).all():
                 raise InputError("t: contains NaN or inf; times must be finite seconds")
-        if flat.size > 1 and not np.greater(flat[:-1], flat[1:]).any():
+        is_sorted = flat.size < 2 or not np.greater(flat[:-1], flat[1:]).any()
+        if is_sorted:
             low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
         else:
             low, high = float(flat.min()), float(flat.max())
@@ -280,16 +289,17 @@ class Response:
                 f"t: {bad!r} s is outside the drive, which runs from {float(self._starts[0])!r} "
                 f"to {self.drive.end!r} s"
             )
-        return array
+        return array, is_sorted
 
     def locate(self, t: Any) -> engine.SegmentLocator:
         """Pre-compute where times fall, to evaluate several components at once."""
-        return engine.SegmentLocator(self._times(t).reshape(-1), self._starts, self._rate)
+        array, is_sorted = self._checked_times(t)
+        return engine.SegmentLocator(array.reshape(-1), self._starts, self._rate, is_sorted)
 
     def evaluate(self, t: Any, components: tuple[str, ...] = ("total",), probe: str | None = None) -> dict[str, np.ndarray]:
         """Evaluate several components (of the state, or of `probe`) on one time array."""
-        array = self._times(t)
-        locator = engine.SegmentLocator(array.reshape(-1), self._starts, self._rate)
+        array, is_sorted = self._checked_times(t)
+        locator = engine.SegmentLocator(array.reshape(-1), self._starts, self._rate, is_sorted)
         rows = self._probe_rows(probe) if probe is not None else None
         out = {}
         for component in components:
@@ -379,6 +389,44 @@ class Response:
         states = self.boundary
         offset = np.einsum("ij,ij->i", rows[:, 1:], self._levels)
         return rows[:, 0] * states[:-1] + offset, rows[:, 0] * states[1:] + offset
+
+    # -- settling ---------------------------------------------------------------------------------
+    def settling(self, tolerance, sample_delay: Any = None, probe: str | None = None):
+        """Per-segment settle times, residuals and sample errors (a pandas DataFrame).
+
+        See :func:`firstorder.settling.settling_table` for the columns.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 5.0)], end="20m"))
+        >>> round(float(res.settling(fo.Tolerance.relative(0.01))["settle_time"].iloc[0]) / 1e-3, 3)
+        4.605
+        """
+        from .settling import settling_table
+
+        return settling_table(self, tolerance, sample_delay=sample_delay, probe=probe)
+
+    def summary(self, tolerance, sample_delay: Any = None, probe: str | None = None):
+        """The worst segment, how many did not settle, total time, smallest margin at the samples.
+
+        See :func:`firstorder.settling.settling_summary`.
+        """
+        from .settling import settling_summary
+
+        return settling_summary(self, tolerance, sample_delay=sample_delay, probe=probe)
+
+    @cached_property
+    def cautions(self) -> list:
+        """Hazards found in this response (high voltage, stored energy), as :class:`Caution` s.
+
+        Checked against the limits in force when first read (see
+        :func:`firstorder.cautions.set_limits`); call
+        :func:`firstorder.cautions.check` for other limits.
+        """
+        from .cautions import check
+
+        return check(self)
 
     # -- display ---------------------------------------------------------------------------------
     def __repr__(self) -> str:

@@ -89,8 +89,6 @@ class TestReport:
 class TestSettle:
     def test_table(self, demo):
         result = run("settle", str(demo / "demo-analysis.json"))
-        if result.returncode == 2 and "settling" in result.stderr:
-            pytest.skip("Response.settling has not landed on this branch yet")
         assert result.returncode == 0, result.stderr
         lines = result.stdout.splitlines()
         assert "tolerance ±38.15 µV (½ LSB of 16 bits on 5 V)" in lines[0]
@@ -102,8 +100,6 @@ class TestSettle:
     @pytest.mark.parametrize("form", ["csv", "json"])
     def test_machine_formats_match_the_library(self, demo, form):
         analysis = Analysis.load(demo / "demo-analysis.json")
-        if not hasattr(analysis.response, "settling"):
-            pytest.skip("Response.settling has not landed on this branch yet")
         expected = analysis.settling().reset_index()
         result = run("settle", str(demo / "demo-analysis.json"), "--format", form)
         assert result.returncode == 0, result.stderr

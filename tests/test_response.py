@@ -26,7 +26,7 @@ def rc_or_rl_drives(draw):
     exponents = draw(st.lists(st.floats(-3, 3), min_size=n, max_size=n))
     levels = draw(st.lists(st.floats(-10.0, 10.0), min_size=n, max_size=n))
     durations = tau * 10.0 ** np.array(exponents)
-    origin = draw(st.floats(0, 1.0))
+    origin = tau * draw(st.floats(0, 100.0))  # a time origin the shortest segment can follow
     times = origin + np.concatenate([[0.0], np.cumsum(durations)[:-1]])
     drive = fo.Drive(times, end=origin + durations.sum(), vin=levels)
     initial = draw(st.floats(-10.0, 10.0))
