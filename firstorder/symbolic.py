@@ -140,19 +140,24 @@ class Derivation:
         return self.markdown()
 
 
+# Characters LaTeX will not take inside \text{}: each is set in math mode between two
+# \text{} pieces, which LaTeX and the notebooks' MathJax (without its textmacros
+# package) both draw as the character itself.
 _LATEX_TEXT_SPECIALS = {c: "\\" + c for c in "_{}%&#$"}
-_LATEX_TEXT_SPECIALS.update({"\\": r"\textbackslash{}", "^": r"\^{}", "~": r"\~{}"})
+_LATEX_TEXT_SPECIALS.update({"\\": r"\backslash", "^": r"\hat{}", "~": r"\sim"})
 
 
 def _latex_text(text: str) -> str:
-    r"""`text` safe inside ``\text{}``: part names such as ``c_hold`` carry underscores.
+    r"""`text` for use inside ``\text{...}``: part names such as ``c_hold`` carry underscores.
 
     Examples
     --------
-    >>> _latex_text("capacitor c_hold (k_1 closed)")
-    'capacitor c\\_hold (k\\_1 closed)'
+    >>> _latex_text("capacitor c_hold (k1 closed)")
+    'capacitor c}\\_\\text{hold (k1 closed)'
     """
-    return "".join(_LATEX_TEXT_SPECIALS.get(c, c) for c in text)
+    return "".join(
+        "}" + _LATEX_TEXT_SPECIALS[c] + r"\text{" if c in _LATEX_TEXT_SPECIALS else c for c in text
+    )
 
 
 def _solve(layout: _network.Layout, fixture: "Fixture", conductance) -> sp.Matrix:
