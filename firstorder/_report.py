@@ -58,7 +58,9 @@ _CSS = """
   .caution { border-left: 4px solid #b03a2e; background: #fdf2f1; padding: 0.5em 0.8em; margin: 0.4em 0; }
   .fine { color: #2e6b3f; }
   ol.steps li { margin-bottom: 0.6em; }
-  math[display="block"] { margin: 0.3em 0 0.3em 1em; }
+  /* Display-style maths, set flush left under its caption (block math is centred). */
+  div.eq { margin: 0.35em 0 0.35em 1.5em; }
+  div.eq math { display: inline math; math-style: normal; }
   footer { margin-top: 2.5em; font-size: 0.85em; color: #5a6877; border-top: 1px solid #d5dee8; padding-top: 0.6em; }
   code { background: #eef2f6; padding: 0 0.25em; }
 </style>
@@ -273,14 +275,15 @@ def mathml(expression: Any) -> str:
     --------
     >>> import sympy as sp
     >>> mathml(sp.Symbol("r") * sp.Symbol("c"))
-    '<math xmlns="http://www.w3.org/1998/Math/MathML" display="block"><mrow><mi>c</mi><mo>&InvisibleTimes;</mo><mi>r</mi></mrow></math>'
+    '<math xmlns="http://www.w3.org/1998/Math/MathML" display="block"><mrow><mi>c</mi><mo>&#xB7;</mo><mi>r</mi></mrow></math>'
     >>> "<script" in mathml(sp.Symbol("<script>x"))
     False
     """
     import sympy as sp
     from sympy.printing.mathml import mathml as print_mathml
 
-    body = print_mathml(_escaped_names(expression), printer="presentation")
+    # A visible dot between factors: names of several letters ("rm", "vdac") run together otherwise.
+    body = print_mathml(_escaped_names(expression), printer="presentation", mul_symbol="dot")
     check = _MathMLCheck()
     check.feed(body)
     check.close()
@@ -387,7 +390,7 @@ def _derivations_html(analysis: "Analysis") -> str:
     for states, derivation in shown:
         parts.append(f"<h3>{escape(_states_text(analysis.fixture, states))}</h3><ol class=steps>")
         for caption, equations in derivation_steps(derivation):
-            maths = "".join(mathml(equation) for equation in equations)
+            maths = "".join(f"<div class=eq>{mathml(equation)}</div>" for equation in equations)
             parts.append(f"<li>{escape(caption)}{maths}</li>")
         parts.append("</ol>")
     if len(derivations) > len(shown):

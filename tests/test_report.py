@@ -174,7 +174,7 @@ class TestMathml:
         r, c = sp.symbols("r c", positive=True)
         text = _report.mathml(sp.Eq(sp.Symbol("tau"), r * c))
         assert text.startswith('<math xmlns="http://www.w3.org/1998/Math/MathML" display="block">')
-        assert "<mi>&#964;</mi><mo>=</mo><mrow><mi>c</mi><mo>&InvisibleTimes;</mo><mi>r</mi></mrow>" in text
+        assert "<mi>&#964;</mi><mo>=</mo><mrow><mi>c</mi><mo>&#xB7;</mo><mi>r</mi></mrow>" in text
 
     @pytest.mark.parametrize("name", ["<script>alert(1)</script>", "a&b", "x\"><img src=x onerror=alert(1)>"])
     def test_names_are_escaped(self, name):
