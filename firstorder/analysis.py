@@ -249,13 +249,22 @@ def _data_path(data: Any, location: tuple[Any, ...], error_type: str) -> list[st
     """
     path: list[str | int] = []
     current = data
+    tag_seen = False
     for i, step in enumerate(location):
+        if (isinstance(current, dict) and not tag_seen and step == current.get("kind")
+                and i < len(location) - 1):
+            # The tag of a part or tolerance union, once per object: a tolerance of kind
+            # "ppm" also has a field "ppm".
+            tag_seen = True
+            continue
         if isinstance(current, dict) and isinstance(step, str) and step in current:
             current = current[step]
             path.append(step)
+            tag_seen = False
         elif isinstance(current, list) and isinstance(step, int) and 0 <= step < len(current):
             current = current[step]
             path.append(step)
+            tag_seen = False
         elif step == "[key]":
             continue
         elif error_type == "missing" and i == len(location) - 1:
