@@ -220,6 +220,10 @@ def _read_limited(path: str | os.PathLike[str]) -> str:
             f"{source}: holds more than {MAX_FILE_BYTES / 1e6:.0f} MB; an analysis file may "
             f"hold at most that, so it was not read"
         )
+    return _decode(data, source)
+
+
+def _decode(data: bytes, source: str) -> str:
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError as error:
@@ -578,12 +582,27 @@ class Analysis:
         return cls._from_model(model, source)
 
     @classmethod
-    def from_json(cls, text: str, source: str = "analysis JSON") -> "Analysis":
-        """Read an analysis from JSON text (see :meth:`from_dict`)."""
+    def from_json(cls, text: str | bytes, source: str = "analysis JSON") -> "Analysis":
+        """Read an analysis from JSON text, or from a report's HTML text (see :meth:`from_dict`).
+
+        Bytes (from an upload widget, say) are read as UTF-8.
+        """
+        if isinstance(text, (bytes, bytearray)):
+            if len(text) > MAX_FILE_BYTES:
+                raise InputError(f"{source}: more than {MAX_FILE_BYTES / 1e6:.0f} MB; not read")
+            text = _decode(bytes(text), source)
         if not isinstance(text, str):
             raise InputError(f"{source}: expected JSON text, got {type(text).__name__}")
         if len(text) > MAX_FILE_BYTES:
             raise InputError(f"{source}: more than {MAX_FILE_BYTES / 1e6:.0f} MB of text; not read")
+        if text.lstrip()[:1] == "<":
+            match = _EMBEDDED.search(text)
+            if match is None:
+                raise InputError(
+                    f"{source}: an HTML file without an embedded analysis (no <script "
+                    f"id=\"{EMBED_ID}\"> block); give a file written by Analysis.report or Analysis.save"
+                )
+            text, source = match.group(1), f"{source} (embedded analysis)"
         return cls.from_dict(_parse_json(text, source), source)
 
     @classmethod
@@ -639,16 +658,7 @@ class Analysis:
         is validated (see :meth:`from_dict`).
         """
         source = os.fspath(path)
-        text = _read_limited(source)
-        if text.lstrip()[:1] == "<":
-            match = _EMBEDDED.search(text)
-            if match is None:
-                raise InputError(
-                    f"{source}: an HTML file without an embedded analysis (no <script "
-                    f"id=\"{EMBED_ID}\"> block); give a file written by Analysis.report or Analysis.save"
-                )
-            return cls.from_json(match.group(1), source=f"{source} (embedded analysis)")
-        return cls.from_json(text, source=source)
+        return cls.from_json(_read_limited(source), source=source)
 
     def embedded_json(self) -> str:
         """The analysis JSON, escaped to sit inside an HTML ``<script>`` block."""

@@ -243,6 +243,14 @@ class TestSaveLoad:
         assert b.fixture.part_map["r"].typed == (("value", r_value),)
         assert_same_response(a, b)
 
+    def test_from_json_takes_bytes_and_report_text(self):
+        # What a notebook upload widget hands over: bytes, of a .json file or of a report.
+        a = general_analysis()
+        assert_same_response(a, Analysis.from_json(a.to_json().encode("utf-8")))
+        assert_same_response(a, Analysis.from_json(a.to_html().encode("utf-8"), source="upload.html"))
+        with pytest.raises(fo.InputError, match=r"^upload: byte 0 is not UTF-8"):
+            Analysis.from_json(b"\xff{}", source="upload")
+
     def test_missing_file_is_an_os_error(self, tmp_path):
         with pytest.raises(FileNotFoundError):
             Analysis.load(tmp_path / "none.json")
