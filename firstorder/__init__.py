@@ -11,6 +11,7 @@ from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
 from .response import Response, respond
 from .settling import Tolerance
+from .traces import Trace, fit_trace, read_trace
 from .units import format_value, parse_value
 
 __all__ = [
@@ -19,10 +20,13 @@ __all__ = [
     "InputError",
     "Response",
     "Tolerance",
+    "Trace",
     "TopologyError",
     "ZeroTimeError",
+    "fit_trace",
     "format_value",
     "parse_value",
+    "read_trace",
     "respond",
 ]
 
