@@ -183,12 +183,12 @@ class Response:
         bad = np.isnan(taus) | ~(taus > 0)
         if bad.any():
             k = int(np.argmax(bad))
-            raise InputError(f"from_segments.tau[{k}]: {taus[k]!r} is not allowed; expected a time > 0 s or inf")
+            raise InputError(f"from_segments.tau[{k}]: {float(taus[k])!r} is not allowed; expected a time > 0 s or inf")
         holding = np.isinf(taus)
         bad = ~np.isfinite(finals) & ~holding
         if bad.any():
             k = int(np.argmax(bad))
-            raise InputError(f"from_segments.final[{k}]: {finals[k]!r} is not allowed; expected a finite number")
+            raise InputError(f"from_segments.final[{k}]: {float(finals[k])!r} is not allowed; expected a finite number")
         with np.errstate(divide="ignore"):
             rate = np.where(holding, 0.0, 1.0 / np.where(holding, 1.0, taus))
         levels = np.where(holding, 0.0, finals).reshape(n, 1)

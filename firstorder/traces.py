@@ -88,7 +88,7 @@ def _finite_array(values: Any, field_name: str) -> np.ndarray:
     bad = ~np.isfinite(array)
     if bad.any():
         i = int(np.argmax(bad))
-        raise InputError(f"{field_name}[{i}]: {array[i]!r} is not allowed; expected a finite number")
+        raise InputError(f"{field_name}[{i}]: {float(array[i])!r} is not allowed; expected a finite number")
     return array
 
 
@@ -143,7 +143,8 @@ class Trace:
         if not (steps > 0).all():
             i = int(np.argmax(~(steps > 0))) + 1
             raise InputError(
-                f"trace.times[{i}]: {times[i]!r} does not come after trace.times[{i - 1}] = {times[i - 1]!r}; "
+                f"trace.times[{i}]: {float(times[i])!r} does not come after trace.times[{i - 1}] = "
+                f"{float(times[i - 1])!r}; "
                 f"times must be strictly increasing"
             )
         times.setflags(write=False)
@@ -361,8 +362,8 @@ def read_trace(path: str | os.PathLike[str], time: Any = "time", value: Any = "v
     if not (steps > 0).all():
         r = int(np.argmax(~(steps > 0))) + 1
         raise InputError(
-            f"{label} line {rows[r][0]}, column {names[0]!r}: {times[r]!r} does not come after "
-            f"{times[r - 1]!r} on line {rows[r - 1][0]}; times must be strictly increasing"
+            f"{label} line {rows[r][0]}, column {names[0]!r}: {float(times[r])!r} does not come after "
+            f"{float(times[r - 1])!r} on line {rows[r - 1][0]}; times must be strictly increasing"
         )
     if times.size < 2:
         raise InputError(f"{label}: one sample after the header on line {header_line}; a trace needs at least 2")
