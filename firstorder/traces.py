@@ -684,7 +684,8 @@ class TraceFit:
             Per segment: ``tau``, ``tau_stderr``, ``tau_model``, ``tau_ratio``
             (measured over model), ``tau_deviation`` (measured minus model in
             standard errors), the same for ``final``, and ``agrees``: both
-            deviations within 3 standard errors (common practice).  A deviation
+            deviations within 3 standard errors (common practice; a segment
+            without a measured tau is judged on its final value).  A deviation
             of many standard errors with a ratio close to 1 is a real, small
             difference (a part's tolerance), measured precisely.
         """
@@ -717,7 +718,8 @@ class TraceFit:
                 "final": table["final"], "final_stderr": table["final_stderr"], "final_model": final_model,
                 "final_deviation": final_deviation,
             }, index=table.index)
-        out["agrees"] = (np.abs(tau_deviation) <= 3.0) & (np.abs(final_deviation) <= 3.0)
+        tau_agrees = np.isnan(table["tau"].to_numpy()) | (np.abs(tau_deviation) <= 3.0)
+        out["agrees"] = tau_agrees & (np.abs(final_deviation) <= 3.0)
         return out
 
     def __repr__(self) -> str:
@@ -842,7 +844,8 @@ def _model_parameters(results: list[_SegmentResult], pooled_tau: np.ndarray, inv
 
 
 def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarray, initial: float,
-                free_tau: np.ndarray, free_final: np.ndarray) -> tuple[float, float]:
+                free_tau: np.ndarray, free_final: np.ndarray, skip: np.ndarray | None = None,
+                guess: float | None = None) -> tuple[float, float]:
     """Fit one delay between drive and trace, with a continuous piecewise-exponential model.
 
     A single exponential's shape does not say when it began (shifted, it is the
@@ -851,8 +854,10 @@ def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarr
     change (the state of a capacitor or inductor), as the engine does.  Its
     parameters are the delay, the starting state, and every segment's final
     value and log tau; scipy.optimize.least_squares fits them, from the best
-    delay on a grid of sample periods within half the shortest segment.
-    Returns ``(offset, standard error)``.
+    delay on a grid of sample periods within half the shortest segment, or from
+    `guess`.  Segments in `skip` (those a single exponential does not describe)
+    keep their parameters and lend no samples (placed with `guess`), so that a
+    slow tail cannot pull the delay.  Returns ``(offset, standard error)``.
     """
     from scipy.optimize import least_squares
 
@@ -860,6 +865,10 @@ def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarr
 
     spacing = trace.sample_period
     inside = (trace.times >= drive.times[0]) & (trace.times <= drive.end)
+    if skip is not None and skip.any():
+        segment = np.searchsorted(drive.times + (guess or 0.0), trace.times, side="right") - 1
+        inside &= ~skip[np.clip(segment, 0, skip.size - 1)]
+        free_tau, free_final = free_tau & ~skip, free_final & ~skip
     t, y = trace.times[inside], trace.values[inside]
     durations = drive.durations
     reach = 0.5 * float(durations.min())
@@ -887,7 +896,7 @@ def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarr
         return model(p) - y
 
     base = np.concatenate([[0.0, initial], np.log(taus[tau_index]), finals[final_index]])
-    shifts = np.arange(-math.floor(reach / spacing), math.floor(reach / spacing) + 1, dtype=float)
+    shifts = np.array([guess / spacing]) if guess is not None else np.arange(-math.floor(reach / spacing), math.floor(reach / spacing) + 1, dtype=float)
     if shifts.size > 801:
         shifts = np.linspace(shifts[0], shifts[-1], 801)
     costs = []
@@ -897,12 +906,12 @@ def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarr
         r = residuals(trial)
         costs.append(float(r @ r))
     base[0] = shifts[int(np.argmin(costs))]
-    bound = reach / spacing
-    lower = np.full(base.size, -np.inf)
-    upper = np.full(base.size, np.inf)
-    lower[0], upper[0] = -bound, bound
-    solution = least_squares(residuals, base, bounds=(lower, upper), method="trf", x_scale="jac",
-                             xtol=1e-12, ftol=1e-12, gtol=1e-12)
+    solution = least_squares(residuals, base, method="lm", x_scale="jac", xtol=1e-10, ftol=1e-10)
+    if abs(solution.x[0]) * spacing > reach:
+        raise InputError(
+            f"offset: the fitted delay {format_value(solution.x[0] * spacing, 's')} is beyond half the shortest "
+            f"segment ({format_value(reach, 's')}); shift the trace's times first or give the offset"
+        )
     jac = solution.jac
     dof = max(y.size - base.size, 1)
     variance = float(solution.fun @ solution.fun) / dof
@@ -1007,6 +1016,14 @@ def fit_trace(trace: Trace, drive: "Drive", fixture: "Fixture | None" = None, pr
         delay, delay_stderr = _fit_offset(trace, drive, taus, finals, initial, free_tau, free_final)
         results = _fit_segments(trace.times, trace.values, drive, delay, spacing)
         pooled = _pool(results, labels, inverse)
+        skip = np.array([r.has_tau and not r.first_order for r in results])
+        if skip.any() and (free_tau & ~skip).any():
+            # Once more without the segments that hide a second exponential.
+            taus, finals, initial = _model_parameters(results, pooled["tau"].to_numpy(), inverse)
+            delay, delay_stderr = _fit_offset(trace, drive, taus, finals, initial, free_tau, free_final,
+                                              skip=skip, guess=delay)
+            results = _fit_segments(trace.times, trace.values, drive, delay, spacing)
+            pooled = _pool(results, labels, inverse)
     table = pd.DataFrame(
         {
             "start": drive.times, "end": drive.ends, "points": [r.points for r in results],

@@ -347,6 +347,7 @@ class TestFitTrace:
         fit = fo.fit_trace(fo.Trace.from_arrays(t, values), drive, fixture=fixture)
         same = fit.compare(fixture)
         assert same.loc[[1, 2], "agrees"].all()
+        assert math.isnan(same.loc[0, "tau"]) and bool(same.loc[0, "agrees"])  # flat: judged on its final
         np.testing.assert_allclose(same.loc[[1, 2], "tau_model"], 1e-3)
         np.testing.assert_allclose(same.loc[[1, 2], "final_model"], [1.0, 0.25])
         # A capacitor 5 % larger in the model: the bench's tau is 1/1.05 of it.
