@@ -269,6 +269,34 @@ class TestFitTrace:
             assert 0.0 < fit.offset_stderr < 0.1 * period
             assert fit.tau == pytest.approx(1e-3, rel=0.01)
 
+    def test_trigger_delay_not_pulled_by_a_slow_tail(self):
+        # One step hides a creep (0.5 % of the step, 0.5 ms) that stays on the capacitor and
+        # decays with the fixture afterwards (the engine's zero-input response); the delay
+        # is still found within a tenth of the sample period, and the step is flagged.
+        period, delay = 2e-6, 2.6 * 2e-6
+        fixture = fo.Fixture.rc(r="1k", c="100n")
+        drive = fo.Drive.steps([(0, 0.0), ("1m", 1.0), ("3m", 0.2), ("5m", 0.7)], end="7m")
+
+        def node(t):
+            v = fixture.respond(drive).total(t)
+            since = t - 3e-3
+            during = (since >= 0) & (since < 2e-3)
+            creep = 0.004 * -np.expm1(-since[during] / 0.5e-3)
+            v[during] += creep
+            later = t >= 5e-3
+            left = fixture.respond(fo.Drive.steps([("5m", 0.0)], end="7m"), initial=0.004 * -np.expm1(-4.0))
+            v[later] += left.total(t[later])
+            return v
+
+        t = np.arange(0.0, 7e-3, period)
+        values = node(np.clip(t - delay, 0.0, None)) + np.random.default_rng(18).normal(0.0, 0.5e-3, t.size)
+        fit = fo.fit_trace(fo.Trace.from_arrays(t, values), drive, offset="fit")
+        assert list(fit.table["first_order"]) == [True, True, False, True]
+        assert fit.table.loc[2, "second_tau"] == pytest.approx(0.5e-3, rel=0.2)
+        assert abs(fit.offset - delay) < 0.1 * period
+        # Normal 3-sigma bound (common practice): the tail must not bias the delay beyond its error.
+        assert abs(fit.offset - delay) < 3.0 * fit.offset_stderr
+
     def test_given_offset_shifts_the_segments(self):
         drive = single_step_drive()
         t = np.arange(0.0, 6e-3, SAMPLE)
