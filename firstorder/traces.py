@@ -50,7 +50,9 @@ TABLE_COLUMNS = (
 MIN_POINTS = 8
 #: Fewest points for the two-exponential check behind ``second_tau`` (5 parameters).
 MIN_POINTS_SECOND = 20
-#: Chance of calling a true single exponential "not first order" by the residual test.
+#: Nominal chance of calling a true single exponential "not first order" by the residual
+#: test.  The test uses a normal approximation whose right tail is a little light: in
+#: simulations of white noise (20 to 1000 points) 1.4 % to 2.2 % of pure exponentials fail.
 RESIDUAL_LEVEL = 0.01
 #: Chance of reporting a second time constant where there is none (F-test level; kept
 #: small because the search over the slower tau makes large F values commoner than
@@ -61,9 +63,8 @@ STEP_LEVEL = 0.001
 #: Robust trimming of second differences for the noise estimate (in robust sigmas):
 #: wide enough that Gaussian noise loses almost nothing (6e-7 of its samples).
 _TRIM = 5.0
-#: Second differences of white noise: variance 6 sigma^2; autocorrelations -2/3 and 1/6
-#: at lags 1 and 2, so a mean of m squared differences has the variance of m / 1.944
-#: independent ones (1 + 2 (4/9) + 2 (1/36) = 1.944).
+#: Second differences of white noise, e[i+1] - 2 e[i] + e[i-1], have variance 6 sigma^2
+#: (1 + 4 + 1), and covariances -4 sigma^2 and sigma^2 at lags 1 and 2.
 _SECOND_DIFFERENCE_VARIANCE = 6.0
 #: Variance of log(residual variance / noise estimate), times n, under white noise:
 #: 2 (sum of squared residuals) + 140/36 (sum of squared second differences: variance
@@ -330,7 +331,7 @@ def read_trace(path: str | os.PathLike[str], time: Any = "time", value: Any = "v
         raise InputError(f"value: {value!r} is the time column ({header[time_index]!r}); choose another column")
     time_name, time_unit = _split_header_cell(header[time_index])
     value_name, value_unit = _split_header_cell(header[value_index])
-    if time_unit and time_unit != "s" and time_factor == 1.0:
+    if time_unit and time_unit not in ("s", "sec") and time_factor == 1.0:
         raise InputError(
             f"time_scale: column {header[time_index]!r} is in {time_unit!r}; give time_scale (for example "
             f"1e-3 for ms) to read it in seconds"
@@ -577,7 +578,7 @@ def _fit_segment(x: np.ndarray, y: np.ndarray, duration: float, spacing: float) 
             rms_residual=float(np.sqrt(np.mean(constant**2))), noise=noise,
             first_order=_residual_test(constant, 1, noise), curve=np.full(n, float(y.mean())),
         )
-    start, final, tau, covariance, residuals = _fit_exponential(x, y, tau_guess)
+    start, final, tau, covariance, residuals = _fit_exponential(x, y, tau_guess)  # model - y
     ssr_one = float(residuals @ residuals)
     second_tau = math.nan
     if n >= MIN_POINTS_SECOND:
