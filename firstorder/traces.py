@@ -60,6 +60,8 @@ RESIDUAL_LEVEL = 0.01
 SECOND_TAU_LEVEL = 0.001
 #: Level of the F-test "an exponential fits better than a constant" (else no step).
 STEP_LEVEL = 0.001
+#: Segments (from the first) over which ``offset="fit"`` fits the common delay.
+_OFFSET_SEGMENTS = 12
 #: Robust trimming of second differences for the noise estimate (in robust sigmas):
 #: wide enough that Gaussian noise loses almost nothing (6e-7 of its samples).
 _TRIM = 5.0
@@ -856,7 +858,7 @@ def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarr
     parameters are the delay, the starting state, and every segment's final
     value and log tau; scipy.optimize.least_squares fits them, from the best
     delay on a grid of sample periods within half the shortest segment, or from
-    `guess`.  Segments in `skip` (those a single exponential does not describe)
+    `guess`.  Only the first ``_OFFSET_SEGMENTS`` segments take part.  Segments in `skip` (those a single exponential does not describe)
     keep their parameters and lend no samples (placed with `guess`), so that a
     slow tail cannot pull the delay.  Returns ``(offset, standard error)``.
     """
@@ -865,15 +867,25 @@ def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarr
     from . import engine
 
     spacing = trace.sample_period
-    inside = (trace.times >= drive.times[0]) & (trace.times <= drive.end)
-    if skip is not None and skip.any():
-        segment = np.searchsorted(drive.times + (guess or 0.0), trace.times, side="right") - 1
-        inside &= ~skip[np.clip(segment, 0, skip.size - 1)]
+    # One delay is common to all changes, so the first few segments fix it; the cost of
+    # the fit grows with the square of the segments it spans.
+    used = min(len(drive), _OFFSET_SEGMENTS)
+    starts, durations = drive.times[:used], drive.durations[:used]
+    taus, finals = taus[:used], finals[:used]
+    free_tau, free_final = free_tau[:used], free_final[:used]
+    inside = (trace.times >= starts[0]) & (trace.times <= starts[-1] + durations[-1])
+    if skip is not None and skip[:used].any():
+        skip = skip[:used]
+        segment = np.searchsorted(starts + (guess or 0.0), trace.times, side="right") - 1
+        inside &= ~skip[np.clip(segment, 0, used - 1)]
         free_tau, free_final = free_tau & ~skip, free_final & ~skip
     t, y = trace.times[inside], trace.values[inside]
-    durations = drive.durations
-    reach = 0.5 * float(durations.min())
+    reach = 0.5 * float(drive.durations.min())
     tau_index, final_index = np.flatnonzero(free_tau), np.flatnonzero(free_final)
+    if tau_index.size == 0:
+        raise InputError(
+            f"offset: 'fit' needs a measurable first-order step among the first {used} segments; none was found"
+        )
 
     def unpack(p):
         delay = p[0] * spacing
@@ -891,7 +903,7 @@ def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarr
         held = rate == 0.0
         boundary = engine.affine_scan(decay, np.where(held, 0.0, growth * final), start)
         final = np.where(held, boundary[:-1], final)
-        return engine.evaluate(t, drive.times + delay, rate, final, boundary[:-1])
+        return engine.evaluate(t, starts + delay, rate, final, boundary[:-1])
 
     def residuals(p):
         return model(p) - y
@@ -1018,7 +1030,8 @@ def fit_trace(trace: Trace, drive: "Drive", fixture: "Fixture | None" = None, pr
         results = _fit_segments(trace.times, trace.values, drive, delay, spacing)
         pooled = _pool(results, labels, inverse)
         skip = np.array([r.has_tau and not r.first_order for r in results])
-        if skip.any() and (free_tau & ~skip).any():
+        first = slice(0, _OFFSET_SEGMENTS)
+        if skip[first].any() and (free_tau & ~skip)[first].any():
             # Once more without the segments that hide a second exponential.
             taus, finals, initial = _model_parameters(results, pooled["tau"].to_numpy(), inverse)
             delay, delay_stderr = _fit_offset(trace, drive, taus, finals, initial, free_tau, free_final,

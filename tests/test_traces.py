@@ -297,6 +297,20 @@ class TestFitTrace:
         # Normal 3-sigma bound (common practice): the tail must not bias the delay beyond its error.
         assert abs(fit.offset - delay) < 3.0 * fit.offset_stderr
 
+    def test_trigger_delay_over_many_segments(self):
+        # More segments than the delay fit spans (_OFFSET_SEGMENTS); the engine's exact
+        # response, delayed by 1.7 sample periods, at 60 dB on the 1 V steps.
+        period, delay = 5e-6, 1.7 * 5e-6
+        levels = np.tile([0.0, 1.0], 8)
+        drive = fo.Drive(np.arange(16) * 1e-3, end=16e-3, vin=levels)
+        model = fo.Fixture.rc(r="1k", c="100n").respond(drive)
+        t = np.arange(0.0, 16e-3, period)
+        values = model.total(np.clip(t - delay, 0.0, None)) + np.random.default_rng(19).normal(0, 1e-3, t.size)
+        fit = fo.fit_trace(fo.Trace.from_arrays(t, values), drive, offset="fit")
+        assert abs(fit.offset - delay) < 0.1 * period
+        assert fit.tau == pytest.approx(1e-4, rel=0.01)
+        assert fit.table["first_order"].mean() >= 0.9
+
     def test_given_offset_shifts_the_segments(self):
         drive = single_step_drive()
         t = np.arange(0.0, 6e-3, SAMPLE)
