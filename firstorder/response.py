@@ -127,7 +127,8 @@ class _FittedSegments:
 class Response:
     """The exact response of a fixture to a drive.
 
-    Do not build directly; call :meth:`Fixture.respond` or :func:`respond`.
+    Do not build directly; call :meth:`Fixture.respond` or :func:`respond` (or
+    :meth:`from_segments` for a measured model).
 
     Examples
     --------
