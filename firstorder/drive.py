@@ -242,7 +242,7 @@ class Drive:
         value = parse_value(time, field="time", unit="s")
         if not self._times[0] <= value <= self._end:
             raise InputError(
-                f"time: {value!r} is outside the drive [{self._times[0]!r}, {self._end!r}] s"
+                f"time: {value!r} is outside the drive [{float(self._times[0])!r}, {self._end!r}] s"
             )
         return int(np.searchsorted(self._times, value, side="right") - 1)
 
