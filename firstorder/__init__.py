@@ -13,6 +13,7 @@ from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
 from .response import Response, respond
 from .settling import SettlingSummary, Tolerance, plan_dwells, plan_table
+from .traces import Trace, fit_trace, read_trace
 from .units import format_value, parse_value
 
 __all__ = [
@@ -25,11 +26,14 @@ __all__ = [
     "SettlingSummary",
     "Tolerance",
     "TopologyError",
+    "Trace",
     "ZeroTimeError",
+    "fit_trace",
     "format_value",
     "parse_value",
     "plan_dwells",
     "plan_table",
+    "read_trace",
     "respond",
 ]
 

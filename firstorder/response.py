@@ -111,10 +111,31 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
     return Response(fixture, drive, levels, configs, inverse, rate, gains, initial)
 
 
+class _FittedSegments:
+    """Stands in for the fixture of a Response built by :meth:`Response.from_segments`.
+
+    A response only asks its fixture for the unit of the state, the names of the
+    sources (here one pseudo-source, ``"fitted"``, whose share is every segment's
+    final value), the storage element's kind and name (for display) and probes
+    (none).
+    """
+
+    switches = ()
+    probes = ()
+
+    def __init__(self, name: str, unit: str) -> None:
+        from types import SimpleNamespace
+
+        self.state_unit = unit
+        self.sources = (SimpleNamespace(name="fitted"),)
+        self.storage = SimpleNamespace(kind="fitted model", name=name)
+
+
 class Response:
     """The exact response of a fixture to a drive.
 
-    Do not build directly; call :meth:`Fixture.respond` or :func:`respond`.
+    Do not build directly; call :meth:`Fixture.respond` or :func:`respond` (or
+    :meth:`from_segments` for a measured model).
 
     Examples
     --------
@@ -125,6 +146,62 @@ class Response:
     >>> res.boundary
     array([0.        , 0.99326205])
     """
+
+    @classmethod
+    def from_segments(cls, drive: "Drive", tau: Any, final: Any, initial: Any = 0.0,
+                      unit: str = "", name: str = "fitted") -> "Response":
+        """A response from per-segment time constants and final values, without a fixture.
+
+        For models measured rather than designed (see :func:`firstorder.fit_trace`):
+        segment ``k`` of `drive` relaxes with ``tau[k]`` towards ``final[k]``, and the
+        state is continuous at every change.  Every component works as for
+        :func:`respond`; the one pseudo-source is named ``"fitted"`` (its
+        contribution is ``zero_state``), and there are no probes.
+
+        Parameters
+        ----------
+        drive : Drive
+            Supplies the change instants and the end; its columns are not used.
+        tau : array_like, shape (n,)
+            Time constant of every segment (s), > 0; ``inf`` holds the state
+            (that segment's `final` is then ignored).
+        final : array_like, shape (n,)
+            The value every segment settles towards.
+        initial : float or str
+            The starting state, ``"settled"`` or ``"periodic"``.
+        unit, name : str
+            Unit and name of the modelled quantity, for display.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> drive = fo.Drive.steps([(0, 0.0), ("1m", 1.0)], end="3m")
+        >>> res = Response.from_segments(drive, tau=[1e-3, 1e-3], final=[0.0, 1.0], unit="V")
+        >>> round(float(res.total(2e-3)), 4)   # one time constant into the step: 63.2 %
+        0.6321
+        >>> res.forced(2e-3), round(float(res.natural(2e-3)), 4)
+        (1.0, -0.3679)
+        """
+        n = len(drive)
+        taus = np.asarray(tau, dtype=np.float64).reshape(-1)
+        finals = np.asarray(final, dtype=np.float64).reshape(-1)
+        for field, array in (("tau", taus), ("final", finals)):
+            if array.size != n:
+                raise InputError(f"from_segments.{field}: has {array.size} values but the drive has {n} segments")
+        bad = np.isnan(taus) | ~(taus > 0)
+        if bad.any():
+            k = int(np.argmax(bad))
+            raise InputError(f"from_segments.tau[{k}]: {float(taus[k])!r} is not allowed; expected a time > 0 s or inf")
+        holding = np.isinf(taus)
+        bad = ~np.isfinite(finals) & ~holding
+        if bad.any():
+            k = int(np.argmax(bad))
+            raise InputError(f"from_segments.final[{k}]: {float(finals[k])!r} is not allowed; expected a finite number")
+        with np.errstate(divide="ignore"):
+            rate = np.where(holding, 0.0, 1.0 / np.where(holding, 1.0, taus))
+        levels = np.where(holding, 0.0, finals).reshape(n, 1)
+        return cls(_FittedSegments(name, unit), drive, levels, [()], np.zeros(n, dtype=np.intp), rate,
+                   np.ones((1, 1)), initial)
 
     def __init__(self, fixture, drive, levels, configs, inverse, rate, gains, initial) -> None:
         self.fixture = fixture
