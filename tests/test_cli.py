@@ -132,7 +132,7 @@ class TestDerive:
         result = run("derive", str(demo / "demo-report.html"), "--format", "latex")
         assert result.returncode == 0, result.stderr
         assert result.stdout.count("\\begin{aligned}") == 2
-        assert "c\\_hold" in result.stdout
+        assert "c}\\_\\text{hold" in result.stdout  # underscores in captions, escaped for LaTeX
 
 
 class TestErrors:
