@@ -118,8 +118,8 @@ def _settle(arguments: argparse.Namespace) -> None:
         )
     table = analysis.settling()
     if arguments.format == "csv":
-        # 17 significant digits: every float reads back exactly.
-        sys.stdout.write(table.to_csv(float_format="%.17g"))
+        # repr: the shortest text that reads back as exactly the same float.
+        sys.stdout.write(table.to_csv(float_format=lambda number: repr(float(number))))
     elif arguments.format == "json":
         sys.stdout.write(json.dumps(_records(table), indent=1, allow_nan=False) + "\n")
     else:
