@@ -41,7 +41,7 @@ import numpy as np
 from ._files import write_atomic
 from .drive import Drive
 from .errors import InputError
-from .fixture import Fixture, Part
+from .fixture import Fixture
 from .settling import Tolerance
 from .units import format_value, parse_value
 
@@ -123,18 +123,24 @@ def _check_delay(value: Any, drive: Drive) -> Any:
             f"sample_delay: has {len(items)} delays but the drive has {len(drive)} segments; "
             f"give one delay, or one per segment"
         )
-    delays = []
-    for k, item in enumerate(items):
-        delay = parse_value(item, field=f"sample_delay[{k}]", unit="s")
-        if delay < 0:
+    if isinstance(value, np.ndarray) and value.dtype.kind in "iuf":
+        delays = value.astype(np.float64).reshape(-1)  # a million delays need no Python loop
+    else:
+        delays = np.array([parse_value(item, field=f"sample_delay[{k}]", unit="s")
+                           for k, item in enumerate(items)], dtype=np.float64)
+    bad = ~(np.isfinite(delays) & (delays >= 0) & (delays <= durations))
+    if bad.any():
+        k = int(np.argmax(bad))
+        item = float(delays[k]) if isinstance(value, np.ndarray) else items[k]
+        if not np.isfinite(delays[k]):
+            raise InputError(f"sample_delay[{k}]: {item!r} is not allowed; expected a finite number")
+        if delays[k] < 0:
             raise InputError(f"sample_delay[{k}]: {item!r} must be >= 0")
-        if delay > durations[k]:
-            raise InputError(
-                f"sample_delay[{k}]: {item!r} is past the end of segment {k}, which lasts "
-                f"{format_value(float(durations[k]), 's')}"
-            )
-        delays.append(delay)
-    return delays
+        raise InputError(
+            f"sample_delay[{k}]: {item!r} is past the end of segment {k}, which lasts "
+            f"{format_value(float(durations[k]), 's')}"
+        )
+    return delays.tolist()
 
 
 def _delay_seconds(value: Any) -> float | np.ndarray | None:

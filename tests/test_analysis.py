@@ -99,6 +99,9 @@ class TestAnalysis:
             ({"sample_delay": "2m"}, "sample_delay: '2m' is past the end of segment 0, which lasts 1 ms"),
             ({"sample_delay": [0.0, 1e-3]}, "sample_delay: has 2 delays but the drive has 4 segments"),
             ({"sample_delay": [0.0, 1e-3, 0.6e-3, 0.0]}, r"sample_delay\[2\]: 0.0006 is past the end of segment 2, which lasts 500 µs"),
+            ({"sample_delay": np.array([0.0, 1e-3, 0.6e-3, 0.0])}, r"sample_delay\[2\]: 0.0006 is past the end"),
+            ({"sample_delay": np.array([0.0, -1e-3, 0.0, 0.0])}, r"sample_delay\[1\]: -0.001 must be >= 0"),
+            ({"sample_delay": [0.0, 0.0, float("nan"), 0.0]}, r"sample_delay\[2\]: nan is not allowed"),
             ({"initial": "sometimes"}, "initial: 'sometimes' is not allowed"),
             ({"initial": object()}, "initial"),
         ],
@@ -379,7 +382,7 @@ class TestMalformedFiles:
         data = valid_data()
         data["notes"] = "x" * (60 * 1024 * 1024)
         path.write_text(json.dumps(data), encoding="utf-8")
-        assert path.stat().st_size > 60_000_000
+        assert path.stat().st_size > 60_000_000 > MAX_FILE_BYTES
         parsed = []
         monkeypatch.setattr("firstorder.analysis._parse_json", lambda *a: parsed.append(a))
         with pytest.raises(fo.InputError, match=r"big\.json: is 62\.9 MB; an analysis file may hold at most 50 MB"):
