@@ -381,8 +381,8 @@ def _cautions_html(analysis: "Analysis") -> str:
 
 
 def _derivations_html(analysis: "Analysis") -> str:
-    derivations = analysis.derivations()
-    shown = derivations[:MAX_DERIVATIONS]
+    shown = analysis.derivations(limit=MAX_DERIVATIONS)
+    total = len(analysis.response.configurations)
     parts = [
         "<p>One derivation per switch configuration the drive uses. Within a segment, t is the "
         "time since its change and the 0 subscript marks the state at that change.</p>"
@@ -393,8 +393,8 @@ def _derivations_html(analysis: "Analysis") -> str:
             maths = "".join(f"<div class=eq>{mathml(equation)}</div>" for equation in equations)
             parts.append(f"<li>{escape(caption)}{maths}</li>")
         parts.append("</ol>")
-    if len(derivations) > len(shown):
-        parts.append(f"<p>{len(derivations) - len(shown)} further configurations are not shown; "
+    if total > len(shown):
+        parts.append(f"<p>{total - len(shown)} further configurations are not shown; "
                      f"<code>firstorder derive</code> prints them all.</p>")
     return "".join(parts)
 
@@ -511,6 +511,6 @@ def markdown_report(analysis: "Analysis", derivations: bool = True, now: str | N
     out.append("\n".join(f"- ⚠ {c}" for c in cautions) if cautions else "None raised by firstorder's checks.")
     if derivations:
         out.append("## Derivations")
-        for states, derivation in analysis.derivations()[:MAX_DERIVATIONS]:
+        for states, derivation in analysis.derivations(limit=MAX_DERIVATIONS):
             out += [f"### {_states_text(fixture, states)}", derivation.markdown()]
     return "\n\n".join(out) + "\n"

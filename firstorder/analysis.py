@@ -493,13 +493,17 @@ class Analysis:
             raise InputError("settling: this analysis has no tolerance; give tolerance=fo.Tolerance...(...)")
         return self._response.settling(self._tolerance, sample_delay=_delay_seconds(self._sample_delay))
 
-    def derivations(self) -> list[tuple[tuple[bool, ...], "Derivation"]]:
-        """The derivation of every switch configuration the drive uses, in order of first use."""
+    def derivations(self, limit: int | None = None) -> list[tuple[tuple[bool, ...], "Derivation"]]:
+        """The derivation of every switch configuration the drive uses, in order of first use.
+
+        Each is a sympy derivation (a second or so the first time); `limit`
+        stops after that many configurations.
+        """
         response = self._response
-        order = dict.fromkeys(response.segment_configuration.tolist())
+        order = list(dict.fromkeys(response.segment_configuration.tolist()))
         names = [p.name for p in self._fixture.switches]
         result = []
-        for index in order:
+        for index in order[:limit]:
             states = response.configurations[index]
             result.append((states, self._fixture.derivation(**dict(zip(names, states)))))
         return result

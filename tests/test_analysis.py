@@ -128,6 +128,7 @@ class TestAnalysis:
     def test_derivations_follow_first_use(self):
         states = [s for s, _ in general_analysis().derivations()]
         assert states == [(True,), (False,)]
+        assert [s for s, _ in general_analysis().derivations(limit=1)] == [(True,)]
 
 
 class TestToJson:

@@ -156,6 +156,22 @@ class TestReport:
         assert "<mi>&#964;</mi><mo>=</mo>" in section  # tau =
 
 
+    def test_many_configurations_derive_only_the_first(self):
+        # A resistor ladder selected by four relays (invented): 16 configurations in the drive.
+        fx = fo.Fixture()
+        fx.voltage_source("vref", "ref", "gnd")
+        fx.resistor("r_in", "ref", "x", "1k")
+        fx.capacitor("c_x", "x", "gnd", "1n")
+        for j in range(4):
+            fx.switch(f"k{j}", "x", f"n{j}", r_on="1")
+            fx.resistor(f"r{j}", f"n{j}", "gnd", f"{2 ** j}k")
+        states = [[(code >> j) & 1 for code in range(16)] for j in range(4)]
+        drive = fo.Drive(np.arange(16) * 1e-5, 16e-5, vref=np.ones(16), **{f"k{j}": states[j] for j in range(4)})
+        section = Analysis(fx, drive).to_html().split("<section id=derivations>")[1].split("</section>")[0]
+        assert section.count("<h3>") == _report.MAX_DERIVATIONS == 8
+        assert "8 further configurations are not shown" in section
+
+
 class TestSettlingAndCautions:
     def test_settling_table(self, report_html):
         section = report_html.split("<section id=settling>")[1].split("</section>")[0]
