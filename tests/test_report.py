@@ -185,6 +185,33 @@ class TestSettlingAndCautions:
         assert "class=caution" in section and "400" in section and "local codes" in section
 
 
+class TestLayers:
+    def test_report_figure_imports_bokeh_but_not_ipywidgets(self):
+        # Reports need bokeh, not a notebook: the figure module stays free of ipywidgets.
+        import ast
+
+        import firstorder.widgets.report_figure as module
+
+        tree = ast.parse(open(module.__file__, encoding="utf-8").read())
+        imported = {alias.name.split(".")[0] for node in ast.walk(tree) if isinstance(node, ast.Import)
+                    for alias in node.names}
+        imported |= {node.module.split(".")[0] for node in ast.walk(tree)
+                     if isinstance(node, ast.ImportFrom) and node.module and node.level == 0}
+        assert "bokeh" in imported and "ipywidgets" not in imported
+
+    def test_only_widgets_imports_bokeh(self):
+        import ast
+        from pathlib import Path
+
+        package = Path(fo.__file__).parent
+        for path in package.glob("*.py"):
+            tree = ast.parse(path.read_text(encoding="utf-8"))
+            for node in ast.walk(tree):
+                names = ([a.name for a in node.names] if isinstance(node, ast.Import)
+                         else [node.module or ""] if isinstance(node, ast.ImportFrom) else [])
+                assert not [n for n in names if n.split(".")[0] in ("bokeh", "ipywidgets")], path
+
+
 class TestMathml:
     def test_presentation_markup(self):
         r, c = sp.symbols("r c", positive=True)
