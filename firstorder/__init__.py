@@ -14,6 +14,7 @@ from .settling import Tolerance
 from .units import format_value, parse_value
 
 __all__ = [
+    "Bench",
     "Drive",
     "Fixture",
     "InputError",
@@ -27,3 +28,12 @@ __all__ = [
 ]
 
 __version__ = "0.1.0"
+
+
+def __getattr__(name: str):
+    # The Bench needs ipywidgets and bokeh; load them only when it is asked for.
+    if name == "Bench":
+        from .widgets import Bench
+
+        return Bench
+    raise AttributeError(f"module 'firstorder' has no attribute {name!r}")
