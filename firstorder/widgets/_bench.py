@@ -99,7 +99,7 @@ class Bench(widgets.VBox):
     2 ms
     >>> bench.fields["r"].value = "twenty"
     >>> bench.error
-    "r: 'twenty' is not a number (use a float or engineering notation such as '4.7k' or '100nF')"
+    "r (value): 'twenty' is not a number (use a float or engineering notation such as '4.7k' or '100nF')"
     >>> bench.fixture.part_map["r"].value   # the last good value is kept
     20000.0
     """
