@@ -45,7 +45,7 @@ def _as_float_array(values: Any, *, field: str, unit: str) -> np.ndarray:
     bad = ~np.isfinite(array)
     if bad.any():
         i = int(np.argmax(bad))
-        raise InputError(f"{field}[{i}]: {array[i]!r} is not allowed; expected a finite number")
+        raise InputError(f"{field}[{i}]: {float(array[i])!r} is not allowed; expected a finite number")
     return array
 
 
@@ -82,14 +82,14 @@ class Drive:
         if steps.size and not (steps > 0).all():
             i = int(np.argmax(~(steps > 0))) + 1
             raise InputError(
-                f"drive.times[{i}]: {time_array[i]!r} does not come after "
-                f"drive.times[{i - 1}] = {time_array[i - 1]!r}; times must be strictly increasing"
+                f"drive.times[{i}]: {float(time_array[i])!r} does not come after "
+                f"drive.times[{i - 1}] = {float(time_array[i - 1])!r}; times must be strictly increasing"
             )
         end_value = parse_value(end, field="drive.end", unit="s")
         if not end_value > time_array[-1]:
             raise InputError(
                 f"drive.end: {end!r} must be later than the last change "
-                f"({time_array[-1]!r} s)"
+                f"({float(time_array[-1])!r} s)"
             )
         if not columns:
             raise InputError("drive: no columns; give at least one source or switch column")
@@ -242,7 +242,7 @@ class Drive:
         value = parse_value(time, field="time", unit="s")
         if not self._times[0] <= value <= self._end:
             raise InputError(
-                f"time: {value!r} is outside the drive [{self._times[0]!r}, {self._end!r}] s"
+                f"time: {value!r} is outside the drive [{float(self._times[0])!r}, {self._end!r}] s"
             )
         return int(np.searchsorted(self._times, value, side="right") - 1)
 

@@ -199,6 +199,13 @@ class TestDriveTable:
         assert bench.drive is drive
         assert bench.table_source.data["time"][1] == "9m"  # what was typed stays to be fixed
 
+    def test_messages_show_plain_numbers(self):
+        # numpy 2 writes a scalar's repr as np.float64(...); the engineer should read 0.004
+        bench = rc_bench()
+        bench.edit_cell(1, "time", "9m")
+        assert "np.float64" not in bench.error
+        assert "drive.times[2]: 0.004 does not come after drive.times[1] = 0.009" in bench.error
+
     def test_unparsable_cell_names_row_and_column(self):
         bench = rc_bench()
         bench.edit_cell(2, "vin", "one volt")
