@@ -6,24 +6,33 @@ and bokeh are imported when a derivation or the Bench is first asked for.
 
 from __future__ import annotations
 
+from .cautions import Caution
 from .drive import Drive
 from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
 from .response import Response, respond
-from .settling import Tolerance
+from .settling import SettlingSummary, Tolerance, plan_dwells, plan_table
+from .traces import Trace, fit_trace, read_trace
 from .units import format_value, parse_value
 
 __all__ = [
     "Bench",
+    "Caution",
     "Drive",
     "Fixture",
     "InputError",
     "Response",
+    "SettlingSummary",
     "Tolerance",
     "TopologyError",
+    "Trace",
     "ZeroTimeError",
+    "fit_trace",
     "format_value",
     "parse_value",
+    "plan_dwells",
+    "plan_table",
+    "read_trace",
     "respond",
 ]
 

@@ -344,7 +344,8 @@ def reduce_numeric(layout: Layout, fixture: "Fixture") -> Reduced:
             resistance=np.inf if layout.storage_kind == "capacitor" else 0.0,
         )
     resistance = -1.0 / rate_state if layout.storage_kind == "capacitor" else -rate_state
-    tau = -storage.value / rate_state
+    # C * R_th and L / R_N round the way a hand calculation does (10k * 100n is 1 ms exactly).
+    tau = storage.value * resistance if layout.storage_kind == "capacitor" else storage.value / resistance
     return Reduced(
         tau=float(tau),
         gain=-rate_sources / rate_state,

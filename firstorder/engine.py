@@ -69,25 +69,31 @@ def affine_scan(a: np.ndarray, b: np.ndarray, x0: float) -> np.ndarray:
         return out
     width = math.isqrt(n - 1) + 1
     blocks = -(-n // width)
-    padded = blocks * width
-    # Row j holds element j of every block, so each step below is one
-    # contiguous vector operation across all blocks at once.
-    gain = np.ones(padded)
-    gain[:n] = a
-    shift = np.zeros(padded)
-    shift[:n] = b
-    gain = gain.reshape(blocks, width).T.copy()
-    shift = shift.reshape(blocks, width).T.copy()
+    full = n // width
+    # Element k goes to row k % width, column k // width: row j then holds element j
+    # of every block, so each step below is one contiguous vector operation across all
+    # blocks.  The inputs are written through a transposed view, so no extra copy.
+    gain = np.empty((width, blocks))
+    shift = np.empty((width, blocks))
+    gain.T[:full] = a[: full * width].reshape(full, width)
+    shift.T[:full] = b[: full * width].reshape(full, width)
+    if full < blocks:
+        rest = n - full * width
+        gain.T[full, :rest] = a[full * width:]
+        gain.T[full, rest:] = 1.0  # identity maps pad the last block
+        shift.T[full, :rest] = b[full * width:]
+        shift.T[full, rest:] = 0.0
     for j in range(1, width):
         # compose: (a_j, b_j) after (A, B) is (a_j A, a_j B + b_j)
         shift[j] += gain[j] * shift[j - 1]
         gain[j] *= gain[j - 1]
     block_starts = affine_scan(gain[-1].copy(), shift[-1].copy(), x0)
-    inside = gain * block_starts[:-1] + shift
-    out = np.empty(n + 1)
+    gain *= block_starts[:-1]
+    gain += shift
+    out = np.empty(blocks * width + 1)
     out[0] = x0
-    out[1:] = inside.T.reshape(-1)[:n]
-    return out
+    out[1:].reshape(blocks, width)[...] = gain.T
+    return out[: n + 1]
 
 
 class SegmentLocator:
@@ -104,13 +110,18 @@ class SegmentLocator:
         Segment start instants.
     rate : ndarray, shape (n,)
         ``1 / tau`` per segment (zero where the state is held).
+    is_sorted : bool, optional
+        Whether `t` is non-decreasing, when the caller knows already.
     """
 
     __slots__ = ("_counts", "_index", "decay", "size")
 
-    def __init__(self, t: np.ndarray, starts: np.ndarray, rate: np.ndarray) -> None:
+    def __init__(self, t: np.ndarray, starts: np.ndarray, rate: np.ndarray,
+                 is_sorted: bool | None = None) -> None:
         self.size = t.size
-        if t.size > 1 and not np.greater(t[:-1], t[1:]).any():
+        if is_sorted is None:
+            is_sorted = t.size > 1 and not np.greater(t[:-1], t[1:]).any()
+        if is_sorted and t.size > 1:
             # Sorted times: a run-length per segment, then repeats instead of gathers.
             first = np.searchsorted(t, starts, side="left")
             self._counts = np.diff(first, append=t.size)

@@ -74,8 +74,11 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
     fixture.check()
     levels, states = _match_columns(fixture, drive)
     configs, inverse = _configurations(states)
-    first_use = np.zeros(len(configs), dtype=np.intp)
-    first_use[inverse[::-1]] = np.arange(inverse.size)[::-1]
+    if len(configs) == 1:
+        first_use = np.zeros(1, dtype=np.intp)
+    else:
+        # np.unique's return_index gives the first segment of every configuration.
+        _, first_use = np.unique(inverse, return_index=True)
     reduced = []
     for c, config in enumerate(configs):
         k = int(first_use[c])
@@ -87,7 +90,7 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
     drifts = np.array([r.drift for _, r in reduced]).reshape(len(configs), levels.shape[1])
 
     holding = np.isinf(taus)
-    if holding.any():
+    if holding.any() and (drifts != 0).any():
         ramp = (drifts[inverse] * levels != 0).any(axis=1)
         if ramp.any():
             k = int(np.argmax(ramp))
@@ -101,13 +104,38 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
             )
     with np.errstate(divide="ignore"):
         rate_by_config = np.where(holding, 0.0, 1.0 / taus)
-    return Response(fixture, drive, levels, configs, inverse, rate_by_config[inverse], gains, initial)
+    if len(configs) == 1:
+        rate = np.full(len(drive), rate_by_config[0])  # no gather for a fixture without switch changes
+    else:
+        rate = rate_by_config[inverse]
+    return Response(fixture, drive, levels, configs, inverse, rate, gains, initial)
+
+
+class _FittedSegments:
+    """Stands in for the fixture of a Response built by :meth:`Response.from_segments`.
+
+    A response only asks its fixture for the unit of the state, the names of the
+    sources (here one pseudo-source, ``"fitted"``, whose share is every segment's
+    final value), the storage element's kind and name (for display) and probes
+    (none).
+    """
+
+    switches = ()
+    probes = ()
+
+    def __init__(self, name: str, unit: str) -> None:
+        from types import SimpleNamespace
+
+        self.state_unit = unit
+        self.sources = (SimpleNamespace(name="fitted"),)
+        self.storage = SimpleNamespace(kind="fitted model", name=name)
 
 
 class Response:
     """The exact response of a fixture to a drive.
 
-    Do not build directly; call :meth:`Fixture.respond` or :func:`respond`.
+    Do not build directly; call :meth:`Fixture.respond` or :func:`respond` (or
+    :meth:`from_segments` for a measured model).
 
     Examples
     --------
@@ -118,6 +146,62 @@ class Response:
     >>> res.boundary
     array([0.        , 0.99326205])
     """
+
+    @classmethod
+    def from_segments(cls, drive: "Drive", tau: Any, final: Any, initial: Any = 0.0,
+                      unit: str = "", name: str = "fitted") -> "Response":
+        """A response from per-segment time constants and final values, without a fixture.
+
+        For models measured rather than designed (see :func:`firstorder.fit_trace`):
+        segment ``k`` of `drive` relaxes with ``tau[k]`` towards ``final[k]``, and the
+        state is continuous at every change.  Every component works as for
+        :func:`respond`; the one pseudo-source is named ``"fitted"`` (its
+        contribution is ``zero_state``), and there are no probes.
+
+        Parameters
+        ----------
+        drive : Drive
+            Supplies the change instants and the end; its columns are not used.
+        tau : array_like, shape (n,)
+            Time constant of every segment (s), > 0; ``inf`` holds the state
+            (that segment's `final` is then ignored).
+        final : array_like, shape (n,)
+            The value every segment settles towards.
+        initial : float or str
+            The starting state, ``"settled"`` or ``"periodic"``.
+        unit, name : str
+            Unit and name of the modelled quantity, for display.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> drive = fo.Drive.steps([(0, 0.0), ("1m", 1.0)], end="3m")
+        >>> res = Response.from_segments(drive, tau=[1e-3, 1e-3], final=[0.0, 1.0], unit="V")
+        >>> round(float(res.total(2e-3)), 4)   # one time constant into the step: 63.2 %
+        0.6321
+        >>> res.forced(2e-3), round(float(res.natural(2e-3)), 4)
+        (1.0, -0.3679)
+        """
+        n = len(drive)
+        taus = np.asarray(tau, dtype=np.float64).reshape(-1)
+        finals = np.asarray(final, dtype=np.float64).reshape(-1)
+        for field, array in (("tau", taus), ("final", finals)):
+            if array.size != n:
+                raise InputError(f"from_segments.{field}: has {array.size} values but the drive has {n} segments")
+        bad = np.isnan(taus) | ~(taus > 0)
+        if bad.any():
+            k = int(np.argmax(bad))
+            raise InputError(f"from_segments.tau[{k}]: {float(taus[k])!r} is not allowed; expected a time > 0 s or inf")
+        holding = np.isinf(taus)
+        bad = ~np.isfinite(finals) & ~holding
+        if bad.any():
+            k = int(np.argmax(bad))
+            raise InputError(f"from_segments.final[{k}]: {float(finals[k])!r} is not allowed; expected a finite number")
+        with np.errstate(divide="ignore"):
+            rate = np.where(holding, 0.0, 1.0 / np.where(holding, 1.0, taus))
+        levels = np.where(holding, 0.0, finals).reshape(n, 1)
+        return cls(_FittedSegments(name, unit), drive, levels, [()], np.zeros(n, dtype=np.intp), rate,
+                   np.ones((1, 1)), initial)
 
     def __init__(self, fixture, drive, levels, configs, inverse, rate, gains, initial) -> None:
         self.fixture = fixture
@@ -161,6 +245,8 @@ class Response:
     @cached_property
     def _final_sources_only(self) -> np.ndarray:
         m = self._levels.shape[1]
+        if m == 1 and len(self._configs) == 1:
+            return self._gains[0, 0] * self._levels[:, 0]
         if m == 1:
             return self._gains[self._inverse, 0] * self._levels[:, 0]
         return self._source_finals.sum(axis=1)
@@ -253,29 +339,44 @@ class Response:
 
     # -- evaluation -------------------------------------------------------------------------
     def _times(self, t: Any) -> np.ndarray:
-        array = np.asarray(t, dtype=np.float64) if not isinstance(t, str) else np.asarray(
-            parse_value(t, field="t", unit="s"))
+        return self._checked_times(t)[0]
+
+    def _checked_times(self, t: Any) -> tuple[np.ndarray, bool]:
+        """`t` as a float array inside the drive, and whether it is sorted."""
+        if isinstance(t, str):
+            array = np.asarray(parse_value(t, field="t", unit="s"))
+        elif isinstance(t, (list, tuple)) and any(isinstance(v, str) for v in t):
+            array = np.array([parse_value(v, field=f"t[{i}]", unit="s") for i, v in enumerate(t)])
+        else:
+            array = np.asarray(t, dtype=np.float64)
         if array.size == 0:
-            return array.reshape(-1)
-        low, high = float(np.min(array)), float(np.max(array))
-        if not (np.isfinite(low) and np.isfinite(high)):
-            raise InputError("t: contains NaN or inf; times must be finite seconds")
+            return array.reshape(-1), True
+        flat = array.reshape(-1)
+        if not np.isfinite(flat.sum()):  # one cheap pass; NaN or inf anywhere shows in the sum
+            if not np.isfinite(flat).all():
+                raise InputError("t: contains NaN or inf; times must be finite seconds")
+        is_sorted = flat.size < 2 or not np.greater(flat[:-1], flat[1:]).any()
+        if is_sorted:
+            low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
+        else:
+            low, high = float(flat.min()), float(flat.max())
         if low < self._starts[0] or high > self.drive.end:
             bad = low if low < self._starts[0] else high
             raise InputError(
                 f"t: {bad!r} s is outside the drive, which runs from {float(self._starts[0])!r} "
                 f"to {self.drive.end!r} s"
             )
-        return array
+        return array, is_sorted
 
     def locate(self, t: Any) -> engine.SegmentLocator:
         """Pre-compute where times fall, to evaluate several components at once."""
-        return engine.SegmentLocator(self._times(t).reshape(-1), self._starts, self._rate)
+        array, is_sorted = self._checked_times(t)
+        return engine.SegmentLocator(array.reshape(-1), self._starts, self._rate, is_sorted)
 
     def evaluate(self, t: Any, components: tuple[str, ...] = ("total",), probe: str | None = None) -> dict[str, np.ndarray]:
         """Evaluate several components (of the state, or of `probe`) on one time array."""
-        array = self._times(t)
-        locator = engine.SegmentLocator(array.reshape(-1), self._starts, self._rate)
+        array, is_sorted = self._checked_times(t)
+        locator = engine.SegmentLocator(array.reshape(-1), self._starts, self._rate, is_sorted)
         rows = self._probe_rows(probe) if probe is not None else None
         out = {}
         for component in components:
@@ -365,6 +466,44 @@ class Response:
         states = self.boundary
         offset = np.einsum("ij,ij->i", rows[:, 1:], self._levels)
         return rows[:, 0] * states[:-1] + offset, rows[:, 0] * states[1:] + offset
+
+    # -- settling ---------------------------------------------------------------------------------
+    def settling(self, tolerance, sample_delay: Any = None, probe: str | None = None):
+        """Per-segment settle times, residuals and sample errors (a pandas DataFrame).
+
+        See :func:`firstorder.settling.settling_table` for the columns.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 5.0)], end="20m"))
+        >>> round(float(res.settling(fo.Tolerance.relative(0.01))["settle_time"].iloc[0]) / 1e-3, 3)
+        4.605
+        """
+        from .settling import settling_table
+
+        return settling_table(self, tolerance, sample_delay=sample_delay, probe=probe)
+
+    def summary(self, tolerance, sample_delay: Any = None, probe: str | None = None):
+        """The worst segment, how many did not settle, total time, smallest margin at the samples.
+
+        See :func:`firstorder.settling.settling_summary`.
+        """
+        from .settling import settling_summary
+
+        return settling_summary(self, tolerance, sample_delay=sample_delay, probe=probe)
+
+    @cached_property
+    def cautions(self) -> list:
+        """Hazards found in this response (high voltage, stored energy), as :class:`Caution` s.
+
+        Checked against the limits in force when first read (see
+        :func:`firstorder.cautions.set_limits`); call
+        :func:`firstorder.cautions.check` for other limits.
+        """
+        from .cautions import check
+
+        return check(self)
 
     # -- display ---------------------------------------------------------------------------------
     def __repr__(self) -> str:

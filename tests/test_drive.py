@@ -1,0 +1,119 @@
+"""Tests for firstorder.drive."""
+
+import numpy as np
+import pytest
+
+import firstorder as fo
+from firstorder.errors import InputError
+
+
+class TestDrive:
+    def test_contract_example(self):
+        drive = fo.Drive([0, "1m", "3m"], end="6m", vdac=[0, 2.5, -1.2], k1=[1, 1, 0])
+        np.testing.assert_array_equal(drive.times, [0.0, 1e-3, 3e-3])
+        assert drive.end == 6e-3
+        np.testing.assert_array_equal(drive.levels("k1"), [1.0, 1.0, 0.0])
+        np.testing.assert_allclose(drive.durations, [1e-3, 2e-3, 3e-3])
+
+    def test_int_and_float_agree(self):
+        assert fo.Drive([0, 1, 2], end=3, vin=[0, 1, 2]) == fo.Drive([0.0, 1.0, 2.0], end=3.0, vin=[0.0, 1.0, 2.0])
+
+    def test_numpy_fast_path_matches_list(self):
+        times = np.arange(5) * 1e-3
+        assert fo.Drive(times, end=1, vin=np.ones(5)) == fo.Drive(times.tolist(), end=1, vin=[1] * 5)
+
+    def test_arrays_are_read_only_copies(self):
+        times = np.arange(3.0)
+        drive = fo.Drive(times, end=5, vin=np.zeros(3))
+        times[0] = -1
+        assert drive.times[0] == 0
+        with pytest.raises(ValueError):
+            drive.times[0] = 1
+
+    def test_constant_column(self):
+        drive = fo.Drive([0, 1], end=2, vin=[0, 1], k1=True)
+        np.testing.assert_array_equal(drive.levels("k1"), [1.0, 1.0])
+
+    def test_segment_at(self):
+        drive = fo.Drive([0, 1, 2], end=3, vin=[0, 1, 2])
+        assert [drive.segment_at(t) for t in (0, 0.99, 1, 2.5, 3)] == [0, 0, 1, 2, 2]
+
+
+class TestGenerators:
+    def test_steps(self):
+        drive = fo.Drive.steps([(0, 0.0), ("1m", 2.5)], end="4m")
+        assert drive.names == ("vin",)
+        np.testing.assert_array_equal(drive.levels("vin"), [0.0, 2.5])
+
+    def test_pulses(self):
+        drive = fo.Drive.pulses(period="2m", duty=0.25, high=5, low=-1, count=3)
+        np.testing.assert_allclose(drive.times, [0, 0.5e-3, 2e-3, 2.5e-3, 4e-3, 4.5e-3])
+        np.testing.assert_array_equal(drive.levels("vin"), [5, -1] * 3)
+        assert drive.end == pytest.approx(6e-3)
+
+    def test_staircase(self):
+        drive = fo.Drive.staircase([0, 1, 2, 3], dwell="5u", name="vdac")
+        np.testing.assert_allclose(drive.times, [0, 5e-6, 10e-6, 15e-6])
+        assert drive.end == pytest.approx(20e-6)
+
+    def test_million_changes_fast_path(self):
+        n = 1_000_000
+        drive = fo.Drive(np.arange(n, dtype=float), end=float(n), vin=np.zeros(n))
+        assert len(drive) == n
+
+
+class TestCsv:
+    def test_round_trip_exact(self, tmp_path):
+        drive = fo.Drive([0, 1e-3 / 3, 0.1], end=0.25, vdac=[0.1, -2 / 3, 1e-9], k1=[1, 0, 1])
+        path = tmp_path / "d.csv"
+        drive.to_csv(path)
+        assert fo.Drive.from_csv(path) == drive
+
+    def test_bad_cell_names_line_and_column(self, tmp_path):
+        path = tmp_path / "d.csv"
+        path.write_text("# firstorder drive v1\n# end,1\ntime,vin\n0,1\n0.5,abc\n")
+        with pytest.raises(InputError, match=r"line 5, column 'vin'"):
+            fo.Drive.from_csv(path)
+
+
+BAD_DRIVES = [
+    (lambda: fo.Drive([], end=1, vin=[]), "drive.times"),
+    (lambda: fo.Drive([0, 1, 1], end=2, vin=[0, 1, 2]), r"drive.times\[2\]"),
+    (lambda: fo.Drive([0, 2, 1], end=3, vin=[0, 1, 2]), r"drive.times\[2\]"),
+    (lambda: fo.Drive([0, 1], end=1, vin=[0, 1]), "drive.end"),
+    (lambda: fo.Drive([0, 1], end=0.5, vin=[0, 1]), "drive.end"),
+    (lambda: fo.Drive([0, float("nan")], end=1, vin=[0, 1]), r"drive.times\[1\]"),
+    (lambda: fo.Drive([0, 1], end=float("inf"), vin=[0, 1]), "drive.end"),
+    (lambda: fo.Drive([0, 1], end=2, vin=[0, float("inf")]), r"drive.vin\[1\]"),
+    (lambda: fo.Drive([0, 1], end=2, vin=[0]), "drive.vin"),
+    (lambda: fo.Drive([0, 1], end=2), "no columns"),
+    (lambda: fo.Drive([0, "1x"], end=2, vin=[0, 1]), r"drive.times\[1\]"),
+    (lambda: fo.Drive([0, 1], end=2, vin=[0, "lots"]), r"drive.vin\[1\]"),
+    (lambda: fo.Drive.pulses(period=0, duty=0.5, high=1), "pulses.period"),
+    (lambda: fo.Drive.pulses(period=1, duty=1.5, high=1), "pulses.duty"),
+    (lambda: fo.Drive.pulses(period=1, duty=0.5, high=1, count=0), "pulses.count"),
+    (lambda: fo.Drive.staircase([], dwell=1), "staircase.levels"),
+    (lambda: fo.Drive.staircase([1], dwell=-1), "staircase.dwell"),
+    (lambda: fo.Drive.steps([], end=1), "steps"),
+]
+
+
+@pytest.mark.parametrize(("build", "field"), BAD_DRIVES)
+def test_bad_drive_names_field(build, field):
+    with pytest.raises(ValueError, match=field):
+        build()
+
+
+@pytest.mark.parametrize(
+    "build, text",
+    [
+        (lambda: fo.Drive([0, 1, 1], end=2, vin=[0, 1, 2]), "drive.times[2]: 1.0 does not come after drive.times[1] = 1.0;"),
+        (lambda: fo.Drive([0, 1], end=2, vin=[0, float("nan")]), "drive.vin[1]: nan is not allowed"),
+        (lambda: fo.Drive([0, 1], end=1, vin=[0, 1]), "must be later than the last change (1.0 s)"),
+        (lambda: fo.Drive([0, 1], end=2, vin=[0, 1]).segment_at(5), "outside the drive [0.0, 2.0] s"),
+    ],
+)
+def test_messages_show_plain_numbers(build, text):
+    with pytest.raises(fo.InputError) as caught:
+        build()
+    assert text in str(caught.value) and "np.float64" not in str(caught.value)
