@@ -429,3 +429,43 @@ class TestTrace:
     def test_trace_must_have_fields(self):
         with pytest.raises(ValueError, match="times"):
             rc_bench(trace=SimpleNamespace(values=[1.0], name="x"))
+
+
+class TestSettlingPanel:
+    def test_settle_mark_and_table(self):
+        fixture = fo.Fixture.rc(r="10k", c="100n")
+        drive = fo.Drive.steps([(0, 0.0), ("1m", 5.0)], end="15m")
+        bench = Bench(fixture, drive, tolerance=fo.Tolerance.absolute("10m"), sample_delay="9m")
+        # First order: within 10 mV of a 5 V step after tau ln(5 / 0.01) (handbook closed form, common practice)
+        expected = 1e-3 * math.log(5.0 / 0.01)
+        assert bench.settling.loc[1, "settle_time"] == pytest.approx(expected, rel=1e-12)
+        marks = bench.sources["settle"].data
+        np.testing.assert_allclose(marks["t"], [1e-3 + expected], rtol=1e-12)
+        np.testing.assert_allclose(marks["y"], [4.99], rtol=1e-12)
+        bench.tabs.selected_index = 3
+        assert "Settling summary" in bench.settling_panel.value
+        assert "6.215 ms" in bench.settling_panel.value
+
+    def test_no_tolerance_no_table(self):
+        bench = rc_bench()
+        assert bench.settling is None
+        bench.tabs.selected_index = 3
+        assert "Give a tolerance" in bench.settling_panel.value
+
+    def test_tolerance_in_wrong_unit_for_a_current_probe(self):
+        bench = switched_bench(tolerance=fo.Tolerance.absolute("1m"))
+        bench.probe_selector.value = "i_rs"
+        # The tolerance field is re-read in amps for a current probe.
+        assert bench.tolerance.unit == "A"
+        assert bench.error == ""
+
+
+class TestCautionsPanel:
+    def test_high_voltage_is_flagged(self):
+        fixture = fo.Fixture.rc(r="1k", c="10u")
+        bench = Bench(fixture, fo.Drive.steps([(0, 0.0), ("1m", 100.0)], end="100m"))
+        # 100 V is above the 60 V DC limit the cautions use (from memory of safety practice)
+        assert "Cautions" in bench.cautions_panel.value
+        assert "60 V" in bench.cautions_panel.value
+        bench.edit_cell(1, "vin", "5")
+        assert bench.cautions_panel.value == ""

@@ -35,6 +35,11 @@ __all__ = ["Bench"]
 
 #: Curves shown when the Bench opens; the rest are one click away.
 DEFAULT_VISIBLE = frozenset({"total", "forced"})
+#: Tabs under the plot, in order.
+TAB_TITLES = ("Drive table", "Generators", "Derivation", "Settling", "Export")
+_DERIVATION_TAB, _SETTLING_TAB = TAB_TITLES.index("Derivation"), TAB_TITLES.index("Settling")
+#: Rows of the settling table shown in the panel (the whole table is bench.settling).
+SETTLING_ROWS = 40
 #: How many edits `undo` can take back.
 UNDO_DEPTH = 50
 _ERROR_STYLE = "color:#b03a2e;font-size:0.85em"
@@ -128,6 +133,9 @@ class Bench(widgets.VBox):
         self._syncing = False
         self._segment: int | None = None
         self._derivation_stale = True
+        self._settling_stale = True
+        self.settling = None
+        self.summary = None
         self._mode = "line"
 
         self._sources_names = tuple(p.name for p in fixture.sources)
@@ -156,9 +164,12 @@ class Bench(widgets.VBox):
         view_panel = self._build_view_panel()
         editor = self._build_drive_editor()
         self.derivation = widgets.HTMLMath(value="")
+        self.settling_panel = widgets.HTML(value="")
+        self.cautions_panel = widgets.HTML(value="")
         export = self._build_export_panel()
-        self.tabs = widgets.Tab(children=[editor, self._build_generators(), self.derivation, export])
-        for index, title in enumerate(["Drive table", "Generators", "Derivation", "Export"]):
+        self.tabs = widgets.Tab(children=[editor, self._build_generators(), self.derivation, self.settling_panel,
+                                          export])
+        for index, title in enumerate(TAB_TITLES):
             self.tabs.set_title(index, title)
         self.tabs.observe(self._on_tab, names="selected_index")
 
@@ -166,10 +177,12 @@ class Bench(widgets.VBox):
         header = widgets.HTML(
             f"<div style='font-size:1.15em;font-weight:600'>Bench: {html.escape(fixture.storage.kind)} "
             f"'{html.escape(fixture.storage.name)}' under a {len(drive)}-change drive</div>")
-        super().__init__([header, self.status, widgets.HBox([left, self.plot_view]), self.info, self.tabs])
+        super().__init__([header, self.status, self.cautions_panel, widgets.HBox([left, self.plot_view]), self.info,
+                          self.tabs])
         self._good_text = {key: field.value for key, field in {**self.fields, **self.setup_fields}.items()}
         self._refresh_drive(table=False)
         self._refresh_curves()
+        self._show_cautions()
         self._show_status()
 
     # -- public reading --------------------------------------------------------------------
@@ -674,20 +687,27 @@ class Bench(widgets.VBox):
         self._refresh_curves()
 
     def _on_tab(self, change) -> None:
-        if self.tabs.selected_index == 2 and self._derivation_stale:
+        if self.tabs.selected_index == _DERIVATION_TAB and self._derivation_stale:
             self._render_derivation()
+        if self.tabs.selected_index == _SETTLING_TAB and self._settling_stale:
+            self._render_settling()
 
     # -- refresh ---------------------------------------------------------------------------------------------
     def _after_response(self) -> None:
         self._refresh_curves()
         self._derivation_stale = True
-        if self.tabs.selected_index == 2:
+        self._settling_stale = True
+        if self.tabs.selected_index == _DERIVATION_TAB:
             self._render_derivation()
+        if self.tabs.selected_index == _SETTLING_TAB:
+            self._render_settling()
+        self._show_cautions()
 
     def _refresh_curves(self) -> None:
         response, probe = self.response, self._probe
         self._mode = self.plots.update_response(response, probe, self._view, self._visible)
         self.plots.update_marks(response, probe, self._view, self._tolerance, self._sample_delay)
+        self._update_settling()
         if self._trace is not None:
             self._refresh_trace()
         self._show_info()
@@ -775,6 +795,49 @@ class Bench(widgets.VBox):
             parts.append(f"residual rms {format_value(self._residual_rms, self._value_unit())}")
         self.info.value = "<span style='color:#34495e'>" + " · ".join(html.escape(p) for p in parts) + "</span>"
 
+    def _sample_delays(self):
+        """Per segment: the sample delay, or the segment's length where the delay is longer."""
+        if self._sample_delay is None:
+            return None
+        return np.minimum(self._sample_delay, self.drive.durations)
+
+    def _update_settling(self) -> None:
+        """The settling table (kept as ``bench.settling``) and the settle marks in view."""
+        self.settling = self.summary = None
+        if self._tolerance is None:
+            self.plots.update_settle_marks(None, None, None, self._view)
+            self._set_error("settling", None)
+            return
+        try:
+            delays = self._sample_delays()
+            self.settling = self.response.settling(self._tolerance, sample_delay=delays, probe=self._probe)
+            self.summary = self.response.summary(self._tolerance, sample_delay=delays, probe=self._probe)
+        except ValueError as error:
+            self._set_error("settling", str(error))
+            self.plots.update_settle_marks(None, None, None, self._view)
+            return
+        self._set_error("settling", None)
+        self.plots.update_settle_marks(self.response, self._probe, self.settling, self._view)
+
+    def _render_settling(self) -> None:
+        self._settling_stale = False
+        if self.settling is None:
+            self.settling_panel.value = ("<p>Give a tolerance (Setup) to see when each segment settles "
+                                         "and the error left at each sample.</p>")
+            return
+        self.settling_panel.value = _settling_html(self.settling, self.summary, self._value_unit(),
+                                                   self._sample_delay, self.drive)
+
+    def _show_cautions(self) -> None:
+        cautions = self.response.cautions
+        if not cautions:
+            self.cautions_panel.value = ""
+            return
+        items = "".join(f"<li>{html.escape(str(c))}</li>" for c in cautions)
+        self.cautions_panel.value = (
+            "<div style='background:#fef5e7;border-left:4px solid #d68910;padding:4px 8px'>"
+            f"<b>⚠ Cautions</b><ul style='margin:2px 0'>{items}</ul></div>")
+
     def _render_derivation(self) -> None:
         segment = 0 if self._segment is None else self._segment
         self._derivation_stale = False
@@ -823,6 +886,37 @@ class Bench(widgets.VBox):
             self.export_message.value = f"<span style='{_ERROR_STYLE}'>{html.escape(str(error))}</span>"
             return
         self.export_message.value = f"written: <code>{html.escape(written)}</code>"
+
+
+def _settling_html(table, summary, unit: str, sample_delay, drive) -> str:
+    """The summary, then the rows with the least margin (or every row of a short drive)."""
+    limit = table["tolerance"].to_numpy()
+    error = (table["error_at_sample"] if "error_at_sample" in table else table["residual_at_end"]).to_numpy()
+    if len(table) <= SETTLING_ROWS:
+        rows = np.arange(len(table))
+        caption = "every segment"
+    else:
+        rows = np.sort(np.argsort(limit - error, kind="stable")[:SETTLING_ROWS])
+        caption = f"the {SETTLING_ROWS} segments with the least margin, of {len(table)}"
+    header = ["segment", "from", "final", "limit", "settles after", "error at sample" if "error_at_sample" in table
+              else "error at end", "ok"]
+    settle = table["settle_time"].to_numpy()
+    body = []
+    for k in rows.tolist():
+        settled = math.isfinite(settle[k])
+        ok = bool(error[k] <= limit[k])
+        body.append("<tr>" + "".join(f"<td style='padding:1px 8px'>{html.escape(cell)}</td>" for cell in [
+            str(k), format_value(float(table["start"].iloc[k]), "s"), format_value(float(table["final"].iloc[k]), unit),
+            format_value(float(limit[k]), unit),
+            format_value(float(settle[k]), "s") if settled else "not within its segment",
+            format_value(float(error[k]), unit), "yes" if ok else "NO"]) + "</tr>")
+    note = ""
+    if sample_delay is not None and bool((drive.durations < sample_delay).any()):
+        note = ("<p style='color:#566573'>Segments shorter than the sample delay are judged at their "
+                "end.</p>")
+    head = "".join(f"<th style='padding:1px 8px;text-align:left'>{h}</th>" for h in header)
+    return (summary._repr_html_() + note + f"<p><b>Settling, {html.escape(caption)}</b></p>"
+            f"<table style='font-size:0.9em'><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>")
 
 
 def _check_trace(trace: Any):

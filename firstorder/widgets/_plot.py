@@ -325,6 +325,23 @@ class Plots:
             colour = ["#5d6d7e"] * instants.size
         self.sources["samples"].data = {"t": instants, "y": sampled, "colour": colour, "error": error}
 
+    def update_settle_marks(self, response, probe, table, view: View) -> None:
+        """Mark where each segment in view comes within tolerance (from the settling table)."""
+        empty = {"t": np.zeros(0), "y": np.zeros(0)}
+        if table is None:
+            self.sources["settle"].data = empty
+            return
+        first, last = segments_in_view(response.starts, response.drive.end, view.start, view.end)
+        if (last - first + 1) * 2 > PIXELS:
+            self.sources["settle"].data = empty
+            return
+        settle = table["settle_time"].to_numpy()[first:last + 1]
+        starts = response.starts[first:last + 1]
+        marked = np.isfinite(settle) & (settle > 0)
+        instants = starts[marked] + settle[marked]
+        values = response.evaluate(instants, ("total",), probe)["total"] if instants.size else np.zeros(0)
+        self.sources["settle"].data = {"t": instants, "y": values}
+
     def update_selection(self, drive, segment: int | None) -> None:
         if segment is None:
             self.sources["selection"].data = {"left": [], "right": []}
