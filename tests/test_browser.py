@@ -178,6 +178,12 @@ class TestBenchInBrowser:
                         changed = True
                         break
                 bench.screenshot(path=str(BUILD / "bench-browser-after.png"))
+                # The derivation renders as typeset math (MathJax ships with JupyterLab, no network).
+                page.locator(".lm-TabBar-tab", has_text="Derivation").first.click()
+                page.locator(".jp-OutputArea-output mjx-container").first.wait_for(timeout=60_000)
+                page.wait_for_timeout(1000)
+                page.locator(".jp-OutputArea-output .widget-tab").first.screenshot(
+                    path=str(BUILD / "bench-browser-derivation.png"))
                 (BUILD / "bench-browser-console.log").write_text("\n".join(messages + blocked), encoding="utf-8")
                 assert page.locator("[class*='fo-part-'] input").count() >= 2
                 assert changed, "the response plot did not change after a new part value was typed"

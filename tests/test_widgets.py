@@ -90,6 +90,7 @@ class TestBenchConstruction:
         assert {"rs", "k1.r_on", "k1.r_off", "ch", "rin"} == set(bench.fields)
         bench.probe_selector.value = "i_rs"
         assert bench.probe == "i_rs"
+        assert bench.plots.response_figure.yaxis[0].formatter.args == {"unit": "A"}
         # Just after the change at 1 ms the current through rs is (2.5 V - 0 V) / (1k + 0.2): Ohm's law.
         t = np.asarray(bench.sources["total"].data["t"])
         y = np.asarray(bench.sources["total"].data["y"])
@@ -283,7 +284,7 @@ class TestUndo:
         bench.edit_cell(1, "vin", "3")
         assert bench.undo()
         np.testing.assert_array_equal(bench.drive.levels("vin"), [0.0, 5.0, 1.0])
-        assert bench.table_source.data["vin"][1] == "5"
+        assert bench.table_source.data["vin"][1] == "5 V"
 
     def test_undo_a_rejected_entry_first(self):
         bench = rc_bench()

@@ -173,7 +173,7 @@ class Bench(widgets.VBox):
             self.tabs.set_title(index, title)
         self.tabs.observe(self._on_tab, names="selected_index")
 
-        left = widgets.VBox([parts_panel, setup_panel, view_panel], layout=widgets.Layout(width="330px", min_width="330px"))
+        left = widgets.VBox([parts_panel, setup_panel, view_panel], layout=widgets.Layout(width="320px", min_width="320px"))
         header = widgets.HTML(
             f"<div style='font-size:1.15em;font-weight:600'>Bench: {html.escape(fixture.storage.kind)} "
             f"'{html.escape(fixture.storage.name)}' under a {len(drive)}-change drive</div>")
@@ -208,6 +208,12 @@ class Bench(widgets.VBox):
     def plot_mode(self) -> str:
         """``"line"`` (every segment drawn) or ``"envelope"`` (min/max per pixel column)."""
         return self._mode
+
+    def __repr__(self) -> str:
+        # Also the text a saved notebook shows where the live app was.
+        storage = self.fixture.storage
+        return (f"Bench({storage.kind} '{storage.name}', {len(self.drive)} changes; "
+                f"run the cell in a live notebook to open the app)")
 
     def _repr_mimebundle_(self, **kwargs):
         # BokehJS must be in the page before jupyter_bokeh's view is created.
@@ -306,7 +312,7 @@ class Bench(widgets.VBox):
             columns.append(TableColumn(field=name, title=f"{name} (switch)",
                                        editor=SelectEditor(options=["closed", "open"])))
         self.drive_table = DataTable(source=self.table_source, columns=columns, editable=True, index_position=None,
-                                     width=620, height=260, selectable=True)
+                                     width=620, height=min(260, 34 + 26 * len(self._table)), selectable=True)
         self.table_view = BokehModel(self.drive_table, combine_events=True)
         self.table_source.on_change("data", self._on_table)
         self.table_source.selected.on_change("indices", self._on_table_selection)
@@ -676,7 +682,8 @@ class Bench(widgets.VBox):
         if self._tolerance is not None and self._tolerance.unit != self._value_unit():
             self._tolerance = parse_tolerance(self.setup_fields["tolerance"].value, unit=self._value_unit())
         label = self._value_label()
-        self.plots.response_figure.yaxis[0].axis_label = f"{label} ({self._value_unit()})"
+        self.plots.response_figure.yaxis[0].axis_label = label
+        self.plots.set_value_unit(self._value_unit())
         self._after_response()
 
     def _on_overlay(self, name: str, shown: bool) -> None:
@@ -959,19 +966,23 @@ def _derivation_html(fixture: Fixture, response, segment: int, probe: str | None
            f"<p>Configuration: {html.escape(derivation.configuration)}; levels: {html.escape(levels) or 'none'}</p>"]
     for caption, body in derivation.steps():
         out.append(f"<p style='margin:2px 0'><b>{html.escape(caption)}</b></p><p>$$ {body} $$</p>")
-    x = sp.latex(derivation.state)
+    x = sp.latex(sp.Symbol(derivation.state.func.__name__))
     tau = float(response.tau[segment])
     x0 = float(response.boundary[segment])
     final = float(response.final[segment])
-    number = lambda value: sp.latex(sp.Float(value, 5)) if math.isfinite(value) else r"\infty"  # noqa: E731
+
+    def number(value: float, unit_text: str) -> str:
+        # engineering notation, as on the axes: 1.55 ms rather than 0.00155
+        return r"\infty" if not math.isfinite(value) else r"\mathrm{" + format_value(value, unit_text).replace(" ", r"\ ") + "}"
+
     out.append("<p style='margin:2px 0'><b>This segment in numbers</b></p>")
-    out.append(rf"<p>$$ \tau = {number(tau)}\ \mathrm{{s}},\quad {x}(t_{{{segment}}}) = {number(x0)}\ \mathrm{{{unit}}},"
-               rf"\quad {x}(\infty) = {number(final)}\ \mathrm{{{unit}}} $$</p>")
+    out.append(rf"<p>$$ \tau = {number(tau, 's')},\quad {x}(t_{{{segment}}}) = {number(x0, unit)},"
+               rf"\quad {x}(\infty) = {number(final, unit)} $$</p>")
     if math.isfinite(tau):
-        out.append(rf"<p>$$ {x} = {number(final)} + \left({number(x0)} - {number(final)}\right)"
-                   rf"e^{{-(t - {number(start)})/{number(tau)}}} $$</p>")
+        out.append(rf"<p>$$ {x}(t) = {number(final, unit)} + \left({number(x0, unit)} - {number(final, unit)}\right)"
+                   rf"e^{{-(t - {number(start, 's')})/{number(tau, 's')}}} $$</p>")
     else:
-        out.append(rf"<p>$$ {x} = {number(x0)} \quad\text{{(held: no resistive path)}} $$</p>")
+        out.append(rf"<p>$$ {x}(t) = {number(x0, unit)} \quad\text{{(held: no resistive path)}} $$</p>")
     if probe is not None:
         out.append(f"<p>Shown on the plot: probe {html.escape(probe)}, from the probe expression above.</p>")
     return "\n".join(out)

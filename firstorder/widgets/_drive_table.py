@@ -79,7 +79,7 @@ class DriveText:
         for name in names:
             levels = np.array(drive.levels(name), dtype=float)
             numbers[name] = levels
-            text = switch_text(levels) if name in switches else format_many(levels)
+            text = switch_text(levels) if name in switches else format_many(levels, units.get(name, ""))
             cells[name] = np.array(text, dtype=object)
         return cls(names, switches, units, np.array(format_many(drive.times, "s"), dtype=object),
                    format_many([drive.end], "s")[0], cells, numbers)

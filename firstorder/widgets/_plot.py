@@ -43,8 +43,8 @@ LABELS = {
 LINE_DASH = {"forced": "dashed", "natural": "dotdash"}
 #: Drag handles are offered up to this many changes (beyond it, edit the table).
 MAX_HANDLES = 400
-PLOT_WIDTH = 760
-PIXELS = 560  # the plot area without axes, for sampling
+PLOT_WIDTH = 720
+PIXELS = 520  # the plot area without axes, for sampling
 
 
 def _formatter(unit: str) -> CustomJSTickFormatter:
@@ -84,6 +84,7 @@ class Plots:
         self.line_renderers = {}
         self.band_renderers = {}
         self.legend_items = {}
+        self.value_formatters = []  # response-value tick and hover formatters (their unit follows the probe)
         self.value_unit = state_unit
         self._build_drive_figure(level_names, level_units, switch_names)
         self._build_response_figure(curve_names, contribution_names, state_unit, value_label, trace_name)
@@ -108,7 +109,7 @@ class Plots:
         fig = figure(width=PLOT_WIDTH, height=190, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
                      active_scroll="xwheel_zoom", title="Drive: source levels; switch lanes shaded where closed")
         self._style(fig, unit)
-        fig.yaxis.axis_label = f"level ({unit})" if unit else "level"
+        fig.yaxis.axis_label = "level"  # the tick labels carry the unit
         fig.xaxis.axis_label = None
         items = []
         if switches:
@@ -160,8 +161,9 @@ class Plots:
         fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
                      active_scroll="xwheel_zoom", title="Response")
         self._style(fig, unit)
-        fig.xaxis.axis_label = "time (s)"
-        fig.yaxis.axis_label = f"{label} ({unit})"
+        fig.xaxis.axis_label = "time"
+        fig.yaxis.axis_label = label
+        self.value_formatters.append(fig.yaxis[0].formatter)
         self._add_selection(fig)
         tolerance = ColumnDataSource({"left": [], "right": [], "bottom": [], "top": []})
         self.sources["tolerance"] = tolerance
@@ -183,15 +185,19 @@ class Plots:
             item = LegendItem(label=text, renderers=[line, band])
             self.legend_items[name] = item
             items.append(item)
+            value_hover = _hover(unit)
+            self.value_formatters.append(value_hover)
             fig.add_tools(HoverTool(renderers=[line], tooltips=[(text, "@y{custom}"), ("at", "@t{custom}")],
-                                    formatters={"@y": _hover(unit), "@t": _hover("s")}))
+                                    formatters={"@y": value_hover, "@t": _hover("s")}))
         samples = ColumnDataSource({"t": [], "y": [], "colour": [], "error": []})
         self.sources["samples"] = samples
         sample_renderer = fig.scatter("t", "y", source=samples, size=8, marker="diamond", fill_color="colour",
                                       line_color="#17324d")
+        sample_value, sample_error = _hover(unit), _hover(unit)
+        self.value_formatters += [sample_value, sample_error]
         fig.add_tools(HoverTool(renderers=[sample_renderer],
                                 tooltips=[("sample at", "@t{custom}"), ("value", "@y{custom}"), ("error", "@error{custom}")],
-                                formatters={"@t": _hover("s"), "@y": _hover(unit), "@error": _hover(unit)}))
+                                formatters={"@t": _hover("s"), "@y": sample_value, "@error": sample_error}))
         items.append(LegendItem(label="sample instants", renderers=[sample_renderer]))
         settle = ColumnDataSource({"t": [], "y": []})
         self.sources["settle"] = settle
@@ -212,7 +218,7 @@ class Plots:
                                   tools="xpan,xwheel_zoom,box_zoom,reset", active_scroll="xwheel_zoom",
                                   title="Residual: measured - model (total)")
             self._style(residual_fig, unit)
-            residual_fig.yaxis.axis_label = f"residual ({unit})"
+            residual_fig.yaxis.axis_label = "residual"
             residual = ColumnDataSource({"t": [], "y": []})
             self.sources["residual"] = residual
             residual_fig.scatter("t", "y", source=residual, size=3, color="#b03a2e")
@@ -223,6 +229,11 @@ class Plots:
         self.response_figure = fig
 
     # -- filling ------------------------------------------------------------------------------
+    def set_value_unit(self, unit: str) -> None:
+        """Axis ticks and hover text of the response panel in `unit` (V or A)."""
+        for formatter in self.value_formatters:
+            formatter.args = {"unit": unit}
+
     def set_visible(self, visible: set[str]) -> None:
         """Show the curves in `visible`, hide the others (data is filled by update_response)."""
         for name in self.curve_names:
