@@ -6,6 +6,7 @@ and bokeh are imported when a derivation or the Bench is first asked for.
 
 from __future__ import annotations
 
+from .analysis import Analysis
 from .cautions import Caution
 from .drive import Drive
 from .errors import InputError, TopologyError, ZeroTimeError
@@ -16,6 +17,7 @@ from .traces import Trace, fit_trace, read_trace
 from .units import format_value, parse_value
 
 __all__ = [
+    "Analysis",
     "Bench",
     "Caution",
     "Drive",

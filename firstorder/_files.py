@@ -15,8 +15,16 @@ def write_atomic(path: str | os.PathLike[str], data: str | bytes) -> None:
     target = os.fspath(path)
     folder = os.path.dirname(os.path.abspath(target))
     mode = "wb" if isinstance(data, bytes) else "w"
-    handle, temporary = tempfile.mkstemp(prefix=".firstorder-", suffix=".tmp", dir=folder)
     try:
+        handle, temporary = tempfile.mkstemp(prefix=".firstorder-", suffix=".tmp", dir=folder)
+    except OSError as error:
+        # Name the file the user asked for, not our temporary one.
+        raise type(error)(error.errno, error.strerror, target) from None
+    try:
+        # mkstemp makes the file private (0600); a saved file should get the
+        # permissions an ordinary write would give (or keep the old file's),
+        # so that colleagues sharing the folder can read it.
+        os.chmod(temporary, _mode_for(target))
         with os.fdopen(handle, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as stream:
             stream.write(data)
             stream.flush()
@@ -28,3 +36,13 @@ def write_atomic(path: str | os.PathLike[str], data: str | bytes) -> None:
         except FileNotFoundError:
             pass
         raise
+
+
+def _mode_for(target: str) -> int:
+    """The old file's permissions, or those ``open()`` would give a new file."""
+    try:
+        return os.stat(target).st_mode & 0o7777
+    except FileNotFoundError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask

@@ -31,7 +31,8 @@ GROUND = _network.GROUND
 PART_UNITS = {"resistor": "Ω", "capacitor": "F", "inductor": "H", "switch": "Ω"}
 SOURCE_UNITS = {"voltage_source": "V", "current_source": "A"}
 STATE_UNITS = {"capacitor": "V", "inductor": "A"}
-_RESERVED_NAMES = frozenset({"t", "initial", "time", GROUND})
+# "times" and "end" are Drive's own arguments, so no drive column could carry those names.
+_RESERVED_NAMES = frozenset({"t", "initial", "time", "times", "end", GROUND})
 
 
 @dataclass(frozen=True, slots=True)

@@ -53,7 +53,7 @@ def _match_columns(fixture: "Fixture", drive: "Drive") -> tuple[np.ndarray, np.n
     if bad.any():
         k, j = np.argwhere(bad)[0]
         raise InputError(
-            f"drive.{switches[j]}[{k}]: {states[k, j]!r} is not a switch state; use 1/True (closed) or 0/False (open)"
+            f"drive.{switches[j]}[{k}]: {float(states[k, j])!r} is not a switch state; use 1/True (closed) or 0/False (open)"
         )
     return levels, states.astype(bool)
 

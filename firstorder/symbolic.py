@@ -134,7 +134,7 @@ class Derivation:
             ("Circuit law at the storage element", self._law()),
             ("The ODE", _tex(self.ode)),
             ("Time constant", rf"\tau = {_tex(self.tau)}"),
-            ("Final value", rf"{x}(\infty) = {_tex(self.final)}"),
+            ("Final value", rf"{_tex(self.state.subs(self.symbols['t'], sp.oo))} = {_tex(self.final)}"),
             ("Zero-input + zero-state",
              rf"{x} = {_tex(self.zero_input)} + \left({_tex(self.zero_state)}\right)"),
             ("Natural + forced",
@@ -152,7 +152,7 @@ class Derivation:
 
     def latex(self) -> str:
         """The derivation as one LaTeX ``aligned`` block of steps."""
-        lines = [rf"&\text{{{caption}:}}\\ &\quad {body}" for caption, body in self.steps()]
+        lines = [rf"&\text{{{_latex_text(caption)}:}}\\ &\quad {body}" for caption, body in self.steps()]
         return "\\begin{aligned}\n" + " \\\\\n".join(lines) + "\n\\end{aligned}"
 
     def markdown(self) -> str:
@@ -164,6 +164,26 @@ class Derivation:
 
     def _repr_markdown_(self) -> str:
         return self.markdown()
+
+
+# Characters LaTeX will not take inside \text{}: each is set in math mode between two
+# \text{} pieces, which LaTeX and the notebooks' MathJax (without its textmacros
+# package) both draw as the character itself.
+_LATEX_TEXT_SPECIALS = {c: "\\" + c for c in "_{}%&#$"}
+_LATEX_TEXT_SPECIALS.update({"\\": r"\backslash", "^": r"\hat{}", "~": r"\sim"})
+
+
+def _latex_text(text: str) -> str:
+    r"""`text` for use inside ``\text{...}``: part names such as ``c_hold`` carry underscores.
+
+    Examples
+    --------
+    >>> _latex_text("capacitor c_hold (k1 closed)")
+    'capacitor c}\\_\\text{hold (k1 closed)'
+    """
+    return "".join(
+        "}" + _LATEX_TEXT_SPECIALS[c] + r"\text{" if c in _LATEX_TEXT_SPECIALS else c for c in text
+    )
 
 
 def _solve(layout: _network.Layout, fixture: "Fixture", conductance) -> sp.Matrix:

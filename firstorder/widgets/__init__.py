@@ -1,11 +1,18 @@
-"""The Bench: a notebook app to edit parts and drives and see every response component.
+"""The notebook app and the report figure: the only package that imports ipywidgets or bokeh.
 
-This package is the only one in firstorder that imports ipywidgets, bokeh and
-jupyter_bokeh; ``import firstorder`` loads it only when ``fo.Bench`` is asked for.
+The Bench (``fo.Bench``) needs ipywidgets and jupyter_bokeh; the report figure
+needs bokeh only.  Each is imported when first asked for, so importing one
+does not load what only the other needs.
 """
 
 from __future__ import annotations
 
-from ._bench import Bench
-
 __all__ = ["Bench"]
+
+
+def __getattr__(name: str):
+    if name == "Bench":
+        from ._bench import Bench
+
+        return Bench
+    raise AttributeError(f"module 'firstorder.widgets' has no attribute {name!r}")

@@ -1,0 +1,192 @@
+"""The analysis file format, as pydantic models (imported only when a file is read).
+
+The models are the single statement of what a file may hold: every field, its
+type, its limits.  Validation is strict (no type coercion: ``"1"`` is not a
+number, ``true`` is not ``1``) and closed (an unknown field is an error).
+Numbers written as text (``"4.7k"``) are checked with the units layer only;
+nothing in a file is evaluated.  What the schema cannot see (a part joining a
+node to itself, a drive column for a part that does not exist) is checked by
+the fixture and drive builders when the analysis is rebuilt.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal, Union
+
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Field,
+    StrictBool,
+    StrictFloat,
+    StrictInt,
+    StrictStr,
+)
+
+from .analysis import FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES
+from .units import parse_value
+
+__all__ = ["AnalysisFile"]
+
+#: Limits that keep a hostile or corrupt file from exhausting memory or time.
+MAX_PARTS = 10_000
+MAX_COLUMNS = 1_000
+MAX_NAME = 200
+MAX_NUMBER_TEXT = 100
+MAX_TITLE = 1_000
+MAX_NOTES = 100_000
+
+Name = Annotated[StrictStr, Field(min_length=1, max_length=MAX_NAME)]
+FiniteFloat = Annotated[StrictFloat, Field(allow_inf_nan=False)]
+NumberText = Annotated[StrictStr, Field(min_length=1, max_length=MAX_NUMBER_TEXT)]
+# int before float: a whole number stays a whole number, as it was typed.
+Quantity = Union[StrictInt, FiniteFloat, NumberText]
+
+
+def _quantity_check(unit: str, *, positive: bool = False, non_negative: bool = False,
+                    allow_infinite: bool = False):
+    """An after-validator that parses a quantity with the units layer and keeps it as typed."""
+
+    def check(value: Any) -> Any:
+        number = parse_value(value, field="value", unit=unit, positive=positive,
+                             allow_infinite=allow_infinite)
+        if non_negative and number < 0:
+            raise ValueError(f"value: {value!r} must be >= 0")
+        return value
+
+    return AfterValidator(check)
+
+
+class _Closed(BaseModel):
+    """Strict and closed: no coercion, no unknown fields."""
+
+    model_config = ConfigDict(extra="forbid", strict=True, frozen=True)
+
+
+# -- parts ---------------------------------------------------------------------------
+class _TwoNodes(_Closed):
+    name: Name
+    a: Name
+    b: Name
+
+
+class ResistorModel(_TwoNodes):
+    kind: Literal["resistor"]
+    value: Annotated[Quantity, _quantity_check("Ω", positive=True)]
+
+
+class CapacitorModel(_TwoNodes):
+    kind: Literal["capacitor"]
+    value: Annotated[Quantity, _quantity_check("F", positive=True)]
+
+
+class InductorModel(_TwoNodes):
+    kind: Literal["inductor"]
+    value: Annotated[Quantity, _quantity_check("H", positive=True)]
+
+
+class SwitchModel(_TwoNodes):
+    kind: Literal["switch"]
+    r_on: Annotated[Quantity, _quantity_check("Ω", non_negative=True)] = 0
+    r_off: Annotated[Quantity, _quantity_check("Ω", positive=True, allow_infinite=True)] = "inf"
+
+
+class VoltageSourceModel(_TwoNodes):
+    kind: Literal["voltage_source"]
+
+
+class CurrentSourceModel(_TwoNodes):
+    kind: Literal["current_source"]
+
+
+PartModel = Annotated[
+    Union[ResistorModel, CapacitorModel, InductorModel, SwitchModel, VoltageSourceModel, CurrentSourceModel],
+    Field(discriminator="kind"),
+]
+
+
+class ProbeModel(_Closed):
+    name: Name
+    node: Name | None = None
+    reference: Name = "gnd"
+    through: Name | None = None
+
+
+class FixtureModel(_Closed):
+    parts: Annotated[list[PartModel], Field(min_length=1, max_length=MAX_PARTS)]
+    probes: Annotated[list[ProbeModel], Field(max_length=MAX_PARTS)] = []
+
+
+# -- drive -----------------------------------------------------------------------------
+Level = Union[StrictInt, FiniteFloat, StrictBool, NumberText]
+
+
+class DriveModel(_Closed):
+    times: Annotated[list[Quantity], Field(min_length=1, max_length=MAX_CHANGES)]
+    end: Quantity
+    columns: Annotated[
+        dict[Name, Annotated[list[Level], Field(min_length=1, max_length=MAX_CHANGES)]],
+        Field(min_length=1, max_length=MAX_COLUMNS),
+    ]
+
+
+# -- tolerance ---------------------------------------------------------------------------
+Unit = Literal["V", "A"]
+
+
+class AbsoluteModel(_Closed):
+    kind: Literal["absolute"]
+    value: Annotated[Quantity, _quantity_check(("V", "A"), positive=True)]
+    unit: Unit = "V"
+
+
+class RelativeModel(_Closed):
+    kind: Literal["relative"]
+    fraction: Annotated[Quantity, _quantity_check("", positive=True)]
+    unit: Unit = "V"
+
+
+class PpmModel(_Closed):
+    kind: Literal["ppm"]
+    ppm: Annotated[Quantity, _quantity_check("", positive=True)]
+    span: Annotated[Quantity, _quantity_check(("V", "A"), positive=True)]
+    unit: Unit = "V"
+
+
+class LsbModel(_Closed):
+    kind: Literal["lsb"]
+    bits: Annotated[StrictInt, Field(ge=1, le=32)]
+    span: Annotated[Quantity, _quantity_check(("V", "A"), positive=True)]
+    fraction: Annotated[Quantity, _quantity_check("", positive=True)] = 0.5
+    unit: Unit = "V"
+
+
+ToleranceModel = Annotated[
+    Union[AbsoluteModel, RelativeModel, PpmModel, LsbModel], Field(discriminator="kind")
+]
+
+Delay = Annotated[Quantity, _quantity_check("s", non_negative=True)]
+
+
+def _known_version(version: int) -> int:
+    if version > FORMAT_VERSION:
+        raise ValueError(f"version: {version!r} is newer than this firstorder reads (version "
+                         f"{FORMAT_VERSION}); the file was written by a newer firstorder, update to read it")
+    if version != FORMAT_VERSION:
+        raise ValueError(f"version: {version!r} is not a version this firstorder reads (it reads version {FORMAT_VERSION})")
+    return version
+
+
+# -- the file ----------------------------------------------------------------------------------
+class AnalysisFile(_Closed):
+    format: Literal[FORMAT_NAME]
+    version: Annotated[StrictInt, AfterValidator(_known_version)]
+    saved_with: Annotated[StrictStr, Field(max_length=MAX_NAME)] = ""
+    title: Annotated[StrictStr, Field(max_length=MAX_TITLE)] = ""
+    notes: Annotated[StrictStr, Field(max_length=MAX_NOTES)] = ""
+    fixture: FixtureModel
+    drive: DriveModel
+    initial: Quantity = 0.0
+    tolerance: ToleranceModel | None = None
+    sample_delay: Union[Delay, Annotated[list[Delay], Field(min_length=1, max_length=MAX_CHANGES)], None] = None

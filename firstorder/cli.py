@@ -1,0 +1,292 @@
+"""The ``firstorder`` command line: reports, settling tables and derivations from analysis files.
+
+::
+
+    firstorder report A.json -o R.html
+    firstorder settle A.json [--format table|csv|json]
+    firstorder derive A.json [--format markdown|latex]
+    firstorder demo [-o DIR]
+
+Every command reads an analysis file (or a report, which carries its analysis).
+Errors go to stderr as one line, with exit code 2; there is never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import sys
+from collections.abc import Sequence
+from pathlib import Path
+from typing import NoReturn
+
+import numpy as np
+
+__all__ = ["main", "demo_analysis"]
+
+_PROGRAM = "firstorder"
+#: Exit code for any error: bad usage, an unreadable or invalid file, a failed write.
+EXIT_ERROR = 2
+
+
+class _UsageError(Exception):
+    """Bad command-line usage, reported as one line."""
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse, but a usage error is one line on stderr instead of usage plus message."""
+
+    def error(self, message: str) -> NoReturn:
+        raise _UsageError(f"{self.prog}: {message} (see {self.prog} --help)")
+
+
+def _build_parser() -> argparse.ArgumentParser:
+    from . import __version__
+
+    parser = _Parser(
+        prog=_PROGRAM,
+        description=(
+            "Settling of first-order test fixtures: write reports, settling tables and "
+            "derivations from a firstorder analysis file (JSON, or a report written by firstorder)."
+        ),
+        epilog="Exit status: 0 on success, 2 on any error (one line on stderr).",
+    )
+    parser.add_argument("--version", action="version", version=f"{_PROGRAM} {__version__}")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    commands.required = True
+
+    report = commands.add_parser(
+        "report", help="write a self-contained HTML report of an analysis",
+        description="Write one self-contained, offline HTML report: parts, drive, interactive plot, "
+                    "derivations, settling table, cautions, and the analysis itself.",
+    )
+    report.add_argument("analysis", help="analysis file (.json, or a report .html)")
+    report.add_argument("-o", "--output", help="report to write (default: the analysis name with .html)")
+
+    settle = commands.add_parser(
+        "settle", help="print the settling table of an analysis",
+        description="Print the settling table: one row per segment, for the analysis's tolerance "
+                    "and sample delay.",
+    )
+    settle.add_argument("analysis", help="analysis file (.json, or a report .html)")
+    settle.add_argument("--format", choices=("table", "csv", "json"), default="table",
+                        help="table (for reading, the default), csv or json (for other programs)")
+
+    derive = commands.add_parser(
+        "derive", help="print the derivation of every switch configuration the drive uses",
+        description="Print the symbolic derivation (equivalent, ODE, tau, final value, the response "
+                    "split both ways, probes) of every switch configuration the drive uses.",
+    )
+    derive.add_argument("analysis", help="analysis file (.json, or a report .html)")
+    derive.add_argument("--format", choices=("markdown", "latex"), default="markdown",
+                        help="markdown with display math (the default) or one LaTeX block per configuration")
+
+    demo = commands.add_parser(
+        "demo", help="write a demo analysis and its report",
+        description="Write a demo analysis (an invented sample-and-hold scenario) and its report, "
+                    "to try the other commands on.",
+    )
+    demo.add_argument("-o", "--output", default="firstorder-demo",
+                      help="folder to write into (made if missing; default: firstorder-demo)")
+    return parser
+
+
+# -- commands ---------------------------------------------------------------------------------
+def _report(arguments: argparse.Namespace) -> None:
+    from .analysis import Analysis
+
+    analysis = Analysis.load(arguments.analysis)
+    output = arguments.output or str(Path(arguments.analysis).with_suffix(".html"))
+    if Path(output).resolve() == Path(arguments.analysis).resolve():
+        raise _UsageError(
+            f"{_PROGRAM} report: the report would overwrite its own input {arguments.analysis}; give -o"
+        )
+    path = analysis.report(output)
+    print(path)
+
+
+def _settle(arguments: argparse.Namespace) -> None:
+    from .analysis import Analysis
+
+    analysis = Analysis.load(arguments.analysis)
+    if analysis.tolerance is None:
+        raise _UsageError(
+            f"{_PROGRAM} settle: {arguments.analysis} has no tolerance; add a \"tolerance\" field "
+            f"(see the README's file format)"
+        )
+    table = analysis.settling()
+    if arguments.format == "csv":
+        # repr: the shortest text that reads back as exactly the same float.
+        sys.stdout.write(table.to_csv(float_format=lambda number: repr(float(number))))
+    elif arguments.format == "json":
+        sys.stdout.write(json.dumps(_records(table), indent=1, allow_nan=False) + "\n")
+    else:
+        from .units import format_value
+
+        unit = analysis.fixture.state_unit
+        print(f"{analysis.title or arguments.analysis}: tolerance {analysis.tolerance}")
+        print(_text_table(table, unit))
+        for caution in analysis.cautions:
+            print(f"caution: {caution}")
+        settled = table["settled"].to_numpy(dtype=bool)
+        line = f"{int((~settled).sum())} of {len(table)} segments do not settle before they end"
+        if "ok" in table.columns:
+            line += f"; {int((~table['ok'].to_numpy(dtype=bool)).sum())} fail at their sample"
+        print(line + f"; the drive lasts {format_value(analysis.drive.end - analysis.drive.start, 's')}.")
+
+
+def _records(table) -> list[dict[str, object]]:
+    """Rows as plain JSON values, floats exact; NaN (a segment that ends before it settles) as null."""
+    records = []
+    for row in table.reset_index().to_dict(orient="records"):
+        plain: dict[str, object] = {}
+        for key, value in row.items():
+            if isinstance(value, (bool, np.bool_)):
+                plain[key] = bool(value)
+            elif isinstance(value, (int, np.integer)):
+                plain[key] = int(value)
+            else:
+                number = float(value)
+                plain[key] = None if math.isnan(number) else number
+        records.append(plain)
+    return records
+
+
+def _text_table(table, unit: str) -> str:
+    from ._report import _settling_cell
+
+    header = ["segment", *[str(c) for c in table.columns]]
+    columns = list(table.columns)
+    values = [table[c].to_numpy() for c in columns]
+    rows = [[str(k), *(_settling_cell(c, v[k], unit) for c, v in zip(columns, values))] for k in range(len(table))]
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(header)]
+    lines = ["  ".join(h.rjust(w) for h, w in zip(header, widths))]
+    lines += ["  ".join(c.rjust(w) for c, w in zip(row, widths)) for row in rows]
+    return "\n".join(lines)
+
+
+def _derive(arguments: argparse.Namespace) -> None:
+    from .analysis import Analysis
+
+    analysis = Analysis.load(arguments.analysis)
+    blocks = []
+    for states, derivation in analysis.derivations():
+        heading = analysis.fixture.describe_states(states) or "no switches"
+        if arguments.format == "latex":
+            blocks.append(f"% {heading}\n\\[\n{derivation.latex()}\n\\]")
+        else:
+            blocks.append(f"## {heading}\n\n{derivation.markdown()}")
+    print("\n\n".join(blocks))
+
+
+def demo_analysis():
+    """The demo analysis: an invented sample-and-hold front end (a scenario of our own).
+
+    A 16-bit DAC (span 5 V) drives a 10 nF hold capacitor through a 2.2 kΩ
+    series resistor and a relay with 0.15 Ω contacts; a 10 MΩ meter input
+    loads the capacitor.  The DAC steps through four levels with the relay
+    closed, then the relay opens and the capacitor holds, drooping into the
+    meter.  The converter samples 150 µs after each change, and the tolerance
+    is half an LSB.
+    """
+    from .analysis import Analysis
+    from .drive import Drive
+    from .fixture import Fixture
+    from .settling import Tolerance
+
+    fixture = Fixture()
+    fixture.voltage_source("vdac", "dac", "gnd")
+    fixture.resistor("r_series", "dac", "sw", "2.2k")
+    fixture.switch("k_hold", "sw", "hold", r_on="0.15", r_off="1G")
+    fixture.capacitor("c_hold", "hold", "gnd", "10n")
+    fixture.resistor("r_meter", "hold", "gnd", "10M")
+    fixture.probe("v_hold", node="hold")
+    fixture.probe("i_series", through="r_series")
+    drive = Drive(
+        ["0", "200u", "400u", "600u", "800u"],
+        "1.4m",
+        vdac=[0.0, 1.25, 4.5, -2.0, -2.0],
+        k_hold=[1, 1, 1, 1, 0],
+    )
+    return Analysis(
+        fixture,
+        drive,
+        initial="settled",
+        tolerance=Tolerance.lsb(bits=16, span=5.0),
+        sample_delay="150u",
+        title="Demo: sample-and-hold front end (an invented scenario)",
+        notes=(
+            "An invented scenario to try firstorder on: a 16-bit DAC steps a hold capacitor through "
+            "a series resistor and a relay, then the relay opens and the capacitor droops into the "
+            "meter's input resistance.\nIs 150 µs after each change long enough to sample within "
+            "half an LSB?"
+        ),
+    )
+
+
+def _demo(arguments: argparse.Namespace) -> None:
+    folder = Path(arguments.output)
+    if folder.exists() and not folder.is_dir():
+        raise _UsageError(f"{_PROGRAM} demo: {folder} exists and is not a folder")
+    folder.mkdir(parents=True, exist_ok=True)
+    analysis = demo_analysis()
+    saved = analysis.save(folder / "demo-analysis.json")
+    report = analysis.report(folder / "demo-report.html")
+    print(saved)
+    print(report)
+
+
+_COMMANDS = {"report": _report, "settle": _settle, "derive": _derive, "demo": _demo}
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit status (0, or 2 on any error)."""
+    from .errors import InputError
+
+    try:
+        parser = _build_parser()
+        arguments = parser.parse_args(argv)
+        _COMMANDS[arguments.command](arguments)
+    except _UsageError as error:
+        print(_one_line(str(error)), file=sys.stderr)
+        return EXIT_ERROR
+    except InputError as error:
+        print(f"{_PROGRAM}: error: {_one_line(str(error))}", file=sys.stderr)
+        return EXIT_ERROR
+    except BrokenPipeError:  # `firstorder settle a.json | head` closed the pipe early
+        _silence_stdout()
+        return 0
+    except OSError as error:
+        where = f" {error.filename}" if getattr(error, "filename", None) else ""
+        print(f"{_PROGRAM}: error:{where}: {_one_line(error.strerror or str(error))}", file=sys.stderr)
+        return EXIT_ERROR
+    except KeyboardInterrupt:
+        print(f"{_PROGRAM}: interrupted", file=sys.stderr)
+        return EXIT_ERROR
+    except SystemExit as exit_:  # --help and --version end here with status 0
+        return int(exit_.code or 0) if isinstance(exit_.code, int) else 0
+    except Exception as error:  # noqa: BLE001 - the promise is one line, never a traceback
+        print(f"{_PROGRAM}: internal error ({type(error).__name__}): {_one_line(str(error))}; "
+              f"please report it with the file that caused it", file=sys.stderr)
+        return EXIT_ERROR
+    try:
+        sys.stdout.flush()
+    except BrokenPipeError:
+        _silence_stdout()
+    return 0
+
+
+def _silence_stdout() -> None:
+    # Python flushes stdout again at exit; point it at devnull so that flush is quiet.
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    os.dup2(devnull, sys.stdout.fileno())
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

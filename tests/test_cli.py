@@ -1,0 +1,188 @@
+"""Tests for firstorder.cli: each command as a user runs it, in a fresh interpreter."""
+
+from __future__ import annotations
+
+import io
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import firstorder as fo
+from firstorder import cli
+from firstorder.analysis import Analysis
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def run(*arguments: str, cwd: Path | None = None) -> subprocess.CompletedProcess:
+    """``python -m firstorder ...`` with this checkout on the path, as a user would run it."""
+    environment = dict(os.environ, PYTHONPATH=str(ROOT))
+    return subprocess.run(
+        [sys.executable, "-m", "firstorder", *arguments],
+        capture_output=True, text=True, env=environment, cwd=cwd, timeout=300,
+    )
+
+
+def assert_one_line_error(result: subprocess.CompletedProcess, *fragments: str) -> None:
+    assert result.returncode == 2, result
+    assert result.stderr.count("\n") == 1 and result.stderr.endswith("\n"), result.stderr
+    assert "Traceback" not in result.stderr
+    for fragment in fragments:
+        assert fragment in result.stderr, result.stderr
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory) -> Path:
+    folder = tmp_path_factory.mktemp("demo") / "out"
+    result = run("demo", "-o", str(folder))
+    assert result.returncode == 0, result.stderr
+    assert result.stdout.split() == [str(folder / "demo-analysis.json"), str(folder / "demo-report.html")]
+    return folder
+
+
+class TestDemo:
+    def test_files_load(self, demo):
+        a = Analysis.load(demo / "demo-analysis.json")
+        b = Analysis.load(demo / "demo-report.html")
+        assert np.array_equal(a.response.boundary, b.response.boundary)
+        assert "invented" in a.title
+
+    def test_demo_time_constant_from_the_handbook(self):
+        # tau = R C with (2.2 kΩ + 0.15 Ω) ∥ 10 MΩ and 10 nF while the relay is closed (handbook).
+        a = cli.demo_analysis()
+        expected = (2200.15 * 10e6 / (2200.15 + 10e6)) * 10e-9
+        assert a.response.tau[0] == pytest.approx(expected, rel=1e-12)
+
+    def test_output_is_not_a_folder(self, tmp_path):
+        (tmp_path / "file").write_text("x")
+        assert_one_line_error(run("demo", "-o", str(tmp_path / "file")), "is not a folder")
+
+
+class TestReport:
+    def test_writes_report(self, demo, tmp_path):
+        out = tmp_path / "r.html"
+        result = run("report", str(demo / "demo-analysis.json"), "-o", str(out))
+        assert result.returncode == 0, result.stderr
+        assert result.stdout.strip() == str(out)
+        assert Analysis.load(out).title == Analysis.load(demo / "demo-analysis.json").title
+
+    def test_default_output_beside_input(self, demo, tmp_path):
+        source = tmp_path / "bench.json"
+        source.write_bytes((demo / "demo-analysis.json").read_bytes())
+        assert cli.main(["report", str(source)]) == 0
+        assert (tmp_path / "bench.html").exists()
+
+    def test_refuses_to_overwrite_its_input(self, demo, tmp_path):
+        report = tmp_path / "r.html"
+        report.write_bytes((demo / "demo-report.html").read_bytes())
+        before = report.read_bytes()
+        assert cli.main(["report", str(report)]) == 2
+        assert report.read_bytes() == before
+
+
+class TestSettle:
+    def test_table(self, demo):
+        result = run("settle", str(demo / "demo-analysis.json"))
+        assert result.returncode == 0, result.stderr
+        lines = result.stdout.splitlines()
+        assert "tolerance ±38.15 µV (½ LSB of 16 bits on 5 V)" in lines[0]
+        assert lines[1].split()[:3] == ["segment", "start", "end"]
+        rows = [line.split() for line in lines[2:] if line.split()[0].isdigit() and line.split()[1] != "of"]
+        assert [int(row[0]) for row in rows] == [0, 1, 2, 3, 4]
+        assert lines[-1].startswith("4 of 5 segments do not settle before they end; 4 fail at their sample")
+
+    @pytest.mark.parametrize("form", ["csv", "json"])
+    def test_machine_formats_match_the_library(self, demo, form):
+        analysis = Analysis.load(demo / "demo-analysis.json")
+        expected = analysis.settling().reset_index()
+        result = run("settle", str(demo / "demo-analysis.json"), "--format", form)
+        assert result.returncode == 0, result.stderr
+        if form == "csv":
+            table = pd.read_csv(io.StringIO(result.stdout))
+        else:
+            table = pd.DataFrame(json.loads(result.stdout))
+        assert list(table.columns) == list(expected.columns)
+        for column in expected.columns:
+            if expected[column].dtype == bool:
+                assert table[column].astype(bool).tolist() == expected[column].tolist()
+            else:
+                # Exact: CSV with 17 digits and JSON both carry every float bit for bit.
+                assert np.array_equal(table[column].astype(float), expected[column].astype(float),
+                                      equal_nan=True), column
+
+    def test_needs_a_tolerance(self, tmp_path):
+        path = Analysis(fo.Fixture.rc(r="1k", c="1u"), fo.Drive.steps([(0, 1.0)], end="5m")).save(tmp_path / "a.json")
+        assert_one_line_error(run("settle", str(path)), "has no tolerance")
+
+
+class TestDerive:
+    def test_markdown(self, demo):
+        result = run("derive", str(demo / "demo-analysis.json"))
+        assert result.returncode == 0, result.stderr
+        assert "## k_hold closed" in result.stdout and "## k_hold open" in result.stdout
+        assert "**Time constant**" in result.stdout and "$$" in result.stdout
+
+    def test_latex(self, demo):
+        result = run("derive", str(demo / "demo-report.html"), "--format", "latex")
+        assert result.returncode == 0, result.stderr
+        assert result.stdout.count("\\begin{aligned}") == 2
+        assert "c}\\_\\text{hold" in result.stdout  # underscores in captions, escaped for LaTeX
+
+
+class TestErrors:
+    def test_bad_file_gives_one_line(self, tmp_path):
+        path = tmp_path / "bad.json"
+        data = json.loads(cli.demo_analysis().to_json())
+        data["fixture"]["parts"][1]["value"] = "-2.2k"
+        path.write_text(json.dumps(data))
+        assert_one_line_error(run("report", str(path)), "bad.json: fixture.parts[1].value: '-2.2k' must be > 0")
+        assert not (tmp_path / "bad.html").exists()
+
+    @pytest.mark.parametrize("command", ["report", "settle", "derive"])
+    def test_truncated_file(self, tmp_path, command):
+        path = tmp_path / "cut.json"
+        path.write_text(cli.demo_analysis().to_json()[:300])
+        assert_one_line_error(run(command, str(path)), "cut.json: not valid JSON at line")
+
+    def test_missing_file(self, tmp_path):
+        assert_one_line_error(run("derive", str(tmp_path / "none.json")), "none.json", "No such file")
+
+    @pytest.mark.parametrize("arguments, fragment", [
+        ([], "the following arguments are required: COMMAND"),
+        (["bake"], "invalid choice: 'bake'"),
+        (["settle", "a.json", "--format", "xml"], "invalid choice: 'xml'"),
+        (["derive"], "the following arguments are required: analysis"),
+    ])
+    def test_usage_errors(self, arguments, fragment):
+        assert_one_line_error(run(*arguments), fragment)
+
+    def test_unexpected_error_is_one_line(self, monkeypatch, capsys):
+        def broken(arguments):
+            raise ZeroDivisionError("boom")
+
+        monkeypatch.setitem(cli._COMMANDS, "derive", broken)
+        assert cli.main(["derive", "x.json"]) == 2
+        error = capsys.readouterr().err
+        assert error.count("\n") == 1 and "internal error (ZeroDivisionError): boom" in error
+
+
+class TestHelp:
+    @pytest.mark.parametrize("command", [[], ["report"], ["settle"], ["derive"], ["demo"]])
+    def test_help(self, command):
+        result = run(*command, "--help")
+        assert result.returncode == 0 and result.stderr == ""
+        assert result.stdout.startswith("usage: firstorder")
+
+    def test_version(self):
+        result = run("--version")
+        assert (result.returncode, result.stdout.strip()) == (0, f"firstorder {fo.__version__}")
+
+    def test_console_script_entry_point(self):
+        text = (ROOT / "pyproject.toml").read_text()
+        assert 'firstorder = "firstorder.cli:main"' in text

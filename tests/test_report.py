@@ -1,0 +1,317 @@
+"""Tests for the reports of an Analysis: the standalone HTML page, MathML, Markdown, and a real browser."""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+import shutil
+from html.parser import HTMLParser
+
+import numpy as np
+import pytest
+import sympy as sp
+
+import firstorder as fo
+from firstorder import _report
+from firstorder.analysis import EMBED_ID, Analysis
+
+CHROMIUM = "/usr/bin/chromium"
+CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
+                  "--disable-component-update", "--disable-sync", "--no-first-run"]
+
+
+def relay_analysis(**changes) -> Analysis:
+    """A DAC, a relay and a hold capacitor loaded by a meter (an invented scenario)."""
+    fx = fo.Fixture()
+    fx.voltage_source("vdac", "drv", "gnd")
+    fx.resistor("rs", "drv", "a", "1k")
+    fx.switch("k1", "a", "b", r_on="0.1", r_off="1G")
+    fx.capacitor("ch", "b", "gnd", "100n")
+    fx.resistor("rm", "b", "gnd", "10M")
+    fx.probe("v_b", node="b")
+    fx.probe("i_rs", through="rs")
+    arguments = dict(
+        fixture=fx,
+        drive=fo.Drive([0, "1m", "3m"], end="6m", vdac=[0, 2.5, -1.2], k1=[1, 1, 0]),
+        initial="settled", tolerance=fo.Tolerance.lsb(bits=16, span=5.0), sample_delay="0.9m",
+        title="Relay and hold capacitor", notes="First line.\nSecond line.",
+    )
+    arguments.update(changes)
+    return Analysis(**arguments)
+
+
+class _Elements(HTMLParser):
+    """Collects start tags with their attributes, and the text of <style> blocks."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.tags: list[tuple[str, dict[str, str | None]]] = []
+        self.styles: list[str] = []
+        self._in_style = False
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append((tag, dict(attrs)))
+        self._in_style = tag == "style"
+
+    def handle_endtag(self, tag):
+        self._in_style = False
+
+    def handle_data(self, data):
+        if self._in_style:
+            self.styles.append(data)
+
+
+def elements(html: str) -> _Elements:
+    parser = _Elements()
+    parser.feed(html)
+    parser.close()
+    return parser
+
+
+@pytest.fixture(scope="module")
+def report_html() -> str:
+    return relay_analysis().to_html()
+
+
+class TestReport:
+    def test_writes_one_file(self, tmp_path):
+        path = relay_analysis().report(tmp_path / "r.html")
+        assert path.exists() and [p.name for p in tmp_path.iterdir()] == ["r.html"]
+
+    def test_no_external_script_or_stylesheet(self, report_html):
+        found = elements(report_html)
+        scripts = [attrs for tag, attrs in found.tags if tag == "script"]
+        assert scripts, "the page carries BokehJS inline"
+        assert all("src" not in attrs for attrs in scripts)
+        assert not [attrs for tag, attrs in found.tags if tag == "link"]
+        for tag, attrs in found.tags:
+            for name in ("src", "href", "data", "srcset", "poster", "action"):
+                value = attrs.get(name) or ""
+                assert not re.match(r"\s*(https?:)?//", value), (tag, name, value)
+        for style in found.styles:
+            assert "@import" not in style and not re.search(r"url\(\s*['\"]?(https?:)?//", style)
+
+    def test_sections(self, report_html):
+        for section in ("notes", "summary", "parts", "drive", "plot", "settling", "cautions", "derivations"):
+            assert f"<section id={section}>" in report_html
+        assert "<h1>Relay and hold capacitor</h1>" in report_html
+        assert f"firstorder {fo.__version__}" in report_html
+        assert re.search(r"on \d{4}-\d\d-\d\d \d\d:\d\d UTC", report_html)
+
+    def test_parts_as_typed(self, report_html):
+        assert "<td>&#x27;1k&#x27;</td><td>1 kΩ</td>" in report_html
+        assert "<td>r_on &#x27;0.1&#x27;, r_off &#x27;1G&#x27;</td>" in report_html
+
+    def test_time_constants_from_the_handbook(self, report_html):
+        # tau = R C: (1 kΩ + 0.1 Ω) ∥ 10 MΩ with 100 nF while the relay is closed, and
+        # (1 kΩ + 1 GΩ) ∥ 10 MΩ with 100 nF while it is open (series/parallel rules, handbook).
+        closed = (1000.1 * 10e6 / (1000.1 + 10e6)) * 100e-9
+        opened = ((1e9 + 1000) * 10e6 / (1e9 + 1000 + 10e6)) * 100e-9
+        assert f"<td>time constant (k1 closed)</td><td>{fo.format_value(closed, 's')}</td>" in report_html
+        assert f"<td>time constant (k1 open)</td><td>{fo.format_value(opened, 's')}</td>" in report_html
+
+    def test_embedded_analysis_loads_back(self, tmp_path):
+        a = relay_analysis(notes="ends with </script><!-- and & < >")
+        path = a.report(tmp_path / "r.html")
+        b = Analysis.load(path)
+        assert b.notes == a.notes and b.fixture.parts == a.fixture.parts and b.drive == a.drive
+        assert np.array_equal(a.response.boundary, b.response.boundary)
+        html = path.read_text(encoding="utf-8")
+        block = re.search(rf'<script type="application/json" id="{EMBED_ID}">(.*?)</script>', html, re.S).group(1)
+        assert "<" not in block and ">" not in block and "&" not in block
+        assert json.loads(block)["notes"] == a.notes
+
+    def test_user_text_is_escaped(self, report_html):
+        bad = "</script><script>alert(1)</script><b>"
+        html = relay_analysis(title=bad, notes=bad).to_html()
+        tags = [tag for tag, _ in elements(html).tags]
+        clean_tags = [tag for tag, _ in elements(report_html).tags]
+        assert tags.count("script") == clean_tags.count("script")
+        assert tags.count("b") == clean_tags.count("b") == 0
+        assert "<script>alert(1)" not in html
+        assert "&lt;/script&gt;&lt;script&gt;alert(1)&lt;/script&gt;&lt;b&gt;" in html
+
+    def test_short_drive_in_full(self, report_html):
+        drive_section = report_html.split("<section id=drive>")[1].split("</section>")[0]
+        assert drive_section.count("<tr>") == 1 + 3
+
+    def test_long_drive_summarised(self):
+        n = 5000
+        levels = np.where(np.arange(n) % 2 == 0, 1.0, -1.0)
+        a = Analysis(fo.Fixture.rc(r="1k", c="10n"), fo.Drive(np.arange(n) * 50e-6, n * 50e-6, vin=levels),
+                     tolerance=fo.Tolerance.relative(0.01))
+        html = a.to_html()
+        drive_section = html.split("<section id=drive>")[1].split("</section>")[0]
+        assert "5000 changes: the first 10 and the last 5 are listed" in drive_section
+        assert "<td>vin</td><td class=num>-1</td><td class=num>1</td><td class=num>2</td>" in drive_section
+        assert "each of 1500 columns is shaded from the lowest to the highest value" in html
+        assert len(html) < 5_000_000
+
+    def test_mathml_derivations(self, report_html):
+        section = report_html.split("<section id=derivations>")[1].split("</section>")[0]
+        assert section.count("<h3>") == 2  # k1 closed, then k1 open
+        assert section.count("<math ") >= 20
+        # tau = ch * (rs + k1_on) * rm / (rs + k1_on + rm), as sympy's presentation printer writes it.
+        assert "<mi>&#964;</mi><mo>=</mo>" in section  # tau =
+
+
+    def test_many_configurations_derive_only_the_first(self):
+        # A resistor ladder selected by four relays (invented): 16 configurations in the drive.
+        fx = fo.Fixture()
+        fx.voltage_source("vref", "ref", "gnd")
+        fx.resistor("r_in", "ref", "x", "1k")
+        fx.capacitor("c_x", "x", "gnd", "1n")
+        for j in range(4):
+            fx.switch(f"k{j}", "x", f"n{j}", r_on="1")
+            fx.resistor(f"r{j}", f"n{j}", "gnd", f"{2 ** j}k")
+        states = [[(code >> j) & 1 for code in range(16)] for j in range(4)]
+        drive = fo.Drive(np.arange(16) * 1e-5, 16e-5, vref=np.ones(16), **{f"k{j}": states[j] for j in range(4)})
+        section = Analysis(fx, drive).to_html().split("<section id=derivations>")[1].split("</section>")[0]
+        assert section.count("<h3>") == _report.MAX_DERIVATIONS == 8
+        assert "8 further configurations are not shown" in section
+
+
+class TestSettlingAndCautions:
+    def test_settling_table(self, report_html):
+        section = report_html.split("<section id=settling>")[1].split("</section>")[0]
+        assert section.count("<tr") == 1 + 3
+        assert "±38.15 µV (½ LSB of 16 bits on 5 V)" in section
+
+    def test_cautions_for_high_voltage(self):
+        a = relay_analysis(drive=fo.Drive([0, "1m"], end="6m", vdac=[0, 400.0], k1=[1, 1]))
+        html = a.to_html()
+        section = html.split("<section id=cautions>")[1].split("</section>")[0]
+        assert "class=caution" in section and "400" in section and "local codes" in section
+
+
+class TestLayers:
+    def test_report_figure_imports_bokeh_but_not_ipywidgets(self):
+        # Reports need bokeh, not a notebook: the figure module stays free of ipywidgets.
+        import ast
+
+        import firstorder.widgets.report_figure as module
+
+        tree = ast.parse(open(module.__file__, encoding="utf-8").read())
+        imported = {alias.name.split(".")[0] for node in ast.walk(tree) if isinstance(node, ast.Import)
+                    for alias in node.names}
+        imported |= {node.module.split(".")[0] for node in ast.walk(tree)
+                     if isinstance(node, ast.ImportFrom) and node.module and node.level == 0}
+        assert "bokeh" in imported and "ipywidgets" not in imported
+
+    def test_only_widgets_imports_bokeh(self):
+        import ast
+        from pathlib import Path
+
+        package = Path(fo.__file__).parent
+        for path in package.glob("*.py"):
+            tree = ast.parse(path.read_text(encoding="utf-8"))
+            for node in ast.walk(tree):
+                names = ([a.name for a in node.names] if isinstance(node, ast.Import)
+                         else [node.module or ""] if isinstance(node, ast.ImportFrom) else [])
+                assert not [n for n in names if n.split(".")[0] in ("bokeh", "ipywidgets")], path
+
+
+class TestMathml:
+    def test_presentation_markup(self):
+        r, c = sp.symbols("r c", positive=True)
+        text = _report.mathml(sp.Eq(sp.Symbol("tau"), r * c))
+        assert text.startswith('<math xmlns="http://www.w3.org/1998/Math/MathML" display="block">')
+        assert "<mi>&#964;</mi><mo>=</mo><mrow><mi>c</mi><mo>&#xB7;</mo><mi>r</mi></mrow>" in text
+
+    @pytest.mark.parametrize("name", ["<script>alert(1)</script>", "a&b", "x\"><img src=x onerror=alert(1)>"])
+    def test_names_are_escaped(self, name):
+        t = sp.Symbol("t")
+        text = _report.mathml(sp.Eq(sp.Function(name)(t), sp.Symbol(name) + 1))
+        assert "<script" not in text and "<img" not in text
+        check = _report._MathMLCheck()
+        check.feed(text)
+        assert check.clean
+
+    def test_falls_back_to_latex_text_if_markup_is_not_mathml(self, monkeypatch):
+        import sys
+
+        printer = sys.modules["sympy.printing.mathml"]  # the package re-exports the function under the same name
+        monkeypatch.setattr(printer, "mathml", lambda *a, **k: "<mi>x</mi><iframe></iframe>")
+        assert _report.mathml(sp.Symbol("x")) == "<code>x</code>"
+
+
+class TestDerivationLatex:
+    def test_names_with_underscores_are_escaped_in_text(self):
+        # LaTeX reads "_" in \text{} as an error; part names like c_hold are common.  The
+        # underscore is set in math mode, between two \text{} pieces.
+        from firstorder.cli import demo_analysis
+
+        latex = demo_analysis().derivations()[0][1].latex()
+        pieces = re.findall(r"\\text\{([^}]*)\}", latex)
+        assert pieces and not [piece for piece in pieces if "_" in piece]
+        assert r"\text{Equivalent seen by capacitor c}\_\text{hold (k}\_\text{hold closed):}" in latex
+
+    def test_final_value_written_at_infinity(self):
+        latex = relay_analysis().derivations()[0][1].latex()
+        assert r"v_{ch}{\left(\infty \right)}" in latex and r"{\left(t \right)}(\infty)" not in latex
+
+
+class TestMarkdown:
+    def test_sections(self):
+        text = relay_analysis().markdown()
+        for heading in ("# Relay and hold capacitor", "## Notes", "## Summary", "## Fixture", "## Drive",
+                        "## Settling", "## Cautions", "## Derivations", "### k1 closed", "### k1 open"):
+            assert f"\n{heading}\n" in f"\n{text}"
+        assert "| rs | resistor | drv → a | '1k' | 1 kΩ |" in text
+        assert "$$" in text
+
+    def test_without_derivations(self):
+        assert "## Derivations" not in relay_analysis().markdown(derivations=False)
+
+    def test_cells_cannot_break_the_table(self):
+        fx = fo.Fixture.rc(r="1k", c="1n")
+        a = Analysis(fx, fo.Drive.steps([(0, 1.0)], end="1m"), title="a | b\nc")
+        assert "# a \\| b c" in a.markdown(derivations=False)
+
+
+def _browser_or_skip():
+    required = os.environ.get("FIRSTORDER_REQUIRE_BROWSER") == "1"
+    if not shutil.which(CHROMIUM) and not os.path.exists(CHROMIUM):
+        if required:
+            pytest.fail(f"FIRSTORDER_REQUIRE_BROWSER=1 but {CHROMIUM} is missing")
+        pytest.skip(f"no chromium at {CHROMIUM}; the browser test needs Debian's chromium")
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        if required:
+            raise
+        pytest.skip("playwright is not installed")
+    return sync_playwright
+
+
+class TestInBrowser:
+    def test_offline_plot_and_math(self, tmp_path):
+        sync_playwright = _browser_or_skip()
+        hostile = "</script><script>document.title='pwned'</script>"
+        path = relay_analysis(notes=hostile).report(tmp_path / "report.html")
+        url = path.resolve().as_uri()
+        requests, errors = [], []
+        with sync_playwright() as playwright:
+            browser = playwright.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_FLAGS)
+            try:
+                page = browser.new_page(viewport={"width": 1100, "height": 900})
+                page.on("request", lambda request: requests.append(request.url))
+                page.on("pageerror", lambda error: errors.append(str(error)))
+                page.goto(url)
+                page.wait_for_selector("canvas", timeout=30_000)
+                page.wait_for_load_state("networkidle")
+                canvases = page.locator("canvas").count()
+                plot_box = page.locator("canvas").first.bounding_box()
+                maths = page.locator("math").count()
+                math_box = page.locator("math").first.bounding_box()
+                title = page.title()
+                os.makedirs("build", exist_ok=True)
+                page.screenshot(path="build/report.png", full_page=True)
+            finally:
+                browser.close()
+        assert requests == [url], requests  # nothing but the file itself: no network
+        assert errors == []
+        assert canvases >= 1 and plot_box["width"] > 300 and plot_box["height"] > 100
+        assert maths >= 20 and math_box["width"] > 10 and math_box["height"] > 5
+        assert title == "Relay and hold capacitor"
