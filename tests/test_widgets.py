@@ -417,6 +417,30 @@ class TestExport:
         assert fo.Drive.from_csv(drive_path) == bench.drive
 
 
+class TestAnalysisExport:
+    def test_saved_analysis_reads_back(self, tmp_path):
+        bench = switched_bench(tolerance=fo.Tolerance.lsb(16, 5.0), sample_delay="0.8m")
+        bench.fields["rs"].value = "2.2k"
+        bench.edit_cell(3, "vdac", "-1.5")
+        path = bench.save_analysis(tmp_path / "a.json", title="hold capacitor")
+        again = fo.Analysis.load(path)
+        assert again.fixture.part_map["rs"].value == 2200.0
+        assert again.drive == bench.drive
+        assert again.tolerance == fo.Tolerance.lsb(16, 5.0)
+        assert again.sample_delay == 0.8e-3
+        np.testing.assert_allclose(again.response.boundary, bench.response.boundary, rtol=0, atol=0)
+
+    def test_long_delay_is_kept_per_segment(self, tmp_path):
+        bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"), sample_delay="2m")
+        analysis = bench.analysis()
+        np.testing.assert_allclose(analysis.sample_delay, [1e-3, 2e-3, 2e-3])
+
+    def test_report_is_written(self, tmp_path):
+        bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"))
+        path = bench.report(tmp_path / "r.html")
+        assert fo.Analysis.load(path).drive == bench.drive
+
+
 class TestTrace:
     def test_residual_against_model(self):
         fixture = fo.Fixture.rc(r="10k", c="100n")

@@ -372,8 +372,9 @@ class Bench(widgets.VBox):
         self.export_message = widgets.HTML()
         buttons = []
         for label, action in [("Plotted components (CSV)", self.export_components),
-                              ("Drive (CSV)", self.export_drive)]:
-            button = widgets.Button(description=label, layout=widgets.Layout(width="200px"))
+                              ("Drive (CSV)", self.export_drive), ("Analysis (JSON)", self.save_analysis),
+                              ("Report (HTML)", self.report)]:
+            button = widgets.Button(description=label, layout=widgets.Layout(width="190px"))
             button.on_click(lambda _, action=action: self._export(action))
             buttons.append(button)
         return widgets.VBox([self.export_name, widgets.HBox(buttons), self.export_message])
@@ -883,9 +884,34 @@ class Bench(widgets.VBox):
         self.drive.to_csv(path)
         return str(path)
 
+    def analysis(self, title: str = "", notes: str = ""):
+        """The last good fixture, drive, start, tolerance and sample delay as an :class:`~firstorder.Analysis`.
+
+        A sample delay longer than some segments is kept per segment, cut to
+        each segment's length (as the settling table here judges them).
+        """
+        from ..analysis import Analysis
+
+        state_unit = self.fixture.state_unit
+        tolerance = parse_tolerance(self._good_text["tolerance"], unit=state_unit)
+        delay: Any = self._sample_delay
+        if delay is not None and bool((self.drive.durations < delay).any()):
+            delay = self._sample_delays().tolist()
+        return Analysis(self.fixture, self.drive, initial=self._initial, tolerance=tolerance,
+                        sample_delay=delay, title=title, notes=notes)
+
+    def save_analysis(self, path: Any, title: str = "", notes: str = "") -> str:
+        """Save the analysis as JSON (:meth:`Analysis.save`, atomic); return the path."""
+        return str(self.analysis(title, notes).save(path))
+
+    def report(self, path: Any, title: str = "", notes: str = "") -> str:
+        """Write the self-contained HTML report (:meth:`Analysis.report`); return the path."""
+        return str(self.analysis(title, notes).report(path))
+
     def _export(self, action) -> None:
         stem = self.export_name.value.strip() or "bench"
-        suffix = {self.export_components: "_components.csv", self.export_drive: "_drive.csv"}
+        suffix = {self.export_components: "_components.csv", self.export_drive: "_drive.csv",
+                  self.save_analysis: "_analysis.json", self.report: "_report.html"}
         path = stem + next(s for a, s in suffix.items() if a == action)
         try:
             written = action(path)
