@@ -113,6 +113,17 @@ def lab(tmp_path_factory):
         log.close()
 
 
+#: Page position of the drag handle of row 1 (BokehJS's own view of the handle renderer).
+_HANDLE_POSITION = """() => {
+    const view = Bokeh.index.query_one((v) => v.model.name === "firstorder-drive-handles");
+    const data = view.model.data_source.data;
+    const sx = view.coordinates.x_scale.compute(data.get ? data.get("t")[1] : data.t[1]);
+    const sy = view.coordinates.y_scale.compute(data.get ? data.get("y")[1] : data.y[1]);
+    const box = view.parent.canvas_view.el.getBoundingClientRect();
+    return {x: box.left + sx, y: box.top + sy};
+}"""
+
+
 class TestBenchInBrowser:
     def test_renders_and_follows_a_part_edit(self, lab):
         from playwright.sync_api import TimeoutError as PlaywrightTimeout
@@ -178,6 +189,21 @@ class TestBenchInBrowser:
                         changed = True
                         break
                 bench.screenshot(path=str(BUILD / "bench-browser-after.png"))
+                # Drag the handle of the change in row 1 upward: the level there rises.
+                cells_before = page.locator(".jp-OutputArea-output .slick-cell").all_inner_texts()
+                handle = page.evaluate(_HANDLE_POSITION)
+                page.mouse.move(handle["x"], handle["y"])
+                page.mouse.down()
+                page.mouse.move(handle["x"], handle["y"] - 30, steps=8)
+                page.mouse.up()
+                moved = False
+                for _ in range(40):
+                    page.wait_for_timeout(250)
+                    if page.locator(".jp-OutputArea-output .slick-cell").all_inner_texts() != cells_before:
+                        moved = True
+                        break
+                bench.screenshot(path=str(BUILD / "bench-browser-dragged.png"))
+                assert moved, "dragging a handle on the drive plot did not change the drive table"
                 # The derivation renders as typeset math (MathJax ships with JupyterLab, no network).
                 page.locator(".lm-TabBar-tab", has_text="Derivation").first.click()
                 page.locator(".jp-OutputArea-output mjx-container").first.wait_for(timeout=60_000)

@@ -268,10 +268,15 @@ class TestDriveTable:
         np.testing.assert_array_equal(handles.data["t"], bench.drive.times)
         t = np.array(handles.data["t"])
         y = np.array(handles.data["y"])
-        t[1], y[1] = 2e-3, 4.0
+        t[1] = 2e-3  # sideways: the instant moves
+        handles.data = {"t": t, "y": y, "row": handles.data["row"]}
+        np.testing.assert_allclose(bench.drive.times, [0, 2e-3, 4e-3])
+        y[1] = 4.0  # up and down, with a sideways slip too small to count: the level moves
+        t[1] = 2e-3 + 1e-6
         handles.data = {"t": t, "y": y, "row": handles.data["row"]}
         np.testing.assert_allclose(bench.drive.times, [0, 2e-3, 4e-3])
         np.testing.assert_allclose(bench.drive.levels("vin"), [0, 4.0, 1.0])
+        t, y = np.array(bench.sources["handles"].data["t"]), np.array(bench.sources["handles"].data["y"])
         t[1] = 5e-3  # past the next change: refused, handles put back
         handles.data = {"t": t, "y": y, "row": handles.data["row"]}
         assert "drag" in bench.error

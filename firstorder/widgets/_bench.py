@@ -667,10 +667,17 @@ class Bench(widgets.VBox):
         old_levels = np.asarray(self.drive.levels(column))
         moved = np.flatnonzero((times != old_times) | (levels != old_levels))
         table = self._table
+        # A drag moves a change's instant or its level, whichever it moved more (as a share
+        # of the view), so a level dragged by hand does not also shift its instant by a pixel.
+        span_t = max(self._view.end - self._view.start, 1e-300)
+        span_y = max(float(np.ptp(old_levels)), float(np.max(np.abs(old_levels))), 1e-300)
         try:
             for row in moved.tolist():
-                table = table.move(row, time=float(times[row]) if times[row] != old_times[row] else None,
-                                   column=column, level=float(levels[row]))
+                sideways = abs(times[row] - old_times[row]) / span_t >= abs(levels[row] - old_levels[row]) / span_y
+                if sideways:
+                    table = table.move(row, time=float(times[row]))
+                else:
+                    table = table.move(row, column=column, level=float(levels[row]))
         except ValueError as error:
             self._set_error("drive", f"drag: {error}")
             self._refresh_handles()
@@ -745,6 +752,9 @@ class Bench(widgets.VBox):
         self._syncing = True
         try:
             self.table_source.data = self._table.as_columns()
+            # BokehJS redraws a table when its row indices change; with as many rows as
+            # before they do not, so a change to the table model itself asks for the redraw.
+            self.drive_table.tags = [len(self._undo), id(self._table)]
         finally:
             self._syncing = was
 

@@ -140,10 +140,13 @@ class Plots:
         handles = ColumnDataSource({"t": [], "y": [], "row": []})
         self.sources["handles"] = handles
         self.handle_renderer = fig.scatter("t", "y", source=handles, size=9, marker="square",
-                                           fill_color="white", line_color="#17324d", line_width=2)
+                                           fill_color="white", line_color="#17324d", line_width=2,
+                                           name="firstorder-drive-handles")
         self.point_draw = PointDrawTool(renderers=[self.handle_renderer], add=False, drag=True,
                                         description="Drag a change: left/right moves its instant, up/down its level")
         fig.add_tools(self.point_draw)
+        # Dragging on the drive panel moves handles; the response panel pans (the time axis is shared).
+        fig.toolbar.active_drag = self.point_draw
         fig.toolbar.active_tap = self.point_draw
         self._add_selection(fig)
         fig.add_layout(Legend(items=items, location="center", click_policy="none"), "right")
