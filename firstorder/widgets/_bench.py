@@ -688,7 +688,8 @@ class Bench(widgets.VBox):
     def _on_probe(self, change) -> None:
         self._probe = change["new"] or None
         if self._tolerance is not None and self._tolerance.unit != self._value_unit():
-            self._tolerance = parse_tolerance(self.setup_fields["tolerance"].value, unit=self._value_unit())
+            # the same limit, read in the unit of what is now watched (V or A)
+            self._tolerance = parse_tolerance(self._good_text["tolerance"], unit=self._value_unit())
         label = self._value_label()
         self.plots.response_figure.yaxis[0].axis_label = label
         self.plots.set_value_unit(self._value_unit())

@@ -85,7 +85,6 @@ class Plots:
         self.band_renderers = {}
         self.legend_items = {}
         self.value_formatters = []  # response-value tick and hover formatters (their unit follows the probe)
-        self.value_unit = state_unit
         self._build_drive_figure(level_names, level_units, switch_names)
         self._build_response_figure(curve_names, contribution_names, state_unit, value_label, trace_name)
         figures = [self.drive_figure, self.response_figure]
@@ -236,14 +235,6 @@ class Plots:
         """Axis ticks and hover text of the response panel in `unit` (V or A)."""
         for formatter in self.value_formatters:
             formatter.args = {"unit": unit}
-
-    def set_visible(self, visible: set[str]) -> None:
-        """Show the curves in `visible`, hide the others (data is filled by update_response)."""
-        for name in self.curve_names:
-            shown = name in visible
-            if not shown:
-                self.line_renderers[name].visible = False
-                self.band_renderers[name].visible = False
 
     def update_response(self, response, probe, view: View, visible: set[str]) -> str:
         """Sample `response` for `view`; fill every visible curve; return the plan's mode."""
