@@ -15,6 +15,8 @@ from types import SimpleNamespace
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import firstorder as fo
 from firstorder.widgets import Bench
@@ -499,3 +501,50 @@ class TestCautionsPanel:
         assert "60 V" in bench.cautions_panel.value
         bench.edit_cell(1, "vin", "5")
         assert bench.cautions_panel.value == ""
+
+
+class TestLoader:
+    def test_bokehjs_is_inline(self):
+        from bokeh import __version__
+
+        from firstorder.widgets._loader import loader_script
+
+        script = loader_script()
+        # The library text itself travels with the page: nothing to fetch.
+        assert "cdn.bokeh.org" not in script
+        assert f"firstorder-bokehjs-{__version__}" in script
+        assert len(script) > 1_000_000  # bokeh, widgets and tables, minified
+
+    def test_display_sends_bokehjs_then_a_short_note(self):
+        from IPython.core.interactiveshell import InteractiveShell
+        from IPython.utils.capture import capture_output
+
+        InteractiveShell.instance()
+        bench = rc_bench()
+        with capture_output() as captured:
+            bundle = bench._repr_mimebundle_()
+        assert "application/vnd.jupyter.widget-view+json" in bundle
+        kinds = [list(output.data) for output in captured.outputs]
+        assert "application/vnd.bokehjs_load.v0+json" in kinds[0]
+        assert captured.outputs[-1].data["text/plain"].startswith("BokehJS")
+
+
+class TestEnvelopeProperty:
+    @given(segments=st.integers(2, 400), pixels=st.integers(16, 120), seed=st.integers(0, 2**31 - 1))
+    @settings(max_examples=25)
+    def test_every_value_lies_within_its_column(self, segments, pixels, seed):
+        # Containment: at any instant the curve lies within its pixel column's [min, max].
+        rng = np.random.default_rng(seed)
+        durations = rng.uniform(1e-7, 1e-4, segments)
+        times = np.concatenate([[0.0], np.cumsum(durations)[:-1]])
+        drive = fo.Drive(times, float(durations.sum()), vin=rng.uniform(-5, 5, segments))
+        response = fo.Fixture.rc(r="1k", c=float(rng.uniform(1e-9, 1e-7))).respond(drive, initial=float(rng.uniform(-5, 5)))
+        plan = plan_samples(response.starts, drive.end, response.tau, 0.0, drive.end, pixels)
+        if plan.mode != "envelope":
+            return
+        low, high = envelope(plan, response.total(plan.times))
+        probes = np.sort(rng.uniform(0.0, drive.end, 500))
+        values = response.total(probes)
+        column = np.clip(np.searchsorted(plan.edges, probes, side="right") - 1, 0, pixels - 1)
+        slack = 1e-12 * 5
+        assert (values >= low[column] - slack).all() and (values <= high[column] + slack).all()
