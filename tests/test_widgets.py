@@ -548,3 +548,29 @@ class TestEnvelopeProperty:
         column = np.clip(np.searchsorted(plan.edges, probes, side="right") - 1, 0, pixels - 1)
         slack = 1e-12 * 5
         assert (values >= low[column] - slack).all() and (values <= high[column] + slack).all()
+
+
+class TestSegmentSelection:
+    def test_plot_and_table_selection_follow_each_other(self):
+        bench = rc_bench()
+        bench.select_segment(2)
+        assert list(bench.table_source.selected.indices) == [2]
+        bench.table_source.selected.indices = [1]
+        np.testing.assert_allclose(bench.sources["selection"].data["left"], [1e-3])
+        assert "Segment 1" in bench.derivation.value
+        with pytest.raises(ValueError, match="segments are 0 to 2"):
+            bench.select_segment(3)
+
+
+class TestInductorBench:
+    def test_rl_current_in_amps(self):
+        bench = Bench(fo.Fixture.rl(r="47", l="10m"), fo.Drive.steps([(0, 0.0), ("1m", 5.0)], end="3m"),
+                      tolerance=fo.Tolerance.relative(0.01))
+        # i(t) = V/R (1 - exp(-t R / L)) (handbook RL step, common practice)
+        t = np.asarray(bench.sources["total"].data["t"])
+        y = np.asarray(bench.sources["total"].data["y"])
+        after = t >= 1e-3
+        np.testing.assert_allclose(y[after], 5 / 47 * (1 - np.exp(-(t[after] - 1e-3) * 47 / 10e-3)), rtol=1e-12, atol=1e-15)
+        assert bench.plots.response_figure.yaxis[0].formatter.args == {"unit": "A"}
+        # within 1 % of the step after ln(100) time constants (common practice)
+        assert bench.settling.loc[1, "settle_time"] == pytest.approx(math.log(100) * 10e-3 / 47, rel=1e-12)

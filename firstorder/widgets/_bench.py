@@ -650,6 +650,8 @@ class Bench(widgets.VBox):
             raise InputError(f"select_segment: {segment!r} is not a segment; segments are 0 to {len(self.drive) - 1}")
         self._segment = segment
         self.row_field.value = segment
+        if list(self.table_source.selected.indices) != [segment]:
+            self.table_source.selected.indices = [segment]  # the row lights up in the table too
         self.plots.update_selection(self.drive, segment)
         self._render_derivation()
 
