@@ -91,9 +91,24 @@ class Derivation:
         """`expression` with the fixture's part values put in."""
         return expression.subs(self.values)
 
+    def _tex(self, expression) -> str:
+        """LaTeX with names such as ``r_bus_leak`` kept whole (``r_{bus\\_leak}``)."""
+        names = {}
+        for symbol in expression.free_symbols:
+            name = symbol.name
+            if name.count("_") >= 2:
+                head, tail = name.split("_", 1)
+                names[symbol] = f"{head}_{{{tail.replace('_', chr(92) + '_')}}}"
+        text = sp.latex(expression, symbol_names=names)
+        function = self.state.func.__name__
+        if function.count("_") >= 2:
+            head, tail = function.split("_", 1)
+            text = text.replace(sp.latex(sp.Symbol(function)), f"{head}_{{{tail.replace('_', chr(92) + '_')}}}")
+        return text
+
     def _law(self) -> str:
-        x = sp.latex(self.state)
-        storage = sp.latex(self.symbols[self.storage])
+        x = self._tex(self.state)
+        storage = self._tex(self.symbols[self.storage])
         if self.kind == "capacitor":
             return (
                 rf"{storage}\,\frac{{d{x}}}{{dt}} = \frac{{V_{{th}} - {x}}}{{R_{{th}}}}"
@@ -104,31 +119,47 @@ class Derivation:
             r"\quad\text{(KVL around the inductor, Norton equivalent)}"
         )
 
+    def _sum(self, first, second) -> str:
+        """``first + (second)``, leaving out a zero term but not hiding which one it is."""
+        if second == 0:
+            return rf"{self._tex(first)} + 0"
+        if first == 0:
+            return rf"0 + {self._tex(second)}"
+        return rf"{self._tex(first)} + \left({self._tex(second)}\right)"
+
     def steps(self) -> list[tuple[str, str]]:
         """The derivation as (caption, LaTeX) pairs."""
-        x = sp.latex(self.state)
+        x = self._tex(self.state)
         name = "th" if self.kind == "capacitor" else "N"
         equivalent = "V" if self.kind == "capacitor" else "I"
-        rows = [
-            (f"Equivalent seen by {self.kind} {self.storage} ({self.configuration})",
-             rf"R_{{{name}}} = {sp.latex(self.resistance)},\quad {equivalent}_{{{name}}} = {sp.latex(self.equivalent)}"),
-            ("Circuit law at the storage element", self._law()),
-            ("The ODE", sp.latex(self.ode)),
-            ("Time constant", rf"\tau = {sp.latex(self.tau)}"),
-            ("Final value", rf"{sp.latex(self.state.subs(self.symbols['t'], sp.oo))} = {sp.latex(self.final)}"),
-            ("Zero-input + zero-state",
-             rf"{x} = {sp.latex(self.zero_input)} + \left({sp.latex(self.zero_state)}\right)"),
-            ("Natural + forced",
-             rf"{x} = {sp.latex(self.natural)} + \left({sp.latex(self.forced)}\right)"),
+        if self.holds:
+            rows = [(f"No resistive path for {self.kind} {self.storage} ({self.configuration})",
+                     rf"\text{{the state holds: }}\; {x} = {self._tex(self.symbols['initial'])}")]
+        else:
+            rows = [
+                (f"Equivalent seen by {self.kind} {self.storage} ({self.configuration})",
+                 rf"R_{{{name}}} = {self._tex(self.resistance)},\quad {equivalent}_{{{name}}} = {self._tex(self.equivalent)}"),
+                ("Circuit law at the storage element", self._law()),
+            ]
+        rows += [
+            ("The ODE", self._tex(self.ode)),
+            ("Time constant", rf"\tau = {self._tex(self.tau)}"),
+            ("Final value", rf"{self._tex(self.state.subs(self.symbols['t'], sp.oo))} = {self._tex(self.final)}"),
+            ("Zero-input + zero-state", rf"{x} = {self._sum(self.zero_input, self.zero_state)}"),
+            ("Natural + forced", rf"{x} = {self._sum(self.natural, self.forced)}"),
         ]
         for probe, expression in self.probes.items():
-            rows.append((f"Probe {probe}", rf"{sp.latex(sp.Symbol(probe))} = {sp.latex(expression)}"))
+            rows.append((f"Probe {probe}", rf"{self._tex(sp.Symbol(probe))} = {self._tex(expression)}"))
         if self.values:
             numbers = ", ".join(
-                rf"{sp.latex(s)} = {sp.latex(sp.Float(v, 4))}" for s, v in self.values.items()
+                rf"{self._tex(s)} = {sp.latex(sp.Float(v, 4))}" for s, v in self.values.items()
             )
             tau_number = r"\infty" if self.holds else sp.latex(sp.Float(float(self.substitute(self.tau)), 4))
-            rows.append(("With the part values", rf"{numbers},\quad \tau = {tau_number}"))
+            rows.append(("With the part values (SI units)", rf"{numbers},\quad \tau = {tau_number}"))
+            if not self.holds:
+                final_number = self._tex(self.substitute(self.final).evalf(4))
+                rows.append(("Final value with the part values",
+                             rf"{self._tex(self.state.subs(self.symbols['t'], sp.oo))} = {final_number}"))
         return rows
 
     def latex(self) -> str:
