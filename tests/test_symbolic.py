@@ -1,0 +1,166 @@
+"""symbolic: derivations against handbook formulas, sympy.dsolve and the numeric path.
+
+Every network here is a scenario of our own invention.
+"""
+
+import itertools
+
+import numpy as np
+import pytest
+import sympy as sp
+
+import firstorder as fo
+from firstorder import symbolic
+from firstorder._network import probe_row
+
+
+def divider_fixture():
+    fx = fo.Fixture()
+    fx.voltage_source("vin", "in", "gnd")
+    fx.resistor("r1", "in", "a", "10k")
+    fx.resistor("r2", "a", "gnd", "4.7k")
+    fx.resistor("rm", "a", "gnd", "1M")
+    fx.resistor("rf", "a", "out", "1k")
+    fx.capacitor("c", "out", "gnd", "100n")
+    fx.probe("v_a", node="a")
+    return fx
+
+
+def relay_fixture():
+    fx = fo.Fixture()
+    fx.voltage_source("vdac", "dac", "gnd")
+    fx.current_source("ib", "gnd", "h")
+    fx.resistor("rs", "dac", "a", "1k")
+    fx.switch("k1", "a", "h", r_on="2", r_off="1G")
+    fx.capacitor("ch", "h", "gnd", "10n")
+    fx.resistor("r_leak", "h", "gnd", "100M")
+    fx.switch("k2", "h", "m")
+    fx.resistor("r_meter", "m", "gnd", "10M")
+    fx.probe("v_a", node="a")
+    fx.probe("i_k1", through="k1")
+    fx.probe("i_ch", through="ch")
+    fx.probe("i_dac", through="vdac")
+    fx.probe("v_m", node="m", reference="a")
+    return fx
+
+
+class TestDerive:
+    def test_loaded_divider_matches_the_handbook(self):
+        d = divider_fixture().derivation()
+        s = d.symbols
+        lower = s["r2"] * s["rm"] / (s["r2"] + s["rm"])
+        # Handbook series/parallel: R_th = rf + r1 || r2 || rm, V_th = vin (r2 || rm) / (r1 + r2 || rm).
+        assert sp.simplify(d.resistance - (s["rf"] + 1 / (1 / s["r1"] + 1 / s["r2"] + 1 / s["rm"]))) == 0
+        assert sp.simplify(d.equivalent - s["vin"] * lower / (s["r1"] + lower)) == 0
+        assert sp.simplify(d.tau - s["c"] * d.resistance) == 0
+
+    def test_wheatstone_bridge_matches_the_handbook(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vx", "top", "gnd")
+        fx.resistor("r1", "top", "a", 1.0)
+        fx.resistor("r2", "a", "gnd", 2.0)
+        fx.resistor("r3", "top", "b", 3.0)
+        fx.resistor("r4", "b", "gnd", 4.0)
+        fx.capacitor("c", "a", "b", 1.0)
+        d = fx.derivation()
+        r1, r2, r3, r4, vx = (d.symbols[n] for n in ("r1", "r2", "r3", "r4", "vx"))
+        # Handbook bridge: R_th = r1 || r2 + r3 || r4, V_th = vx (r2/(r1 + r2) - r4/(r3 + r4)).
+        assert sp.simplify(d.resistance - (r1 * r2 / (r1 + r2) + r3 * r4 / (r3 + r4))) == 0
+        assert sp.simplify(d.equivalent - vx * (r2 / (r1 + r2) - r4 / (r3 + r4))) == 0
+
+    @pytest.mark.parametrize("states", list(itertools.product([True, False], repeat=2)))
+    def test_solution_solves_its_ode_by_dsolve(self, states):
+        fx = relay_fixture()
+        d = fx.derivation(k1=states[0], k2=states[1])
+        if d.holds:
+            assert d.tau == sp.oo and d.zero_input == d.symbols["initial"]
+            return
+        x = d.state.func
+        # Reference: sympy.dsolve of the derivation's ODE with x(0) = initial.
+        solved = sp.dsolve(d.ode, d.state, ics={x(0): d.symbols["initial"]})
+        assert sp.simplify(solved.rhs - (d.zero_input + d.zero_state)) == 0
+        assert sp.simplify(solved.rhs - (d.natural + d.forced)) == 0
+
+    def test_ode_is_kcl_at_the_capacitor_written_by_hand(self):
+        d = relay_fixture().derivation(k1=True, k2=True)
+        s = d.symbols
+        v = d.state
+        # By hand: node a is rs -> k1 (r_on); ch sees (vdac - v)/(rs + k1_on) + ib - v/r_leak - v/r_meter.
+        current = (s["vdac"] - v) / (s["rs"] + s["k1"]) + s["ib"] - v / s["r_leak"] - v / s["r_meter"]
+        assert sp.simplify(d.ode.rhs - current / s["ch"]) == 0
+
+    def test_numbers_agree_with_the_numeric_path_in_every_configuration(self):
+        fx = relay_fixture()
+        for states in itertools.product([True, False], repeat=2):
+            d = fx.derivation(k1=states[0], k2=states[1])
+            layout, reduced = fx.configuration(states)
+            tau = d.substitute(d.tau)
+            assert (tau == sp.oo and reduced.tau == np.inf) or float(tau) == pytest.approx(reduced.tau, rel=1e-12)
+            excitation = [sp.Symbol("v_ch", real=True), d.symbols["vdac"], d.symbols["ib"]]
+            for probe in fx.probes:
+                expression = d.substitute(d.probes[probe.name])
+                got = [float(expression.diff(e)) for e in excitation]
+                np.testing.assert_allclose(got, probe_row(layout, fx, reduced, probe), rtol=1e-10, atol=1e-18,
+                                           err_msg=f"{probe.name} {states}")
+
+    def test_flyback_probe_is_minus_current_times_flyback_resistor(self):
+        fx = fo.Fixture()
+        fx.voltage_source("v", "sup", "gnd")
+        fx.switch("k", "sup", "a")
+        fx.inductor("l", "a", "m", "0.1")
+        fx.resistor("r_coil", "m", "gnd", "50")
+        fx.resistor("r_fly", "a", "gnd", "1k")
+        fx.probe("v_coil", node="a")  # the coil (l and r_coil) runs from a to gnd
+        d = fx.derivation(k=False)
+        s = d.symbols
+        # Common practice: L / (R_coil + R_flyback), and the coil voltage is -i R_flyback.
+        assert sp.simplify(d.tau - s["l"] / (s["r_coil"] + s["r_fly"])) == 0
+        assert sp.simplify(d.probes["v_coil"] + sp.Symbol("i_l", real=True) * s["r_fly"]) == 0
+
+
+class TestCache:
+    def test_derived_once_per_structure(self, monkeypatch):
+        fx = relay_fixture()
+        first = fx.derivation(k1=True, k2=False)
+        calls = []
+        original = symbolic._derive
+        monkeypatch.setattr(symbolic, "_derive", lambda *a: calls.append(a) or original(*a))
+        again = fx.derivation(k1=True, k2=False)
+        other_values = fx.with_values(rs="2k").derivation(k1=True, k2=False)
+        assert calls == []
+        assert again.tau == first.tau
+        assert float(other_values.substitute(other_values.tau)) == pytest.approx(
+            fx.with_values(rs="2k").time_constant(k1=True, k2=False), rel=1e-12)
+
+
+class TestText:
+    def test_latex_steps(self):
+        d = relay_fixture().derivation(k1=True, k2=False)
+        text = d.latex()
+        assert r"v_{ch}{\left(\infty \right)} =" in text  # not v_ch(t)(∞)
+        assert r"{\left(t \right)}{\left(\infty" not in text
+        assert r"r_{leak}" in text and "i_{k1}" in text
+        for caption in ("Equivalent seen by capacitor ch", "The ODE", "Time constant", "Zero-input + zero-state",
+                        "Natural + forced", "Probe i", "With the part values"):
+            assert caption in text or caption.replace("_", r"}\_\text{") in text
+        assert d._repr_latex_().startswith("$$") and "**The ODE**" in d._repr_markdown_()
+
+    def test_holding_configuration_says_so(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vin", "in", "gnd")
+        fx.resistor("r", "in", "a", "1k")
+        fx.switch("k", "a", "b")
+        fx.capacitor("c_hold", "b", "gnd", "1n")
+        text = fx.derivation(k=False).latex()
+        assert "No resistive path" in text and "nan" not in text
+        assert r"v_{c\_hold}" in text
+
+
+class TestImport:
+    def test_import_loads_no_sympy(self):
+        import subprocess
+        import sys
+
+        code = "import sys, firstorder; print('sympy' in sys.modules)"
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+        assert out.stdout.strip() == "False"
