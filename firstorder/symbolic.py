@@ -41,7 +41,7 @@ def _symbol_for(part, states: dict[str, bool]) -> sp.Symbol:
     return sp.Symbol(part.name, positive=True)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Derivation:
     """A first-order derivation for one switch configuration of a fixture.
 
@@ -86,6 +86,11 @@ class Derivation:
     @property
     def holds(self) -> bool:
         return self.tau == sp.oo
+
+    def __repr__(self) -> str:
+        # The dataclass default would print every expression twice over; this is the summary.
+        return (f"Derivation({self.kind} {self.storage}, {self.configuration}: tau = {self.tau}, "
+                f"final = {self.final})")
 
     def substitute(self, expression: sp.Expr) -> sp.Expr:
         """`expression` with the fixture's part values put in."""
