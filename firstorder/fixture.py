@@ -229,6 +229,12 @@ class Fixture:
             raise InputError(f"probe '{name}': give exactly one of node= or through=")
         if through is not None and through not in self.part_map:
             raise InputError(f"probe '{name}': through={through!r} names no part; parts are {list(self.part_map)}")
+        if node is not None:
+            # Node names are checked against the network in check(): nodes may still be added.
+            node = _check_node(node, f"probe '{name}' node")
+            reference = _check_node(reference, f"probe '{name}' reference")
+            if node == reference:
+                raise InputError(f"probe '{name}': node and reference are both {node!r}; the voltage would always be 0")
         self._probes.append(Probe(name, node=node, reference=reference, through=through))
         return self
 
@@ -396,5 +402,5 @@ class Fixture:
             )
         except ValueError as error:
             taus = [("problem", str(error))]
-        caption = "Fixture" + "".join(f"; {k} = {v}" for k, v in taus)
+        caption = f"Fixture on nodes {', '.join(self.nodes)}" + "".join(f"; {k} = {v}" for k, v in taus)
         return table(["name", "kind", "nodes", "value"], rows, caption=caption)

@@ -169,6 +169,12 @@ class TestValidation:
         with pytest.raises(fo.TopologyError, match="probe 'q': node 'elsewhere'"):
             fx.respond(fo.Drive.steps([(0, 1.0)], end="1m"))
 
+    def test_probe_node_must_be_a_name_and_differ_from_its_reference(self):
+        with pytest.raises(fo.InputError, match="probe 'p' node: node 5"):
+            self.rc().probe("p", node=5)
+        with pytest.raises(fo.InputError, match="probe 'p': node and reference are both 'out'"):
+            self.rc().probe("p", node="out", reference="out")
+
     def test_probe_through_unknown_part(self):
         with pytest.raises(fo.InputError, match="through='rx' names no part"):
             self.rc().probe("p", through="rx")
@@ -239,5 +245,5 @@ class TestDisplay:
     def test_html_lists_parts_nodes_and_probes(self):
         fx = probed_network()
         html = fx._repr_html_()
-        for text in ("r_leak", "a → b", "k1", "v_ab", "capacitor"):
+        for text in ("r_leak", "a → b", "k1", "v_ab", "capacitor", "nodes s1, gnd, a, b"):
             assert text in html

@@ -118,6 +118,21 @@ class TestDerive:
         assert sp.simplify(d.probes["v_coil"] + sp.Symbol("i_l", real=True) * s["r_fly"]) == 0
 
 
+    def test_floating_island_probe_and_tau(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vin", "in", "gnd")
+        fx.resistor("r", "in", "a", "1k")
+        fx.capacitor("c", "a", "gnd", "1n")
+        fx.switch("k", "a", "m")
+        fx.resistor("r_meter", "m", "mlo", "10M")
+        fx.resistor("r_lead", "mlo", "m", "1")
+        fx.probe("i_meter", through="r_meter")
+        open_ = fx.derivation(k=False)
+        # The meter loop floats when k is open: no current, and tau is the bare R C.
+        assert open_.probes["i_meter"] == 0
+        assert open_.tau == open_.symbols["r"] * open_.symbols["c"]
+
+
 class TestCache:
     def test_derived_once_per_structure(self, monkeypatch):
         fx = relay_fixture()
