@@ -75,7 +75,9 @@ class Part:
     def describe_value(self) -> str:
         """The value in engineering notation, for tables."""
         if self.kind == "switch":
-            return f"on {format_value(self.r_on, 'Ω')}, off {format_value(self.r_off, 'Ω')}"
+            on = "ideal (0 Ω)" if self.r_on == 0 else format_value(self.r_on, "Ω")
+            off = "no leakage" if math.isinf(self.r_off) else format_value(self.r_off, "Ω")
+            return f"on {on}, off {off}"
         if self.is_source:
             return f"level from drive column '{self.name}' ({SOURCE_UNITS[self.kind]})"
         return format_value(self.value, PART_UNITS[self.kind])
