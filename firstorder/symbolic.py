@@ -97,19 +97,11 @@ class Derivation:
         return expression.subs(self.values)
 
     def _tex(self, expression) -> str:
-        """LaTeX with names such as ``r_bus_leak`` kept whole (``r_{bus\\_leak}``)."""
-        names = {}
-        for symbol in expression.free_symbols:
-            name = symbol.name
-            if name.count("_") >= 2:
-                head, tail = name.split("_", 1)
-                names[symbol] = f"{head}_{{{tail.replace('_', chr(92) + '_')}}}"
+        """LaTeX with every name written as the user gave it (see :func:`_latex_name`)."""
+        names = {symbol: _latex_name(symbol.name) for symbol in expression.free_symbols}
         text = sp.latex(expression, symbol_names=names)
         function = self.state.func.__name__
-        if function.count("_") >= 2:
-            head, tail = function.split("_", 1)
-            text = text.replace(sp.latex(sp.Symbol(function)), f"{head}_{{{tail.replace('_', chr(92) + '_')}}}")
-        return text
+        return text.replace(sp.latex(sp.Symbol(function)) + r"{\left(", _latex_name(function) + r"{\left(")
 
     def _law(self) -> str:
         x = self._tex(self.state)
@@ -188,6 +180,29 @@ class Derivation:
 # package) both draw as the character itself.
 _LATEX_TEXT_SPECIALS = {c: "\\" + c for c in "_{}%&#$"}
 _LATEX_TEXT_SPECIALS.update({"\\": r"\backslash", "^": r"\hat{}", "~": r"\sim"})
+
+
+_LATEX_NAME_SPECIALS = {c: "\\" + c for c in "_{}%&#$"}
+_LATEX_NAME_SPECIALS.update({"\\": r"\backslash{}", "^": r"\hat{}", "~": r"\sim{}"})
+
+
+def _latex_name(name: str) -> str:
+    r"""A part name as LaTeX: ``r_bus_leak`` is r with subscript bus_leak, and a name
+    is never read as sympy's name modifiers (``vcal`` would print as a calligraphic v).
+
+    Examples
+    --------
+    >>> _latex_name("r_bus_leak")
+    'r_{bus\\_leak}'
+    >>> _latex_name("vcal")
+    '\\mathrm{vcal}'
+    >>> _latex_name("c")
+    'c'
+    """
+    head, _, tail = name.partition("_")
+    escape = lambda text: "".join(_LATEX_NAME_SPECIALS.get(c, c) for c in text)  # noqa: E731
+    head = escape(head) if len(head) == 1 else rf"\mathrm{{{escape(head)}}}"
+    return f"{head}_{{{escape(tail)}}}" if tail else head
 
 
 def _latex_text(text: str) -> str:

@@ -160,6 +160,16 @@ class TestText:
             assert caption in text or caption.replace("_", r"}\_\text{") in text
         assert d._repr_latex_().startswith("$$") and "**The ODE**" in d._repr_markdown_()
 
+    def test_names_are_not_read_as_latex_modifiers(self):
+        # sympy would print a symbol named "vcal" as a calligraphic v and "rbar" as r-bar.
+        fx = fo.Fixture()
+        fx.voltage_source("vcal", "src", "gnd")
+        fx.resistor("rbar", "src", "n", "1k")
+        fx.capacitor("c", "n", "gnd", "1u")
+        text = fx.derivation().latex()
+        assert r"\mathrm{vcal}" in text and r"\mathrm{rbar}" in text
+        assert r"\mathcal" not in text and r"\bar" not in text
+
     def test_holding_configuration_says_so(self):
         fx = fo.Fixture()
         fx.voltage_source("vin", "in", "gnd")
