@@ -41,6 +41,8 @@ def relay_fixture():
     fx.probe("i_ch", through="ch")
     fx.probe("i_dac", through="vdac")
     fx.probe("v_m", node="m", reference="a")
+    fx.probe("i_ib", through="ib")
+    fx.probe("i_rs", through="rs")
     return fx
 
 
@@ -111,7 +113,9 @@ class TestDerive:
         fx.resistor("r_coil", "m", "gnd", "50")
         fx.resistor("r_fly", "a", "gnd", "1k")
         fx.probe("v_coil", node="a")  # the coil (l and r_coil) runs from a to gnd
+        fx.probe("i_coil", through="l")
         d = fx.derivation(k=False)
+        assert d.probes["i_coil"] == sp.Symbol("i_l", real=True)
         s = d.symbols
         # Common practice: L / (R_coil + R_flyback), and the coil voltage is -i R_flyback.
         assert sp.simplify(d.tau - s["l"] / (s["r_coil"] + s["r_fly"])) == 0
@@ -131,6 +135,59 @@ class TestDerive:
         # The meter loop floats when k is open: no current, and tau is the bare R C.
         assert open_.probes["i_meter"] == 0
         assert open_.tau == open_.symbols["r"] * open_.symbols["c"]
+
+
+class TestRandomNetworks:
+    """Symbolic and numeric reductions of varied random networks agree.
+
+    The two paths share only the topology plan: the numeric one solves the full
+    modified nodal system with numpy, the symbolic one eliminates supernodes.
+    """
+
+    @pytest.mark.parametrize("seed", range(8))
+    def test_symbolic_matches_numeric(self, seed):
+        rng = np.random.default_rng(seed)
+        nodes = ["gnd", "n1", "n2", "n3", "n4", "n5"]
+        fx = fo.Fixture()
+        fx.voltage_source("v1", "n1", "gnd")
+        fx.voltage_source("v2", "n2", str(rng.choice(["gnd", "n3"])))  # sometimes floating
+        fx.current_source("i1", str(rng.choice(nodes[2:])), "gnd")
+        for k in range(7):
+            a, b = rng.choice(nodes, size=2, replace=False)
+            fx.resistor(f"r{k}", str(a), str(b), float(10 ** rng.uniform(1, 5)))
+        fx.switch("k1", "n4", "n5", r_on=float(rng.choice([0.0, 2.0])), r_off=float(rng.choice([np.inf, 1e7])))
+        fx.resistor("r_tie", "n5", "n3", 100.0)
+        if seed % 2:
+            fx.capacitor("c", "n4", str(rng.choice(["gnd", "n1", "n3"])), 1e-6)
+        else:
+            fx.inductor("l", "n4", str(rng.choice(["gnd", "n1", "n3"])), 1e-3)
+        fx.probe("v4", node="n4", reference="n2")
+        fx.probe("i_k1", through="k1")
+        fx.probe("i_v2", through="v2")
+        checked = 0
+        for closed in (True, False):
+            try:
+                layout, reduced = fx.configuration((closed,))
+            except (fo.TopologyError, np.linalg.LinAlgError):
+                continue
+            d = fx.derivation(k1=closed)
+            tau = d.substitute(d.tau)
+            if reduced.tau == np.inf:
+                assert tau == sp.oo
+            else:
+                assert float(tau) == pytest.approx(reduced.tau, rel=1e-9)
+                for j, source in enumerate(fx.sources):
+                    gain = float(d.substitute(d.final).diff(d.symbols[source.name]))
+                    assert gain == pytest.approx(reduced.gain[j], rel=1e-9, abs=1e-12)
+            state = sp.Symbol(f"{'v' if fx.storage.kind == 'capacitor' else 'i'}_{fx.storage.name}", real=True)
+            excitation = [state, *(d.symbols[p.name] for p in fx.sources)]
+            for probe in fx.probes:
+                expression = d.substitute(d.probes[probe.name])
+                got = [float(expression.diff(e)) for e in excitation]
+                np.testing.assert_allclose(got, probe_row(layout, fx, reduced, probe), rtol=1e-9, atol=1e-12,
+                                           err_msg=f"seed {seed}, k1 {closed}, {probe.name}")
+            checked += 1
+        assert checked  # every seed here builds at least one solvable configuration
 
 
 class TestCache:
