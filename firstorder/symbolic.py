@@ -361,7 +361,7 @@ class _Nodal:
         for k, c in coefficient_v.items():
             if c != 0:
                 row = [r + c * v for r, v in zip(row, self.solution[k])]
-        return row
+        return [_compact(r) for r in row]
 
     def voltage(self, a: str, b: str = _network.GROUND) -> list:
         return self.row(self.difference(a, b))
@@ -518,12 +518,12 @@ def _derive(fixture: "Fixture", layout: _network.Layout, states: tuple[bool, ...
         # Capacitor: i = (V_th - x) / R_th.  Inductor: v = R_N (I_N - x).
         # Either way flow[0] = -1/R_th or -R_N, and the equivalent is -sum(flow[j] u_j) / flow[0].
         if storage.kind == "capacitor":
-            resistance = _tidy(-1 / flow[0])
+            resistance = _tidy(1 / (-flow[0]))  # -(a + b) distributes; -1/(a + b) would not
             tau = _tidy(value * resistance)
         else:
             resistance = _tidy(-flow[0])
             tau = _tidy(value / resistance)
-        equivalent = _tidy(sum((-flow[j] / flow[0] * levels[j - 1] for j in range(1, len(flow))),
+        equivalent = _tidy(sum((flow[j] / (-flow[0]) * levels[j - 1] for j in range(1, len(flow))),
                                sp.Integer(0)))
         final = equivalent
         decay = sp.exp(-t / tau)
