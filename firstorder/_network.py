@@ -205,7 +205,7 @@ def plan(fixture: "Fixture", states: tuple[bool, ...], where: str) -> Layout:
             if index == 0:
                 raise ZeroTimeError(
                     f"{where}: the current of inductor '{name}' has no path: "
-                    f"{_and_list(crossing)} alone join nodes '{a}' and '{b}', so "
+                    f"{_and_list(crossing)} alone {'joins' if len(crossing) == 1 else 'join'} nodes '{a}' and '{b}', so "
                     f"the current would have to stop in zero time. In a real coil this "
                     f"is the voltage spike of an interrupted inductor, large enough to "
                     f"arc across the switch and destroy parts. Add a flyback path "

@@ -75,7 +75,9 @@ class Part:
     def describe_value(self) -> str:
         """The value in engineering notation, for tables."""
         if self.kind == "switch":
-            return f"on {format_value(self.r_on, 'Ω')}, off {format_value(self.r_off, 'Ω')}"
+            on = "ideal (0 Ω)" if self.r_on == 0 else format_value(self.r_on, "Ω")
+            off = "no leakage" if math.isinf(self.r_off) else format_value(self.r_off, "Ω")
+            return f"on {on}, off {off}"
         if self.is_source:
             return f"level from drive column '{self.name}' ({SOURCE_UNITS[self.kind]})"
         return format_value(self.value, PART_UNITS[self.kind])
@@ -229,6 +231,12 @@ class Fixture:
             raise InputError(f"probe '{name}': give exactly one of node= or through=")
         if through is not None and through not in self.part_map:
             raise InputError(f"probe '{name}': through={through!r} names no part; parts are {list(self.part_map)}")
+        if node is not None:
+            # Node names are checked against the network in check(): nodes may still be added.
+            node = _check_node(node, f"probe '{name}' node")
+            reference = _check_node(reference, f"probe '{name}' reference")
+            if node == reference:
+                raise InputError(f"probe '{name}': node and reference are both {node!r}; the voltage would always be 0")
         self._probes.append(Probe(name, node=node, reference=reference, through=through))
         return self
 
@@ -396,5 +404,5 @@ class Fixture:
             )
         except ValueError as error:
             taus = [("problem", str(error))]
-        caption = "Fixture" + "".join(f"; {k} = {v}" for k, v in taus)
+        caption = f"Fixture on nodes {', '.join(self.nodes)}" + "".join(f"; {k} = {v}" for k, v in taus)
         return table(["name", "kind", "nodes", "value"], rows, caption=caption)

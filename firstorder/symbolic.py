@@ -1,21 +1,28 @@
 """Symbolic derivations with sympy: the equivalent seen by the storage element,
 the ODE, tau, and the response split into zero-input/zero-state and natural/forced.
 
-The network is stamped exactly as the numeric path stamps it
-(:func:`firstorder._network.stamp`), with sympy symbols for every resistance and
-source level, and solved over the field of rational functions in those symbols
-(sympy's ``DomainMatrix``), which is far quicker than generic symbolic
-elimination and returns canceled expressions.  Results are cached per fixture
-and configuration.  This module is imported only when a derivation is asked for.
+Each configuration is taken from the same plan as the numeric path
+(:func:`firstorder._network.plan`: the same parts, ideal elements and island
+pins), written as nodal equations on supernodes and solved by Gaussian
+elimination in the order a hand calculation would take (fewest neighbours first),
+without expanding.  Small entries are put over one denominator as they appear and
+small results are factored, so a divider or a bridge reads as the handbook
+formula; large networks keep the nested form of the elimination, which is exact
+and quick (eight configurations of a 12-resistor fixture in well under a second;
+see ``benchmarks/derive.py``).  Derivations are cached by network structure, so a
+change of part values costs no sympy work.  This module is imported only when a
+derivation is asked for.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from collections import OrderedDict, defaultdict
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING
 
 import sympy as sp
 from sympy.polys.matrices import DomainMatrix
+from sympy.polys.rings import PolyRing
 
 from . import _network
 
@@ -34,33 +41,7 @@ def _symbol_for(part, states: dict[str, bool]) -> sp.Symbol:
     return sp.Symbol(part.name, positive=True)
 
 
-def _name_tex(name: str) -> str:
-    """A part or node name as typed: one letter italic, longer names upright, one subscript.
-
-    sympy's own rule reads suffixes as accents and fonts ("vcal" becomes a
-    calligraphic v, "vbar" a barred v) and splits digits off ("k1_on" becomes
-    k with subscript "1 on"); a fixture's names are labels, not that notation.
-    """
-    def plain(text: str) -> str:
-        return text if len(text) == 1 else rf"\mathrm{{{text}}}"
-
-    head, _, tail = name.partition("_")
-    return plain(head) + (f"_{{{plain(tail)}}}" if tail else "")
-
-
-def _tex(expression) -> str:
-    """LaTeX of `expression` with every symbol and function written by :func:`_name_tex`."""
-    expression = sp.sympify(expression)
-    names = {symbol: _name_tex(symbol.name) for symbol in expression.free_symbols if isinstance(symbol, sp.Symbol)}
-    functions = {f.func: sp.Symbol(_name_tex(f.func.__name__)) for f in expression.atoms(sp.core.function.AppliedUndef)}
-    text = sp.latex(expression, symbol_names=names)
-    for function in functions:
-        # an applied state function, such as v_ch(t), is written by name too
-        text = text.replace(sp.latex(function(sp.Symbol("t"))).split(r"{\left(")[0], _name_tex(function.__name__))
-    return text
-
-
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Derivation:
     """A first-order derivation for one switch configuration of a fixture.
 
@@ -106,13 +87,25 @@ class Derivation:
     def holds(self) -> bool:
         return self.tau == sp.oo
 
+    def __repr__(self) -> str:
+        # The dataclass default would print every expression twice over; this is the summary.
+        return (f"Derivation({self.kind} {self.storage}, {self.configuration}: tau = {self.tau}, "
+                f"final = {self.final})")
+
     def substitute(self, expression: sp.Expr) -> sp.Expr:
         """`expression` with the fixture's part values put in."""
         return expression.subs(self.values)
 
+    def _tex(self, expression) -> str:
+        """LaTeX with every name written as the user gave it (see :func:`_latex_name`)."""
+        names = {symbol: _latex_name(symbol.name) for symbol in expression.free_symbols}
+        text = sp.latex(expression, symbol_names=names)
+        function = self.state.func.__name__
+        return text.replace(sp.latex(sp.Symbol(function)) + r"{\left(", _latex_name(function) + r"{\left(")
+
     def _law(self) -> str:
-        x = _tex(self.state)
-        storage = _tex(self.symbols[self.storage])
+        x = self._tex(self.state)
+        storage = self._tex(self.symbols[self.storage])
         if self.kind == "capacitor":
             return (
                 rf"{storage}\,\frac{{d{x}}}{{dt}} = \frac{{V_{{th}} - {x}}}{{R_{{th}}}}"
@@ -123,31 +116,47 @@ class Derivation:
             r"\quad\text{(KVL around the inductor, Norton equivalent)}"
         )
 
+    def _sum(self, first, second) -> str:
+        """``first + (second)``, leaving out a zero term but not hiding which one it is."""
+        if second == 0:
+            return rf"{self._tex(first)} + 0"
+        if first == 0:
+            return rf"0 + {self._tex(second)}"
+        return rf"{self._tex(first)} + \left({self._tex(second)}\right)"
+
     def steps(self) -> list[tuple[str, str]]:
         """The derivation as (caption, LaTeX) pairs."""
-        x = _tex(self.state)
+        x = self._tex(self.state)
         name = "th" if self.kind == "capacitor" else "N"
         equivalent = "V" if self.kind == "capacitor" else "I"
-        rows = [
-            (f"Equivalent seen by {self.kind} {self.storage} ({self.configuration})",
-             rf"R_{{{name}}} = {_tex(self.resistance)},\quad {equivalent}_{{{name}}} = {_tex(self.equivalent)}"),
-            ("Circuit law at the storage element", self._law()),
-            ("The ODE", _tex(self.ode)),
-            ("Time constant", rf"\tau = {_tex(self.tau)}"),
-            ("Final value", rf"{_tex(self.state.subs(self.symbols['t'], sp.oo))} = {_tex(self.final)}"),
-            ("Zero-input + zero-state",
-             rf"{x} = {_tex(self.zero_input)} + \left({_tex(self.zero_state)}\right)"),
-            ("Natural + forced",
-             rf"{x} = {_tex(self.natural)} + \left({_tex(self.forced)}\right)"),
+        if self.holds:
+            rows = [(f"No resistive path for {self.kind} {self.storage} ({self.configuration})",
+                     rf"\text{{the state holds: }}\; {x} = {self._tex(self.symbols['initial'])}")]
+        else:
+            rows = [
+                (f"Equivalent seen by {self.kind} {self.storage} ({self.configuration})",
+                 rf"R_{{{name}}} = {self._tex(self.resistance)},\quad {equivalent}_{{{name}}} = {self._tex(self.equivalent)}"),
+                ("Circuit law at the storage element", self._law()),
+            ]
+        rows += [
+            ("The ODE", self._tex(self.ode)),
+            ("Time constant", rf"\tau = {self._tex(self.tau)}"),
+            ("Final value", rf"{self._tex(self.state.subs(self.symbols['t'], sp.oo))} = {self._tex(self.final)}"),
+            ("Zero-input + zero-state", rf"{x} = {self._sum(self.zero_input, self.zero_state)}"),
+            ("Natural + forced", rf"{x} = {self._sum(self.natural, self.forced)}"),
         ]
         for probe, expression in self.probes.items():
-            rows.append((f"Probe {probe}", rf"{_tex(sp.Symbol(probe))} = {_tex(expression)}"))
+            rows.append((f"Probe {probe}", rf"{self._tex(sp.Symbol(probe))} = {self._tex(expression)}"))
         if self.values:
             numbers = ", ".join(
-                rf"{_tex(s)} = {_tex(sp.Float(v, 4))}" for s, v in self.values.items()
+                rf"{self._tex(s)} = {sp.latex(sp.Float(v, 4))}" for s, v in self.values.items()
             )
-            tau_number = r"\infty" if self.holds else _tex(sp.Float(float(self.substitute(self.tau)), 4))
-            rows.append(("With the part values", rf"{numbers},\quad \tau = {tau_number}"))
+            tau_number = r"\infty" if self.holds else sp.latex(sp.Float(float(self.substitute(self.tau)), 4))
+            rows.append(("With the part values (SI units)", rf"{numbers},\quad \tau = {tau_number}"))
+            if not self.holds:
+                final_number = self._tex(self.substitute(self.final).evalf(4))
+                rows.append(("Final value with the part values",
+                             rf"{self._tex(self.state.subs(self.symbols['t'], sp.oo))} = {final_number}"))
         return rows
 
     def latex(self) -> str:
@@ -173,6 +182,29 @@ _LATEX_TEXT_SPECIALS = {c: "\\" + c for c in "_{}%&#$"}
 _LATEX_TEXT_SPECIALS.update({"\\": r"\backslash", "^": r"\hat{}", "~": r"\sim"})
 
 
+_LATEX_NAME_SPECIALS = {c: "\\" + c for c in "_{}%&#$"}
+_LATEX_NAME_SPECIALS.update({"\\": r"\backslash{}", "^": r"\hat{}", "~": r"\sim{}"})
+
+
+def _latex_name(name: str) -> str:
+    r"""A part name as LaTeX: ``r_bus_leak`` is r with subscript bus_leak, and a name
+    is never read as sympy's name modifiers (``vcal`` would print as a calligraphic v).
+
+    Examples
+    --------
+    >>> _latex_name("r_bus_leak")
+    'r_{bus\\_leak}'
+    >>> _latex_name("vcal")
+    '\\mathrm{vcal}'
+    >>> _latex_name("c")
+    'c'
+    """
+    head, _, tail = name.partition("_")
+    escape = lambda text: "".join(_LATEX_NAME_SPECIALS.get(c, c) for c in text)  # noqa: E731
+    head = escape(head) if len(head) == 1 else rf"\mathrm{{{escape(head)}}}"
+    return f"{head}_{{{escape(tail)}}}" if tail else head
+
+
 def _latex_text(text: str) -> str:
     r"""`text` for use inside ``\text{...}``: part names such as ``c_hold`` carry underscores.
 
@@ -186,23 +218,235 @@ def _latex_text(text: str) -> str:
     )
 
 
-def _solve(layout: _network.Layout, fixture: "Fixture", conductance) -> sp.Matrix:
-    sources = len(fixture.sources)
-    A, B = _network.stamp(layout, conductance, sp.Integer(0), sp.Integer(1), 1 + sources)
-    if not layout.size:
-        return sp.zeros(0, 1 + sources)
-    matrix = DomainMatrix.from_list_sympy(layout.size, layout.size, A)
-    rhs = DomainMatrix.from_list_sympy(layout.size, 1 + sources, B)
-    matrix, rhs = matrix.unify(rhs)
-    matrix, rhs = matrix.to_field(), rhs.to_field()
-    return matrix.lu_solve(rhs).to_Matrix()
+class _Nodal:
+    """One configuration as nodal equations on supernodes, solved by elimination.
+
+    Ideal voltage elements (sources, the capacitor, zero-ohm switches, island pins)
+    form a forest (the topology checks refuse loops).  Each tree is a supernode:
+    its nodes differ from the tree's root by sums of excitations ``e = [x, u...]``,
+    so only the roots that are not ground stay unknown.  KCL summed over each
+    supernode gives ``Y V = J e``; Y is a grounded conductance matrix (every
+    supernode reaches ground through conductances, or the topology checks would
+    have named a cut set), so Gaussian elimination needs no pivot search.
+    Eliminating the supernode with the fewest neighbours first keeps the work and
+    the expressions small: on a ladder it is exactly the series/parallel reduction
+    done by hand.  Nothing is expanded while eliminating; the results are tidied
+    once, at the end (:func:`_tidy`).
+
+    Every voltage and current is an affine row over ``e``: a list of expressions.
+    """
+
+    def __init__(self, layout: _network.Layout, symbols: dict[str, sp.Symbol], excitations: int):
+        zero = sp.Integer(0)
+        self.zero = zero
+        self.width = excitations
+        self._branches = layout.voltage_branches
+        self.g = {name: 1 / symbols[name] for name, *_ in layout.conductances}
+
+        # Supernodes: root and offset (v(node) - v(root) as integer row over e) per node.
+        branches: dict[str, list[tuple[str, str, int | None, int]]] = defaultdict(list)
+        for label, p, n, source in layout.voltage_branches:
+            branches[p].append((label, n, source, +1))  # v(p) - v(n) = e[source]
+            branches[n].append((label, p, source, -1))
+        all_nodes = [_network.GROUND, *layout.nodes]
+        self.root: dict[str, str] = {}
+        self.offset: dict[str, list[int]] = {}
+        self.parent: dict[str, tuple[str, str]] = {}  # node -> (branch label, parent node)
+        order: list[str] = []
+        for start in all_nodes:
+            if start in self.root:
+                continue
+            self.root[start] = start
+            self.offset[start] = [0] * excitations
+            queue = [start]
+            while queue:
+                node = queue.pop()
+                order.append(node)
+                for label, other, source, sign in branches[node]:
+                    if other in self.root:
+                        continue
+                    self.root[other] = start
+                    offset = list(self.offset[node])
+                    if source is not None:
+                        offset[source] -= sign  # from p to n: v(n) = v(p) - e
+                    self.offset[other] = offset
+                    self.parent[other] = (label, node)
+                    queue.append(other)
+        self.order = order  # every parent before its children
+        roots = [n for n in all_nodes if self.root[n] == n and n != _network.GROUND]
+        self.unknown = {r: k for k, r in enumerate(roots)}
+        size = len(roots)
+
+        # Outflow of every node through conductances and current elements, as
+        # (sparse coefficients over V, coefficients over e).
+        self.outflow: dict[str, tuple[dict[int, sp.Expr], list]] = {
+            n: ({}, [zero] * excitations) for n in all_nodes}
+        for name, _key, a, b in layout.conductances:
+            across_v, across_e = self.difference(a, b)
+            self._add(a, across_v, across_e, self.g[name])
+            self._add(b, across_v, across_e, -self.g[name])
+        for _label, a, b, source in layout.current_injections:
+            self.outflow[a][1][source] += 1
+            self.outflow[b][1][source] -= 1
+
+        # KCL over each supernode: sum of outflows = 0, so Y V = J e with J = -(e part).
+        rows: list[dict[int, sp.Expr]] = [{} for _ in range(size)]
+        rhs: list[list] = [[zero] * excitations for _ in range(size)]
+        for node in all_nodes:
+            root = self.root[node]
+            if root == _network.GROUND:
+                continue
+            k = self.unknown[root]
+            out_v, out_e = self.outflow[node]
+            for j, c in out_v.items():
+                rows[k][j] = rows[k].get(j, zero) + c
+            for j, c in enumerate(out_e):
+                if c != 0:
+                    rhs[k][j] -= c
+        self.solution = self._eliminate(rows, rhs)
+
+    @staticmethod
+    def _eliminate(rows: list[dict[int, sp.Expr]], rhs: list[list]) -> list[list]:
+        remaining = set(range(len(rows)))
+        pivots = []
+        while remaining:
+            p = min(remaining, key=lambda k: (sum(1 for j in rows[k] if j in remaining), k))
+            remaining.discard(p)
+            pivots.append(p)
+            pivot = rows[p][p]
+            for i in remaining:
+                factor = rows[i].get(p)
+                if factor is None or factor == 0:
+                    continue
+                ratio = factor / pivot
+                for j, c in rows[p].items():
+                    if j in remaining:
+                        rows[i][j] = _compact(rows[i].get(j, sp.Integer(0)) - ratio * c)
+                rhs[i] = [_compact(r - ratio * q) if q != 0 else r for r, q in zip(rhs[i], rhs[p])]
+                del rows[i][p]
+        solution: list[list] = [None] * len(rows)  # type: ignore[list-item]
+        for p in reversed(pivots):
+            row = list(rhs[p])
+            for j, c in rows[p].items():
+                if j != p:
+                    row = [r - c * v for r, v in zip(row, solution[j])]
+            solution[p] = [_compact(r / rows[p][p]) for r in row]
+        return solution
+
+    def _add(self, node, across_v, across_e, g) -> None:
+        out_v, out_e = self.outflow[node]
+        for j, c in across_v.items():
+            out_v[j] = out_v.get(j, self.zero) + g * c
+        for j, c in enumerate(across_e):
+            if c:
+                out_e[j] += g * c
+
+    def difference(self, a: str, b: str) -> tuple[dict[int, int], list[int]]:
+        """``v(a) - v(b)`` as (coefficients over V, over e), small integers."""
+        across_v: dict[int, int] = {}
+        across_e = [0] * self.width
+        for node, sign in ((a, 1), (b, -1)):
+            root = self.root[node]
+            if root != _network.GROUND:
+                k = self.unknown[root]
+                across_v[k] = across_v.get(k, 0) + sign
+            for j, c in enumerate(self.offset[node]):
+                across_e[j] += sign * c
+        return {k: c for k, c in across_v.items() if c}, across_e
+
+    def row(self, affine) -> list:
+        """An affine quantity as a row over e (the unknowns substituted)."""
+        coefficient_v, coefficient_e = affine
+        row = [sp.sympify(c) for c in coefficient_e]
+        for k, c in coefficient_v.items():
+            if c != 0:
+                row = [r + c * v for r, v in zip(row, self.solution[k])]
+        return [_compact(r) for r in row]
+
+    def voltage(self, a: str, b: str = _network.GROUND) -> list:
+        return self.row(self.difference(a, b))
+
+    def conductance_current(self, name: str, a: str, b: str) -> list:
+        g = self.g[name]
+        return [g * c for c in self.voltage(a, b)]
+
+    def branch_current(self, label: str) -> list:
+        """Current through ideal voltage element `label`, from its first node to its second."""
+        child = next(node for node, (name, _parent) in self.parent.items() if name == label)
+        below = {child}
+        for node in self.order:
+            if node in self.parent and self.parent[node][1] in below:
+                below.add(node)
+        total_v: dict[int, sp.Expr] = {}
+        total_e = [self.zero] * self.width
+        for node in below:
+            out_v, out_e = self.outflow[node]
+            for j, c in out_v.items():
+                total_v[j] = total_v.get(j, self.zero) + c
+            total_e = [x + y for x, y in zip(total_e, out_e)]
+        row = self.row((total_v, total_e))
+        # The subtree's outflow arrives through the branch when the subtree hangs
+        # on the element's second node; it leaves through it when on the first.
+        first = next(p for name, p, _n, _s in self._branches if name == label)
+        return [-x for x in row] if child == first else row
 
 
-_CACHE: dict[tuple, Derivation] = {}
+#: Derivations by network structure (parts, nodes, probes, configuration), not by
+#: part values: a value sweep or a Bench edit reuses the symbolic work and only
+#: swaps the numbers.  Bounded so that a long session does not grow without limit.
+_CACHE: OrderedDict[tuple, Derivation] = OrderedDict()
+_CACHE_SIZE = 256
+
+#: Expressions up to this many operations are put in factored form for display
+#: (products of sums read like series/parallel combinations); larger ones stay
+#: as one cancelled fraction, because multivariate factoring grows fast.
+_FACTOR_LIMIT = 80
+
+
+def _tidy(expression: sp.Expr) -> sp.Expr:
+    """`expression` as one factored fraction when that is cheap, else as eliminated."""
+    size = 0
+    for _ in sp.preorder_traversal(expression):
+        size += 1
+        if size > _FACTOR_LIMIT:
+            return expression
+    return sp.factor(expression)
+
+
+#: Below this size an entry is put over one denominator while eliminating, so
+#: that a series pair reads 1/(r1 + r2) instead of 1/r1 - 1/(r1**2 (1/r1 + 1/r2)).
+_COMPACT_LIMIT = 40
+
+
+def _compact(expression: sp.Expr) -> sp.Expr:
+    size = 0
+    for _ in sp.preorder_traversal(expression):
+        size += 1
+        if size > _COMPACT_LIMIT:
+            return expression
+    return sp.cancel(expression)
+
+
+def _structure_key(fixture: "Fixture", layout: _network.Layout, states: tuple[bool, ...]) -> tuple:
+    parts = tuple((p.kind, p.name, p.a, p.b) for p in fixture.parts)
+    return (parts, tuple(fixture.probes), states, layout)
 
 
 def derive(fixture: "Fixture", states: tuple[bool, ...]) -> Derivation:
     """Derive the first-order response of `fixture` in one switch configuration.
+
+    Parameters
+    ----------
+    fixture : Fixture
+    states : tuple of bool
+        Closed (True) or open for each switch, in fixture order
+        (:meth:`Fixture.switch_states` makes it from keywords).
+
+    Returns
+    -------
+    Derivation
+        Cached by network structure: deriving again, or deriving a copy made by
+        :meth:`Fixture.with_values`, costs no sympy work.
 
     Examples
     --------
@@ -216,54 +460,74 @@ def derive(fixture: "Fixture", states: tuple[bool, ...]) -> Derivation:
     vin*(1 - exp(-t/(c*r)))
     """
     layout, _ = fixture.configuration(states)
-    parts = fixture.parts
-    key = (tuple(parts), tuple(fixture.probes), states)
-    cached = _CACHE.get(key)
-    if cached is not None:
-        return cached
     switch_state = dict(zip((p.name for p in fixture.switches), states))
+    key = _structure_key(fixture, layout, states)
+    cached = _CACHE.get(key)
+    if cached is None:
+        cached = _derive(fixture, layout, states, switch_state)
+        _CACHE[key] = cached
+        while len(_CACHE) > _CACHE_SIZE:
+            _CACHE.popitem(last=False)
+    else:
+        _CACHE.move_to_end(key)
+    values = {}
+    for part in fixture.parts:
+        if part.kind == "switch":
+            numeric = part.r_on if switch_state[part.name] else part.r_off
+            if 0 < numeric < float("inf"):
+                values[cached.symbols[part.name]] = numeric
+        elif not part.is_source:
+            values[cached.symbols[part.name]] = part.value
+    return replace(cached, values=values)
+
+
+def _derive(fixture: "Fixture", layout: _network.Layout, states: tuple[bool, ...],
+            switch_state: dict[str, bool]) -> Derivation:
+    parts = fixture.parts
     symbols = {p.name: _symbol_for(p, switch_state) for p in parts}
     t = sp.Symbol("t", nonnegative=True)
     storage = fixture.storage
-    initial = sp.Symbol(f"{'v' if storage.kind == 'capacitor' else 'i'}_0", real=True)
+    letter = "v" if storage.kind == "capacitor" else "i"
+    initial = sp.Symbol(f"{letter}_0", real=True)
     symbols["t"] = t
     symbols["initial"] = initial
     part_map = fixture.part_map
-
-    def conductance(name: str, key: str):
-        return 1 / symbols[name]
-
-    solution = _solve(layout, fixture, conductance)
-    levels = [symbols[p.name] for p in fixture.sources]
-    excitation = sp.Matrix([sp.Symbol("__x", real=True), *levels])
-
-    def node(name: str) -> sp.Matrix:
-        if name == _network.GROUND:
-            return sp.zeros(1, solution.shape[1])
-        return solution[layout.node_index[name], :]
+    sources = fixture.sources
+    levels = [symbols[p.name] for p in sources]
+    state_symbol = sp.Symbol(f"{letter}_{storage.name}", real=True)
+    excitation = [state_symbol, *levels]
+    nodal = _Nodal(layout, symbols, 1 + len(sources))
 
     if storage.kind == "capacitor":
-        flow = solution[layout.branch_row(storage.name), :]
+        flow = nodal.branch_current(storage.name)  # capacitor current, a -> b
     else:
-        flow = node(storage.a) - node(storage.b)
-    rate_state = sp.cancel(flow[0])
-    drive_term = sp.cancel(sum((flow[1 + j] * u for j, u in enumerate(levels)), sp.Integer(0)))
-    state_fn = sp.Function(f"{'v' if storage.kind == 'capacitor' else 'i'}_{storage.name}")(t)
+        flow = nodal.voltage(storage.a, storage.b)  # voltage across the inductor
+    state_fn = sp.Function(f"{letter}_{storage.name}")(t)
     value = symbols[storage.name]
-    if layout.holds or rate_state == 0:
+    # flow = flow[0] x + sum(flow[j] u_j).  The topology check decides holding: with
+    # any resistive path, flow[0] is a sum of positive terms and cannot vanish.
+    if layout.holds or flow[0] == 0:
         tau, final = sp.oo, initial
         resistance = sp.oo if storage.kind == "capacitor" else sp.Integer(0)
         equivalent = sp.nan
-        ode = sp.Eq(sp.Derivative(state_fn, t), sp.cancel(drive_term / value))
+        drive_term = sum((flow[j] * levels[j - 1] for j in range(1, len(flow))), sp.Integer(0))
+        ode = sp.Eq(sp.Derivative(state_fn, t), _tidy(drive_term / value), evaluate=False)
         zero_input, zero_state = initial, sp.Integer(0)
         natural, forced = sp.Integer(0), initial
     else:
-        resistance = sp.factor(-1 / rate_state if storage.kind == "capacitor" else -rate_state)
-        equivalent = sp.factor(-drive_term / rate_state)
-        tau = sp.factor(value * resistance if storage.kind == "capacitor" else value / resistance)
+        # Capacitor: i = (V_th - x) / R_th.  Inductor: v = R_N (I_N - x).
+        # Either way flow[0] = -1/R_th or -R_N, and the equivalent is -sum(flow[j] u_j) / flow[0].
+        if storage.kind == "capacitor":
+            resistance = _tidy(1 / (-flow[0]))  # -(a + b) distributes; -1/(a + b) would not
+            tau = _tidy(value * resistance)
+        else:
+            resistance = _tidy(-flow[0])
+            tau = _tidy(value / resistance)
+        equivalent = _tidy(sum((flow[j] / (-flow[0]) * levels[j - 1] for j in range(1, len(flow))),
+                               sp.Integer(0)))
         final = equivalent
         decay = sp.exp(-t / tau)
-        ode = sp.Eq(sp.Derivative(state_fn, t), (final - state_fn) / tau)
+        ode = sp.Eq(sp.Derivative(state_fn, t), (final - state_fn) / tau, evaluate=False)
         zero_input = initial * decay
         zero_state = final * (1 - decay)
         natural = (initial - final) * decay
@@ -271,33 +535,21 @@ def derive(fixture: "Fixture", states: tuple[bool, ...]) -> Derivation:
     probes = {}
     for probe in fixture.probes:
         if probe.node is not None:
-            row = node(probe.node) - node(probe.reference)
+            row = nodal.voltage(probe.node, probe.reference)
         else:
             part = part_map[probe.through]
+            row = [nodal.zero] * (1 + len(sources))
             if part.kind == "inductor":
-                row = sp.Matrix([[1] + [0] * len(levels)])
+                row[0] = sp.Integer(1)
             elif part.kind == "current_source":
-                row = sp.Matrix([[0] * solution.shape[1]])
-                row[1 + [p.name for p in fixture.sources].index(part.name)] = 1
+                row[1 + [p.name for p in sources].index(part.name)] = sp.Integer(1)
             elif any(name == part.name for name, *_ in layout.voltage_branches):
-                row = solution[layout.branch_row(part.name), :]
-            elif any(name == part.name for name, *_ in layout.conductances):
-                row = (node(part.a) - node(part.b)) * conductance(part.name, "")
-            else:
-                row = sp.zeros(1, solution.shape[1])
-        state_symbol = sp.Symbol(f"{'v' if storage.kind == 'capacitor' else 'i'}_{storage.name}", real=True)
-        probes[probe.name] = sp.factor(sp.cancel(sum(
-            (row[i] * (state_symbol if i == 0 else excitation[i]) for i in range(row.shape[1])),
-            sp.Integer(0))))
-    values = {}
-    for part in parts:
-        if part.kind == "switch":
-            numeric = part.r_on if switch_state[part.name] else part.r_off
-            if 0 < numeric < float("inf"):
-                values[symbols[part.name]] = numeric
-        elif not part.is_source:
-            values[symbols[part.name]] = part.value
-    result = Derivation(
+                row = nodal.branch_current(part.name)
+            elif part.name in nodal.g:
+                row = nodal.conductance_current(part.name, part.a, part.b)
+            # else: an open switch without leakage carries nothing.
+        probes[probe.name] = _tidy(sum((_tidy(c) * e for c, e in zip(row, excitation)), sp.Integer(0)))
+    return Derivation(
         kind=storage.kind,
         storage=storage.name,
         configuration=fixture.describe_states(states) or "no switches",
@@ -313,7 +565,4 @@ def derive(fixture: "Fixture", states: tuple[bool, ...]) -> Derivation:
         equivalent=equivalent,
         probes=probes,
         symbols=symbols,
-        values=values,
     )
-    _CACHE[key] = result
-    return result
