@@ -197,28 +197,40 @@ def plan(fixture: "Fixture", states: tuple[bool, ...], where: str) -> Layout:
         solid.union(a, b)
     for node in fixture.nodes:
         solid.find(node)
-    for name, a, b, index in injections:
+    for _, a, b, _ in injections:
         if solid.find(a) != solid.find(b):
             crossing = sorted(
                 n for n, p, q, _ in injections if {solid.find(p), solid.find(q)} == {solid.find(a), solid.find(b)}
             )
-            if index == 0:
+            if storage.kind == "inductor" and storage.name in crossing:
+                # The coil's current is cut (nothing else joins its ends) or forced by
+                # current sources in series with it: either way it would jump in zero time.
+                sources = [n for n in crossing if n != storage.name]
+                if sources:
+                    level = "source's level" if len(sources) == 1 else "sources' levels"
+                    verb = "is" if len(sources) == 1 else "are"
+                    cause = (
+                        f"only {_and_list(sources)} {verb} in series with it, so its current "
+                        f"would be forced to the {level} in zero time"
+                    )
+                else:
+                    cause = "the current would have to stop in zero time"
                 raise ZeroTimeError(
-                    f"{where}: the current of inductor '{name}' has no path: "
-                    f"{_and_list(crossing)} alone join nodes '{a}' and '{b}', so "
-                    f"the current would have to stop in zero time. In a real coil this "
-                    f"is the voltage spike of an interrupted inductor, large enough to "
+                    f"{where}: the current of inductor '{storage.name}' has no path through a "
+                    f"resistance or a voltage element between nodes '{a}' and '{b}': {cause}. "
+                    f"In a real coil this is the voltage spike of an interrupted inductor, large enough to "
                     f"arc across the switch and destroy parts. Add a flyback path "
                     f"(a diode or a resistor across the coil, for example 1 kΩ) or a "
                     f"switch off-resistance. CAUTION: energy stored in a coil is "
                     f"released as a high voltage when its current is interrupted; follow "
                     f"local codes and licensed practice."
                 )
+            which = f"current source {_and_list(crossing)} is" if len(crossing) == 1 else \
+                f"current sources {_and_list(crossing)} form"
             raise TopologyError(
-                f"{where}: current sources {_and_list(crossing)} form a cut set "
-                f"(nothing but current sources joins the nodes around '{a}' and "
-                f"'{b}'), so their currents cannot all flow. Add a resistance across "
-                f"one of them."
+                f"{where}: {which} a cut set (nothing but current sources joins the "
+                f"nodes around '{a}' and '{b}'), so the current cannot flow. Add a resistance "
+                f"across {'it' if len(crossing) == 1 else 'one of them'}."
             )
 
     # 3. Islands that do not reach ground float: pin one node of each at 0 V.
