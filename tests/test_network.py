@@ -1,0 +1,346 @@
+"""Tests for firstorder._network: topology checks and the reduction of each switch configuration.
+
+Every number is checked against a formula written here by hand (handbook series/parallel,
+voltage divider and bridge formulas; Ohm's and Kirchhoff's laws), never against the
+reduction itself.
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+import firstorder as fo
+from firstorder import _network
+from firstorder.errors import InputError, TopologyError, ZeroTimeError
+
+
+def parallel(*resistances):
+    """Handbook: resistors in parallel, 1 / sum(1 / R)."""
+    return 1.0 / sum(1.0 / r for r in resistances)
+
+
+def reduced(fixture, **states):
+    """The numeric reduction of one configuration."""
+    return fixture.configuration(fixture.switch_states(**states))
+
+
+# ------------------------------------------------------------------------------------------
+class TestReduceNumeric:
+    """Thevenin / Norton equivalents seen by the storage element, against handbook formulas."""
+
+    R1, R2, R_METER, R_SERIES, C = 4.7e3, 10e3, 1e6, 220.0, 47e-9
+
+    def loaded_divider(self):
+        # An invented scenario: a 4.7k/10k divider read by a 1 MΩ meter through 220 Ω into 47 nF.
+        fx = fo.Fixture()
+        fx.voltage_source("vin", "top", "gnd")
+        fx.resistor("r1", "top", "mid", self.R1)
+        fx.resistor("r2", "mid", "gnd", self.R2)
+        fx.resistor("rm", "mid", "gnd", self.R_METER)
+        fx.resistor("rs", "mid", "out", self.R_SERIES)
+        fx.capacitor("c", "out", "gnd", self.C)
+        return fx
+
+    def test_loaded_divider_thevenin(self):
+        fx = self.loaded_divider()
+        _, red = fx.configuration(())
+        # Handbook: R_th = R_series + R1 || R2 || R_meter; V_th = V * (R2 || Rm) / (R1 + R2 || Rm).
+        r_th = self.R_SERIES + parallel(self.R1, self.R2, self.R_METER)
+        lower = parallel(self.R2, self.R_METER)
+        assert red.resistance == pytest.approx(r_th, rel=1e-12)
+        assert red.gain[0] == pytest.approx(lower / (self.R1 + lower), rel=1e-12)
+        assert red.tau == pytest.approx(r_th * self.C, rel=1e-12)
+
+    def test_loaded_divider_from_the_response(self):
+        fx = self.loaded_divider()
+        res = fx.respond(fo.Drive([0], end=1.0, vin=[3.3]))
+        lower = parallel(self.R2, self.R_METER)
+        # Handbook divider: final value V * (R2 || Rm) / (R1 + R2 || Rm); tau = R_th * C.
+        assert res.final[0] == pytest.approx(3.3 * lower / (self.R1 + lower), rel=1e-12)
+        r_th = self.R_SERIES + parallel(self.R1, self.R2, self.R_METER)
+        assert res.tau[0] / self.C == pytest.approx(r_th, rel=1e-12)
+
+    def wheatstone(self, r1, r2, r3, r4, c):
+        fx = fo.Fixture()
+        fx.voltage_source("vex", "exc", "gnd")
+        fx.resistor("r1", "exc", "a", r1)
+        fx.resistor("r2", "a", "gnd", r2)
+        fx.resistor("r3", "exc", "b", r3)
+        fx.resistor("r4", "b", "gnd", r4)
+        fx.capacitor("cf", "a", "b", c)  # a filter capacitor across the bridge output
+        return fx
+
+    @pytest.mark.parametrize("r1, r2, r3, r4", [
+        (350.0, 350.0, 350.0, 351.2),      # a strain-gauge bridge slightly off balance (invented)
+        (1e3, 2.2e3, 4.7e3, 10e3),
+        (120.0, 120.0, 120.0, 120.0),      # balanced: zero output
+    ])
+    def test_wheatstone_bridge(self, r1, r2, r3, r4):
+        c = 1e-6
+        fx = self.wheatstone(r1, r2, r3, r4, c)
+        _, red = fx.configuration(())
+        # Handbook bridge formulas: R_th = R1 || R2 + R3 || R4,
+        # V_th = V_ex * (R2 / (R1 + R2) - R4 / (R3 + R4)).
+        r_th = parallel(r1, r2) + parallel(r3, r4)
+        v_th_per_volt = r2 / (r1 + r2) - r4 / (r3 + r4)
+        assert red.resistance == pytest.approx(r_th, rel=1e-12)
+        assert red.gain[0] == pytest.approx(v_th_per_volt, rel=1e-9, abs=1e-15)
+        res = fx.respond(fo.Drive([0], end=1.0, vex=[5.0]))
+        assert res.tau[0] / c == pytest.approx(r_th, rel=1e-12)
+        assert res.boundary[-1] == pytest.approx(5.0 * v_th_per_volt, rel=1e-9, abs=1e-12)
+
+    def test_norton_resistance_of_a_coil(self):
+        # A coil (10 mH) fed from 24 V through 33 Ω, with 470 Ω across it (invented).
+        fx = fo.Fixture()
+        fx.voltage_source("vs", "s", "gnd")
+        fx.resistor("rsrc", "s", "a", 33.0)
+        fx.resistor("rp", "a", "gnd", 470.0)
+        fx.inductor("l", "a", "gnd", 10e-3)
+        _, red = fx.configuration(())
+        # Handbook: Norton resistance R = Rsrc || Rp; Norton current (the coil shorts a) V / Rsrc.
+        assert red.resistance == pytest.approx(parallel(33.0, 470.0), rel=1e-12)
+        assert red.gain[0] == pytest.approx(1.0 / 33.0, rel=1e-12)
+        assert red.tau == pytest.approx(10e-3 / parallel(33.0, 470.0), rel=1e-12)
+
+    def test_switch_resistances(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vdac", "d", "gnd")
+        fx.resistor("rs", "d", "a", 1e3)
+        fx.switch("k1", "a", "b", r_on=25.0, r_off=1e9)
+        fx.capacitor("ch", "b", "gnd", 1e-9)
+        # Series resistances add (handbook): closed R + r_on, open R + r_off.
+        assert reduced(fx, k1=True)[1].tau == pytest.approx((1e3 + 25.0) * 1e-9, rel=1e-12)
+        assert reduced(fx, k1=False)[1].tau == pytest.approx((1e3 + 1e9) * 1e-9, rel=1e-12)
+
+    def test_open_switch_without_leakage_holds(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vdac", "d", "gnd")
+        fx.resistor("rs", "d", "a", 1e3)
+        fx.switch("k1", "a", "b")
+        fx.capacitor("ch", "b", "gnd", 1e-9)
+        layout, red = reduced(fx, k1=False)
+        assert layout.holds
+        assert red.tau == math.inf
+        assert np.all(red.gain == 0.0)
+
+    def test_coil_shorted_by_a_closed_switch_holds(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vs", "s", "gnd")
+        fx.resistor("r", "s", "a", 10.0)
+        fx.inductor("l", "a", "gnd", 1e-3)
+        fx.switch("kshort", "a", "gnd")
+        layout, red = reduced(fx, kshort=True)
+        # An ideal short keeps an ideal coil's current (L / 0: no decay).
+        assert layout.holds and red.tau == math.inf
+
+
+# ------------------------------------------------------------------------------------------
+class TestPlan:
+    """Topology checks of one configuration: errors name the parts, nodes and segment."""
+
+    def test_loop_of_voltage_sources(self):
+        fx = fo.Fixture()
+        fx.voltage_source("v1", "a", "gnd")
+        fx.voltage_source("v2", "a", "gnd")
+        fx.resistor("r", "a", "b", 1e3)
+        fx.capacitor("c", "b", "gnd", 1e-6)
+        with pytest.raises(TopologyError, match="'v1' and 'v2' form a loop of ideal voltage elements"):
+            fx.configuration(())
+
+    def test_loop_closed_by_a_switch_in_one_configuration_only(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vhi", "a", "gnd")
+        fx.voltage_source("vlo", "b", "gnd")
+        fx.switch("ksel", "a", "b")          # ideal: zero ohms when closed
+        fx.resistor("r", "b", "c", 1e3)
+        fx.capacitor("ch", "c", "gnd", 1e-6)
+        drive = fo.Drive([0, 1e-3, 2e-3], end=3e-3, vhi=[5, 5, 5], vlo=[1, 1, 1], ksel=[0, 0, 1])
+        with pytest.raises(TopologyError) as caught:
+            fx.respond(drive)
+        message = str(caught.value)
+        assert not isinstance(caught.value, ZeroTimeError)
+        assert "segment 2" in message and "ksel closed" in message
+        assert "'ksel', 'vhi' and 'vlo'" in message
+        assert "r_on" in message  # suggests the remedy
+        # The open configuration is fine on its own.
+        assert fx.time_constant(ksel=False) == pytest.approx(1e-3, rel=1e-12)
+
+    def test_cut_set_of_current_sources(self):
+        fx = fo.Fixture()
+        fx.current_source("i1", "gnd", "a")
+        fx.current_source("i2", "a", "b")
+        fx.resistor("r", "b", "gnd", 1e3)
+        fx.capacitor("c", "b", "gnd", 1e-6)
+        with pytest.raises(TopologyError, match="current sources 'i1' and 'i2' form a cut set") as caught:
+            fx.configuration(())
+        assert "'a'" in str(caught.value)
+
+    def test_current_source_cut_by_an_open_switch(self):
+        fx = fo.Fixture()
+        fx.current_source("ibias", "gnd", "a")
+        fx.switch("k", "a", "b")
+        fx.resistor("r", "b", "gnd", 1e3)
+        fx.capacitor("c", "b", "gnd", 1e-6)
+        drive = fo.Drive([0, 1e-3], end=2e-3, ibias=[1e-3, 1e-3], k=[1, 0])
+        with pytest.raises(TopologyError, match=r"segment 1 .*k open.*current source 'ibias' is a cut set"):
+            fx.respond(drive)
+
+    def test_capacitor_across_an_ideal_voltage_loop(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vref", "a", "gnd")
+        fx.switch("kcharge", "a", "b")
+        fx.capacitor("cs", "b", "gnd", 1e-9)
+        fx.resistor("rbleed", "b", "gnd", 1e6)
+        drive = fo.Drive([0, 1e-3], end=2e-3, vref=[2.5, 2.5], kcharge=[0, 1])
+        with pytest.raises(ZeroTimeError) as caught:
+            fx.respond(drive)
+        message = str(caught.value)
+        assert "segment 1" in message and "kcharge closed" in message
+        assert "'cs', 'kcharge' and 'vref'" in message
+        assert "resistance" in message  # suggests a realistic resistance
+
+    def test_inductor_cut_names_the_parts_and_cautions(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vsup", "sup", "gnd")
+        fx.inductor("coil", "sup", "mid", 0.1)
+        fx.resistor("rcoil", "mid", "drain", 200.0)
+        fx.switch("kdrv", "drain", "gnd")
+        drive = fo.Drive([0, 5e-3], end=10e-3, vsup=[24, 24], kdrv=[1, 0])
+        with pytest.raises(ZeroTimeError) as caught:
+            fx.respond(drive)
+        message = str(caught.value)
+        assert "segment 1" in message and "kdrv open" in message
+        assert "inductor 'coil'" in message
+        assert "flyback" in message
+        assert "local codes and licensed practice" in message
+
+    def test_inductor_in_series_with_a_current_source(self):
+        # Found while writing these tests: this was reported as a "cut set of current
+        # sources" that listed the inductor among them, as a plain TopologyError.  The coil's
+        # current would be forced to the source's level in zero time: a zero-time configuration.
+        fx = fo.Fixture()
+        fx.current_source("itest", "gnd", "a")
+        fx.inductor("l", "a", "gnd", 1e-3)
+        fx.voltage_source("vaux", "x", "gnd")
+        fx.resistor("raux", "x", "gnd", 1e3)
+        with pytest.raises(ZeroTimeError) as caught:
+            fx.configuration(())
+        message = str(caught.value)
+        assert "inductor 'l'" in message and "'itest'" in message
+        assert "current sources 'itest' and 'l'" not in message
+        assert "local codes and licensed practice" in message
+
+    def test_island_pins_carry_no_current(self):
+        # A capacitor whose charging switch is open floats with its series resistor; the
+        # node between them must read the capacitor voltage (no current flows in the resistor).
+        fx = fo.Fixture()
+        fx.voltage_source("v", "x", "gnd")
+        fx.resistor("r", "x", "a", 1e3)
+        fx.switch("k", "a", "b")
+        fx.capacitor("c", "b", "m", 1e-6)
+        fx.resistor("rm", "m", "gnd", 1e3)
+        fx.probe("v_b", node="b")
+        res = fx.respond(fo.Drive([0, 1e-3], end=2e-3, v=[1.0, 1.0], k=[1, 0]))
+        after, before_end = res.probe_boundary("v_b")
+        # Ohm's law: with k open nothing flows through rm, so v(b) = v(m) + x = x.
+        assert after[1] == pytest.approx(res.boundary[1], rel=1e-12)
+        # With k closed at t=0: x = 0, divider 1k/1k gives v(b) = 0.5 V.
+        assert after[0] == pytest.approx(0.5, rel=1e-12)
+
+
+# ------------------------------------------------------------------------------------------
+class TestProbeRow:
+    """Every kind of probe against its own hand formula (Ohm's law, KCL) in one network."""
+
+    V, I, RS, RON, RLOAD, C = 2.0, 1e-4, 1e3, 100.0, 10e3, 1e-6
+
+    @pytest.fixture
+    def fixture(self):
+        # An invented hold stage: a source behind rs, a switch with r_on, the hold capacitor
+        # with a load resistor, and a bias current injected into the hold node.
+        fx = fo.Fixture()
+        fx.voltage_source("vs", "drv", "gnd")
+        fx.resistor("rs", "drv", "a", self.RS)
+        fx.switch("k1", "a", "b", r_on=self.RON)
+        fx.capacitor("ch", "b", "gnd", self.C)
+        fx.resistor("rload", "b", "gnd", self.RLOAD)
+        fx.current_source("ib", "gnd", "b")
+        fx.probe("v_b", node="b")
+        fx.probe("v_ab", node="a", reference="b")
+        fx.probe("i_rs", through="rs")
+        fx.probe("i_k1", through="k1")
+        fx.probe("i_vs", through="vs")
+        fx.probe("i_ch", through="ch")
+        fx.probe("i_ib", through="ib")
+        fx.probe("i_load", through="rload")
+        return fx
+
+    def hand(self, v, closed):
+        """The probes from Ohm's law and KCL, with v the capacitor voltage."""
+        series = (self.V - v) / (self.RS + self.RON) if closed else 0.0  # drv -> rs -> k1 -> b
+        v_a = v + series * self.RON if closed else self.V  # open: no current in rs
+        return {
+            "v_b": v,
+            "v_ab": v_a - v,
+            "i_rs": series,
+            "i_k1": series,
+            "i_vs": -series,                               # counted from p through the source to n
+            "i_ch": series + self.I - v / self.RLOAD,      # KCL at b
+            "i_ib": self.I,
+            "i_load": v / self.RLOAD,
+        }
+
+    @pytest.mark.parametrize("closed", [True, False])
+    def test_each_probe(self, fixture, closed):
+        drive = fo.Drive([0, 1e-3], end=4e-3, vs=[self.V] * 2, ib=[self.I] * 2, k1=[1, int(closed)])
+        res = fixture.respond(drive, initial=0.3)
+        t = np.array([1e-3, 1.2e-3, 2.5e-3, 4e-3])
+        v = res.total(t)
+        expected = self.hand(v, closed)
+        for name, value in expected.items():
+            np.testing.assert_allclose(res.probe(name, t), value, rtol=1e-10, atol=1e-15, err_msg=name)
+
+    def test_rows_are_affine_in_state_and_levels(self, fixture):
+        layout, red = reduced(fixture, k1=True)
+        probes = {p.name: p for p in fixture.probes}
+        row = _network.probe_row(layout, fixture, red, probes["i_ch"])
+        # KCL at b: i_ch = (vs - x) / (RS + RON) + ib - x / RLOAD; sources in fixture order (vs, ib).
+        g = 1.0 / (self.RS + self.RON)
+        np.testing.assert_allclose(row, [-g - 1.0 / self.RLOAD, g, 1.0], rtol=1e-12)
+
+    def test_inductor_probes(self):
+        # An invented coil driver: 12 V behind 47 Ω, coil 22 mH with 150 Ω across it.
+        fx = fo.Fixture()
+        fx.voltage_source("vs", "s", "gnd")
+        fx.resistor("rsrc", "s", "a", 47.0)
+        fx.inductor("l", "a", "gnd", 22e-3)
+        fx.resistor("rp", "a", "gnd", 150.0)
+        fx.probe("i_l", through="l")
+        fx.probe("v_l", node="a")
+        fx.probe("i_rp", through="rp")
+        res = fx.respond(fo.Drive([0], end=2e-3, vs=[12.0]), initial=0.05)
+        t = np.linspace(0, 2e-3, 7)
+        i = res.total(t)
+        # KCL at a: (12 - v)/47 = i + v/150  ->  v = (12/47 - i) / (1/47 + 1/150).
+        v = (12.0 / 47.0 - i) / (1 / 47.0 + 1 / 150.0)
+        np.testing.assert_allclose(res.probe("i_l", t), i, rtol=1e-12)
+        np.testing.assert_allclose(res.probe("v_l", t), v, rtol=1e-10)
+        np.testing.assert_allclose(res.probe("i_rp", t), v / 150.0, rtol=1e-10)
+
+
+# ------------------------------------------------------------------------------------------
+class TestStamp:
+    def test_sizes_follow_the_layout(self):
+        fx = fo.Fixture.rc(r=1e3, c=1e-6)
+        layout, _ = fx.configuration(())
+        A, B = _network.stamp(layout, lambda name, key: 1.0, 0.0, 1.0, 2)
+        assert len(A) == layout.size == len(layout.nodes) + len(layout.voltage_branches)
+        assert len(B) == layout.size and len(B[0]) == 2
+
+
+def test_errors_are_value_errors():
+    # DESIGN.md: every error a user can trigger is a ValueError subclass.
+    assert issubclass(ZeroTimeError, TopologyError)
+    assert issubclass(TopologyError, InputError)
+    assert issubclass(InputError, ValueError)
