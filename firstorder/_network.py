@@ -326,6 +326,10 @@ class Reduced:
     resistance: float  # Thevenin (capacitor) or Norton (inductor) resistance seen
 
 
+#: Relative size below which a difference of two MNA coefficients is rounding, not a value.
+_CANCELLED = 8 * np.finfo(float).eps
+
+
 def reduce_numeric(layout: Layout, fixture: "Fixture") -> Reduced:
     """Solve one configuration's MNA system with numpy."""
     parts = fixture.part_map
@@ -345,7 +349,12 @@ def reduce_numeric(layout: Layout, fixture: "Fixture") -> Reduced:
         flow = solution[layout.branch_row(storage.name)]
     else:
         # Voltage across the inductor, v(a) - v(b).
-        flow = _node_row(solution, layout, storage.a) - _node_row(solution, layout, storage.b)
+        high, low = _node_row(solution, layout, storage.a), _node_row(solution, layout, storage.b)
+        flow = high - low
+        # A coefficient that cancels to within rounding of its two terms is zero (a supply
+        # that cannot drive the coil once its switch opens): left at 1e-16 it would give a
+        # final current of attoamps where there is none.
+        flow[np.abs(flow) <= _CANCELLED * np.maximum(np.abs(high), np.abs(low))] = 0.0
     rate_state, rate_sources = float(flow[0]), flow[1:]
     if layout.holds or rate_state == 0.0:
         return Reduced(

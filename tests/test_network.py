@@ -344,3 +344,23 @@ def test_errors_are_value_errors():
     assert issubclass(ZeroTimeError, TopologyError)
     assert issubclass(TopologyError, InputError)
     assert issubclass(InputError, ValueError)
+
+
+class TestCancellation:
+    def test_supply_cut_off_from_the_coil_has_exactly_zero_gain(self):
+        # Found while writing the relay notebook: with the driver open the supply cannot drive
+        # the coil (v(sup) - v(mid) does not depend on it), yet the reduced gain came out at
+        # about 1e-20 A/V from rounding, and the response ended at -2 aA instead of decaying to 0.
+        fx = fo.Fixture()
+        fx.voltage_source("vsup", "sup", "gnd")
+        fx.inductor("coil", "sup", "mid", 0.2)
+        fx.resistor("rcoil", "mid", "drain", 400.0)
+        fx.switch("kdrv", "drain", "gnd")
+        fx.resistor("rfb", "sup", "drain", 2.2e3)
+        _, red = reduced(fx, kdrv=False)
+        assert red.gain[0] == 0.0
+        # KVL round the loop coil-rcoil-rfb: tau = L / (400 + 2200).
+        assert red.tau == pytest.approx(0.2 / 2600.0, rel=1e-12)
+        res = fx.respond(fo.Drive([0, 20e-3], end=40e-3, vsup=[24.0, 24.0], kdrv=[1, 0]))
+        assert res.final[1] == 0.0
+        assert 0.0 <= res.boundary[-1] < 1e-100  # 60 mA after 260 time constants
