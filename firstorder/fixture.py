@@ -229,6 +229,12 @@ class Fixture:
             raise InputError(f"probe '{name}': give exactly one of node= or through=")
         if through is not None and through not in self.part_map:
             raise InputError(f"probe '{name}': through={through!r} names no part; parts are {list(self.part_map)}")
+        if through is not None and reference != GROUND:
+            # A current has no reference node; ignoring one would hide a mistyped voltage probe.
+            raise InputError(
+                f"probe '{name}': reference={reference!r} applies to a node voltage; a current "
+                f"through '{through}' takes no reference"
+            )
         self._probes.append(Probe(name, node=node, reference=reference, through=through))
         return self
 

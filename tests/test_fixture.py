@@ -490,3 +490,12 @@ class TestDisplay:
         assert fx.part_map["rs"].value == 1e3 and other.part_map["rs"].value == 2e3
         assert other.part_map["k1"].r_on == 10.0 and other.part_map["k1"].r_off == 1e9
         assert [p.name for p in other.probes] == ["v_a"]
+
+
+class TestProbeArguments:
+    def test_current_probe_takes_no_reference(self):
+        # Found while writing these tests: the reference of a current probe was silently ignored.
+        fx = fo.Fixture.rc(r=1e3, c=1e-9)
+        with pytest.raises(InputError, match="probe 'i_r': reference='out'"):
+            fx.probe("i_r", through="r", reference="out")
+        assert fx.probes == ()
