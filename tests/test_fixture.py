@@ -151,7 +151,56 @@ class SampleWithDischarge:
     probe_name, scale, initial = "i_dump", 1.0, -0.4
 
 
-NETWORKS = [HoldWithBias(), CoilWithTestCurrent(), SampleWithDischarge()]
+class BridgeWithShuntCalibration:
+    """A strain-gauge bridge (invented values) with switched excitation, a shunt-calibration
+    resistor switched across one arm, a filter capacitor across the output, and a test current
+    injected into one output node.  Four nodal unknowns: solved here as a small linear system."""
+
+    RON, R1, R2, R3, R4, RSHUNT, C = 2.0, 350.0, 350.0, 350.0, 350.7, 100e3, 220e-9
+
+    def fixture(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vex", "s", "gnd")
+        fx.switch("kexc", "s", "exc", r_on=self.RON)
+        fx.resistor("r1", "exc", "a", self.R1)
+        fx.resistor("r2", "a", "gnd", self.R2)
+        fx.resistor("r3", "exc", "b", self.R3)
+        fx.resistor("r4", "b", "gnd", self.R4)
+        fx.switch("kcal", "a", "sh")
+        fx.resistor("rshunt", "sh", "gnd", self.RSHUNT)
+        fx.capacitor("cf", "a", "b", self.C)
+        fx.current_source("ical", "gnd", "b")
+        fx.probe("v_b", node="b")
+        return fx
+
+    def drive(self):
+        return fo.Drive([0, 0.1e-3, 0.4e-3, 0.6e-3, 0.8e-3], end=1.2e-3,
+                        vex=[5.0, 5.0, 5.0, 10.0, 10.0], ical=[0.0, 0.0, 1e-5, 1e-5, -2e-5],
+                        kexc=[1, 1, 1, 1, 0], kcal=[0, 1, 0, 1, 1])
+
+    def nodes(self, x, u):
+        """[v_exc, v_a, v_b, i_c] from KCL at exc, a, b and the capacitor's voltage x = v_a - v_b."""
+        g_on = u["kexc"] / self.RON
+        g_cal = u["kcal"] / self.RSHUNT
+        matrix = np.array([
+            [-g_on - 1 / self.R1 - 1 / self.R3, 1 / self.R1, 1 / self.R3, 0.0],     # node exc
+            [1 / self.R1, -1 / self.R1 - 1 / self.R2 - g_cal, 0.0, -1.0],           # node a
+            [1 / self.R3, 0.0, -1 / self.R3 - 1 / self.R4, 1.0],                    # node b
+            [0.0, 1.0, -1.0, 0.0],                                                  # the capacitor
+        ])
+        rhs = np.array([-g_on * u["vex"], 0.0, -u["ical"], x])
+        return np.linalg.solve(matrix, rhs)
+
+    def rhs(self, x, u):
+        return self.nodes(x, u)[3] / self.C
+
+    def probe(self, x, u):
+        return self.nodes(x, u)[2]
+
+    probe_name, scale, initial = "v_b", 1e-3, 0.002
+
+
+NETWORKS = [HoldWithBias(), CoilWithTestCurrent(), SampleWithDischarge(), BridgeWithShuntCalibration()]
 
 
 class TestRespondAgainstSolveIvp:
