@@ -548,3 +548,49 @@ class TestProbeArguments:
         with pytest.raises(InputError, match="probe 'i_r': reference='out'"):
             fx.probe("i_r", through="r", reference="out")
         assert fx.probes == ()
+
+
+class TestRampWithoutResistance:
+    def test_coil_across_an_ideal_source(self):
+        # Faraday's law, v = L di/dt: a coil held at a fixed voltage ramps without limit, and a
+        # resistor across it changes nothing.  Found while writing these tests: the advice was
+        # "add a resistance across the inductor", which does not help; it must be in series.
+        fx = fo.Fixture()
+        fx.voltage_source("vs", "a", "gnd")
+        fx.inductor("lcoil", "a", "gnd", 1e-3)
+        fx.resistor("racross", "a", "gnd", 1e3)
+        with pytest.raises(TopologyError, match=r"segment 0.*inductor 'lcoil'.*\['vs'\]") as caught:
+            fx.respond(fo.Drive([0], end=1e-3, vs=[1.0]))
+        assert "in series with the inductor" in str(caught.value)
+        assert "across the inductor" not in str(caught.value)
+
+    def test_at_zero_volts_the_coil_holds(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vs", "a", "gnd")
+        fx.inductor("lcoil", "a", "gnd", 1e-3)
+        fx.resistor("racross", "a", "gnd", 1e3)
+        res = fx.respond(fo.Drive([0], end=1e-3, vs=[0.0]), initial=0.25)
+        assert np.isinf(res.tau[0]) and res.boundary[-1] == 0.25
+
+
+class TestContributionsWithHolds:
+    def test_two_sources_in_series_through_a_track_and_hold(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vin", "x", "gnd")
+        fx.voltage_source("voff", "src", "x")   # an offset in series with the input
+        fx.resistor("rs", "src", "a", 1e3)
+        fx.switch("k", "a", "b")
+        fx.capacitor("ch", "b", "gnd", 1e-9)
+        fx.probe("v_a", node="a")
+        fx.probe("i_k", through="k")
+        res = fx.respond(fo.Drive([0, 2e-6, 5e-6], end=9e-6, vin=[1, 2, 3], voff=[0.1, -0.2, 0.3], k=[1, 0, 1]),
+                         initial=0.5)
+        grid = np.linspace(0, 9e-6, 37)
+        # DESIGN.md semantics (linearity): contributions add up to zero_state, also while holding.
+        np.testing.assert_allclose(res.contribution("vin", grid) + res.contribution("voff", grid),
+                                   res.zero_state(grid), rtol=1e-12, atol=1e-15)
+        for probe in ("v_a", "i_k"):
+            parts = res.probe(probe, grid, component="vin") + res.probe(probe, grid, component="voff")
+            np.testing.assert_allclose(parts, res.probe(probe, grid, component="zero_state"), rtol=1e-12, atol=1e-15)
+        # Superposition by hand: with k open the source sees no load, so v(a) = vin + voff.
+        np.testing.assert_allclose(res.probe("v_a", [3e-6, 4.9e-6]), [1.8, 1.8], rtol=1e-12)
