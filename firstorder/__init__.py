@@ -18,6 +18,7 @@ from .units import format_value, parse_value
 
 __all__ = [
     "Analysis",
+    "Bench",
     "Caution",
     "Drive",
     "Fixture",
@@ -38,3 +39,12 @@ __all__ = [
 ]
 
 __version__ = "0.1.0"
+
+
+def __getattr__(name: str):
+    # The Bench needs ipywidgets and bokeh; load them only when it is asked for.
+    if name == "Bench":
+        from .widgets import Bench
+
+        return Bench
+    raise AttributeError(f"module 'firstorder' has no attribute {name!r}")

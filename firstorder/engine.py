@@ -23,6 +23,8 @@ import math
 
 import numpy as np
 
+from . import _kernels
+
 __all__ = ["decay_factors", "affine_scan", "SegmentLocator", "evaluate"]
 
 #: Below this many maps a plain loop is quicker than the blocked scan.
@@ -68,6 +70,16 @@ def affine_scan(a: np.ndarray, b: np.ndarray, x0: float) -> np.ndarray:
             out[k + 1] = x
         return out
     width = math.isqrt(n - 1) + 1
+    kernels = _kernels.available(n)
+    if kernels is not None:
+        # The same blocks and the same operations, compiled (see firstorder._kernels).
+        a = np.ascontiguousarray(a, dtype=np.float64)
+        b = np.ascontiguousarray(b, dtype=np.float64)
+        block_gain, block_shift = kernels.block_totals(a, b, width)
+        block_starts = affine_scan(block_gain, block_shift, x0)
+        out = np.empty(n + 1)
+        kernels.block_states(a, b, width, block_starts, out)
+        return out
     blocks = -(-n // width)
     full = n // width
     # Element k goes to row k % width, column k // width: row j then holds element j
@@ -96,6 +108,14 @@ def affine_scan(a: np.ndarray, b: np.ndarray, x0: float) -> np.ndarray:
     return out[: n + 1]
 
 
+def _exp(exponent: np.ndarray) -> np.ndarray:
+    """``exp`` in place.  Inside the drive every exponent is <= 0; a time before the
+    first change overflows here, harmlessly, and is refused by the caller's range
+    check, which needs the locator's finding of whether the grid is sorted."""
+    with np.errstate(over="ignore"):
+        return np.exp(exponent, out=exponent)
+
+
 class SegmentLocator:
     """Where each time falls among the segments, and the decay since that segment began.
 
@@ -111,41 +131,80 @@ class SegmentLocator:
     rate : ndarray, shape (n,)
         ``1 / tau`` per segment (zero where the state is held).
     is_sorted : bool, optional
-        Whether `t` is non-decreasing, when the caller knows already.
+        Whether `t` is non-decreasing, when the caller knows already; found out
+        otherwise and kept in the attribute of the same name.
     """
 
-    __slots__ = ("_counts", "_index", "decay", "size")
+    __slots__ = ("_bounds", "_counts", "_index", "_kernels", "_starts", "_t", "decay", "is_sorted", "size")
 
     def __init__(self, t: np.ndarray, starts: np.ndarray, rate: np.ndarray,
                  is_sorted: bool | None = None) -> None:
         self.size = t.size
+        self._kernels = None
+        self._counts = None
+        self._index = None
+        self._bounds = None
+        self._t = t
+        self._starts = starts
+        if is_sorted is not False and t.size > 1 and t.dtype == np.float64:
+            kernels = _kernels.available(t.size)
+            if kernels is not None:
+                self._t = np.ascontiguousarray(t)
+                self._starts = np.ascontiguousarray(starts, dtype=np.float64)
+                bounds, in_order = kernels.segment_bounds(self._t, self._starts)
+                if in_order:
+                    # Compiled walk over the sorted grid (the same operations as below).
+                    self.is_sorted = True
+                    self._kernels = kernels
+                    self._bounds = bounds
+                    elapsed = np.empty(t.size)
+                    kernels.sorted_exponent(self._t, self._starts, np.ascontiguousarray(rate), bounds, elapsed)
+                    self.decay = _exp(elapsed)
+                    return
+                is_sorted = False
         if is_sorted is None:
-            is_sorted = t.size > 1 and not np.greater(t[:-1], t[1:]).any()
+            is_sorted = t.size < 2 or not np.greater(t[:-1], t[1:]).any()
+        self.is_sorted = bool(is_sorted)
         if is_sorted and t.size > 1:
             # Sorted times: a run-length per segment, then repeats instead of gathers.
-            first = np.searchsorted(t, starts, side="left")
-            self._counts = np.diff(first, append=t.size)
-            self._counts[0] += first[0]  # points at the very start belong to segment 0
-            self._index = None
-            elapsed = np.repeat(starts, self._counts)
+            counts = self._run_lengths()
+            elapsed = np.repeat(starts, counts)
             np.subtract(t, elapsed, out=elapsed)
-            elapsed *= np.repeat(-rate, self._counts)
+            elapsed *= np.repeat(-rate, counts)
         else:
-            self._counts = None
             self._index = np.searchsorted(starts, t, side="right") - 1
             np.clip(self._index, 0, starts.size - 1, out=self._index)
             elapsed = t - starts[self._index]
             elapsed *= -rate[self._index]
-        self.decay = np.exp(elapsed, out=elapsed)
+        self.decay = _exp(elapsed)
+
+    def _run_lengths(self) -> np.ndarray:
+        """Points per segment of a sorted grid (computed on first use)."""
+        if self._counts is None:
+            first = np.searchsorted(self._t, self._starts, side="left")
+            counts = np.diff(first, append=self._t.size)
+            counts[0] += first[0]  # points at the very start belong to segment 0
+            self._counts = counts
+        return self._counts
 
     def spread(self, per_segment: np.ndarray) -> np.ndarray:
         """Each point's value of a per-segment array."""
-        if self._counts is not None:
-            return np.repeat(per_segment, self._counts)
-        return per_segment[self._index]
+        if self._index is not None:
+            return per_segment[self._index]
+        return np.repeat(per_segment, self._run_lengths())
 
-    def combine(self, final: np.ndarray, start_state: np.ndarray) -> np.ndarray:
-        """``final + (start_state - final) * decay`` at every point."""
+    def combine(self, final: np.ndarray, start_state: np.ndarray, consume: bool = False) -> np.ndarray:
+        """``final + (start_state - final) * decay`` at every point.
+
+        With `consume`, the result is written over :attr:`decay` (one fewer
+        array of the grid's size; the locator is spent afterwards).
+        """
+        if self._kernels is not None:
+            out = self.decay if consume else np.empty(self.size)
+            self._kernels.sorted_combine(np.ascontiguousarray(start_state - final),
+                                         np.ascontiguousarray(final, dtype=np.float64), self.decay,
+                                         self._bounds, out)
+            return out
         out = self.spread(start_state - final)
         out *= self.decay
         out += self.spread(final)
@@ -156,7 +215,8 @@ class SegmentLocator:
         """Segment index of every point."""
         if self._index is not None:
             return self._index
-        return np.repeat(np.arange(self._counts.size), self._counts)
+        counts = self._run_lengths()
+        return np.repeat(np.arange(counts.size), counts)
 
 
 def evaluate(t: np.ndarray, starts: np.ndarray, rate: np.ndarray, final: np.ndarray,

@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from . import engine
+from . import _kernels, engine
 from .errors import InputError, TopologyError
 from .units import format_value, parse_value
 
@@ -344,51 +344,51 @@ class Response:
 
     # -- evaluation -------------------------------------------------------------------------
     def _times(self, t: Any) -> np.ndarray:
-        return self._checked_times(t)[0]
-
-    def _checked_times(self, t: Any) -> tuple[np.ndarray, bool]:
-        """`t` as a float array inside the drive, and whether it is sorted."""
+        """`t` as a float array of finite times (the range is checked with the locator)."""
         if isinstance(t, str):
             array = np.asarray(parse_value(t, field="t", unit="s"))
         elif isinstance(t, (list, tuple)) and any(isinstance(v, str) for v in t):
             array = np.array([parse_value(v, field=f"t[{i}]", unit="s") for i, v in enumerate(t)])
         else:
             array = np.asarray(t, dtype=np.float64)
-        if array.size == 0:
-            return array.reshape(-1), True
-        flat = array.reshape(-1)
-        if not np.isfinite(flat.sum()):  # one cheap pass; NaN or inf anywhere shows in the sum
-            if not np.isfinite(flat).all():
+        if array.size and not np.isfinite(array.sum()):  # one cheap pass: NaN or inf shows in the sum
+            if not np.isfinite(array).all():
                 raise InputError("t: contains NaN or inf; times must be finite seconds")
-        is_sorted = flat.size < 2 or not np.greater(flat[:-1], flat[1:]).any()
-        if is_sorted:
-            low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
-        else:
-            low, high = float(flat.min()), float(flat.max())
-        if low < self._starts[0] or high > self.drive.end:
-            bad = low if low < self._starts[0] else high
-            raise InputError(
-                f"t: {bad!r} s is outside the drive, which runs from {float(self._starts[0])!r} "
-                f"to {self.drive.end!r} s"
-            )
-        return array, is_sorted
+        return array
+
+    def _locator(self, array: np.ndarray) -> engine.SegmentLocator:
+        """Where the times fall, after checking they lie inside the drive."""
+        flat = array.reshape(-1)
+        locator = engine.SegmentLocator(flat, self._starts, self._rate)
+        if flat.size:
+            if locator.is_sorted:
+                low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
+            else:
+                low, high = float(flat.min()), float(flat.max())
+            if low < self._starts[0] or high > self.drive.end:
+                bad = low if low < self._starts[0] else high
+                raise InputError(
+                    f"t: {bad!r} s is outside the drive, which runs from {float(self._starts[0])!r} "
+                    f"to {self.drive.end!r} s"
+                )
+        return locator
 
     def locate(self, t: Any) -> engine.SegmentLocator:
         """Pre-compute where times fall, to evaluate several components at once."""
-        array, is_sorted = self._checked_times(t)
-        return engine.SegmentLocator(array.reshape(-1), self._starts, self._rate, is_sorted)
+        return self._locator(self._times(t))
 
     def evaluate(self, t: Any, components: tuple[str, ...] = ("total",), probe: str | None = None) -> dict[str, np.ndarray]:
         """Evaluate several components (of the state, or of `probe`) on one time array."""
-        array, is_sorted = self._checked_times(t)
-        locator = engine.SegmentLocator(array.reshape(-1), self._starts, self._rate, is_sorted)
+        array = self._times(t)
+        locator = self._locator(array)
         rows = self._probe_rows(probe) if probe is not None else None
         out = {}
+        consume = len(components) == 1 and rows is None
         for component in components:
-            out[component] = self._component(component, locator, rows).reshape(array.shape)
+            out[component] = self._component(component, locator, rows, consume).reshape(array.shape)
         return out
 
-    def _component(self, component: str, locator: engine.SegmentLocator, rows) -> np.ndarray:
+    def _component(self, component: str, locator: engine.SegmentLocator, rows, consume: bool = False) -> np.ndarray:
         if component in ("forced", "natural"):
             final = self._finals("total")
             state_forced = locator.spread(final)
@@ -399,7 +399,8 @@ class Response:
                 return state - state_forced
             return locator.spread(rows[:, 0]) * (state - state_forced)
         key = self._component_key(component)
-        state = locator.combine(self._finals(key), self._boundary(key)[:-1])
+        # A single state component may take over the locator's decay array.
+        state = locator.combine(self._finals(key), self._boundary(key)[:-1], consume=consume)
         return self._probe_value(state, key, locator, rows)
 
     def _probe_value(self, state: np.ndarray, key: str, locator, rows) -> np.ndarray:

@@ -34,6 +34,32 @@ def _symbol_for(part, states: dict[str, bool]) -> sp.Symbol:
     return sp.Symbol(part.name, positive=True)
 
 
+def _name_tex(name: str) -> str:
+    """A part or node name as typed: one letter italic, longer names upright, one subscript.
+
+    sympy's own rule reads suffixes as accents and fonts ("vcal" becomes a
+    calligraphic v, "vbar" a barred v) and splits digits off ("k1_on" becomes
+    k with subscript "1 on"); a fixture's names are labels, not that notation.
+    """
+    def plain(text: str) -> str:
+        return text if len(text) == 1 else rf"\mathrm{{{text}}}"
+
+    head, _, tail = name.partition("_")
+    return plain(head) + (f"_{{{plain(tail)}}}" if tail else "")
+
+
+def _tex(expression) -> str:
+    """LaTeX of `expression` with every symbol and function written by :func:`_name_tex`."""
+    expression = sp.sympify(expression)
+    names = {symbol: _name_tex(symbol.name) for symbol in expression.free_symbols if isinstance(symbol, sp.Symbol)}
+    functions = {f.func: sp.Symbol(_name_tex(f.func.__name__)) for f in expression.atoms(sp.core.function.AppliedUndef)}
+    text = sp.latex(expression, symbol_names=names)
+    for function in functions:
+        # an applied state function, such as v_ch(t), is written by name too
+        text = text.replace(sp.latex(function(sp.Symbol("t"))).split(r"{\left(")[0], _name_tex(function.__name__))
+    return text
+
+
 @dataclass(frozen=True)
 class Derivation:
     """A first-order derivation for one switch configuration of a fixture.
@@ -85,8 +111,8 @@ class Derivation:
         return expression.subs(self.values)
 
     def _law(self) -> str:
-        x = sp.latex(self.state)
-        storage = sp.latex(self.symbols[self.storage])
+        x = _tex(self.state)
+        storage = _tex(self.symbols[self.storage])
         if self.kind == "capacitor":
             return (
                 rf"{storage}\,\frac{{d{x}}}{{dt}} = \frac{{V_{{th}} - {x}}}{{R_{{th}}}}"
@@ -99,28 +125,28 @@ class Derivation:
 
     def steps(self) -> list[tuple[str, str]]:
         """The derivation as (caption, LaTeX) pairs."""
-        x = sp.latex(self.state)
+        x = _tex(self.state)
         name = "th" if self.kind == "capacitor" else "N"
         equivalent = "V" if self.kind == "capacitor" else "I"
         rows = [
             (f"Equivalent seen by {self.kind} {self.storage} ({self.configuration})",
-             rf"R_{{{name}}} = {sp.latex(self.resistance)},\quad {equivalent}_{{{name}}} = {sp.latex(self.equivalent)}"),
+             rf"R_{{{name}}} = {_tex(self.resistance)},\quad {equivalent}_{{{name}}} = {_tex(self.equivalent)}"),
             ("Circuit law at the storage element", self._law()),
-            ("The ODE", sp.latex(self.ode)),
-            ("Time constant", rf"\tau = {sp.latex(self.tau)}"),
-            ("Final value", rf"{sp.latex(self.state.subs(self.symbols['t'], sp.oo))} = {sp.latex(self.final)}"),
+            ("The ODE", _tex(self.ode)),
+            ("Time constant", rf"\tau = {_tex(self.tau)}"),
+            ("Final value", rf"{_tex(self.state.subs(self.symbols['t'], sp.oo))} = {_tex(self.final)}"),
             ("Zero-input + zero-state",
-             rf"{x} = {sp.latex(self.zero_input)} + \left({sp.latex(self.zero_state)}\right)"),
+             rf"{x} = {_tex(self.zero_input)} + \left({_tex(self.zero_state)}\right)"),
             ("Natural + forced",
-             rf"{x} = {sp.latex(self.natural)} + \left({sp.latex(self.forced)}\right)"),
+             rf"{x} = {_tex(self.natural)} + \left({_tex(self.forced)}\right)"),
         ]
         for probe, expression in self.probes.items():
-            rows.append((f"Probe {probe}", rf"{sp.latex(sp.Symbol(probe))} = {sp.latex(expression)}"))
+            rows.append((f"Probe {probe}", rf"{_tex(sp.Symbol(probe))} = {_tex(expression)}"))
         if self.values:
             numbers = ", ".join(
-                rf"{sp.latex(s)} = {sp.latex(sp.Float(v, 4))}" for s, v in self.values.items()
+                rf"{_tex(s)} = {_tex(sp.Float(v, 4))}" for s, v in self.values.items()
             )
-            tau_number = r"\infty" if self.holds else sp.latex(sp.Float(float(self.substitute(self.tau)), 4))
+            tau_number = r"\infty" if self.holds else _tex(sp.Float(float(self.substitute(self.tau)), 4))
             rows.append(("With the part values", rf"{numbers},\quad \tau = {tau_number}"))
         return rows
 

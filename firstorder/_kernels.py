@@ -1,0 +1,148 @@
+"""Optional compiled kernels (numba) for long drives and dense time grids.
+
+Each kernel performs exactly the floating-point operations of the numpy path in
+:mod:`firstorder.engine`, in the same order (and without fused multiply-adds,
+which numba only emits under ``fastmath``), so its results are identical to the
+last bit; ``tests/test_kernels.py`` checks that.  The transcendental functions
+(exp, expm1) stay in numpy on both paths for the same reason.
+
+numba is optional: without it, or with ``FIRSTORDER_KERNELS=0`` in the
+environment, everything runs on numpy.  It is imported only when an array is
+large enough (:data:`THRESHOLD`) for the compiled loop to pay for itself, so small
+analyses never load it.
+"""
+
+from __future__ import annotations
+
+import os
+
+import numpy as np
+
+#: Arrays shorter than this stay on the numpy path (no numba import, no compile).
+THRESHOLD = 20_000
+
+_loaded: object = None  # None: not tried yet; False: unavailable; else the module
+
+
+def available(size: int) -> object:
+    """The kernel module for an array of `size`, or None to use numpy."""
+    global _loaded
+    if size < THRESHOLD or os.environ.get("FIRSTORDER_KERNELS", "1") == "0":
+        return None
+    if _loaded is None:
+        try:
+            _loaded = _compile()
+        except ImportError:
+            _loaded = False
+    return _loaded or None
+
+
+def _compile():
+    import numba
+
+    jit = numba.njit(cache=True, nogil=True)
+
+    @jit
+    def block_totals(a, b, width):
+        """Compose each block's maps in order; return the per-block (gain, shift)."""
+        n = a.size
+        blocks = (n + width - 1) // width
+        gain = np.empty(blocks)
+        shift = np.empty(blocks)
+        for c in range(blocks):
+            start = c * width
+            stop = min(start + width, n)
+            g = a[start]
+            s = b[start]
+            for k in range(start + 1, stop):
+                # numpy: shift[j] += gain[j] * shift[j - 1]; gain[j] *= gain[j - 1]
+                s = b[k] + a[k] * s
+                g = a[k] * g
+            gain[c] = g
+            shift[c] = s
+        return gain, shift
+
+    @jit
+    def block_states(a, b, width, starts, out):
+        """Each element's state: its block's partial map applied to the block's start."""
+        n = a.size
+        out[0] = starts[0]
+        blocks = (n + width - 1) // width
+        for c in range(blocks):
+            start = c * width
+            stop = min(start + width, n)
+            begin = starts[c]
+            g = a[start]
+            s = b[start]
+            out[start + 1] = g * begin + s
+            for k in range(start + 1, stop):
+                s = b[k] + a[k] * s
+                g = a[k] * g
+                out[k + 1] = g * begin + s
+
+    @jit
+    def segment_bounds(t, starts):
+        """First point of every segment on a grid (merge walk), and whether the grid is
+        finite and never decreases.  ``bounds[k]:bounds[k + 1]`` are segment k's points."""
+        n = starts.size
+        size = t.size
+        bounds = np.empty(n + 1, dtype=np.int64)
+        bounds[0] = 0
+        k = 0
+        good = True
+        previous = -np.inf
+        for i in range(size):
+            value = t[i]
+            if not value >= previous:  # also catches NaN
+                good = False
+            previous = value
+            while k + 1 < n and value >= starts[k + 1]:
+                k += 1
+                bounds[k] = i
+        for j in range(k + 1, n + 1):
+            bounds[j] = size
+        good = good and np.isfinite(previous)
+        return bounds, good
+
+    @jit
+    def sorted_exponent(t, starts, rate, bounds, out):
+        """``(t - start) * -rate`` of each point's segment (numpy: repeat, subtract, multiply)."""
+        for k in range(starts.size):
+            begin = starts[k]
+            factor = -rate[k]
+            for i in range(bounds[k], bounds[k + 1]):
+                out[i] = (t[i] - begin) * factor
+
+    @jit
+    def sorted_combine(difference, final, decay, bounds, out):
+        """``difference * decay + final`` of each point's segment (numpy: repeat, multiply, add)."""
+        for k in range(final.size):
+            d = difference[k]
+            f = final[k]
+            for i in range(bounds[k], bounds[k + 1]):
+                out[i] = d * decay[i] + f
+
+    @jit
+    def check_times(times):
+        """Index of the first non-finite time and of the first not after its predecessor (-1: none)."""
+        bad = -1
+        order = -1
+        for i in range(times.size):
+            value = times[i]
+            if bad < 0 and not np.isfinite(value):
+                bad = i
+            if order < 0 and i > 0 and not value > times[i - 1]:
+                order = i
+        return bad, order
+
+    class Kernels:
+        pass
+
+    kernels = Kernels()
+    kernels.block_totals = block_totals
+    kernels.block_states = block_states
+    kernels.sorted_exponent = sorted_exponent
+    kernels.sorted_combine = sorted_combine
+    kernels.check_times = check_times
+    kernels.segment_bounds = segment_bounds
+    return kernels

@@ -1,0 +1,53 @@
+"""Put BokehJS into the notebook page from inline resources, before a plot view is made.
+
+jupyter_bokeh's views need ``window.Bokeh`` already present in the page, and
+nothing may come from the network, so the Bench sends the library text itself
+(bokeh's own inline resources) as an output just ahead of its widget view.  The
+output is then replaced by a one-line note, so a saved notebook does not carry
+two megabytes of JavaScript.
+"""
+
+from __future__ import annotations
+
+import json
+import uuid
+
+__all__ = ["publish_bokehjs", "loader_script"]
+
+#: Mime type that jupyter_bokeh's JupyterLab extension runs as a script.
+LOAD_MIME_TYPE = "application/vnd.bokehjs_load.v0+json"
+#: BokehJS parts the Bench uses: plots and tools, widgets, the editable table.
+COMPONENTS = ("bokeh", "bokeh-widgets", "bokeh-tables")
+
+
+def loader_script() -> str:
+    """JavaScript that evaluates BokehJS (inline text) unless this page already has it."""
+    from bokeh import __version__
+    from bokeh.resources import Resources
+
+    resources = Resources(mode="inline", components=list(COMPONENTS))
+    sources = json.dumps(resources.js_raw)
+    flag = json.dumps(f"firstorder-bokehjs-{__version__}")
+    # Indirect eval runs each file in the global scope, as a <script> would.
+    return (
+        "(function (root) {\n"
+        f"  if (root[{flag}] === true && root.Bokeh !== undefined) {{ return; }}\n"
+        f"  const sources = {sources};\n"
+        "  for (const code of sources) { (0, eval)(code); }\n"
+        f"  root[{flag}] = true;\n"
+        "})(window);\n"
+    )
+
+
+def publish_bokehjs() -> None:
+    """Send BokehJS to the page as an output, then shrink that output to a note."""
+    from bokeh import __version__
+    from IPython.display import display, update_display
+
+    display_id = f"firstorder-bokehjs-{uuid.uuid4().hex}"
+    display({LOAD_MIME_TYPE: loader_script(), "text/plain": ""}, raw=True, display_id=display_id)
+    update_display(
+        {"text/plain": f"BokehJS {__version__} loaded from inline resources"},
+        raw=True,
+        display_id=display_id,
+    )

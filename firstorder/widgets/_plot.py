@@ -1,0 +1,370 @@
+"""The Bench's two linked bokeh panels: the drive above, the response below.
+
+Data flow is one way: the Bench hands in a response and a view, this module
+chooses the samples (:mod:`._sampling`), evaluates every visible component on
+one shared time array, and assigns whole new dicts to the data sources.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from bokeh.layouts import column
+from bokeh.models import (
+    ColumnDataSource, CustomJSHover, CustomJSTickFormatter, HoverTool, Legend, LegendItem,
+    LinearAxis, PointDrawTool, Range1d, FixedTicker,
+)
+from bokeh.plotting import figure
+
+from ..response import COMPONENTS
+from ._format import HOVER_CODE, TICK_CODE
+from ._sampling import envelope, plan_samples, segments_in_view
+
+__all__ = ["Plots", "COLOURS", "LABELS"]
+
+#: Our own palette: total dark and solid, the splits in muted distinct hues.
+COLOURS = {
+    "total": "#17324d",
+    "zero_input": "#c27c0e",
+    "zero_state": "#0f7b6c",
+    "forced": "#7d3c98",
+    "natural": "#b03a2e",
+}
+CONTRIBUTION_COLOURS = ("#2874a6", "#ca6f1e", "#1e8449", "#884ea0", "#a93226", "#566573")
+SWITCH_COLOURS = ("#5dade2", "#f5b041", "#58d68d", "#af7ac5", "#ec7063")
+LABELS = {
+    "total": "total",
+    "zero_input": "zero-input",
+    "zero_state": "zero-state",
+    "forced": "forced",
+    "natural": "natural",
+}
+LINE_DASH = {"forced": "dashed", "natural": "dotdash"}
+#: Drag handles are offered up to this many changes (beyond it, edit the table).
+MAX_HANDLES = 400
+PLOT_WIDTH = 720
+PIXELS = 520  # the plot area without axes, for sampling
+
+
+def _formatter(unit: str) -> CustomJSTickFormatter:
+    return CustomJSTickFormatter(code=TICK_CODE, args={"unit": unit})
+
+
+def _hover(unit: str) -> CustomJSHover:
+    return CustomJSHover(code=HOVER_CODE, args={"unit": unit})
+
+
+def _empty_curve() -> dict[str, np.ndarray]:
+    empty = np.zeros(0)
+    return {"t": empty, "y": empty, "low": empty, "high": empty}
+
+
+@dataclass
+class View:
+    """The time span shown, in seconds."""
+
+    start: float
+    end: float
+
+
+class Plots:
+    """Figures and data sources; ``update_*`` methods fill them from results."""
+
+    def __init__(self, curve_names: tuple[str, ...], contribution_names: tuple[str, ...],
+                 level_names: tuple[str, ...], level_units: dict[str, str],
+                 switch_names: tuple[str, ...], start: float, end: float, state_unit: str,
+                 value_label: str, trace_name: str | None = None) -> None:
+        self.curve_names = curve_names
+        self.contribution_names = contribution_names
+        self.level_names = level_names
+        self.switch_names = switch_names
+        self.x_range = Range1d(start, end)
+        self.sources: dict[str, ColumnDataSource] = {}
+        self.line_renderers = {}
+        self.band_renderers = {}
+        self.legend_items = {}
+        self.value_formatters = []  # response-value tick and hover formatters (their unit follows the probe)
+        self._build_drive_figure(level_names, level_units, switch_names)
+        self._build_response_figure(curve_names, contribution_names, state_unit, value_label, trace_name)
+        figures = [self.drive_figure, self.response_figure]
+        if trace_name is not None:
+            figures.append(self.residual_figure)
+        self.layout = column(*figures)
+
+    # -- building -----------------------------------------------------------------------
+    def _style(self, fig, y_unit: str) -> None:
+        fig.xaxis.formatter = _formatter("s")
+        fig.yaxis.formatter = _formatter(y_unit)
+        fig.toolbar.logo = None
+        fig.background_fill_color = "#fbfbf8"
+        fig.grid.grid_line_color = "#e4e4dc"
+        fig.outline_line_color = "#c8c8bd"
+        fig.min_border_left = 70
+
+    def _build_drive_figure(self, names, units, switches) -> None:
+        distinct_units = sorted({units.get(n, "") for n in names})
+        unit = distinct_units[0] if len(distinct_units) == 1 else ""
+        fig = figure(width=PLOT_WIDTH, height=190, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
+                     active_scroll="xwheel_zoom", title="Drive: source levels; switch lanes shaded where closed")
+        self._style(fig, unit)
+        fig.yaxis.axis_label = "level"  # the tick labels carry the unit
+        fig.xaxis.axis_label = None
+        items = []
+        if switches:
+            fig.extra_y_ranges = {"lanes": Range1d(0, len(switches))}
+            lane_axis = LinearAxis(y_range_name="lanes", ticker=FixedTicker(ticks=[j + 0.5 for j in range(len(switches))]),
+                                   major_label_overrides={j + 0.5: name for j, name in enumerate(switches)},
+                                   axis_label="switch lanes")
+            fig.add_layout(lane_axis, "right")
+            for j, name in enumerate(switches):
+                source = ColumnDataSource({"left": [], "right": [], "bottom": [], "top": []})
+                self.sources[f"switch.{name}"] = source
+                renderer = fig.quad(left="left", right="right", bottom="bottom", top="top", source=source,
+                                    y_range_name="lanes", fill_color=SWITCH_COLOURS[j % len(SWITCH_COLOURS)],
+                                    fill_alpha=0.28, line_alpha=0)
+                items.append(LegendItem(label=f"{name} closed", renderers=[renderer]))
+        palette = CONTRIBUTION_COLOURS
+        for j, name in enumerate(names):
+            source = ColumnDataSource(_empty_curve())
+            self.sources[f"drive.{name}"] = source
+            colour = palette[j % len(palette)]
+            line = fig.step("t", "y", source=source, mode="after", line_width=2, color=colour)
+            band = fig.varea("t", "low", "high", source=source, fill_color=colour, fill_alpha=0.45, visible=False)
+            self.line_renderers[f"drive.{name}"] = line
+            self.band_renderers[f"drive.{name}"] = band
+            items.append(LegendItem(label=name, renderers=[line, band]))
+            fig.add_tools(HoverTool(renderers=[line], tooltips=[(name, "@y{custom}"), ("from", "@t{custom}")],
+                                    formatters={"@y": _hover(units.get(name, "")), "@t": _hover("s")}))
+        handles = ColumnDataSource({"t": [], "y": [], "row": []})
+        self.sources["handles"] = handles
+        self.handle_renderer = fig.scatter("t", "y", source=handles, size=9, marker="square",
+                                           fill_color="white", line_color="#17324d", line_width=2,
+                                           name="firstorder-drive-handles")
+        self.point_draw = PointDrawTool(renderers=[self.handle_renderer], add=False, drag=True,
+                                        description="Drag a change: left/right moves its instant, up/down its level")
+        fig.add_tools(self.point_draw)
+        # Dragging on the drive panel moves handles; the response panel pans (the time axis is shared).
+        fig.toolbar.active_drag = self.point_draw
+        fig.toolbar.active_tap = self.point_draw
+        self._add_selection(fig)
+        fig.add_layout(Legend(items=items, location="center", click_policy="none"), "right")
+        self.drive_figure = fig
+
+    def _add_selection(self, fig) -> None:
+        """A shaded column over the selected segment, full height (its own 0..1 range)."""
+        if "selection" not in self.sources:
+            self.sources["selection"] = ColumnDataSource({"left": [], "right": []})
+        fig.extra_y_ranges = {**fig.extra_y_ranges, "full": Range1d(0, 1)}
+        fig.quad(left="left", right="right", bottom=0, top=1, y_range_name="full",
+                 source=self.sources["selection"], fill_color="#f4d03f", fill_alpha=0.22, line_alpha=0)
+
+    def _build_response_figure(self, curve_names, contributions, unit, label, trace_name) -> None:
+        fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
+                     active_scroll="xwheel_zoom", title="Response")
+        self._style(fig, unit)
+        fig.xaxis.axis_label = "time"
+        fig.yaxis.axis_label = label
+        self.value_formatters.append(fig.yaxis[0].formatter)
+        self._add_selection(fig)
+        tolerance = ColumnDataSource({"left": [], "right": [], "bottom": [], "top": []})
+        self.sources["tolerance"] = tolerance
+        tolerance_renderer = fig.quad(left="left", right="right", bottom="bottom", top="top", source=tolerance,
+                                      fill_color="#82e0aa", fill_alpha=0.35, line_alpha=0)
+        items = [LegendItem(label="tolerance band", renderers=[tolerance_renderer])]
+        for name in curve_names:
+            colour = COLOURS.get(name)
+            if colour is None:
+                colour = CONTRIBUTION_COLOURS[contributions.index(name) % len(CONTRIBUTION_COLOURS)]
+            source = ColumnDataSource(_empty_curve())
+            self.sources[name] = source
+            line = fig.line("t", "y", source=source, color=colour, line_width=2.4 if name == "total" else 1.6,
+                            line_dash=LINE_DASH.get(name, "solid"))
+            band = fig.varea("t", "low", "high", source=source, fill_color=colour, fill_alpha=0.5, visible=False)
+            self.line_renderers[name] = line
+            self.band_renderers[name] = band
+            text = LABELS.get(name, f"from {name}")
+            item = LegendItem(label=text, renderers=[line, band])
+            self.legend_items[name] = item
+            items.append(item)
+            value_hover = _hover(unit)
+            self.value_formatters.append(value_hover)
+            fig.add_tools(HoverTool(renderers=[line], tooltips=[(text, "@y{custom}"), ("at", "@t{custom}")],
+                                    formatters={"@y": value_hover, "@t": _hover("s")}))
+        samples = ColumnDataSource({"t": [], "y": [], "colour": [], "error": []})
+        self.sources["samples"] = samples
+        sample_renderer = fig.scatter("t", "y", source=samples, size=8, marker="diamond", fill_color="colour",
+                                      line_color="#17324d")
+        sample_value, sample_error = _hover(unit), _hover(unit)
+        self.value_formatters += [sample_value, sample_error]
+        fig.add_tools(HoverTool(renderers=[sample_renderer],
+                                tooltips=[("sample at", "@t{custom}"), ("value", "@y{custom}"), ("error", "@error{custom}")],
+                                formatters={"@t": _hover("s"), "@y": sample_value, "@error": sample_error}))
+        items.append(LegendItem(label="sample instants", renderers=[sample_renderer]))
+        settle = ColumnDataSource({"t": [], "y": []})
+        self.sources["settle"] = settle
+        settle_renderer = fig.scatter("t", "y", source=settle, size=10, marker="triangle", fill_color="#f8f9f9",
+                                      line_color="#0f7b6c", line_width=2)
+        fig.add_tools(HoverTool(renderers=[settle_renderer], tooltips=[("settled at", "@t{custom}")],
+                                formatters={"@t": _hover("s")}))
+        items.append(LegendItem(label="settled", renderers=[settle_renderer]))
+        if trace_name is not None:
+            trace = ColumnDataSource(_empty_curve())
+            self.sources["trace"] = trace
+            trace_line = fig.line("t", "y", source=trace, color="#7f8c8d", line_width=1.2, alpha=0.9)
+            self.line_renderers["trace"] = trace_line
+            self.band_renderers["trace"] = fig.varea("t", "low", "high", source=trace, fill_color="#7f8c8d",
+                                                     fill_alpha=0.4, visible=False)
+            items.append(LegendItem(label=f"measured: {trace_name}", renderers=[trace_line]))
+            residual_fig = figure(width=PLOT_WIDTH, height=150, x_range=self.x_range,
+                                  tools="xpan,xwheel_zoom,box_zoom,reset", active_scroll="xwheel_zoom",
+                                  title="Residual: measured - model (total)")
+            self._style(residual_fig, unit)
+            residual_fig.yaxis.axis_label = "residual"
+            residual = ColumnDataSource({"t": [], "y": []})
+            self.sources["residual"] = residual
+            residual_fig.scatter("t", "y", source=residual, size=3, color="#b03a2e")
+            residual_fig.add_layout(Legend(items=[], visible=False), "right")
+            self.residual_figure = residual_fig
+        self.legend = Legend(items=items, location="top_left", click_policy="none")
+        fig.add_layout(self.legend, "right")
+        self.response_figure = fig
+
+    # -- filling ------------------------------------------------------------------------------
+    def set_value_unit(self, unit: str) -> None:
+        """Axis ticks and hover text of the response panel in `unit` (V or A)."""
+        for formatter in self.value_formatters:
+            formatter.args = {"unit": unit}
+
+    def update_response(self, response, probe, view: View, visible: set[str]) -> str:
+        """Sample `response` for `view`; fill every visible curve; return the plan's mode."""
+        plan = plan_samples(response.starts, response.drive.end, response.tau, view.start, view.end, PIXELS)
+        shown = tuple(name for name in self.curve_names if name in visible)
+        values = response.evaluate(plan.times, shown, probe) if shown else {}
+        for name in self.curve_names:
+            source = self.sources[name]
+            self.legend_items[name].visible = name in values
+            if name not in values:
+                source.data = _empty_curve()
+                self.line_renderers[name].visible = False
+                self.band_renderers[name].visible = False
+                continue
+            y = values[name]
+            if plan.mode == "line":
+                source.data = {"t": plan.times, "y": y, "low": y, "high": y}
+            else:
+                low, high = envelope(plan, y)
+                source.data = {"t": plan.centres, "y": 0.5 * (low + high), "low": low, "high": high}
+            self.line_renderers[name].visible = plan.mode == "line"
+            self.band_renderers[name].visible = plan.mode == "envelope"
+        return plan.mode
+
+    def update_drive(self, drive, view: View) -> None:
+        """Fill the level steps (or their envelope) and the switch lanes."""
+        plan = plan_samples(drive.times, drive.end, np.full(len(drive), np.inf), view.start, view.end, PIXELS)
+        for name in self.level_names:
+            levels = np.asarray(drive.levels(name), dtype=float)
+            source = self.sources[f"drive.{name}"]
+            if plan.mode == "line":
+                first, last = plan.first, plan.last
+                t = np.append(drive.times[first:last + 1], drive.ends[last])
+                y = np.append(levels[first:last + 1], levels[last])
+                source.data = {"t": t, "y": y, "low": y, "high": y}
+            else:
+                index = np.clip(np.searchsorted(drive.times, plan.times, side="right") - 1, 0, len(drive) - 1)
+                low, high = envelope(plan, levels[index])
+                source.data = {"t": plan.centres, "y": 0.5 * (low + high), "low": low, "high": high}
+            self.line_renderers[f"drive.{name}"].visible = plan.mode == "line"
+            self.band_renderers[f"drive.{name}"].visible = plan.mode == "envelope"
+        for j, name in enumerate(self.switch_names):
+            closed = np.asarray(drive.levels(name)) != 0
+            left, right = _runs(drive.times, drive.ends, closed, plan, view)
+            self.sources[f"switch.{name}"].data = {
+                "left": left, "right": right,
+                "bottom": np.full(left.size, j + 0.06), "top": np.full(left.size, j + 0.94),
+            }
+
+    def update_handles(self, drive, column_name: str | None) -> bool:
+        """Put a drag handle on every change of `column_name`; False when there are too many."""
+        if column_name is None or len(drive) > MAX_HANDLES:
+            self.sources["handles"].data = {"t": [], "y": [], "row": []}
+            return False
+        self.sources["handles"].data = {
+            "t": np.array(drive.times, dtype=float),
+            "y": np.array(drive.levels(column_name), dtype=float),
+            "row": np.arange(len(drive)),
+        }
+        return True
+
+    def update_marks(self, response, probe, view: View, tolerance, sample_delay) -> None:
+        """Tolerance bands and sample instants of the segments in view (when they fit the pixels)."""
+        first, last = segments_in_view(response.starts, response.drive.end, view.start, view.end)
+        if (last - first + 1) * 2 > PIXELS:
+            empty = np.zeros(0)
+            self.sources["tolerance"].data = {"left": empty, "right": empty, "bottom": empty, "top": empty}
+            self.sources["samples"].data = {"t": empty, "y": empty, "colour": [], "error": empty}
+            return
+        starts = response.starts[first:last + 1]
+        ends = response.ends[first:last + 1]
+        at_start = response.evaluate(starts, ("total", "forced"), probe)
+        final = at_start["forced"]
+        if tolerance is not None:
+            limit = tolerance.limit(final - at_start["total"])
+            self.sources["tolerance"].data = {"left": starts, "right": ends, "bottom": final - limit, "top": final + limit}
+        else:
+            empty = np.zeros(0)
+            self.sources["tolerance"].data = {"left": empty, "right": empty, "bottom": empty, "top": empty}
+        if sample_delay is None:
+            empty = np.zeros(0)
+            self.sources["samples"].data = {"t": empty, "y": empty, "colour": [], "error": empty}
+            return
+        instants = starts + sample_delay
+        inside = instants < ends
+        instants = instants[inside]
+        sampled = response.evaluate(instants, ("total",), probe)["total"]
+        error = sampled - final[inside]
+        if tolerance is not None:
+            ok = np.abs(error) <= tolerance.limit(final - at_start["total"])[inside]
+            colour = np.where(ok, "#27ae60", "#e74c3c").tolist()
+        else:
+            colour = ["#5d6d7e"] * instants.size
+        self.sources["samples"].data = {"t": instants, "y": sampled, "colour": colour, "error": error}
+
+    def update_settle_marks(self, response, probe, table, view: View) -> None:
+        """Mark where each segment in view comes within tolerance (from the settling table)."""
+        empty = {"t": np.zeros(0), "y": np.zeros(0)}
+        if table is None:
+            self.sources["settle"].data = empty
+            return
+        first, last = segments_in_view(response.starts, response.drive.end, view.start, view.end)
+        if (last - first + 1) * 2 > PIXELS:
+            self.sources["settle"].data = empty
+            return
+        settle = table["settle_time"].to_numpy()[first:last + 1]
+        starts = response.starts[first:last + 1]
+        marked = np.isfinite(settle) & (settle > 0)
+        instants = starts[marked] + settle[marked]
+        values = response.evaluate(instants, ("total",), probe)["total"] if instants.size else np.zeros(0)
+        self.sources["settle"].data = {"t": instants, "y": values}
+
+    def update_selection(self, drive, segment: int | None) -> None:
+        if segment is None:
+            self.sources["selection"].data = {"left": [], "right": []}
+        else:
+            self.sources["selection"].data = {"left": [float(drive.times[segment])], "right": [float(drive.ends[segment])]}
+
+
+def _runs(starts, ends, closed, plan, view) -> tuple[np.ndarray, np.ndarray]:
+    """Left and right edges of the stretches where `closed` holds (merged per pixel when crowded)."""
+    if plan.mode == "envelope":
+        edges = plan.edges
+        index = np.clip(np.searchsorted(starts, plan.times, side="right") - 1, 0, starts.size - 1)
+        low, high = envelope(plan, closed[index].astype(float))
+        marked = high > 0
+        starts, ends, closed = edges[:-1], edges[1:], marked
+    if not closed.any():
+        return np.zeros(0), np.zeros(0)
+    change = np.diff(closed.astype(np.int8), prepend=0, append=0)
+    begin = np.flatnonzero(change == 1)
+    finish = np.flatnonzero(change == -1) - 1
+    return np.asarray(starts)[begin].astype(float), np.asarray(ends)[finish].astype(float)
