@@ -9,6 +9,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import assume, given, settings
+from hypothesis import strategies as st
 
 import firstorder as fo
 from firstorder import _network
@@ -364,3 +366,64 @@ class TestCancellation:
         res = fx.respond(fo.Drive([0, 20e-3], end=40e-3, vsup=[24.0, 24.0], kdrv=[1, 0]))
         assert res.final[1] == 0.0
         assert 0.0 <= res.boundary[-1] < 1e-100  # 60 mA after 260 time constants
+
+
+@st.composite
+def resistive_networks(draw):
+    """A random connected resistor network, a source from 's' to ground, and a capacitor."""
+    count = draw(st.integers(1, 5))
+    inner = [f"n{k}" for k in range(count)]
+    placed = ["gnd", "s"]
+    edges = []
+    for node in inner:  # a spanning tree: every node joins one placed before it
+        edges.append((draw(st.sampled_from(placed)), node))
+        placed.append(node)
+    for _ in range(draw(st.integers(0, 6))):
+        a, b = draw(st.sampled_from(placed)), draw(st.sampled_from(placed))
+        if a != b and {a, b} != {"gnd", "s"}:
+            edges.append((a, b))
+    values = [draw(st.floats(1.0, 1e6)) for _ in edges]
+    cap_a, cap_b = draw(st.sampled_from([("gnd", n) for n in inner] + [(a, b) for a in inner for b in inner if a < b]))
+    return inner, edges, values, (cap_a, cap_b)
+
+
+class TestRandomResistiveNetworks:
+    @settings(max_examples=60)
+    @given(resistive_networks())
+    def test_thevenin_against_nodal_analysis(self, network):
+        inner, edges, values, (cap_a, cap_b) = network
+        fx = fo.Fixture()
+        fx.voltage_source("v", "s", "gnd")
+        for k, ((a, b), r) in enumerate(zip(edges, values)):
+            fx.resistor(f"r{k}", a, b, r)
+        fx.capacitor("c", cap_a, cap_b, 1e-6)
+        try:
+            fx.check()
+        except TopologyError:
+            assume(False)  # a node on one part only: not this test's subject
+        # Reference: textbook nodal analysis, written here.  G v = i over the inner nodes with
+        # the source node held at V; V_th is the open-circuit v(a) - v(b) per volt, and
+        # R_th = d^T G^-1 d with d the unit injection at a and out of b (sources zeroed).
+        index = {n: k for k, n in enumerate(inner)}
+        G = np.zeros((len(inner), len(inner)))
+        drive = np.zeros(len(inner))
+        for (a, b), r in zip(edges, values):
+            g = 1.0 / r
+            for here, there in ((a, b), (b, a)):
+                if here in index:
+                    G[index[here], index[here]] += g
+                    if there in index:
+                        G[index[here], index[there]] -= g
+                    elif there == "s":
+                        drive[index[here]] += g  # per volt of the source
+        d = np.zeros(len(inner))
+        for node, sign in ((cap_a, 1.0), (cap_b, -1.0)):
+            if node in index:
+                d[index[node]] += sign
+        assume(np.linalg.cond(G) < 1e9)
+        r_th = float(d @ np.linalg.solve(G, d))
+        v_th = float(d @ np.linalg.solve(G, drive))
+        _, red = fx.configuration(())
+        assert red.resistance == pytest.approx(r_th, rel=1e-8)
+        assert red.gain[0] == pytest.approx(v_th, rel=1e-8, abs=1e-12)
+        assert red.tau == pytest.approx(r_th * 1e-6, rel=1e-8)
