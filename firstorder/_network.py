@@ -94,6 +94,10 @@ class Layout:
         Current sources (1 + j) and the inductor (0), flowing from a into b.
     holds : bool
         The storage element sees no resistive path (tau is infinite).
+    islands : dict of str to str
+        Nodes that float in this configuration (nothing but open switches or current
+        sources joins them to ground), each mapped to the node pinned at 0 V for its
+        island: their voltages against anything outside the island are not defined.
     """
 
     nodes: tuple[str, ...]
@@ -104,6 +108,7 @@ class Layout:
     storage_kind: str
     storage_name: str
     node_index: dict[str, int] = field(default_factory=dict, compare=False)
+    islands: dict[str, str] = field(default_factory=dict, compare=False)
 
     @property
     def size(self) -> int:
@@ -236,12 +241,15 @@ def plan(fixture: "Fixture", states: tuple[bool, ...], where: str) -> Layout:
     # 3. Islands that do not reach ground float: pin one node of each at 0 V.
     #    No current can enter them (step 2), so the pin carries none.
     ground_root = solid.find(GROUND)
-    pinned: set[str] = set()
+    pinned: dict[str, str] = {}
+    islands: dict[str, str] = {}
     for node in fixture.nodes:
         root = solid.find(node)
-        if node != GROUND and root != ground_root and root not in pinned:
-            pinned.add(root)
-            ideal_voltage.append((f"pin:{node}", node, GROUND, None))
+        if node != GROUND and root != ground_root:
+            if root not in pinned:
+                pinned[root] = node
+                ideal_voltage.append((f"pin:{node}", node, GROUND, None))
+            islands[node] = pinned[root]
 
     nodes = tuple(n for n in fixture.nodes if n != GROUND)
     return Layout(
@@ -253,6 +261,7 @@ def plan(fixture: "Fixture", states: tuple[bool, ...], where: str) -> Layout:
         storage_kind=storage.kind,
         storage_name=storage.name,
         node_index={n: i for i, n in enumerate(nodes)},
+        islands=islands,
     )
 
 
@@ -382,10 +391,23 @@ def _node_row(solution: np.ndarray, layout: Layout, node: str) -> np.ndarray:
     return solution[layout.node_index[node]]
 
 
-def probe_row(layout: Layout, fixture: "Fixture", reduced: Reduced, probe) -> np.ndarray:
-    """A probe as an affine row over ``[x, u...]`` in one configuration."""
+def probe_row(layout: Layout, fixture: "Fixture", reduced: Reduced, probe, where: str = "") -> np.ndarray:
+    """A probe as an affine row over ``[x, u...]`` in one configuration.
+
+    Raises TopologyError (naming `where`) for a node voltage across a floating island,
+    whose value the pin would otherwise set to an arbitrary 0 V.
+    """
     solution = reduced.solution
     if probe.node is not None:
+        island, other = layout.islands.get(probe.node), layout.islands.get(probe.reference)
+        if island != other:
+            floating, against = (probe.node, probe.reference) if island is not None else (probe.reference, probe.node)
+            raise TopologyError(
+                f"{where or 'this configuration'}: probe '{probe.name}': node '{floating}' floats "
+                f"(nothing but open switches or current sources joins it to '{against}'), so "
+                f"its voltage against '{against}' is not defined. Give the open switch a "
+                f"leakage (r_off) or add a resistance from '{floating}' to ground."
+            )
         return _node_row(solution, layout, probe.node) - _node_row(solution, layout, probe.reference)
     part = fixture.part_map[probe.through]
     width = solution.shape[1]

@@ -456,10 +456,14 @@ class Response:
         probes = {p.name: p for p in self.fixture.probes}
         if name not in probes:
             raise InputError(f"probe: {name!r} is not a probe of the fixture; probes are {list(probes)}")
-        by_config = np.array([
-            probe_row(layout, self.fixture, reduced, probes[name])
-            for layout, reduced in (self.fixture.configuration(c) for c in self._configs)
-        ])
+        rows = []
+        for c, config in enumerate(self._configs):
+            layout, reduced = self.fixture.configuration(config)
+            k = int(np.argmax(self._inverse == c))  # the first segment in this configuration
+            where = f"segment {k} (from {format_value(float(self._starts[k]), 's')}"
+            where += f"; {self.fixture.describe_states(config)})" if config else ")"
+            rows.append(probe_row(layout, self.fixture, reduced, probes[name], where))
+        by_config = np.array(rows)
         return by_config[self._inverse]
 
     def probe(self, name: str, t: Any, component: str = "total"):

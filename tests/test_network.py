@@ -427,3 +427,48 @@ class TestRandomResistiveNetworks:
         assert red.resistance == pytest.approx(r_th, rel=1e-8)
         assert red.gain[0] == pytest.approx(v_th, rel=1e-8, abs=1e-12)
         assert red.tau == pytest.approx(r_th * 1e-6, rel=1e-8)
+
+
+class TestFloatingNodes:
+    def fixture(self):
+        # Two relays in series with a resistor between them (invented): with both open, the
+        # resistor floats.
+        fx = fo.Fixture()
+        fx.voltage_source("v", "x", "gnd")
+        fx.resistor("rs", "x", "a", 1e3)
+        fx.switch("k1", "a", "m")
+        fx.resistor("rmid", "m", "n", 10.0)
+        fx.switch("k2", "n", "b")
+        fx.capacitor("c", "b", "gnd", 1e-6)
+        fx.probe("v_m", node="m")
+        fx.probe("v_mn", node="m", reference="n")
+        fx.probe("i_mid", through="rmid")
+        return fx
+
+    def drive(self):
+        return fo.Drive([0, 1e-3, 2e-3], end=3e-3, v=[1, 1, 1], k1=[1, 0, 0], k2=[1, 1, 0])
+
+    def test_voltage_of_a_floating_node_is_refused(self):
+        # Found while writing these tests: the floating node was pinned at 0 V for the solve,
+        # and a probe against ground read that arbitrary 0 V as if it were measured.
+        res = self.fixture().respond(self.drive())
+        with pytest.raises(TopologyError, match=r"segment 2 .*k1 open, k2 open.*probe 'v_m': node 'm' floats"):
+            res.probe("v_m", [0.5e-3])
+
+    def test_quantities_inside_the_island_are_defined(self):
+        res = self.fixture().respond(self.drive())
+        t = np.array([0.5e-3, 1.5e-3, 2.5e-3])
+        # Ohm's law in the series loop while k1 and k2 are closed: i = (v - x) / (1k + 10).
+        x = res.total(t[0])
+        i = (1.0 - x) / 1010.0
+        np.testing.assert_allclose(res.probe("i_mid", t), [i, 0.0, 0.0], rtol=1e-12, atol=1e-18)
+        np.testing.assert_allclose(res.probe("v_mn", t), [10.0 * i, 0.0, 0.0], rtol=1e-12, atol=1e-15)
+
+    def test_leakage_defines_it(self):
+        # 1 MΩ: a node held only by a leakage conductance g next to a conductance G of its
+        # neighbour is known to about eps * G / g in floating point (10 Ω next to 1 GΩ gives
+        # 1e-8 of the value), so this checks the topology, not that limit.
+        fx = self.fixture().with_values(k1=("0", "1M"))
+        res = fx.respond(self.drive())
+        # k1 leaks: no current flows once k2 is open too, so m sits at the source's 1 V.
+        assert res.probe("v_m", 2.5e-3) == pytest.approx(1.0, rel=1e-10)
