@@ -472,3 +472,78 @@ class TestFloatingNodes:
         res = fx.respond(self.drive())
         # k1 leaks: no current flows once k2 is open too, so m sits at the source's 1 V.
         assert res.probe("v_m", 2.5e-3) == pytest.approx(1.0, rel=1e-10)
+
+
+@st.composite
+def switched_networks(draw):
+    """A random network as above where some branches are switches, plus a current source."""
+    inner, edges, values, cap = draw(resistive_networks())
+    kinds = [draw(st.sampled_from(["resistor", "switch"])) for _ in edges]
+    r_off = [draw(st.sampled_from([math.inf, 1e7, 1e9])) for _ in edges]
+    closed = [draw(st.booleans()) for _ in edges]
+    inject = draw(st.sampled_from(inner))
+    return inner, edges, values, cap, kinds, r_off, closed, inject
+
+
+class TestRandomSwitchedNetworks:
+    @settings(max_examples=60)
+    @given(switched_networks())
+    def test_thevenin_against_nodal_analysis(self, network):
+        inner, edges, values, (cap_a, cap_b), kinds, r_off, closed, inject = network
+        fx = fo.Fixture()
+        fx.voltage_source("v", "s", "gnd")
+        fx.current_source("i", "gnd", inject)  # injects into `inject`
+        states = {}
+        for k, ((a, b), r, kind, off, on) in enumerate(zip(edges, values, kinds, r_off, closed)):
+            if kind == "resistor":
+                fx.resistor(f"r{k}", a, b, r)
+            else:
+                fx.switch(f"k{k}", a, b, r_on=r, r_off=max(off, 2 * r))
+                states[f"k{k}"] = on
+        fx.capacitor("c", cap_a, cap_b, 1e-6)
+        try:
+            fx.check()
+        except TopologyError:
+            assume(False)
+        # Reference: nodal analysis written here, each branch as its present resistance
+        # (an open switch without leakage is no branch); nodes cut off from ground and the
+        # source are left out, and the case is skipped when that leaves the capacitor or the
+        # current source without a path.
+        branches = []
+        for k, ((a, b), r, kind, off, on) in enumerate(zip(edges, values, kinds, r_off, closed)):
+            resistance = r if kind == "resistor" or on else max(off, 2 * r)
+            if math.isfinite(resistance):
+                branches.append((a, b, resistance))
+        reach, frontier = {"gnd", "s"}, ["gnd", "s"]
+        while frontier:
+            here = frontier.pop()
+            for a, b, _ in branches:
+                for x, y in ((a, b), (b, a)):
+                    if x == here and y not in reach:
+                        reach.add(y)
+                        frontier.append(y)
+        assume({cap_a, cap_b, inject} <= reach)
+        live = [n for n in inner if n in reach]
+        index = {n: k for k, n in enumerate(live)}
+        G = np.zeros((len(live), len(live)))
+        by_volt, by_amp = np.zeros(len(live)), np.zeros(len(live))
+        for a, b, r in branches:
+            g = 1.0 / r
+            for here, there in ((a, b), (b, a)):
+                if here in index:
+                    G[index[here], index[here]] += g
+                    if there in index:
+                        G[index[here], index[there]] -= g
+                    elif there == "s":
+                        by_volt[index[here]] += g
+        by_amp[index[inject]] = 1.0
+        d = np.zeros(len(live))
+        for node, sign in ((cap_a, 1.0), (cap_b, -1.0)):
+            if node in index:
+                d[index[node]] += sign
+        assume(np.linalg.cond(G) < 1e8)
+        r_th = float(d @ np.linalg.solve(G, d))
+        _, red = fx.configuration(fx.switch_states(**states))
+        assert red.resistance == pytest.approx(r_th, rel=1e-7)
+        assert red.gain[0] == pytest.approx(float(d @ np.linalg.solve(G, by_volt)), rel=1e-7, abs=1e-10)
+        assert red.gain[1] == pytest.approx(float(d @ np.linalg.solve(G, by_amp)), rel=1e-7, abs=1e-10 * r_th)
