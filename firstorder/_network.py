@@ -219,7 +219,15 @@ def plan(fixture: "Fixture", states: tuple[bool, ...], where: str) -> Layout:
                         f"would be forced to the {level} in zero time"
                     )
                 else:
-                    cause = "the current would have to stop in zero time"
+                    ends = {solid.find(a), solid.find(b)}
+                    cutting = sorted(
+                        part.name for part in fixture.switches
+                        if not switch_state[part.name] and not np.isfinite(part.r_off)
+                        and solid.find(part.a) != solid.find(part.b)
+                        and ends & {solid.find(part.a), solid.find(part.b)}
+                    )
+                    opened = f" (open: {_and_list(cutting)})" if cutting else ""
+                    cause = f"its path is cut{opened}, so the current would have to stop in zero time"
                 raise ZeroTimeError(
                     f"{where}: the current of inductor '{storage.name}' has no path through a "
                     f"resistance or a voltage element between nodes '{a}' and '{b}': {cause}. "

@@ -214,6 +214,7 @@ class TestPlan:
         message = str(caught.value)
         assert "segment 1" in message and "kdrv open" in message
         assert "inductor 'coil'" in message
+        assert "(open: 'kdrv')" in message  # the switch that cuts the path, by name
         assert "flyback" in message
         assert "local codes and licensed practice" in message
 
