@@ -327,6 +327,15 @@ class TestFlyback:
         # KVL: the switch node sits at the supply plus the flyback drop.
         assert after[1] == pytest.approx(self.V - res.probe("v_switch", self.T_OPEN), rel=1e-12)
 
+    def test_settling_of_the_coil_voltage(self):
+        res = self.coil().respond(self.drive(), initial="settled")
+        table = res.settling(fo.Tolerance.absolute(1.0), probe="v_coil")
+        spike = self.V / self.RCOIL * self.RFB
+        tau = self.L / (self.RCOIL + self.RFB)
+        # Hand formula: |-I0 Rfb e^(-t/tau)| falls below 1 V at t = tau ln(I0 Rfb / 1 V).
+        assert table["start_value"].iloc[1] == pytest.approx(-spike, rel=1e-12)
+        assert table["settle_time"].iloc[1] == pytest.approx(tau * math.log(spike / 1.0), rel=1e-12)
+
     def test_no_flyback_path_is_refused_with_the_caution(self):
         with pytest.raises(ZeroTimeError) as caught:
             self.coil(flyback=False).respond(self.drive(), initial="settled")
