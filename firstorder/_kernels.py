@@ -42,6 +42,12 @@ def _compile():
 
     jit = numba.njit(cache=True, nogil=True)
 
+    # The scan's blocks are walked eight at a time, element by element, with the
+    # innermost loop across those eight: each block sees the operations of the numpy
+    # path in the same order, there are eight independent chains to hide the
+    # multiply-add latency, and each block is still read sequentially.
+    lanes = 8
+
     @jit
     def block_totals(a, b, width):
         """Compose each block's maps in order; return the per-block (gain, shift)."""
@@ -49,36 +55,44 @@ def _compile():
         blocks = (n + width - 1) // width
         gain = np.empty(blocks)
         shift = np.empty(blocks)
-        for c in range(blocks):
-            start = c * width
-            stop = min(start + width, n)
-            g = a[start]
-            s = b[start]
-            for k in range(start + 1, stop):
-                # numpy: shift[j] += gain[j] * shift[j - 1]; gain[j] *= gain[j - 1]
-                s = b[k] + a[k] * s
-                g = a[k] * g
-            gain[c] = g
-            shift[c] = s
+        for first in range(0, blocks, lanes):
+            last = min(first + lanes, blocks)
+            for c in range(first, last):
+                gain[c] = a[c * width]
+                shift[c] = b[c * width]
+            for j in range(1, width):
+                for c in range(first, last):
+                    k = c * width + j
+                    if k < n:
+                        # numpy: shift[j] += gain[j] * shift[j - 1]; gain[j] *= gain[j - 1]
+                        shift[c] = b[k] + a[k] * shift[c]
+                        gain[c] = a[k] * gain[c]
         return gain, shift
 
     @jit
     def block_states(a, b, width, starts, out):
         """Each element's state: its block's partial map applied to the block's start."""
         n = a.size
-        out[0] = starts[0]
         blocks = (n + width - 1) // width
-        for c in range(blocks):
-            start = c * width
-            stop = min(start + width, n)
-            begin = starts[c]
-            g = a[start]
-            s = b[start]
-            out[start + 1] = g * begin + s
-            for k in range(start + 1, stop):
-                s = b[k] + a[k] * s
-                g = a[k] * g
-                out[k + 1] = g * begin + s
+        out[0] = starts[0]
+        gain = np.empty(lanes)
+        shift = np.empty(lanes)
+        for first in range(0, blocks, lanes):
+            last = min(first + lanes, blocks)
+            for c in range(first, last):
+                k = c * width
+                gain[c - first] = a[k]
+                shift[c - first] = b[k]
+                out[k + 1] = gain[c - first] * starts[c] + shift[c - first]
+            for j in range(1, width):
+                for c in range(first, last):
+                    k = c * width + j
+                    if k < n:
+                        g = a[k] * gain[c - first]
+                        s = b[k] + a[k] * shift[c - first]
+                        gain[c - first] = g
+                        shift[c - first] = s
+                        out[k + 1] = g * starts[c] + s
 
     @jit
     def segment_bounds(t, starts):

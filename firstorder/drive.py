@@ -16,6 +16,7 @@ from typing import Any
 
 import numpy as np
 
+from . import _kernels
 from .errors import InputError
 from .units import format_value, parse_value
 
@@ -42,11 +43,23 @@ def _as_float_array(values: Any, *, field: str, unit: str) -> np.ndarray:
             )
     if array.ndim != 1:
         raise InputError(f"{field}: expected a 1-D list of values, got shape {array.shape}")
-    bad = ~np.isfinite(array)
-    if bad.any():
-        i = int(np.argmax(bad))
-        raise InputError(f"{field}[{i}]: {float(array[i])!r} is not allowed; expected a finite number")
+    if not np.isfinite(array.sum()):  # one cheap pass: NaN or inf anywhere shows in the sum
+        bad = ~np.isfinite(array)
+        if bad.any():
+            i = int(np.argmax(bad))
+            raise InputError(f"{field}[{i}]: {float(array[i])!r} is not allowed; expected a finite number")
     return array
+
+
+def _first_not_increasing(times: np.ndarray) -> int:
+    """Index of the first time not after its predecessor, or -1."""
+    kernels = _kernels.available(times.size)
+    if kernels is not None:
+        return int(kernels.check_times(times)[1])
+    steps = np.diff(times)
+    if steps.size and not (steps > 0).all():
+        return int(np.argmax(~(steps > 0))) + 1
+    return -1
 
 
 class Drive:
@@ -78,9 +91,8 @@ class Drive:
         time_array = _as_float_array(times, field="drive.times", unit="s")
         if time_array.size == 0:
             raise InputError("drive.times: at least one change instant is needed, got none")
-        steps = np.diff(time_array)
-        if steps.size and not (steps > 0).all():
-            i = int(np.argmax(~(steps > 0))) + 1
+        i = _first_not_increasing(time_array)
+        if i >= 0:
             raise InputError(
                 f"drive.times[{i}]: {float(time_array[i])!r} does not come after "
                 f"drive.times[{i - 1}] = {float(time_array[i - 1])!r}; times must be strictly increasing"
@@ -218,12 +230,18 @@ class Drive:
     @property
     def ends(self) -> np.ndarray:
         """End instant of every segment (s)."""
-        return np.append(self._times[1:], self._end)
+        ends = np.empty(self._times.size)
+        ends[:-1] = self._times[1:]
+        ends[-1] = self._end
+        return ends
 
     @property
     def durations(self) -> np.ndarray:
         """Length of every segment (s)."""
-        return np.diff(self._times, append=self._end)
+        durations = np.empty(self._times.size)
+        np.subtract(self._times[1:], self._times[:-1], out=durations[:-1])
+        durations[-1] = self._end - self._times[-1]
+        return durations
 
     def __len__(self) -> int:
         return int(self._times.size)

@@ -40,8 +40,11 @@ def decay_factors(durations: np.ndarray, rate: np.ndarray) -> tuple[np.ndarray, 
     >>> float(one_minus_a[0])
     1e-15
     """
-    exponent = -(durations * rate)
-    return np.exp(exponent), -np.expm1(exponent)
+    exponent = np.multiply(durations, rate)
+    np.negative(exponent, out=exponent)
+    growth = np.expm1(exponent)
+    np.negative(growth, out=growth)
+    return np.exp(exponent, out=exponent), growth
 
 
 def affine_scan(a: np.ndarray, b: np.ndarray, x0: float) -> np.ndarray:
