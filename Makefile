@@ -6,7 +6,7 @@ VENV ?= .venv
 BIN := $(VENV)/bin
 NOTEBOOK ?= notebooks/01_quickstart.ipynb
 
-.PHONY: lab test install-lab install-test bench clean
+.PHONY: lab test install-lab install-test bench notebooks clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -33,6 +33,12 @@ test: install-test
 
 bench: install-test
 	$(BIN)/python benchmarks/engine.py
+	$(BIN)/python benchmarks/derive.py
+	$(BIN)/python benchmarks/bench.py
+
+# Re-execute every notebook in place, stored without widget state (see tools/run_notebooks.py).
+notebooks: install-test
+	$(BIN)/python tools/run_notebooks.py
 
 clean:
 	rm -rf build .pytest_cache

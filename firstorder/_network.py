@@ -94,6 +94,10 @@ class Layout:
         Current sources (1 + j) and the inductor (0), flowing from a into b.
     holds : bool
         The storage element sees no resistive path (tau is infinite).
+    islands : dict of str to str
+        Nodes that float in this configuration (nothing but open switches or current
+        sources joins them to ground), each mapped to the node pinned at 0 V for its
+        island: their voltages against anything outside the island are not defined.
     """
 
     nodes: tuple[str, ...]
@@ -104,6 +108,7 @@ class Layout:
     storage_kind: str
     storage_name: str
     node_index: dict[str, int] = field(default_factory=dict, compare=False)
+    islands: dict[str, str] = field(default_factory=dict, compare=False)
 
     @property
     def size(self) -> int:
@@ -197,39 +202,62 @@ def plan(fixture: "Fixture", states: tuple[bool, ...], where: str) -> Layout:
         solid.union(a, b)
     for node in fixture.nodes:
         solid.find(node)
-    for name, a, b, index in injections:
+    for _, a, b, _ in injections:
         if solid.find(a) != solid.find(b):
             crossing = sorted(
                 n for n, p, q, _ in injections if {solid.find(p), solid.find(q)} == {solid.find(a), solid.find(b)}
             )
-            if index == 0:
+            if storage.kind == "inductor" and storage.name in crossing:
+                # The coil's current is cut (nothing else joins its ends) or forced by
+                # current sources in series with it: either way it would jump in zero time.
+                sources = [n for n in crossing if n != storage.name]
+                if sources:
+                    level = "source's level" if len(sources) == 1 else "sources' levels"
+                    verb = "is" if len(sources) == 1 else "are"
+                    cause = (
+                        f"only {_and_list(sources)} {verb} in series with it, so its current "
+                        f"would be forced to the {level} in zero time"
+                    )
+                else:
+                    ends = {solid.find(a), solid.find(b)}
+                    cutting = sorted(
+                        part.name for part in fixture.switches
+                        if not switch_state[part.name] and not np.isfinite(part.r_off)
+                        and solid.find(part.a) != solid.find(part.b)
+                        and ends & {solid.find(part.a), solid.find(part.b)}
+                    )
+                    opened = f" (open: {_and_list(cutting)})" if cutting else ""
+                    cause = f"its path is cut{opened}, so the current would have to stop in zero time"
                 raise ZeroTimeError(
-                    f"{where}: the current of inductor '{name}' has no path: "
-                    f"{_and_list(crossing)} alone {'joins' if len(crossing) == 1 else 'join'} nodes '{a}' and '{b}', so "
-                    f"the current would have to stop in zero time. In a real coil this "
-                    f"is the voltage spike of an interrupted inductor, large enough to "
+                    f"{where}: the current of inductor '{storage.name}' has no path through a "
+                    f"resistance or a voltage element between nodes '{a}' and '{b}': {cause}. "
+                    f"In a real coil this is the voltage spike of an interrupted inductor, large enough to "
                     f"arc across the switch and destroy parts. Add a flyback path "
                     f"(a diode or a resistor across the coil, for example 1 kΩ) or a "
                     f"switch off-resistance. CAUTION: energy stored in a coil is "
                     f"released as a high voltage when its current is interrupted; follow "
                     f"local codes and licensed practice."
                 )
+            which = f"current source {_and_list(crossing)} is" if len(crossing) == 1 else \
+                f"current sources {_and_list(crossing)} form"
             raise TopologyError(
-                f"{where}: current sources {_and_list(crossing)} form a cut set "
-                f"(nothing but current sources joins the nodes around '{a}' and "
-                f"'{b}'), so their currents cannot all flow. Add a resistance across "
-                f"one of them."
+                f"{where}: {which} a cut set (nothing but current sources joins the "
+                f"nodes around '{a}' and '{b}'), so the current cannot flow. Add a resistance "
+                f"across {'it' if len(crossing) == 1 else 'one of them'}."
             )
 
     # 3. Islands that do not reach ground float: pin one node of each at 0 V.
     #    No current can enter them (step 2), so the pin carries none.
     ground_root = solid.find(GROUND)
-    pinned: set[str] = set()
+    pinned: dict[str, str] = {}
+    islands: dict[str, str] = {}
     for node in fixture.nodes:
         root = solid.find(node)
-        if node != GROUND and root != ground_root and root not in pinned:
-            pinned.add(root)
-            ideal_voltage.append((f"pin:{node}", node, GROUND, None))
+        if node != GROUND and root != ground_root:
+            if root not in pinned:
+                pinned[root] = node
+                ideal_voltage.append((f"pin:{node}", node, GROUND, None))
+            islands[node] = pinned[root]
 
     nodes = tuple(n for n in fixture.nodes if n != GROUND)
     return Layout(
@@ -241,6 +269,7 @@ def plan(fixture: "Fixture", states: tuple[bool, ...], where: str) -> Layout:
         storage_kind=storage.kind,
         storage_name=storage.name,
         node_index={n: i for i, n in enumerate(nodes)},
+        islands=islands,
     )
 
 
@@ -314,6 +343,10 @@ class Reduced:
     resistance: float  # Thevenin (capacitor) or Norton (inductor) resistance seen
 
 
+#: Relative size below which a difference of two MNA coefficients is rounding, not a value.
+_CANCELLED = 8 * np.finfo(float).eps
+
+
 def reduce_numeric(layout: Layout, fixture: "Fixture") -> Reduced:
     """Solve one configuration's MNA system with numpy."""
     parts = fixture.part_map
@@ -333,7 +366,12 @@ def reduce_numeric(layout: Layout, fixture: "Fixture") -> Reduced:
         flow = solution[layout.branch_row(storage.name)]
     else:
         # Voltage across the inductor, v(a) - v(b).
-        flow = _node_row(solution, layout, storage.a) - _node_row(solution, layout, storage.b)
+        high, low = _node_row(solution, layout, storage.a), _node_row(solution, layout, storage.b)
+        flow = high - low
+        # A coefficient that cancels to within rounding of its two terms is zero (a supply
+        # that cannot drive the coil once its switch opens): left at 1e-16 it would give a
+        # final current of attoamps where there is none.
+        flow[np.abs(flow) <= _CANCELLED * np.maximum(np.abs(high), np.abs(low))] = 0.0
     rate_state, rate_sources = float(flow[0]), flow[1:]
     if layout.holds or rate_state == 0.0:
         return Reduced(
@@ -361,10 +399,23 @@ def _node_row(solution: np.ndarray, layout: Layout, node: str) -> np.ndarray:
     return solution[layout.node_index[node]]
 
 
-def probe_row(layout: Layout, fixture: "Fixture", reduced: Reduced, probe) -> np.ndarray:
-    """A probe as an affine row over ``[x, u...]`` in one configuration."""
+def probe_row(layout: Layout, fixture: "Fixture", reduced: Reduced, probe, where: str = "") -> np.ndarray:
+    """A probe as an affine row over ``[x, u...]`` in one configuration.
+
+    Raises TopologyError (naming `where`) for a node voltage across a floating island,
+    whose value the pin would otherwise set to an arbitrary 0 V.
+    """
     solution = reduced.solution
     if probe.node is not None:
+        island, other = layout.islands.get(probe.node), layout.islands.get(probe.reference)
+        if island != other:
+            floating, against = (probe.node, probe.reference) if island is not None else (probe.reference, probe.node)
+            raise TopologyError(
+                f"{where or 'this configuration'}: probe '{probe.name}': node '{floating}' floats "
+                f"(nothing but open switches or current sources joins it to '{against}'), so "
+                f"its voltage against '{against}' is not defined. Give the open switch a "
+                f"leakage (r_off) or add a resistance from '{floating}' to ground."
+            )
         return _node_row(solution, layout, probe.node) - _node_row(solution, layout, probe.reference)
     part = fixture.part_map[probe.through]
     width = solution.shape[1]

@@ -237,6 +237,12 @@ class Fixture:
             reference = _check_node(reference, f"probe '{name}' reference")
             if node == reference:
                 raise InputError(f"probe '{name}': node and reference are both {node!r}; the voltage would always be 0")
+        if through is not None and reference != GROUND:
+            # A current has no reference node; ignoring one would hide a mistyped voltage probe.
+            raise InputError(
+                f"probe '{name}': reference={reference!r} applies to a node voltage; a current "
+                f"through '{through}' takes no reference"
+            )
         self._probes.append(Probe(name, node=node, reference=reference, through=through))
         return self
 

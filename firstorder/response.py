@@ -96,11 +96,16 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
             k = int(np.argmax(ramp))
             storage = fixture.storage
             feeding = [s.name for s, d in zip(fixture.sources, drifts[inverse[k]]) if d != 0]
+            # A capacitor fed by a current needs a path across it; a coil held at a voltage
+            # needs resistance in its loop (a resistor across it would change nothing).
+            remedy = (
+                "across the capacitor, or in series with the source" if storage.kind == "capacitor"
+                else "in series with the inductor (its winding resistance, say) or with the source"
+            )
             raise TopologyError(
                 f"segment {k} (from {format_value(float(drive.times[k]), 's')}): {storage.kind} "
                 f"'{storage.name}' sees no resistance, yet {feeding} drive it, so its state would "
-                f"ramp without limit. Add a resistance in its path (for example across the "
-                f"{storage.kind} or in series with the source)."
+                f"ramp without limit. Add a resistance {remedy}."
             )
     with np.errstate(divide="ignore"):
         rate_by_config = np.where(holding, 0.0, 1.0 / taus)
@@ -451,10 +456,14 @@ class Response:
         probes = {p.name: p for p in self.fixture.probes}
         if name not in probes:
             raise InputError(f"probe: {name!r} is not a probe of the fixture; probes are {list(probes)}")
-        by_config = np.array([
-            probe_row(layout, self.fixture, reduced, probes[name])
-            for layout, reduced in (self.fixture.configuration(c) for c in self._configs)
-        ])
+        rows = []
+        for c, config in enumerate(self._configs):
+            layout, reduced = self.fixture.configuration(config)
+            k = int(np.argmax(self._inverse == c))  # the first segment in this configuration
+            where = f"segment {k} (from {format_value(float(self._starts[k]), 's')}"
+            where += f"; {self.fixture.describe_states(config)})" if config else ")"
+            rows.append(probe_row(layout, self.fixture, reduced, probes[name], where))
+        by_config = np.array(rows)
         return by_config[self._inverse]
 
     def probe(self, name: str, t: Any, component: str = "total"):
