@@ -95,14 +95,18 @@ def _compile():
                         out[k + 1] = g * starts[c] + s
 
     @jit
-    def segment_bounds(t, starts):
-        """First point of every segment on a grid (merge walk), and whether the grid is
-        finite and never decreases.  ``bounds[k]:bounds[k + 1]`` are segment k's points."""
+    def walk_exponent(t, starts, rate, out):
+        """Walk a grid: ``(t - start) * -rate`` of each point's segment into `out` (numpy:
+        repeat, subtract, multiply), the first point of every segment (``bounds[k]:bounds[k + 1]``
+        are segment k's points), and whether the grid is finite and never decreases (if
+        not, `out` holds nothing useful and the caller takes the general path)."""
         n = starts.size
         size = t.size
         bounds = np.empty(n + 1, dtype=np.int64)
         bounds[0] = 0
         k = 0
+        begin = starts[0]
+        factor = -rate[0]
         good = True
         previous = -np.inf
         for i in range(size):
@@ -113,19 +117,13 @@ def _compile():
             while k + 1 < n and value >= starts[k + 1]:
                 k += 1
                 bounds[k] = i
+                begin = starts[k]
+                factor = -rate[k]
+            out[i] = (value - begin) * factor
         for j in range(k + 1, n + 1):
             bounds[j] = size
         good = good and np.isfinite(previous)
         return bounds, good
-
-    @jit
-    def sorted_exponent(t, starts, rate, bounds, out):
-        """``(t - start) * -rate`` of each point's segment (numpy: repeat, subtract, multiply)."""
-        for k in range(starts.size):
-            begin = starts[k]
-            factor = -rate[k]
-            for i in range(bounds[k], bounds[k + 1]):
-                out[i] = (t[i] - begin) * factor
 
     @jit
     def sorted_combine(difference, final, decay, bounds, out):
@@ -155,8 +153,7 @@ def _compile():
     kernels = Kernels()
     kernels.block_totals = block_totals
     kernels.block_states = block_states
-    kernels.sorted_exponent = sorted_exponent
     kernels.sorted_combine = sorted_combine
     kernels.check_times = check_times
-    kernels.segment_bounds = segment_bounds
+    kernels.walk_exponent = walk_exponent
     return kernels

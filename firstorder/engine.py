@@ -154,14 +154,13 @@ class SegmentLocator:
             if kernels is not None:
                 self._t = np.ascontiguousarray(t)
                 self._starts = np.ascontiguousarray(starts, dtype=np.float64)
-                bounds, in_order = kernels.segment_bounds(self._t, self._starts)
+                elapsed = np.empty(t.size)
+                bounds, in_order = kernels.walk_exponent(self._t, self._starts, np.ascontiguousarray(rate), elapsed)
                 if in_order:
                     # Compiled walk over the sorted grid (the same operations as below).
                     self.is_sorted = True
                     self._kernels = kernels
                     self._bounds = bounds
-                    elapsed = np.empty(t.size)
-                    kernels.sorted_exponent(self._t, self._starts, np.ascontiguousarray(rate), bounds, elapsed)
                     self.decay = _exp(elapsed)
                     return
                 is_sorted = False

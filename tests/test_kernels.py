@@ -52,15 +52,26 @@ class TestEvaluation:
         args = (t, self.starts, self.rate, self.final, self.start_state)
         np.testing.assert_array_equal(engine.evaluate(*args), numpy_only(engine.evaluate, *args))
 
-    def test_segment_bounds_match_searchsorted(self):
+    def test_walk_bounds_match_searchsorted(self):
         kernels = _kernels.available(_kernels.THRESHOLD)
         t = np.linspace(0.0, 10.0, 50_000)
-        bounds, in_order = kernels.segment_bounds(t, self.starts)
+        out = np.empty(t.size)
+        bounds, in_order = kernels.walk_exponent(t, self.starts, self.rate, out)
         assert in_order
         expected = np.searchsorted(t, self.starts, side="left")
         expected[0] = 0
         np.testing.assert_array_equal(bounds[:-1], expected)
         assert bounds[-1] == t.size
+
+    def test_walk_notices_disorder_and_nan(self):
+        kernels = _kernels.available(_kernels.THRESHOLD)
+        t = np.linspace(0.0, 10.0, 50_000)
+        out = np.empty(t.size)
+        swapped = t.copy()
+        swapped[[100, 101]] = swapped[[101, 100]]
+        assert not kernels.walk_exponent(swapped, self.starts, self.rate, out)[1]
+        t[-1] = np.nan
+        assert not kernels.walk_exponent(t, self.starts, self.rate, out)[1]
 
     def test_small_arrays_stay_on_numpy(self):
         assert _kernels.available(_kernels.THRESHOLD - 1) is None
