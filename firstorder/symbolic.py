@@ -403,14 +403,17 @@ _CACHE_SIZE = 256
 _FACTOR_LIMIT = 80
 
 
+def _at_most(expression: sp.Expr, limit: int) -> bool:
+    """Whether `expression` has at most `limit` nodes (stops counting past it)."""
+    for size, _ in enumerate(sp.preorder_traversal(expression), start=1):
+        if size > limit:
+            return False
+    return True
+
+
 def _tidy(expression: sp.Expr) -> sp.Expr:
     """`expression` as one factored fraction when that is cheap, else as eliminated."""
-    size = 0
-    for _ in sp.preorder_traversal(expression):
-        size += 1
-        if size > _FACTOR_LIMIT:
-            return expression
-    return sp.factor(expression)
+    return sp.factor(expression) if _at_most(expression, _FACTOR_LIMIT) else expression
 
 
 #: Below this size an entry is put over one denominator while eliminating, so
@@ -419,12 +422,8 @@ _COMPACT_LIMIT = 40
 
 
 def _compact(expression: sp.Expr) -> sp.Expr:
-    size = 0
-    for _ in sp.preorder_traversal(expression):
-        size += 1
-        if size > _COMPACT_LIMIT:
-            return expression
-    return sp.cancel(expression)
+    """`expression` over one denominator when it is small, else as it stands."""
+    return sp.cancel(expression) if _at_most(expression, _COMPACT_LIMIT) else expression
 
 
 def _structure_key(fixture: "Fixture", layout: _network.Layout, states: tuple[bool, ...]) -> tuple:
