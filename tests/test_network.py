@@ -28,6 +28,34 @@ def reduced(fixture, **states):
 
 
 # ------------------------------------------------------------------------------------------
+
+def _nodal_matrix(index, branches):
+    """Textbook nodal analysis, written independently of firstorder: the conductance
+    matrix over the inner nodes in `index`, and the injection per volt of the source
+    node "s" (ground and "s" are not unknowns)."""
+    G = np.zeros((len(index), len(index)))
+    per_volt = np.zeros(len(index))
+    for a, b, r in branches:
+        g = 1.0 / r
+        for here, there in ((a, b), (b, a)):
+            if here in index:
+                G[index[here], index[here]] += g
+                if there in index:
+                    G[index[here], index[there]] -= g
+                elif there == "s":
+                    per_volt[index[here]] += g
+    return G, per_volt
+
+
+def _unit_injection(index, into, out_of):
+    """A unit current into node `into` and out of node `out_of` (ground is not an unknown)."""
+    d = np.zeros(len(index))
+    for node, sign in ((into, 1.0), (out_of, -1.0)):
+        if node in index:
+            d[index[node]] += sign
+    return d
+
+
 class TestReduceNumeric:
     """Thevenin / Norton equivalents seen by the storage element, against handbook formulas."""
 
@@ -406,21 +434,8 @@ class TestRandomResistiveNetworks:
         # the source node held at V; V_th is the open-circuit v(a) - v(b) per volt, and
         # R_th = d^T G^-1 d with d the unit injection at a and out of b (sources zeroed).
         index = {n: k for k, n in enumerate(inner)}
-        G = np.zeros((len(inner), len(inner)))
-        drive = np.zeros(len(inner))
-        for (a, b), r in zip(edges, values):
-            g = 1.0 / r
-            for here, there in ((a, b), (b, a)):
-                if here in index:
-                    G[index[here], index[here]] += g
-                    if there in index:
-                        G[index[here], index[there]] -= g
-                    elif there == "s":
-                        drive[index[here]] += g  # per volt of the source
-        d = np.zeros(len(inner))
-        for node, sign in ((cap_a, 1.0), (cap_b, -1.0)):
-            if node in index:
-                d[index[node]] += sign
+        G, drive = _nodal_matrix(index, [(a, b, r) for (a, b), r in zip(edges, values)])
+        d = _unit_injection(index, cap_a, cap_b)
         assume(np.linalg.cond(G) < 1e9)
         r_th = float(d @ np.linalg.solve(G, d))
         v_th = float(d @ np.linalg.solve(G, drive))
@@ -527,22 +542,10 @@ class TestRandomSwitchedNetworks:
         assume({cap_a, cap_b, inject} <= reach)
         live = [n for n in inner if n in reach]
         index = {n: k for k, n in enumerate(live)}
-        G = np.zeros((len(live), len(live)))
-        by_volt, by_amp = np.zeros(len(live)), np.zeros(len(live))
-        for a, b, r in branches:
-            g = 1.0 / r
-            for here, there in ((a, b), (b, a)):
-                if here in index:
-                    G[index[here], index[here]] += g
-                    if there in index:
-                        G[index[here], index[there]] -= g
-                    elif there == "s":
-                        by_volt[index[here]] += g
+        G, by_volt = _nodal_matrix(index, branches)
+        by_amp = np.zeros(len(live))
         by_amp[index[inject]] = 1.0
-        d = np.zeros(len(live))
-        for node, sign in ((cap_a, 1.0), (cap_b, -1.0)):
-            if node in index:
-                d[index[node]] += sign
+        d = _unit_injection(index, cap_a, cap_b)
         assume(np.linalg.cond(G) < 1e8)
         r_th = float(d @ np.linalg.solve(G, d))
         _, red = fx.configuration(fx.switch_states(**states))
