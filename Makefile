@@ -17,9 +17,10 @@ $(VENV)/.lab-installed: pyproject.toml | $(BIN)/python
 	$(BIN)/python -m pip install --quiet -e '.[lab]'
 	touch $@
 
+# The test install includes the lab extra, so it satisfies `make lab` too.
 $(VENV)/.test-installed: pyproject.toml | $(BIN)/python
 	$(BIN)/python -m pip install --quiet -e '.[lab,test]'
-	touch $@
+	touch $@ $(VENV)/.lab-installed
 
 install-lab: $(VENV)/.lab-installed
 install-test: $(VENV)/.test-installed
