@@ -25,8 +25,11 @@ $(VENV)/.test-installed: pyproject.toml | $(BIN)/python
 install-lab: $(VENV)/.lab-installed
 install-test: $(VENV)/.test-installed
 
+# JupyterLab refuses to run as root unless told; containers and CI machines often are root.
+ALLOW_ROOT := $(if $(filter 0,$(shell id -u)),--allow-root,)
+
 lab: install-lab
-	$(BIN)/jupyter lab $(NOTEBOOK)
+	$(BIN)/jupyter lab $(ALLOW_ROOT) $(NOTEBOOK)
 
 # Unit tests, doctests in the package and the notebooks under nbval, in one run.
 test: install-test
