@@ -991,8 +991,6 @@ def _check_trace(trace: Any):
 
 def _derivation_html(fixture: Fixture, response, segment: int, probe: str | None) -> str:
     """Symbols first (sympy), then this segment's numbers."""
-    import sympy as sp
-
     drive = response.drive
     states = dict(zip((p.name for p in fixture.switches),
                       (bool(drive.levels(p.name)[segment]) for p in fixture.switches)))
@@ -1005,7 +1003,9 @@ def _derivation_html(fixture: Fixture, response, segment: int, probe: str | None
            f"<p>Configuration: {html.escape(derivation.configuration)}; levels: {html.escape(levels) or 'none'}</p>"]
     for caption, body in derivation.steps():
         out.append(f"<p style='margin:2px 0'><b>{html.escape(caption)}</b></p><p>$$ {body} $$</p>")
-    x = sp.latex(sp.Symbol(derivation.state.func.__name__))
+    from ..symbolic import _latex_name  # the same writing of names as the steps above
+
+    x = _latex_name(derivation.state.func.__name__)
     tau = float(response.tau[segment])
     x0 = float(response.boundary[segment])
     final = float(response.final[segment])
