@@ -15,6 +15,7 @@ analyses never load it.
 from __future__ import annotations
 
 import os
+import types
 
 import numpy as np
 
@@ -135,25 +136,17 @@ def _compile():
                 out[i] = d * decay[i] + f
 
     @jit
-    def check_times(times):
-        """Index of the first non-finite time and of the first not after its predecessor (-1: none)."""
-        bad = -1
-        order = -1
-        for i in range(times.size):
-            value = times[i]
-            if bad < 0 and not np.isfinite(value):
-                bad = i
-            if order < 0 and i > 0 and not value > times[i - 1]:
-                order = i
-        return bad, order
+    def first_not_increasing(times):
+        """Index of the first time not after its predecessor, or -1."""
+        for i in range(1, times.size):
+            if not times[i] > times[i - 1]:
+                return i
+        return -1
 
-    class Kernels:
-        pass
-
-    kernels = Kernels()
-    kernels.block_totals = block_totals
-    kernels.block_states = block_states
-    kernels.sorted_combine = sorted_combine
-    kernels.check_times = check_times
-    kernels.walk_exponent = walk_exponent
-    return kernels
+    return types.SimpleNamespace(
+        block_totals=block_totals,
+        block_states=block_states,
+        walk_exponent=walk_exponent,
+        sorted_combine=sorted_combine,
+        first_not_increasing=first_not_increasing,
+    )

@@ -55,7 +55,7 @@ def _first_not_increasing(times: np.ndarray) -> int:
     """Index of the first time not after its predecessor, or -1."""
     kernels = _kernels.available(times.size)
     if kernels is not None:
-        return int(kernels.check_times(times)[1])
+        return int(kernels.first_not_increasing(times))
     steps = np.diff(times)
     if steps.size and not (steps > 0).all():
         return int(np.argmax(~(steps > 0))) + 1

@@ -69,6 +69,12 @@ def _configurations(states: np.ndarray) -> tuple[list[tuple[bool, ...]], np.ndar
     return configs, inverse.reshape(-1)
 
 
+def _rates(taus: np.ndarray) -> np.ndarray:
+    """``1 / tau``, and 0 where tau is infinite (the state is held)."""
+    holding = np.isinf(taus)
+    return np.where(holding, 0.0, 1.0 / np.where(holding, 1.0, taus))
+
+
 def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response":
     """Compute the response of `fixture` to `drive` (see :class:`Response`)."""
     fixture.check()
@@ -107,8 +113,7 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
                 f"'{storage.name}' sees no resistance, yet {feeding} drive it, so its state would "
                 f"ramp without limit. Add a resistance {remedy}."
             )
-    with np.errstate(divide="ignore"):
-        rate_by_config = np.where(holding, 0.0, 1.0 / taus)
+    rate_by_config = _rates(taus)
     if len(configs) == 1:
         rate = np.full(len(drive), rate_by_config[0])  # no gather for a fixture without switch changes
     else:
@@ -202,8 +207,7 @@ class Response:
         if bad.any():
             k = int(np.argmax(bad))
             raise InputError(f"from_segments.final[{k}]: {float(finals[k])!r} is not allowed; expected a finite number")
-        with np.errstate(divide="ignore"):
-            rate = np.where(holding, 0.0, 1.0 / np.where(holding, 1.0, taus))
+        rate = _rates(taus)
         levels = np.where(holding, 0.0, finals).reshape(n, 1)
         return cls(_FittedSegments(name, unit), drive, levels, [()], np.zeros(n, dtype=np.intp), rate,
                    np.ones((1, 1)), initial)
@@ -218,9 +222,9 @@ class Response:
         self._gains = gains
         self._starts = drive.times
         self._decay, self._growth = engine.decay_factors(drive.durations, rate)
+        self._scans: dict[str, np.ndarray] = {}
         self.initial_text = initial
         self.initial = self._initial_state(initial)
-        self._scans: dict[str, np.ndarray] = {}
 
     # -- per-segment data ------------------------------------------------------------
     @cached_property
@@ -282,7 +286,7 @@ class Response:
         if isinstance(initial, str) and initial.strip() == "periodic":
             # x_end = A x0 + B, with 1 - A computed without cancellation.
             exponent = -float(np.sum(self.drive.durations * self._rate))
-            drift = float(engine.affine_scan(self._decay, self._growth * self._final_sources_only, 0.0)[-1])
+            drift = float(self._boundary("zero_state")[-1])  # cached: zero_state needs it again
             if exponent == 0.0:
                 if drift != 0.0:
                     raise InputError(
