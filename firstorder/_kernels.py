@@ -22,6 +22,13 @@ import numpy as np
 #: Arrays shorter than this stay on the numpy path (no numba import, no compile).
 THRESHOLD = 20_000
 
+#: Blocks of the scan worked on together (independent chains in flight).
+LANES = 8
+
+#: Below this magnitude a negative exponent's ``1 - exp`` is taken from ``expm1`` (see
+#: :func:`firstorder.engine.decay_factors`).
+SMALL_EXPONENT = 1.0 / 16.0
+
 _loaded: object = None  # None: not tried yet; False: unavailable; else the module
 
 
@@ -46,107 +53,198 @@ def _compile():
     # The scan's blocks are walked eight at a time, element by element, with the
     # innermost loop across those eight: each block sees the operations of the numpy
     # path in the same order, there are eight independent chains to hide the
-    # multiply-add latency, and each block is still read sequentially.
-    lanes = 8
+    # multiply-add latency, and each block is still read sequentially.  Both scan
+    # kernels work on blocks ``first:stop`` only, so pieces can run on several threads.
+    #
+    # Indices are unsigned (or loops run over views from 0) because a signed index
+    # makes numba check for negative indices on every access, which costs time and
+    # keeps LLVM from vectorising the loop.
+    lanes = LANES
+    u = np.uint64
+
+    # The shift of map k is ``shift_of(growth, complement, target, scale, k)``, formed as it is used
+    # (numpy: scale * target, then growth * that) so it is never stored.  With
+    # `complement`, `growth` holds the decay factors and ``1 - growth[k]`` is used (numpy:
+    # 1 - decay), so that array need not be stored either.
+
+    @numba.njit(cache=True, nogil=True, inline="always")
+    def shift_of(growth, complement, target, scale, k):
+        g = 1.0 - growth[k] if complement else growth[k]
+        return g * (scale * target[k])
 
     @jit
-    def block_totals(a, b, width):
-        """Compose each block's maps in order; return the per-block (gain, shift)."""
+    def block_totals(a, growth, complement, target, scale, width, gain, shift, first, stop):
+        """Compose each block's maps in order: the per-block (gain, shift) of blocks first:stop."""
         n = a.size
-        blocks = (n + width - 1) // width
-        gain = np.empty(blocks)
-        shift = np.empty(blocks)
-        for first in range(0, blocks, lanes):
-            last = min(first + lanes, blocks)
-            for c in range(first, last):
-                gain[c] = a[c * width]
-                shift[c] = b[c * width]
+        full = min(stop, n // width)  # blocks without the short last one
+        w = u(width)
+        g = np.empty(lanes)
+        s = np.empty(lanes)
+        c0 = first
+        while c0 + lanes <= full:
+            base = u(c0) * w
+            for lane in range(lanes):
+                g[lane] = a[base + u(lane) * w]
+                s[lane] = shift_of(growth, complement, target, scale, base + u(lane) * w)
             for j in range(1, width):
-                for c in range(first, last):
-                    k = c * width + j
-                    if k < n:
-                        # numpy: shift[j] += gain[j] * shift[j - 1]; gain[j] *= gain[j - 1]
-                        shift[c] = b[k] + a[k] * shift[c]
-                        gain[c] = a[k] * gain[c]
-        return gain, shift
+                row = base + u(j)
+                for lane in range(lanes):
+                    k = row + u(lane) * w
+                    # numpy: shift[j] += gain[j] * shift[j - 1]; gain[j] *= gain[j - 1]
+                    x = a[k]
+                    s[lane] = shift_of(growth, complement, target, scale, k) + x * s[lane]
+                    g[lane] = x * g[lane]
+            for lane in range(lanes):
+                gain[c0 + lane] = g[lane]
+                shift[c0 + lane] = s[lane]
+            c0 += lanes
+        for c in range(c0, stop):  # the rest, one block at a time
+            k0 = u(c) * w
+            total_gain = a[k0]
+            total_shift = shift_of(growth, complement, target, scale, k0)
+            for k in range(k0 + u(1), min(k0 + w, u(n))):
+                total_shift = shift_of(growth, complement, target, scale, k) + a[k] * total_shift
+                total_gain = a[k] * total_gain
+            gain[c] = total_gain
+            shift[c] = total_shift
 
     @jit
-    def block_states(a, b, width, starts, out):
-        """Each element's state: its block's partial map applied to the block's start."""
+    def block_states(a, growth, complement, target, scale, width, starts, out, first, stop):
+        """Each element's state in blocks first:stop: its block's partial map applied to the
+        block's start (numpy: ``gain * start + shift``), written to ``out[k + 1]``."""
         n = a.size
-        blocks = (n + width - 1) // width
-        out[0] = starts[0]
-        gain = np.empty(lanes)
-        shift = np.empty(lanes)
-        for first in range(0, blocks, lanes):
-            last = min(first + lanes, blocks)
-            for c in range(first, last):
-                k = c * width
-                gain[c - first] = a[k]
-                shift[c - first] = b[k]
-                out[k + 1] = gain[c - first] * starts[c] + shift[c - first]
+        full = min(stop, n // width)
+        w = u(width)
+        g = np.empty(lanes)
+        s = np.empty(lanes)
+        x0 = np.empty(lanes)
+        c0 = first
+        while c0 + lanes <= full:
+            base = u(c0) * w
+            for lane in range(lanes):
+                k = base + u(lane) * w
+                g[lane] = a[k]
+                s[lane] = shift_of(growth, complement, target, scale, k)
+                x0[lane] = starts[c0 + lane]
+                out[k + u(1)] = g[lane] * x0[lane] + s[lane]
             for j in range(1, width):
-                for c in range(first, last):
-                    k = c * width + j
-                    if k < n:
-                        g = a[k] * gain[c - first]
-                        s = b[k] + a[k] * shift[c - first]
-                        gain[c - first] = g
-                        shift[c - first] = s
-                        out[k + 1] = g * starts[c] + s
+                row = base + u(j)
+                for lane in range(lanes):
+                    k = row + u(lane) * w
+                    x = a[k]
+                    gk = x * g[lane]
+                    sk = shift_of(growth, complement, target, scale, k) + x * s[lane]
+                    g[lane] = gk
+                    s[lane] = sk
+                    out[k + u(1)] = gk * x0[lane] + sk
+            c0 += lanes
+        for c in range(c0, stop):
+            k0 = u(c) * w
+            partial_gain = a[k0]
+            partial_shift = shift_of(growth, complement, target, scale, k0)
+            start = starts[c]
+            out[k0 + u(1)] = partial_gain * start + partial_shift
+            for k in range(k0 + u(1), min(k0 + w, u(n))):
+                partial_shift = shift_of(growth, complement, target, scale, k) + a[k] * partial_shift
+                partial_gain = a[k] * partial_gain
+                out[k + u(1)] = partial_gain * start + partial_shift
 
     @jit
-    def walk_exponent(t, starts, rate, out):
-        """Walk a grid: ``(t - start) * -rate`` of each point's segment into `out` (numpy:
-        repeat, subtract, multiply), the first point of every segment (``bounds[k]:bounds[k + 1]``
-        are segment k's points), and whether the grid is finite and never decreases (if
-        not, `out` holds nothing useful and the caller takes the general path)."""
+    def segment_exponents(times, end, rate, out, first, stop):
+        """``-((next change - change) * rate)`` of segments first:stop (numpy: the drive's
+        durations, multiply, negate); returns how many lie in ``(-SMALL_EXPONENT, 0)``."""
+        last = min(stop, times.size - 1)  # the last segment runs to `end`, not to a change
+        begin = times[first:last]
+        following = times[first + 1:last + 1]
+        rates = rate[first:last]
+        target = out[first:last]
+        small = 0
+        for k in range(target.size):
+            e = -((following[k] - begin[k]) * rates[k])
+            target[k] = e
+            small += (e > -SMALL_EXPONENT) & (e < 0.0)
+        for k in range(max(first, last), stop):
+            e = -((end - times[k]) * rate[k])
+            out[k] = e
+            small += (e > -SMALL_EXPONENT) & (e < 0.0)
+        return small
+
+    @jit
+    def copy_checked(source, target, first, stop):
+        """Copy ``source[first:stop]`` into `target`; return whether every value is finite
+        and whether each is greater than the one before (``source[first - 1]`` included)."""
+        values = source[first:stop]
+        copy = target[first:stop]
+        not_finite = 0
+        for i in range(values.size):
+            value = values[i]
+            copy[i] = value
+            not_finite |= not (value - value == 0.0)  # NaN and inf give NaN
+        following = source[max(first, 1):stop]
+        before = source[max(first, 1) - 1:stop - 1]
+        not_increasing = 0
+        for i in range(following.size):
+            not_increasing |= not (following[i] > before[i])
+        return not_finite == 0, not_increasing == 0
+
+    @jit
+    def walk(t, first, stop, starts, rate, k, k_stop, out, bounds):
+        """Walk ``t[first:stop]`` (from segment `k`): ``(t - start) * -rate`` of each point's
+        segment into `out` (numpy: repeat, subtract, multiply), and into `bounds` the first
+        point of every segment met, then `stop` up to segment `k_stop` (``bounds[j]:bounds[j + 1]``
+        are segment j's points).  Returns the segment of the last point and whether the
+        points never decrease (``t[first - 1]`` included) and none is NaN; if they do,
+        `out` and `bounds` hold nothing useful."""
         n = starts.size
-        size = t.size
-        bounds = np.empty(n + 1, dtype=np.int64)
-        bounds[0] = 0
-        k = 0
-        begin = starts[0]
-        factor = -rate[0]
-        good = True
-        previous = -np.inf
-        for i in range(size):
-            value = t[i]
-            if not value >= previous:  # also catches NaN
-                good = False
-            previous = value
-            while k + 1 < n and value >= starts[k + 1]:
-                k += 1
-                bounds[k] = i
+        points = t[first:stop]
+        target = out[first:stop]
+        following = t[max(first, 1):stop]
+        before = t[max(first, 1) - 1:stop - 1]
+        out_of_order = 0
+        for i in range(following.size):
+            out_of_order |= not (following[i] >= before[i])  # also catches NaN
+        if points.size and not points[0] == points[0]:
+            out_of_order = 1
+        upcoming = starts[k + 1] if k + 1 < n else np.inf
+        begin = starts[k]
+        factor = -rate[k]
+        for i in range(points.size):
+            value = points[i]
+            if value >= upcoming:  # one mispredicted branch per segment, not per point
+                while k + 1 < n and value >= starts[k + 1]:
+                    k += 1
+                    bounds[k] = first + i
+                upcoming = starts[k + 1] if k + 1 < n else np.inf
                 begin = starts[k]
                 factor = -rate[k]
-            out[i] = (value - begin) * factor
-        for j in range(k + 1, n + 1):
-            bounds[j] = size
-        good = good and np.isfinite(previous)
-        return bounds, good
+            target[i] = (value - begin) * factor
+        for j in range(k + 1, k_stop + 1):
+            bounds[j] = stop
+        return k, out_of_order == 0
 
     @jit
-    def sorted_combine(difference, final, decay, bounds, out):
-        """``difference * decay + final`` of each point's segment (numpy: repeat, multiply, add)."""
-        for k in range(final.size):
-            d = difference[k]
-            f = final[k]
-            for i in range(bounds[k], bounds[k + 1]):
-                out[i] = d * decay[i] + f
-
-    @jit
-    def first_not_increasing(times):
-        """Index of the first time not after its predecessor, or -1."""
-        for i in range(1, times.size):
-            if not times[i] > times[i - 1]:
-                return i
-        return -1
+    def combine(difference, final, bounds, decay, out, first, stop, k, k_last):
+        """``difference * decay + final`` of each point's segment over ``first:stop``, from
+        segment `k` to segment `k_last` (numpy: repeat, multiply, add)."""
+        decays = decay[first:stop]
+        target = out[first:stop]
+        upcoming = bounds[k + 1] - first if k < k_last else target.size
+        d = difference[k]
+        f = final[k]
+        for i in range(target.size):
+            if i >= upcoming:
+                while i >= upcoming:
+                    k += 1
+                    upcoming = bounds[k + 1] - first if k < k_last else target.size
+                d = difference[k]
+                f = final[k]
+            target[i] = d * decays[i] + f
 
     return types.SimpleNamespace(
         block_totals=block_totals,
         block_states=block_states,
-        walk_exponent=walk_exponent,
-        sorted_combine=sorted_combine,
-        first_not_increasing=first_not_increasing,
+        segment_exponents=segment_exponents,
+        copy_checked=copy_checked,
+        walk=walk,
+        combine=combine,
     )

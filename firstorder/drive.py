@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from . import _kernels
+from . import _kernels, _parallel
 from .errors import InputError
 from .units import format_value, parse_value
 
@@ -26,36 +26,63 @@ _CSV_MAGIC = "# firstorder drive v1"
 _PREVIEW_ROWS = 8
 
 
-def _as_float_array(values: Any, *, field: str, unit: str) -> np.ndarray:
-    """Return `values` as a 1-D float64 array, parsing text only where needed."""
-    if isinstance(values, np.ndarray) and values.dtype.kind in "biuf":
-        array = values.astype(np.float64, copy=True).reshape(-1)
+def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = False) -> np.ndarray:
+    """Return `values` as a new 1-D float64 array, parsing text only where needed.
+
+    Every value must be finite and, with `increasing`, each must come after the
+    one before; a float array is copied and checked in one compiled pass when it
+    is long (:func:`_copy_checked`).
+    """
+    if isinstance(values, np.ndarray) and values.dtype == np.float64 and values.size:
+        array, finite, in_order = _copy_checked(values.reshape(-1), increasing)
     else:
-        items = list(values) if not isinstance(values, (str, bytes)) else None
-        if items is None:
-            raise InputError(f"{field}: expected a list or array of values, got {values!r}")
-        if all(isinstance(item, (int, float, np.integer, np.floating)) for item in items):
-            array = np.asarray(items, dtype=np.float64).reshape(-1)
+        if isinstance(values, np.ndarray) and values.dtype.kind in "biuf":
+            array = values.astype(np.float64, copy=True).reshape(-1)
         else:
-            array = np.array(
-                [parse_value(item, field=f"{field}[{i}]", unit=unit) for i, item in enumerate(items)],
-                dtype=np.float64,
-            )
-    if array.ndim != 1:
-        raise InputError(f"{field}: expected a 1-D list of values, got shape {array.shape}")
-    if not np.isfinite(array.sum()):  # one cheap pass: NaN or inf anywhere shows in the sum
+            items = list(values) if not isinstance(values, (str, bytes)) else None
+            if items is None:
+                raise InputError(f"{field}: expected a list or array of values, got {values!r}")
+            if all(isinstance(item, (int, float, np.integer, np.floating)) for item in items):
+                array = np.asarray(items, dtype=np.float64).reshape(-1)
+            else:
+                array = np.array(
+                    [parse_value(item, field=f"{field}[{i}]", unit=unit) for i, item in enumerate(items)],
+                    dtype=np.float64,
+                )
+        if array.ndim != 1:
+            raise InputError(f"{field}: expected a 1-D list of values, got shape {array.shape}")
+        finite = bool(np.isfinite(array.sum()))  # one cheap pass: NaN or inf anywhere shows in the sum
+        in_order = not increasing or _first_not_increasing(array) < 0
+    if not finite:
         bad = ~np.isfinite(array)
         if bad.any():
             i = int(np.argmax(bad))
             raise InputError(f"{field}[{i}]: {float(array[i])!r} is not allowed; expected a finite number")
+    if increasing and not in_order:
+        i = _first_not_increasing(array)
+        raise InputError(
+            f"{field}[{i}]: {float(array[i])!r} does not come after {field}[{i - 1}] = "
+            f"{float(array[i - 1])!r}; times must be strictly increasing"
+        )
     return array
+
+
+def _copy_checked(values: np.ndarray, increasing: bool) -> tuple[np.ndarray, bool, bool]:
+    """A copy of the 1-D float array `values`, whether all are finite, and whether they
+    strictly increase (checked only if `increasing`); long arrays in one compiled
+    pass, in pieces on several threads."""
+    kernels = _kernels.available(values.size)
+    if kernels is None:
+        array = values.copy()
+        return array, bool(np.isfinite(array.sum())), not increasing or _first_not_increasing(array) < 0
+    array = np.empty(values.size)
+    flags = _parallel.run(lambda first, stop: kernels.copy_checked(values, array, first, stop),
+                          _parallel.pieces(values.size))
+    return array, all(finite for finite, _ in flags), all(ordered for _, ordered in flags)
 
 
 def _first_not_increasing(times: np.ndarray) -> int:
     """Index of the first time not after its predecessor, or -1."""
-    kernels = _kernels.available(times.size)
-    if kernels is not None:
-        return int(kernels.first_not_increasing(times))
     steps = np.diff(times)
     if steps.size and not (steps > 0).all():
         return int(np.argmax(~(steps > 0))) + 1
@@ -88,15 +115,9 @@ class Drive:
     __slots__ = ("_times", "_end", "_columns")
 
     def __init__(self, times: Any, end: Any, **columns: Any) -> None:
-        time_array = _as_float_array(times, field="drive.times", unit="s")
+        time_array = _as_float_array(times, field="drive.times", unit="s", increasing=True)
         if time_array.size == 0:
             raise InputError("drive.times: at least one change instant is needed, got none")
-        i = _first_not_increasing(time_array)
-        if i >= 0:
-            raise InputError(
-                f"drive.times[{i}]: {float(time_array[i])!r} does not come after "
-                f"drive.times[{i - 1}] = {float(time_array[i - 1])!r}; times must be strictly increasing"
-            )
         end_value = parse_value(end, field="drive.end", unit="s")
         if not end_value > time_array[-1]:
             raise InputError(

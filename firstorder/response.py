@@ -47,7 +47,10 @@ def _match_columns(fixture: "Fixture", drive: "Drive") -> tuple[np.ndarray, np.n
     if missing:
         raise InputError(f"drive: no column for {missing}; the fixture needs one column per source and switch")
     n = len(drive)
-    levels = np.column_stack([drive.levels(s) for s in sources]) if sources else np.zeros((n, 0))
+    if len(sources) == 1:
+        levels = drive.levels(sources[0]).reshape(n, 1)  # a view of the read-only column
+    else:
+        levels = np.column_stack([drive.levels(s) for s in sources]) if sources else np.zeros((n, 0))
     states = np.column_stack([drive.levels(s) for s in switches]) if switches else np.zeros((n, 0))
     bad = (states != 0) & (states != 1)
     if bad.any():
@@ -62,7 +65,7 @@ def _configurations(states: np.ndarray) -> tuple[list[tuple[bool, ...]], np.ndar
     """The distinct switch configurations and, per segment, which one holds."""
     n, count = states.shape
     if count == 0:
-        return [()], np.zeros(n, dtype=np.intp)
+        return [()], np.broadcast_to(np.intp(0), (n,))  # read-only: nothing to fill
     codes = states.astype(np.int64) @ (np.int64(1) << np.arange(count, dtype=np.int64))
     unique, inverse = np.unique(codes, return_inverse=True)
     configs = [tuple(bool((code >> j) & 1) for j in range(count)) for code in unique.tolist()]
@@ -115,7 +118,8 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
             )
     rate_by_config = _rates(taus)
     if len(configs) == 1:
-        rate = np.full(len(drive), rate_by_config[0])  # no gather for a fixture without switch changes
+        # One rate for every segment: a read-only broadcast, not an array to fill.
+        rate = np.broadcast_to(rate_by_config[0], (len(drive),))
     else:
         rate = rate_by_config[inverse]
     return Response(fixture, drive, levels, configs, inverse, rate, gains, initial)
@@ -221,7 +225,7 @@ class Response:
         self._rate = rate
         self._gains = gains
         self._starts = drive.times
-        self._decay, self._growth = engine.decay_factors(drive.durations, rate)
+        self._decay, self._growth = engine.segment_factors(drive.times, drive.end, rate)
         self._scans: dict[str, np.ndarray] = {}
         self.initial_text = initial
         self.initial = self._initial_state(initial)
@@ -324,10 +328,18 @@ class Response:
         j = [p.name for p in self.fixture.sources].index(key)
         return self._source_finals[:, j]
 
+    def _scan_target(self, key: str) -> tuple[np.ndarray, float]:
+        """`key`'s final value of every segment as ``scale * target`` (so that, for one
+        source and no switch changes, the scan reads the level column directly)."""
+        if key in ("total", "zero_state") and self._levels.shape[1] == 1 and len(self._configs) == 1:
+            return self._levels[:, 0], float(self._gains[0, 0])  # as _final_sources_only
+        return self._source_final(key), 1.0
+
     def _boundary(self, key: str) -> np.ndarray:
         scan = self._scans.get(key)
         if scan is None:
-            scan = engine.affine_scan(self._decay, self._growth * self._source_final(key), self._start(key))
+            target, scale = self._scan_target(key)
+            scan = engine.relaxation_scan(self._decay, self._growth, target, self._start(key), scale)
             self._scans[key] = scan
         return scan
 
@@ -348,33 +360,39 @@ class Response:
 
     # -- evaluation -------------------------------------------------------------------------
     def _times(self, t: Any) -> np.ndarray:
-        """`t` as a float array of finite times (the range is checked with the locator)."""
+        """`t` as a float array (:meth:`_check_times` checks the values)."""
         if isinstance(t, str):
-            array = np.asarray(parse_value(t, field="t", unit="s"))
-        elif isinstance(t, (list, tuple)) and any(isinstance(v, str) for v in t):
-            array = np.array([parse_value(v, field=f"t[{i}]", unit="s") for i, v in enumerate(t)])
-        else:
-            array = np.asarray(t, dtype=np.float64)
-        if array.size and not np.isfinite(array.sum()):  # one cheap pass: NaN or inf shows in the sum
-            if not np.isfinite(array).all():
+            return np.asarray(parse_value(t, field="t", unit="s"))
+        if isinstance(t, (list, tuple)) and any(isinstance(v, str) for v in t):
+            return np.array([parse_value(v, field=f"t[{i}]", unit="s") for i, v in enumerate(t)])
+        return np.asarray(t, dtype=np.float64)
+
+    def _check_times(self, flat: np.ndarray, is_sorted: bool, no_nan: bool) -> None:
+        """Refuse NaN, inf and times outside the drive.  A grid known to be sorted
+        (and, with `no_nan`, proven free of NaN) is checked at its ends only."""
+        if not flat.size:
+            return
+        if not no_nan and not np.isfinite(flat.sum()):  # one cheap pass: NaN or inf shows in the sum
+            if not np.isfinite(flat).all():
                 raise InputError("t: contains NaN or inf; times must be finite seconds")
-        return array
+        if is_sorted:
+            low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
+        else:
+            low, high = float(flat.min()), float(flat.max())
+        if not (np.isfinite(low) and np.isfinite(high)):
+            raise InputError("t: contains NaN or inf; times must be finite seconds")
+        if low < self._starts[0] or high > self.drive.end:
+            bad = low if low < self._starts[0] else high
+            raise InputError(
+                f"t: {bad!r} s is outside the drive, which runs from {float(self._starts[0])!r} "
+                f"to {self.drive.end!r} s"
+            )
 
     def _locator(self, array: np.ndarray) -> engine.SegmentLocator:
-        """Where the times fall, after checking they lie inside the drive."""
+        """Where the times fall, after checking them."""
         flat = array.reshape(-1)
         locator = engine.SegmentLocator(flat, self._starts, self._rate)
-        if flat.size:
-            if locator.is_sorted:
-                low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
-            else:
-                low, high = float(flat.min()), float(flat.max())
-            if low < self._starts[0] or high > self.drive.end:
-                bad = low if low < self._starts[0] else high
-                raise InputError(
-                    f"t: {bad!r} s is outside the drive, which runs from {float(self._starts[0])!r} "
-                    f"to {self.drive.end!r} s"
-                )
+        self._check_times(flat, locator.is_sorted, no_nan=locator.compiled)
         return locator
 
     def locate(self, t: Any) -> engine.SegmentLocator:
@@ -384,6 +402,15 @@ class Response:
     def evaluate(self, t: Any, components: tuple[str, ...] = ("total",), probe: str | None = None) -> dict[str, np.ndarray]:
         """Evaluate several components (of the state, or of `probe`) on one time array."""
         array = self._times(t)
+        if probe is None and len(components) == 1 and components[0] not in ("forced", "natural"):
+            # One state component: one compiled sweep if the grid is sorted and long.
+            key = self._component_key(components[0])
+            flat = array.reshape(-1)
+            values = engine.evaluate_sorted(flat, self._starts, self._rate, self._finals(key),
+                                            self._boundary(key)[:-1])
+            if values is not None:
+                self._check_times(flat, is_sorted=True, no_nan=True)
+                return {components[0]: values.reshape(array.shape)}
         locator = self._locator(array)
         rows = self._probe_rows(probe) if probe is not None else None
         out = {}

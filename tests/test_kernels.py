@@ -3,7 +3,9 @@
 import numpy as np
 import pytest
 
+import firstorder as fo
 from firstorder import _kernels, engine
+from firstorder.errors import InputError
 
 pytest.importorskip("numba")
 
@@ -12,11 +14,19 @@ pytest.importorskip("numba")
 def numpy_only(monkeypatch):
     def run(function, *args):
         monkeypatch.setenv("FIRSTORDER_KERNELS", "0")
-        result = function(*args)
-        monkeypatch.setenv("FIRSTORDER_KERNELS", "1")
-        return result
+        try:
+            return function(*args)
+        finally:
+            monkeypatch.setenv("FIRSTORDER_KERNELS", "1")
 
     return run
+
+
+@pytest.fixture
+def kernels():
+    found = _kernels.available(_kernels.THRESHOLD)
+    assert found is not None
+    return found
 
 
 class TestScan:
@@ -30,6 +40,36 @@ class TestScan:
         reference = numpy_only(engine.affine_scan, a, b, -0.25)
         assert _kernels.available(n) is not None
         np.testing.assert_array_equal(engine.affine_scan(a, b, -0.25), reference)
+
+    @pytest.mark.parametrize("with_growth", [True, False])
+    @pytest.mark.parametrize("n", [_kernels.THRESHOLD + 3, 250_007])
+    def test_relaxation_identical(self, n, with_growth, numpy_only):
+        rng = np.random.default_rng(n + with_growth)
+        decay = rng.random(n)
+        growth = -np.expm1(np.log(decay)) if with_growth else None
+        target = rng.normal(size=n)
+        args = (decay, growth, target, 0.75, -2.5)
+        np.testing.assert_array_equal(engine.relaxation_scan(*args), numpy_only(engine.relaxation_scan, *args))
+
+
+class TestSegmentFactors:
+    @pytest.mark.parametrize("short_segments", [False, True])
+    def test_identical(self, short_segments, numpy_only):
+        rng = np.random.default_rng(7)
+        n = 300_001
+        times = np.cumsum(10 ** rng.uniform(-3, -1, n))
+        rate = np.full(n, 1e3)  # exponents from -1 to -100
+        if short_segments:
+            rate[::5] = 1e-2  # exponents above -1/16: 1 - exp comes from expm1 there
+        rate[::17] = 0.0  # held: exponent 0, and 1 - exp exactly 0 either way
+        end = float(times[-1]) + 1e-3
+        decay, growth = engine.segment_factors(times, end, rate)
+        reference_decay, reference_growth = numpy_only(engine.segment_factors, times, end, rate)
+        np.testing.assert_array_equal(decay, reference_decay)
+        if short_segments:
+            np.testing.assert_array_equal(growth, reference_growth)
+        else:
+            assert growth is None and reference_growth is None
 
 
 class TestEvaluation:
@@ -45,33 +85,100 @@ class TestEvaluation:
     def test_sorted_grid_identical(self, numpy_only):
         t = np.linspace(0.0, 10.0, 200_003)
         args = (t, self.starts, self.rate, self.final, self.start_state)
-        np.testing.assert_array_equal(engine.evaluate(*args), numpy_only(engine.evaluate, *args))
+        reference = numpy_only(engine.evaluate, *args)
+        np.testing.assert_array_equal(engine.evaluate(*args), reference)
+        np.testing.assert_array_equal(engine.evaluate_sorted(*args), reference)
+
+    def test_grid_with_repeats_and_empty_segments(self, numpy_only):
+        # Repeated times, points exactly on changes, and runs of segments with no point.
+        t = np.repeat(np.sort(np.concatenate([self.starts[::3], np.linspace(0.0, 10.0, 30_000)])), 2)
+        args = (t, self.starts, self.rate, self.final, self.start_state)
+        np.testing.assert_array_equal(engine.evaluate_sorted(*args), numpy_only(engine.evaluate, *args))
 
     def test_unsorted_grid_falls_back(self, numpy_only):
         t = np.random.default_rng(1).random(100_000) * 10
         args = (t, self.starts, self.rate, self.final, self.start_state)
+        assert engine.evaluate_sorted(*args) is None
         np.testing.assert_array_equal(engine.evaluate(*args), numpy_only(engine.evaluate, *args))
 
-    def test_walk_bounds_match_searchsorted(self):
-        kernels = _kernels.available(_kernels.THRESHOLD)
+    def test_walk_bounds_match_searchsorted(self, kernels):
         t = np.linspace(0.0, 10.0, 50_000)
         out = np.empty(t.size)
-        bounds, in_order = kernels.walk_exponent(t, self.starts, self.rate, out)
+        bounds = np.empty(self.starts.size + 1, dtype=np.int64)
+        bounds[0] = 0
+        last, in_order = kernels.walk(t, 0, t.size, self.starts, self.rate, 0, self.starts.size, out, bounds)
         assert in_order
+        assert last == np.searchsorted(self.starts, t[-1], side="right") - 1
         expected = np.searchsorted(t, self.starts, side="left")
         expected[0] = 0
         np.testing.assert_array_equal(bounds[:-1], expected)
         assert bounds[-1] == t.size
 
-    def test_walk_notices_disorder_and_nan(self):
-        kernels = _kernels.available(_kernels.THRESHOLD)
+    def test_walk_in_two_pieces_matches_one(self, kernels):
+        t = np.linspace(0.0, 10.0, 50_000)
+        whole = np.empty(self.starts.size + 1, dtype=np.int64)
+        kernels.walk(t, 0, t.size, self.starts, self.rate, 0, self.starts.size, np.empty(t.size), whole)
+        split = np.empty_like(whole)
+        middle = 20_011
+        k = int(np.searchsorted(self.starts, t[middle], side="right")) - 1
+        out = np.empty(t.size)
+        kernels.walk(t, 0, middle, self.starts, self.rate, 0, k, out, split)
+        kernels.walk(t, middle, t.size, self.starts, self.rate, k, self.starts.size, out, split)
+        np.testing.assert_array_equal(split[1:], whole[1:])
+
+    @pytest.mark.parametrize("where", [100, 25_000])  # inside a piece; at the junction of two
+    def test_walk_notices_disorder_and_nan(self, kernels, where):
         t = np.linspace(0.0, 10.0, 50_000)
         out = np.empty(t.size)
+        bounds = np.empty(self.starts.size + 1, dtype=np.int64)
+        k = int(np.searchsorted(self.starts, t[25_000], side="right")) - 1
+
+        def in_order(grid):
+            first = kernels.walk(grid, 0, 25_000, self.starts, self.rate, 0, k, out, bounds)[1]
+            second = kernels.walk(grid, 25_000, grid.size, self.starts, self.rate, k, self.starts.size, out, bounds)[1]
+            return first and second
+
+        assert in_order(t)
         swapped = t.copy()
-        swapped[[100, 101]] = swapped[[101, 100]]
-        assert not kernels.walk_exponent(swapped, self.starts, self.rate, out)[1]
-        t[-1] = np.nan
-        assert not kernels.walk_exponent(t, self.starts, self.rate, out)[1]
+        swapped[[where - 1, where]] = swapped[[where, where - 1]]
+        assert not in_order(swapped)
+        with_nan = t.copy()
+        with_nan[where] = np.nan
+        assert not in_order(with_nan)
 
     def test_small_arrays_stay_on_numpy(self):
         assert _kernels.available(_kernels.THRESHOLD - 1) is None
+
+
+class TestDriveCopy:
+    """Drive's compiled copy-and-check pass takes the same decisions as numpy's."""
+
+    def make(self, n=60_000):
+        times = np.cumsum(np.full(n, 1e-6))
+        return times, np.sin(times * 1e4)
+
+    def test_arrays_identical_and_private(self, numpy_only):
+        times, levels = self.make()
+        drive = fo.Drive(times, end=1.0, vin=levels)
+        reference = numpy_only(lambda: fo.Drive(times, end=1.0, vin=levels))
+        np.testing.assert_array_equal(drive.times, reference.times)
+        np.testing.assert_array_equal(drive.levels("vin"), levels)
+        times[0] = -5.0  # the drive keeps its own copy
+        assert drive.times[0] == reference.times[0]
+
+    @pytest.mark.parametrize("field, index, value, message", [
+        ("times", 31_234, np.nan, "drive.times[31234]: nan is not allowed"),
+        ("times", 59_999, np.inf, "drive.times[59999]: inf is not allowed"),
+        ("times", 40_000, 0.0, "drive.times[40000]: 0.0 does not come after drive.times[39999]"),
+        ("times", 1, 1e-6, "drive.times[1]: 1e-06 does not come after drive.times[0]"),
+        ("vin", 12, -np.inf, "drive.vin[12]: -inf is not allowed"),
+    ])
+    def test_errors_identical(self, numpy_only, field, index, value, message):
+        times, levels = self.make()
+        (times if field == "times" else levels)[index] = value
+        with pytest.raises(InputError) as compiled:
+            fo.Drive(times, end=1.0, vin=levels)
+        with pytest.raises(InputError) as plain:
+            numpy_only(lambda: fo.Drive(times, end=1.0, vin=levels))
+        assert str(compiled.value) == str(plain.value)
+        assert str(compiled.value).startswith(message)

@@ -1,0 +1,118 @@
+"""Spread long array work over the machine's cores.
+
+The engine's long passes (copying and checking a drive, the per-segment
+exponentials, the two halves of the scan, evaluation on a dense grid) work
+element by element or block by block, so they split into contiguous pieces that
+threads can run at once: the compiled kernels release the GIL, and so do numpy's
+ufunc loops.  Every piece performs the same operations on its own elements as a
+single pass would, so results do not depend on how the work is split
+(``tests/test_parallel.py`` checks that).
+
+``FIRSTORDER_THREADS`` sets the number of threads (``1``: everything runs on the
+calling thread); by default every core this process may use, at most
+:data:`MAX_THREADS`.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable, Sequence
+from concurrent.futures import ThreadPoolExecutor, wait
+from typing import TypeVar
+
+__all__ = ["MAX_THREADS", "MIN_PIECE", "pieces", "run", "threads"]
+
+#: Default cap on threads: more rarely pays on memory-bound passes.
+MAX_THREADS = 8
+
+#: Elements below which a piece is not worth a thread (the hand-off costs tens of µs).
+MIN_PIECE = 131_072
+
+_Result = TypeVar("_Result")
+_pool: ThreadPoolExecutor | None = None
+_pool_size = 0
+
+
+def threads() -> int:
+    """Threads to use, from ``FIRSTORDER_THREADS`` or the cores available.
+
+    Examples
+    --------
+    >>> threads() >= 1
+    True
+    """
+    text = os.environ.get("FIRSTORDER_THREADS", "").strip()
+    if text:
+        try:
+            count = int(text)
+        except ValueError:
+            count = 0
+        if count < 1:
+            raise ValueError(f"FIRSTORDER_THREADS: {text!r} is not allowed; expected a whole number >= 1")
+        return count
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except AttributeError:  # not on every platform
+        cores = os.cpu_count() or 1
+    return max(1, min(cores, MAX_THREADS))
+
+
+def pieces(size: int, align: int = 1, min_piece: int | None = None) -> list[tuple[int, int]]:
+    """Split ``range(size)`` into at most :func:`threads` contiguous ``(start, stop)`` pieces.
+
+    Each piece but the last starts and ends on a multiple of `align`, and none is
+    shorter than `min_piece` elements (default :data:`MIN_PIECE`), so short
+    arrays come back whole.
+
+    Examples
+    --------
+    >>> pieces(10, min_piece=100)
+    [(0, 10)]
+    >>> pieces(0)
+    [(0, 0)]
+    """
+    if min_piece is None:
+        min_piece = MIN_PIECE
+    count = max(1, min(threads(), size // max(min_piece, 1)))
+    if count == 1:
+        return [(0, size)]
+    step = -(-size // count)
+    step = -(-step // align) * align
+    bounds = list(range(0, size, step)) + [size]
+    return list(zip(bounds[:-1], bounds[1:]))
+
+
+def run(function: Callable[..., _Result], spans: Sequence[tuple]) -> list[_Result]:
+    """Call ``function(*span)`` for every span, at once; return the results in order.
+
+    A span is a piece's ``(start, stop)`` from :func:`pieces`, with any further
+    arguments that piece needs.
+
+    The first span runs on the calling thread, the rest on a shared pool.  An
+    exception in any piece is raised here once every piece has finished, so no
+    piece is still writing when the caller moves on.
+
+    Examples
+    --------
+    >>> run(lambda start, stop: stop - start, [(0, 3), (3, 10)])
+    [3, 7]
+    """
+    if len(spans) == 1:
+        return [function(*spans[0])]
+    pool = _shared_pool(len(spans) - 1)
+    futures = [pool.submit(function, *span) for span in spans[1:]]
+    try:
+        first = function(*spans[0])
+    finally:
+        wait(futures)
+    return [first, *(future.result() for future in futures)]
+
+
+def _shared_pool(workers: int) -> ThreadPoolExecutor:
+    global _pool, _pool_size
+    if _pool is None or _pool_size < workers:
+        if _pool is not None:
+            _pool.shutdown(wait=False)
+        _pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix="firstorder")
+        _pool_size = workers
+    return _pool
