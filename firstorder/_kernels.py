@@ -90,7 +90,7 @@ def _compile():
                 row = base + u(j)
                 for lane in range(lanes):
                     k = row + u(lane) * w
-                    # numpy: shift[j] += gain[j] * shift[j - 1]; gain[j] *= gain[j - 1]
+                    # numpy: block_shift = block_shift * gain[j] + shift[j]; block_gain *= gain[j]
                     x = a[k]
                     s[lane] = shift_of(growth, complement, target, scale, k) + x * s[lane]
                     g[lane] = x * g[lane]
@@ -110,44 +110,31 @@ def _compile():
 
     @jit
     def block_states(a, growth, complement, target, scale, width, starts, out, first, stop):
-        """Each element's state in blocks first:stop: its block's partial map applied to the
-        block's start (numpy: ``gain * start + shift``), written to ``out[k + 1]``."""
+        """Each element's state in blocks first:stop: the recurrence run from the block's
+        start (numpy: ``x = gain[j] * x + shift[j]`` row by row), written to ``out[k + 1]``."""
         n = a.size
         full = min(stop, n // width)
         w = u(width)
-        g = np.empty(lanes)
-        s = np.empty(lanes)
-        x0 = np.empty(lanes)
+        x = np.empty(lanes)
         c0 = first
         while c0 + lanes <= full:
             base = u(c0) * w
             for lane in range(lanes):
-                k = base + u(lane) * w
-                g[lane] = a[k]
-                s[lane] = shift_of(growth, complement, target, scale, k)
-                x0[lane] = starts[c0 + lane]
-                out[k + u(1)] = g[lane] * x0[lane] + s[lane]
-            for j in range(1, width):
+                x[lane] = starts[c0 + lane]
+            for j in range(width):
                 row = base + u(j)
                 for lane in range(lanes):
                     k = row + u(lane) * w
-                    x = a[k]
-                    gk = x * g[lane]
-                    sk = shift_of(growth, complement, target, scale, k) + x * s[lane]
-                    g[lane] = gk
-                    s[lane] = sk
-                    out[k + u(1)] = gk * x0[lane] + sk
+                    state = a[k] * x[lane] + shift_of(growth, complement, target, scale, k)
+                    x[lane] = state
+                    out[k + u(1)] = state
             c0 += lanes
         for c in range(c0, stop):
+            state = starts[c]
             k0 = u(c) * w
-            partial_gain = a[k0]
-            partial_shift = shift_of(growth, complement, target, scale, k0)
-            start = starts[c]
-            out[k0 + u(1)] = partial_gain * start + partial_shift
-            for k in range(k0 + u(1), min(k0 + w, u(n))):
-                partial_shift = shift_of(growth, complement, target, scale, k) + a[k] * partial_shift
-                partial_gain = a[k] * partial_gain
-                out[k + u(1)] = partial_gain * start + partial_shift
+            for k in range(k0, min(k0 + w, u(n))):
+                state = a[k] * state + shift_of(growth, complement, target, scale, k)
+                out[k + u(1)] = state
 
     @jit
     def segment_exponents(times, end, rate, out, first, stop):

@@ -7,10 +7,17 @@ a first-order state obeys the closed form
 
 so the whole response is fixed by the state ``x_k`` at every change.  Those
 follow from the affine recurrence ``x_{k+1} = a_k x_k + b_k`` with
-``a_k = exp(-d_k / tau_k)`` and ``b_k = -expm1(-d_k / tau_k) f_k``, solved here by
-a blocked scan: numpy work proportional to the number of segments, no Python
-loop per segment, and only products of numbers in [0, 1] (no division by small
-products, so no overflow however long the drive).
+``a_k = exp(-d_k / tau_k)`` and ``b_k = (1 - a_k) f_k`` (``1 - a_k`` from ``expm1``
+where it would cancel), solved here by a blocked scan: about sqrt(n) blocks of
+sqrt(n) maps; a first pass composes each block's maps, a short scan gives every
+block's starting state, and a second pass runs the recurrence inside all blocks
+at once.  That is numpy work proportional to the number of segments, a Python
+loop of only about sqrt(n) steps, and only products of numbers in [0, 1] (no
+division by small products, so no overflow however long the drive).
+
+Long arrays run on compiled kernels that repeat these operations exactly
+(:mod:`firstorder._kernels`), in pieces on several threads
+(:mod:`firstorder._parallel`); the results are the same to the last bit.
 
 Everything works in segment-relative time and with ``rate = 1/tau`` (zero for a
 held state), so tau from 1e-12 s to 1e12 s and segments from 1e-15 s to 1e9 s
@@ -154,16 +161,22 @@ def affine_scan(a: np.ndarray, b: np.ndarray, x0: float) -> np.ndarray:
         gain.T[full, rest:] = 1.0  # identity maps pad the last block
         shift.T[full, :rest] = b[full * width:]
         shift.T[full, rest:] = 0.0
+    # First pass: compose each block's maps, (a_j, b_j) after (A, B) being (a_j A, a_j B + b_j).
+    block_gain = gain[0].copy()
+    block_shift = shift[0].copy()
     for j in range(1, width):
-        # compose: (a_j, b_j) after (A, B) is (a_j A, a_j B + b_j)
-        shift[j] += gain[j] * shift[j - 1]
-        gain[j] *= gain[j - 1]
-    block_starts = affine_scan(gain[-1].copy(), shift[-1].copy(), x0)
-    gain *= block_starts[:-1]
-    gain += shift
+        block_shift *= gain[j]
+        block_shift += shift[j]
+        block_gain *= gain[j]
+    # Second pass: from each block's start, the recurrence itself, all blocks at once.
+    x = affine_scan(block_gain, block_shift, x0)[:-1]
     out = np.empty(blocks * width + 1)
     out[0] = x0
-    out[1:].reshape(blocks, width)[...] = gain.T
+    states = out[1:].reshape(blocks, width).T
+    for j in range(width):
+        x *= gain[j]
+        x += shift[j]
+        states[j] = x
     return out[: n + 1]
 
 

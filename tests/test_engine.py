@@ -1,5 +1,7 @@
 """Tests for firstorder.engine: the scan and the evaluation, against plain references."""
 
+import math
+
 import numpy as np
 import pytest
 from hypothesis import given
@@ -48,6 +50,15 @@ class TestDecayFactors:
         assert growth[0] == pytest.approx(1e-27, rel=1e-12)  # expm1 keeps it, 1 - exp would give 0
         assert a[1] == 0.0 and growth[1] == 1.0
         assert a[2] == 1.0 and growth[2] == 0.0
+
+    def test_one_minus_decay_accurate_everywhere(self):
+        # Reference: C99 expm1 through Python's math module.  Beyond -1/16 the engine
+        # takes 1 - exp; its documented bound is a relative error below 2e-15.
+        exponents = np.concatenate([np.geomspace(1e-300, 1 / 16, 300), np.geomspace(1 / 16, 745.0, 600)])
+        decay, growth = engine.decay_factors(exponents, np.ones_like(exponents))
+        reference = np.array([-math.expm1(-x) for x in exponents])
+        np.testing.assert_allclose(growth, reference, rtol=2e-15, atol=0)
+        np.testing.assert_allclose(decay, [math.exp(-x) for x in exponents], rtol=4.5e-16, atol=0)
 
 
 class TestSegmentLocator:
