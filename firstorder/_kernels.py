@@ -62,15 +62,11 @@ def _compile():
     lanes = LANES
     u = np.uint64
 
-    # The shift of map k is ``shift_of(growth, complement, target, scale, k)``, formed as it is used
+    # The shift of map k is ``growth[k] * (scale * target[k])``, formed where it is used
     # (numpy: scale * target, then growth * that) so it is never stored.  With
     # `complement`, `growth` holds the decay factors and ``1 - growth[k]`` is used (numpy:
-    # 1 - decay), so that array need not be stored either.
-
-    @numba.njit(cache=True, nogil=True, inline="always")
-    def shift_of(growth, complement, target, scale, k):
-        g = 1.0 - growth[k] if complement else growth[k]
-        return g * (scale * target[k])
+    # 1 - decay), so that array need not be stored either.  (Written out in each place:
+    # a jitted helper defined here would be a closure, which numba cannot cache.)
 
     @jit
     def block_totals(a, growth, complement, target, scale, width, gain, shift, first, stop):
@@ -84,15 +80,16 @@ def _compile():
         while c0 + lanes <= full:
             base = u(c0) * w
             for lane in range(lanes):
-                g[lane] = a[base + u(lane) * w]
-                s[lane] = shift_of(growth, complement, target, scale, base + u(lane) * w)
+                k = base + u(lane) * w
+                g[lane] = a[k]
+                s[lane] = (1.0 - growth[k] if complement else growth[k]) * (scale * target[k])
             for j in range(1, width):
                 row = base + u(j)
                 for lane in range(lanes):
                     k = row + u(lane) * w
                     # numpy: block_shift = block_shift * gain[j] + shift[j]; block_gain *= gain[j]
                     x = a[k]
-                    s[lane] = shift_of(growth, complement, target, scale, k) + x * s[lane]
+                    s[lane] = (1.0 - growth[k] if complement else growth[k]) * (scale * target[k]) + x * s[lane]
                     g[lane] = x * g[lane]
             for lane in range(lanes):
                 gain[c0 + lane] = g[lane]
@@ -101,9 +98,9 @@ def _compile():
         for c in range(c0, stop):  # the rest, one block at a time
             k0 = u(c) * w
             total_gain = a[k0]
-            total_shift = shift_of(growth, complement, target, scale, k0)
+            total_shift = (1.0 - growth[k0] if complement else growth[k0]) * (scale * target[k0])
             for k in range(k0 + u(1), min(k0 + w, u(n))):
-                total_shift = shift_of(growth, complement, target, scale, k) + a[k] * total_shift
+                total_shift = (1.0 - growth[k] if complement else growth[k]) * (scale * target[k]) + a[k] * total_shift
                 total_gain = a[k] * total_gain
             gain[c] = total_gain
             shift[c] = total_shift
@@ -125,7 +122,7 @@ def _compile():
                 row = base + u(j)
                 for lane in range(lanes):
                     k = row + u(lane) * w
-                    state = a[k] * x[lane] + shift_of(growth, complement, target, scale, k)
+                    state = a[k] * x[lane] + (1.0 - growth[k] if complement else growth[k]) * (scale * target[k])
                     x[lane] = state
                     out[k + u(1)] = state
             c0 += lanes
@@ -133,7 +130,7 @@ def _compile():
             state = starts[c]
             k0 = u(c) * w
             for k in range(k0, min(k0 + w, u(n))):
-                state = a[k] * state + shift_of(growth, complement, target, scale, k)
+                state = a[k] * state + (1.0 - growth[k] if complement else growth[k]) * (scale * target[k])
                 out[k + u(1)] = state
 
     @jit
@@ -160,18 +157,21 @@ def _compile():
     def copy_checked(source, target, first, stop):
         """Copy ``source[first:stop]`` into `target`; return whether every value is finite
         and whether each is greater than the one before (``source[first - 1]`` included)."""
-        values = source[first:stop]
-        copy = target[first:stop]
+        start = max(first, 1)
+        values = source[start:stop]
+        before = source[start - 1:stop - 1]
+        copy = target[start:stop]
         not_finite = 0
-        for i in range(values.size):
+        not_increasing = 0
+        for i in range(values.size):  # one pass, vectorised: no early exit
             value = values[i]
             copy[i] = value
             not_finite |= not (value - value == 0.0)  # NaN and inf give NaN
-        following = source[max(first, 1):stop]
-        before = source[max(first, 1) - 1:stop - 1]
-        not_increasing = 0
-        for i in range(following.size):
-            not_increasing |= not (following[i] > before[i])
+            not_increasing |= not (value > before[i])
+        if first == 0 and stop > 0:
+            value = source[0]
+            target[0] = value
+            not_finite |= not (value - value == 0.0)
         return not_finite == 0, not_increasing == 0
 
     @jit
