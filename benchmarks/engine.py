@@ -3,20 +3,26 @@
 Every figure is measured side by side in this one process, as a ratio to a bare numpy
 exp over the same number of points, so the machine's speed cancels out.  Each is timed
 in runs of back-to-back calls (so the bare exp works on data already in cache, the
-hardest reference to beat), and the runs alternate three times; the best call counts.
+hardest reference to beat), and the runs alternate five times; the best call counts.
 
 (a) total(t) on 2,000,000 sorted points over a 100,000-change drive / bare exp   (target <= 3)
 (b) scipy.signal.lsim on the same grid / total(t)                                (target >= 50)
 (c) Drive + respond + boundary for 1,000,000 changes / bare exp of 1,000,000     (target <= 10)
 
 (a) and (c) are printed three ways: as installed (compiled kernels, every core), on one
-thread (FIRSTORDER_THREADS=1) and on numpy alone (FIRSTORDER_KERNELS=0).
+thread (FIRSTORDER_THREADS=1) and on numpy alone (FIRSTORDER_KERNELS=0).  Each figure is
+measured in a fresh process, so no figure inherits another's memory-allocator state
+(after a run with larger arrays, glibc hands back fresh pages that fault on first
+touch, which can double the time of the next figure).
 """
 
 from __future__ import annotations
 
+import json
 import os
 import platform
+import subprocess
+import sys
 import time
 
 import numpy as np
@@ -31,7 +37,7 @@ SETTINGS = (
 )
 
 
-def side_by_side(ours, reference, repeats=7, rounds=3):
+def side_by_side(ours, reference, repeats=7, rounds=5):
     """Best times of `ours` and `reference`: `rounds` alternating runs of `repeats` calls."""
     ours()  # warm up (first use compiles or loads the kernels)
     best_ours = best_reference = float("inf")
@@ -50,31 +56,19 @@ def best_of(function, repeats):
     return best
 
 
-def with_environment(settings, function):
-    saved = {name: os.environ.get(name) for name in settings}
-    os.environ.update(settings)
-    try:
-        return function()
-    finally:
-        for name, value in saved.items():
-            if value is None:
-                os.environ.pop(name, None)
-            else:
-                os.environ[name] = value
-
-
-def main() -> None:
+def workload(name: str):
+    """The function to time for figure `name` ("a" or "c"), its reference, and its data."""
     rng = np.random.default_rng(2026)
     fixture = fo.Fixture.rc("10k", "10n")  # tau = 100 µs
-    changes = 100_000
-    durations = fixture.tau * 10 ** rng.uniform(-1, 1, changes)
-    times = np.concatenate([[0.0], np.cumsum(durations)[:-1]])
-    end = float(durations.sum())
-    drive = fo.Drive(times, end=end, vin=rng.uniform(-5, 5, changes))
-    response = fixture.respond(drive, initial=0.0)
-    points = 2_000_000
-    grid = np.linspace(0.0, end, points)
-
+    if name == "a":
+        changes = 100_000
+        durations = fixture.tau * 10 ** rng.uniform(-1, 1, changes)
+        times = np.concatenate([[0.0], np.cumsum(durations)[:-1]])
+        end = float(durations.sum())
+        drive = fo.Drive(times, end=end, vin=rng.uniform(-5, 5, changes))
+        response = fixture.respond(drive, initial=0.0)
+        grid = np.linspace(0.0, end, 2_000_000)
+        return (lambda: response.total(grid)), (lambda: np.exp(grid)), (fixture, drive, grid)
     million = 1_000_000
     long_times = np.cumsum(fixture.tau * 10 ** rng.uniform(-1, 1, million))
     long_levels = rng.uniform(-5, 5, million)
@@ -84,26 +78,41 @@ def main() -> None:
         built = fo.Drive(long_times, end=long_end, vin=long_levels)
         return fixture.respond(built, initial=0.0).boundary
 
+    return build_and_respond, (lambda: np.exp(long_times)), None
+
+
+def in_fresh_process(name: str, settings: dict[str, str]) -> tuple[float, float]:
+    """Best times of figure `name` and its reference, measured by a new interpreter."""
+    result = subprocess.run([sys.executable, __file__, "--one", name], env={**os.environ, **settings},
+                            check=True, capture_output=True, text=True)
+    ours, bare = json.loads(result.stdout.strip().splitlines()[-1])
+    return ours, bare
+
+
+def main() -> None:
+    if sys.argv[1:2] == ["--one"]:
+        ours, reference, _ = workload(sys.argv[2])
+        print(json.dumps(side_by_side(ours, reference)))
+        return
     print(f"machine: {platform.machine()}, {os.cpu_count()} cores, numpy {np.__version__}")
     for label, settings in SETTINGS:
-        ours, bare = with_environment(settings, lambda: side_by_side(lambda: response.total(grid),
-                                                                     lambda: np.exp(grid)))
+        ours, bare = in_fresh_process("a", settings)
         print(f"(a) [{label}] total(t), 2e6 sorted points, 1e5 changes: {ours * 1e3:.1f} ms; "
               f"bare exp {bare * 1e3:.2f} ms; ratio {ours / bare:.1f} (target <= 3)")
-        ours, bare = with_environment(settings, lambda: side_by_side(build_and_respond,
-                                                                     lambda: np.exp(long_times)))
+        ours, bare = in_fresh_process("c", settings)
         print(f"(c) [{label}] Drive + respond + boundary, 1e6 changes: {ours * 1e3:.1f} ms; "
               f"bare exp of 1e6 {bare * 1e3:.2f} ms; ratio {ours / bare:.1f} (target <= 10)")
 
     from scipy import signal
 
+    total, _, (fixture, drive, grid) = workload("a")
     system = signal.StateSpace([[-1 / fixture.tau]], [[1 / fixture.tau]], [[1.0]], [[0.0]])
-    levels = drive.levels("vin")[np.searchsorted(times, grid, side="right") - 1]
-    ours = best_of(lambda: response.total(grid), 7)
+    levels = drive.levels("vin")[np.searchsorted(drive.times, grid, side="right") - 1]
+    ours = best_of(total, 7)
     start = time.perf_counter()
     _, reference, _ = signal.lsim(system, levels, grid, X0=[0.0], interp=False)
     lsim_time = time.perf_counter() - start
-    error = np.abs(reference - response.total(grid)).max()
+    error = np.abs(reference - total()).max()
     print(f"(b) scipy.signal.lsim on the same grid: {lsim_time * 1e3:.0f} ms; ratio to total(t) "
           f"{lsim_time / ours:.0f} (target >= 50); lsim's error off the change grid {error:.2e} V"
           f" (it holds each level from the grid point before the change)")
