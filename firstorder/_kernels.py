@@ -227,6 +227,65 @@ def _compile():
                 f = final[k]
             target[i] = d * decays[i] + f
 
+    # Settling kernels divide by limits and rates that may be zero: numpy's rules
+    # (inf, NaN) rather than Python's ZeroDivisionError, as on the numpy path.
+    jit_dividing = numba.njit(cache=True, nogil=True, error_model="numpy")
+
+    @jit_dividing
+    def settle_quotients(start, final, decay, relative, value, limit, quotient, residual, first, stop):
+        """Segments first:stop: with ``step = |final - start|``, the limit (``value * step`` if
+        `relative`, else `value`; written to `limit` only if relative), ``step / limit``
+        (``step * (1 / value)`` for a fixed limit) and the residual ``step * decay``."""
+        starts = start[first:stop]
+        finals = final[first:stop]
+        decays = decay[first:stop]
+        quotients = quotient[first:stop]
+        residuals = residual[first:stop]
+        if relative:
+            limits = limit[first:stop]
+            for k in range(quotients.size):
+                step = abs(finals[k] - starts[k])
+                bound = value * step
+                limits[k] = bound
+                quotients[k] = step / bound
+                residuals[k] = step * decays[k]
+        else:
+            inverse = 1.0 / value
+            for k in range(quotients.size):
+                step = abs(finals[k] - starts[k])
+                quotients[k] = step * inverse
+                residuals[k] = step * decays[k]
+
+    @jit_dividing
+    def settle_times(logarithm, tau, uniform, times, end, settled, first, stop):
+        """Segments first:stop, from ``log(step / limit)`` (overwritten with the settle time,
+        NaN where the segment ends first): whether each settles.  numpy: times tau (one
+        value if `uniform`), 0 where held (tau inf) or not positive, compare with the
+        durations."""
+        last = min(stop, times.size - 1)  # the last segment runs to `end`, not to a change
+        logs = logarithm[first:last]
+        begins = times[first:last]
+        following = times[first + 1:last + 1]
+        flags = settled[first:last]
+        if uniform:
+            taus = tau[:1]
+        else:
+            taus = tau[first:last]
+        for k in range(logs.size):  # selects, not branches: the loop vectorises
+            t = taus[0] if uniform else taus[k]
+            time = 0.0 if t == np.inf else logs[k] * t
+            time = time if time >= 0.0 else 0.0
+            inside = time <= following[k] - begins[k]
+            flags[k] = inside
+            logs[k] = time if inside else np.nan
+        for k in range(max(first, last), stop):
+            t = tau[0] if uniform else tau[k]
+            time = 0.0 if t == np.inf else logarithm[k] * t
+            time = time if time >= 0.0 else 0.0
+            inside = time <= end - times[k]
+            settled[k] = inside
+            logarithm[k] = time if inside else np.nan
+
     return types.SimpleNamespace(
         block_totals=block_totals,
         block_states=block_states,
@@ -234,4 +293,6 @@ def _compile():
         copy_checked=copy_checked,
         walk=walk,
         combine=combine,
+        settle_quotients=settle_quotients,
+        settle_times=settle_times,
     )

@@ -26,15 +26,17 @@ _CSV_MAGIC = "# firstorder drive v1"
 _PREVIEW_ROWS = 8
 
 
-def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = False) -> np.ndarray:
+def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = False, room: int = 0) -> np.ndarray:
     """Return `values` as a new 1-D float64 array, parsing text only where needed.
 
     Every value must be finite and, with `increasing`, each must come after the
     one before; a float array is copied and checked in one compiled pass when it
-    is long (:func:`_copy_checked`).
+    is long (:func:`_copy_checked`).  With `room`, the array has that many more
+    (unset) elements after the values, for the caller to fill.
     """
     if isinstance(values, np.ndarray) and values.dtype == np.float64 and values.size:
-        array, finite, in_order = _copy_checked(values.reshape(-1), increasing)
+        buffer, finite, in_order = _copy_checked(values.reshape(-1), increasing, room)
+        array = buffer[:buffer.size - room]
     else:
         if isinstance(values, np.ndarray) and values.dtype.kind in "biuf":
             array = values.astype(np.float64, copy=True).reshape(-1)
@@ -53,6 +55,7 @@ def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = Fa
             raise InputError(f"{field}: expected a 1-D list of values, got shape {array.shape}")
         finite = bool(np.isfinite(array.sum()))  # one cheap pass: NaN or inf anywhere shows in the sum
         in_order = not increasing or _first_not_increasing(array) < 0
+        buffer = np.concatenate([array, np.empty(room)]) if room else array
     if not finite:
         bad = ~np.isfinite(array)
         if bad.any():
@@ -64,21 +67,22 @@ def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = Fa
             f"{field}[{i}]: {float(array[i])!r} does not come after {field}[{i - 1}] = "
             f"{float(array[i - 1])!r}; times must be strictly increasing"
         )
-    return array
+    return buffer
 
 
-def _copy_checked(values: np.ndarray, increasing: bool) -> tuple[np.ndarray, bool, bool]:
-    """A copy of the 1-D float array `values`, whether all are finite, and whether they
-    strictly increase (checked only if `increasing`); long arrays in one compiled
-    pass, in pieces on several threads."""
+def _copy_checked(values: np.ndarray, increasing: bool, room: int = 0) -> tuple[np.ndarray, bool, bool]:
+    """A copy of the 1-D float array `values` (followed by `room` unset elements), whether
+    all are finite, and whether they strictly increase (checked only if `increasing`);
+    long arrays in one compiled pass, in pieces on several threads."""
     kernels = _kernels.available(values.size)
+    buffer = np.empty(values.size + room)
     if kernels is None:
-        array = values.copy()
-        return array, bool(np.isfinite(array.sum())), not increasing or _first_not_increasing(array) < 0
-    array = np.empty(values.size)
-    flags = _parallel.run(lambda first, stop: kernels.copy_checked(values, array, first, stop),
+        array = buffer[:values.size]
+        np.copyto(array, values)
+        return buffer, bool(np.isfinite(array.sum())), not increasing or _first_not_increasing(array) < 0
+    flags = _parallel.run(lambda first, stop: kernels.copy_checked(values, buffer, first, stop),
                           _parallel.pieces(values.size))
-    return array, all(finite for finite, _ in flags), all(ordered for _, ordered in flags)
+    return buffer, all(finite for finite, _ in flags), all(ordered for _, ordered in flags)
 
 
 def _first_not_increasing(times: np.ndarray) -> int:
@@ -112,10 +116,13 @@ class Drive:
     2.5
     """
 
-    __slots__ = ("_times", "_end", "_columns")
+    # The change instants and the end share one buffer, so that `times` and `ends` are
+    # both views of it (no copy for either).
+    __slots__ = ("_instants", "_times", "_end", "_columns")
 
     def __init__(self, times: Any, end: Any, **columns: Any) -> None:
-        time_array = _as_float_array(times, field="drive.times", unit="s", increasing=True)
+        instants = _as_float_array(times, field="drive.times", unit="s", increasing=True, room=1)
+        time_array = instants[:-1]
         if time_array.size == 0:
             raise InputError("drive.times: at least one change instant is needed, got none")
         end_value = parse_value(end, field="drive.end", unit="s")
@@ -138,8 +145,10 @@ class Drive:
                 )
             array.setflags(write=False)
             parsed[name] = array
-        time_array.setflags(write=False)
-        self._times = time_array
+        instants[-1] = end_value
+        instants.setflags(write=False)
+        self._instants = instants
+        self._times = instants[:-1]  # sliced after the buffer is read-only, so read-only too
         self._end = end_value
         self._columns = parsed
 
@@ -250,11 +259,8 @@ class Drive:
 
     @property
     def ends(self) -> np.ndarray:
-        """End instant of every segment (s)."""
-        ends = np.empty(self._times.size)
-        ends[:-1] = self._times[1:]
-        ends[-1] = self._end
-        return ends
+        """End instant of every segment (s; read-only, like :attr:`times`)."""
+        return self._instants[1:]
 
     @property
     def durations(self) -> np.ndarray:

@@ -33,7 +33,7 @@ import numpy as np
 from . import _kernels, _parallel
 
 __all__ = ["decay_factors", "segment_factors", "affine_scan", "relaxation_scan", "SegmentLocator", "evaluate",
-           "evaluate_sorted"]
+           "evaluate_sorted", "settling_columns"]
 
 #: Below this many maps a plain loop is quicker than the blocked scan.
 _LOOP_LIMIT = 64
@@ -64,14 +64,12 @@ def _small(exponent: np.ndarray) -> np.ndarray:
     return np.flatnonzero((exponent > -_kernels.SMALL_EXPONENT) & (exponent < 0.0))
 
 
-def _factors_in_place(exponent: np.ndarray, small: np.ndarray,
-                      growth: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """``(exp, 1 - exp)`` of `exponent`, whose storage becomes the first (the second
-    goes to `growth` if given); `small` indexes the exponents whose ``1 - exp``
-    comes from ``expm1``."""
+def _factors_in_place(exponent: np.ndarray, small: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``(exp, 1 - exp)`` of `exponent`, whose storage becomes the first; `small`
+    indexes the exponents whose ``1 - exp`` comes from ``expm1``."""
     small_growth = np.negative(np.expm1(exponent[small]))
     decay = np.exp(exponent, out=exponent)
-    growth = np.subtract(1.0, decay, out=growth)
+    growth = np.subtract(1.0, decay)
     growth[small] = small_growth
     return decay, growth
 
@@ -103,16 +101,27 @@ def segment_factors(times: np.ndarray, end: float, rate: np.ndarray) -> tuple[np
             return _exp(exponent), None
         return _factors_in_place(exponent, small)
     exponent = np.empty(n)
+
+    def piece(first: int, stop: int) -> tuple[np.ndarray, np.ndarray] | None:
+        # decay_factors' operations on segments first:stop; the expm1 of small exponents
+        # is handed back, for the caller to place once it knows 1 - decay is needed.
+        part = exponent[first:stop]
+        if not kernels.segment_exponents(times, end, rate, exponent, first, stop):
+            _exp(part)
+            return None
+        small = _small(part)
+        small_growth = np.negative(np.expm1(part[small]))
+        _exp(part)
+        return first + small, small_growth
+
     spans = _parallel.pieces(n)
-    small_counts = _parallel.run(lambda first, stop: kernels.segment_exponents(times, end, rate, exponent, first, stop),
-                                 spans)
-    if not any(small_counts):
-        _parallel.run(lambda first, stop: _exp(exponent[first:stop]), spans)
+    smalls = [found for found in _parallel.run(piece, spans) if found is not None]
+    if not smalls:
         return exponent, None
-    # The same operations as decay_factors, in pieces.
     growth = np.empty(n)
-    _parallel.run(lambda first, stop: _factors_in_place(exponent[first:stop], _small(exponent[first:stop]),
-                                                        growth[first:stop]), spans)
+    _parallel.run(lambda first, stop: np.subtract(1.0, exponent[first:stop], out=growth[first:stop]), spans)
+    for where, small_growth in smalls:
+        growth[where] = small_growth
     return exponent, growth
 
 
@@ -226,6 +235,68 @@ def _compiled_scan(kernels, a: np.ndarray, growth: np.ndarray | None, target: np
     _parallel.run(lambda first, stop: kernels.block_states(a, growth, complement, target, scale, width,
                                                            block_starts, out, first, stop), spans)
     return out
+
+
+def settling_columns(start: np.ndarray, final: np.ndarray, tau: np.ndarray, decay: np.ndarray,
+                     times: np.ndarray, end: float, value: float, relative: bool) -> tuple[np.ndarray, ...]:
+    """Per segment, in closed form: ``(limit, settle_time, settled, residual)``.
+
+    With ``step = |final - start|``: the limit is ``value * step`` if `relative`,
+    else `value` (then a read-only broadcast); the settle time is ``tau *
+    ln(step / limit)`` (0 where the step is within the limit or the state is held,
+    ``tau = inf``; NaN where the segment ends first); the residual at the end is
+    ``step * decay``.
+
+    Examples
+    --------
+    >>> limit, settle, settled, residual = settling_columns(
+    ...     np.array([0.0, 1.0]), np.array([1.0, 1.0]), np.array([1.0, 1.0]), np.exp([-1.0, -9.0]),
+    ...     np.array([0.0, 1.0]), 10.0, 0.01, relative=True)
+    >>> settle.round(4).tolist(), settled.tolist(), residual.round(4).tolist()
+    ([nan, 0.0], [False, True], [0.3679, 0.0])
+    """
+    n = start.size
+    kernels = _kernels.available(n)
+    if kernels is None:
+        step = np.subtract(final, start)
+        np.abs(step, out=step)
+        with np.errstate(all="ignore"):  # 0/0, log 0 and 0 * inf all end as 0 below
+            if relative:
+                limit = value * step
+                settle = np.divide(step, limit)
+            else:
+                limit = np.broadcast_to(float(value), (n,))
+                settle = np.multiply(step, 1.0 / value)
+            np.log(settle, out=settle)
+            np.multiply(settle, tau, out=settle)
+        np.copyto(settle, 0.0, where=tau == np.inf)
+        np.copyto(settle, 0.0, where=~(settle >= 0.0))  # within the limit already (or NaN)
+        durations = np.empty(n)
+        np.subtract(times[1:], times[:-1], out=durations[:-1])
+        durations[-1] = end - times[-1]
+        settled = settle <= durations
+        np.copyto(settle, np.nan, where=~settled)
+        return limit, settle, settled, step * decay
+    limit = np.empty(n) if relative else np.broadcast_to(float(value), (n,))
+    settle = np.empty(n)
+    settled = np.empty(n, dtype=bool)
+    residual = np.empty(n)
+    start = np.ascontiguousarray(start, dtype=np.float64)
+    final = np.ascontiguousarray(final, dtype=np.float64)
+    decay = np.ascontiguousarray(decay, dtype=np.float64)
+    tau = np.asarray(tau, dtype=np.float64)
+    uniform = tau.strides == (0,)
+
+    def piece(first: int, stop: int) -> None:
+        # The step itself is not kept (it is not a column): each kernel forms what it needs.
+        kernels.settle_quotients(start, final, decay, relative, float(value), limit if relative else settle[:0],
+                                 settle, residual, first, stop)
+        with np.errstate(all="ignore"):
+            np.log(settle[first:stop], out=settle[first:stop])
+        kernels.settle_times(settle, tau, uniform, times, end, settled, first, stop)
+
+    _parallel.run(piece, _parallel.pieces(n))
+    return limit, settle, settled, residual
 
 
 def _exp(exponent: np.ndarray) -> np.ndarray:

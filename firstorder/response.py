@@ -233,9 +233,13 @@ class Response:
     # -- per-segment data ------------------------------------------------------------
     @cached_property
     def tau(self) -> np.ndarray:
-        """Time constant of every segment (s); ``inf`` where the state is held."""
-        with np.errstate(divide="ignore"):
-            return np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
+        """Time constant of every segment (s); ``inf`` where the state is held (read-only)."""
+        if self._rate.strides == (0,):  # one rate for all: a broadcast answer
+            rate = float(self._rate[0])
+            return np.broadcast_to(1.0 / rate if rate > 0 else np.inf, self._rate.shape)
+        tau = np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
+        tau.setflags(write=False)
+        return tau
 
     @property
     def starts(self) -> np.ndarray:
@@ -245,10 +249,19 @@ class Response:
     def ends(self) -> np.ndarray:
         return self.drive.ends
 
-    @property
+    @cached_property
+    def _any_holds(self) -> bool:
+        holds = self.holds
+        return bool(holds[0]) if holds.strides == (0,) else bool(holds.any())
+
+    @cached_property
     def holds(self) -> np.ndarray:
-        """True for segments whose configuration holds the state."""
-        return self._rate == 0.0
+        """True for segments whose configuration holds the state (read-only)."""
+        if self._rate.strides == (0,):  # one rate for all: a broadcast answer
+            return np.broadcast_to(bool(self._rate[0] == 0.0), self._rate.shape)
+        holds = self._rate == 0.0
+        holds.setflags(write=False)
+        return holds
 
     @cached_property
     def _source_finals(self) -> np.ndarray:
@@ -259,6 +272,8 @@ class Response:
     def _final_sources_only(self) -> np.ndarray:
         m = self._levels.shape[1]
         if m == 1 and len(self._configs) == 1:
+            if self._gains[0, 0] == 1.0:  # 1.0 * level is level exactly: no need for a copy
+                return self._levels[:, 0]
             return self._gains[0, 0] * self._levels[:, 0]
         if m == 1:
             return self._gains[self._inverse, 0] * self._levels[:, 0]
@@ -345,7 +360,7 @@ class Response:
 
     def _finals(self, key: str) -> np.ndarray:
         final = self._source_final(key)
-        if self.holds.any():
+        if self._any_holds:
             final = np.where(self.holds, self._boundary(key)[:-1], final)
         return final
 

@@ -103,6 +103,12 @@ class Tolerance:
             return np.full(step.shape, self.value * 1e-6 * self.span)
         return np.full(step.shape, self.value)
 
+    def _scale(self) -> tuple[float, bool]:
+        """``(value, relative)``: the limit is ``value * step`` if relative, else ``value``."""
+        if self.kind == "relative":
+            return self.value, True
+        return (self.value * 1e-6 * self.span if self.kind == "ppm" else self.value), False
+
     def to_dict(self) -> dict[str, Any]:
         """Plain data for saving (see :meth:`from_dict`)."""
         if self.kind == "absolute":
@@ -193,16 +199,6 @@ def _watched(response: Any, probe: str | None) -> _Watched:
     final = start + rows[:, 0] * (response.final - state_start)
     unit = next(p.unit for p in response.fixture.probes if p.name == probe)
     return _Watched(f"probe '{probe}'", unit, start, final, rate)
-
-
-def _settle_times(step: np.ndarray, limit: np.ndarray, rate: np.ndarray) -> np.ndarray:
-    """``tau * ln(step / limit)`` where the step exceeds the limit, else 0 (closed form)."""
-    # Where the step is within the limit, or the state is held (rate 0), the quotient is
-    # negative, inf or NaN; those are replaced by 0, so their warnings are noise.
-    with np.errstate(all="ignore"):
-        settle = np.log(step / limit)
-        settle /= rate
-    return np.where((step > limit) & (rate > 0), settle, 0.0)
 
 
 def _sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str, what: str,
@@ -315,35 +311,39 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
 
     if not isinstance(tolerance, Tolerance):
         raise InputError(f"tolerance: {tolerance!r} is not a Tolerance; build one with Tolerance.absolute(...), .relative(...), .ppm(...) or .lsb(...)")
+    from .engine import settling_columns
+
     watched = _watched(response, probe)
     _check_unit(tolerance, watched.unit, watched.label)
-    durations = response.ends - response.starts
-    step = watched.step
-    limit = tolerance.limit(step)
-    settle = _settle_times(step, limit, watched.rate)
-    settled = settle <= durations
-    residual = step * np.exp(-durations * watched.rate)
+    # A probe within a segment is c*x + offset: it settles at the state's rate, and its
+    # error decays by the same factor as the state's (the response's decay over the segment).
+    value, relative = tolerance._scale()
+    limit, settle_time, settled, residual = settling_columns(
+        watched.start, watched.final, response.tau, response._decay, response.starts, response.drive.end,
+        value, relative)
     columns: dict[str, Any] = {
         "start": response.starts,
         "end": response.ends,
         "start_value": watched.start,
         "final": watched.final,
         "tolerance": limit,
-        "settle_time": np.where(settled, settle, np.nan),
+        "settle_time": settle_time,
         "settled": settled,
         "residual_at_end": residual,
     }
     if sample_delay is not None:
+        durations = response.drive.durations
         delays = _sample_delays(sample_delay, durations, field="sample_delay", what="segment", ends=response.ends)
         decay = np.exp(-delays * watched.rate)
-        error = step * decay
+        error = watched.step * decay
         columns["sample_time"] = response.starts + delays
         # final + (start - final) * decay, the left limit at a delay that reaches the next change.
         columns["value_at_sample"] = watched.final + (watched.start - watched.final) * decay
         columns["error_at_sample"] = error
         columns["ok"] = error <= limit
-    # Every column is a fresh array (or the response's read-only per-segment data): no copy needed.
-    table = pd.DataFrame(columns, index=pd.RangeIndex(len(durations), name="segment"), copy=False)
+    # Every column is a fresh array, the response's read-only per-segment data, or (a fixed
+    # tolerance) a read-only broadcast: no copy needed.
+    table = pd.DataFrame(columns, index=pd.RangeIndex(settled.size, name="segment"), copy=False)
     table.attrs.update(tolerance=str(tolerance), unit=watched.unit, watched=watched.label)
     return table
 

@@ -150,6 +150,27 @@ class TestEvaluation:
         assert _kernels.available(_kernels.THRESHOLD - 1) is None
 
 
+class TestSettlingColumns:
+    @pytest.mark.parametrize("relative", [False, True])
+    @pytest.mark.parametrize("uniform", [False, True])
+    def test_identical(self, numpy_only, relative, uniform):
+        rng = np.random.default_rng(3 + relative + 2 * uniform)
+        n = 100_003
+        times = np.cumsum(10 ** rng.uniform(-6, -3, n))
+        start = rng.normal(size=n)
+        final = rng.normal(size=n)
+        final[::7] = start[::7]  # no step: 0/0 for a relative limit
+        if uniform:
+            tau = np.broadcast_to(2e-4, (n,))
+        else:
+            tau = 10 ** rng.uniform(-6, -3, n)
+            tau[::11] = np.inf  # held
+        decay = np.exp(-np.diff(times, append=times[-1] + 1e-4) / tau)
+        args = (start, final, tau, decay, times, float(times[-1]) + 1e-4, 0.01 if relative else 1e-3, relative)
+        for got, expected in zip(engine.settling_columns(*args), numpy_only(engine.settling_columns, *args)):
+            np.testing.assert_array_equal(got, expected)
+
+
 class TestDriveCopy:
     """Drive's compiled copy-and-check pass takes the same decisions as numpy's."""
 

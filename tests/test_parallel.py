@@ -95,6 +95,9 @@ class TestSameResultsAnyThreadCount:
         results = {"boundary": response.boundary, "zero_state": response.boundary_of("zero_state"),
                    "total": response.total(grid), "probe": response.probe("ir1", grid)}
         results.update(response.evaluate(grid, ("zero_input", "natural", "vin")))
+        for tolerance in (fo.Tolerance.absolute("1m"), fo.Tolerance.relative(0.001)):
+            table = response.settling(tolerance)
+            results.update({f"{tolerance} {column}": table[column].to_numpy() for column in table.columns})
         return results
 
     def test_identical(self, small_pieces):
