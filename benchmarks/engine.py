@@ -8,8 +8,10 @@ hardest reference to beat), and the runs alternate five times; the best call cou
 (a) total(t) on 2,000,000 sorted points over a 100,000-change drive / bare exp   (target <= 3)
 (b) scipy.signal.lsim on the same grid / total(t)                                (target >= 50)
 (c) Drive + respond + boundary for 1,000,000 changes / bare exp of 1,000,000     (target <= 10)
+(d) respond + settling table for a 1,000,000-segment drive / bare exp of 1,000,000
+    (DESIGN.md's target, <= 10)
 
-(a) and (c) are printed three ways: as installed (compiled kernels, every core), on one
+(a), (c) and (d) are printed three ways: as installed (compiled kernels, every core), on one
 thread (FIRSTORDER_THREADS=1) and on numpy alone (FIRSTORDER_KERNELS=0).  Each figure is
 measured in a fresh process, so no figure inherits another's memory-allocator state
 (after a run with larger arrays, glibc hands back fresh pages that fault on first
@@ -57,7 +59,7 @@ def best_of(function, repeats):
 
 
 def workload(name: str):
-    """The function to time for figure `name` ("a" or "c"), its reference, and its data."""
+    """The function to time for figure `name` ("a", "c" or "d"), its reference, and its data."""
     rng = np.random.default_rng(2026)
     fixture = fo.Fixture.rc("10k", "10n")  # tau = 100 µs
     if name == "a":
@@ -78,7 +80,11 @@ def workload(name: str):
         built = fo.Drive(long_times, end=long_end, vin=long_levels)
         return fixture.respond(built, initial=0.0).boundary
 
-    return build_and_respond, (lambda: np.exp(long_times)), None
+    if name == "c":
+        return build_and_respond, (lambda: np.exp(long_times)), None
+    drive = fo.Drive(long_times, end=long_end, vin=long_levels)
+    tolerance = fo.Tolerance.lsb(bits=16, span=10.0)
+    return (lambda: fixture.respond(drive, initial=0.0).settling(tolerance)), (lambda: np.exp(long_times)), None
 
 
 def in_fresh_process(name: str, settings: dict[str, str]) -> tuple[float, float]:
@@ -101,6 +107,9 @@ def main() -> None:
               f"bare exp {bare * 1e3:.2f} ms; ratio {ours / bare:.1f} (target <= 3)")
         ours, bare = in_fresh_process("c", settings)
         print(f"(c) [{label}] Drive + respond + boundary, 1e6 changes: {ours * 1e3:.1f} ms; "
+              f"bare exp of 1e6 {bare * 1e3:.2f} ms; ratio {ours / bare:.1f} (target <= 10)")
+        ours, bare = in_fresh_process("d", settings)
+        print(f"(d) [{label}] respond + settling table, 1e6 segments: {ours * 1e3:.1f} ms; "
               f"bare exp of 1e6 {bare * 1e3:.2f} ms; ratio {ours / bare:.1f} (target <= 10)")
 
     from scipy import signal
