@@ -4,7 +4,9 @@ Each kernel performs exactly the floating-point operations of the numpy path in
 :mod:`firstorder.engine`, in the same order (and without fused multiply-adds,
 which numba only emits under ``fastmath``), so its results are identical to the
 last bit; ``tests/test_kernels.py`` checks that.  The transcendental functions
-(exp, expm1) stay in numpy on both paths for the same reason.
+(exp, expm1, log) stay in numpy on both paths for the same reason.  Every kernel
+works on a piece ``first:stop`` of its arrays, so the engine can run pieces on
+several threads (:mod:`firstorder._parallel`).
 
 numba is optional: without it, or with ``FIRSTORDER_KERNELS=0`` in the
 environment, everything runs on numpy.  It is imported only when an array is
