@@ -16,6 +16,7 @@ calling thread); by default every core this process may use, at most
 from __future__ import annotations
 
 import os
+import threading
 from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor, wait
 from typing import TypeVar
@@ -28,9 +29,11 @@ MAX_THREADS = 8
 #: Elements below which a piece is not worth a thread (the hand-off costs tens of µs).
 MIN_PIECE = 131_072
 
+_THREAD_PREFIX = "firstorder-piece"
 _Result = TypeVar("_Result")
 _pool: ThreadPoolExecutor | None = None
 _pool_size = 0
+_pool_process = 0
 
 
 def threads() -> int:
@@ -90,15 +93,17 @@ def run(function: Callable[..., _Result], spans: Sequence[tuple]) -> list[_Resul
 
     The first span runs on the calling thread, the rest on a shared pool.  An
     exception in any piece is raised here once every piece has finished, so no
-    piece is still writing when the caller moves on.
+    piece is still writing when the caller moves on.  Called from inside a piece,
+    every span runs on the calling thread (waiting on the pool from one of its
+    own threads could wait for ever).
 
     Examples
     --------
     >>> run(lambda start, stop: stop - start, [(0, 3), (3, 10)])
     [3, 7]
     """
-    if len(spans) == 1:
-        return [function(*spans[0])]
+    if len(spans) == 1 or threading.current_thread().name.startswith(_THREAD_PREFIX):
+        return [function(*span) for span in spans]
     pool = _shared_pool(len(spans) - 1)
     futures = [pool.submit(function, *span) for span in spans[1:]]
     try:
@@ -109,10 +114,13 @@ def run(function: Callable[..., _Result], spans: Sequence[tuple]) -> list[_Resul
 
 
 def _shared_pool(workers: int) -> ThreadPoolExecutor:
-    global _pool, _pool_size
-    if _pool is None or _pool_size < workers:
-        if _pool is not None:
+    """The pool, with at least `workers` threads.  A forked child process inherits the
+    pool object but not its threads, so it starts a pool of its own."""
+    global _pool, _pool_size, _pool_process
+    if _pool is None or _pool_size < workers or _pool_process != os.getpid():
+        if _pool is not None and _pool_process == os.getpid():
             _pool.shutdown(wait=False)
-        _pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix="firstorder")
+        _pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix=_THREAD_PREFIX)
         _pool_size = workers
+        _pool_process = os.getpid()
     return _pool

@@ -1,6 +1,8 @@
 """Work split over threads: the pieces cover everything once, and results do not
 depend on how many threads ran."""
 
+import multiprocessing
+import os
 import threading
 import time
 
@@ -55,6 +57,33 @@ class TestRun:
         with pytest.raises(RuntimeError, match="piece 0 failed"):
             _parallel.run(piece, [(0, 1), (1, 2), (2, 3)])
         assert len(finished) == 2
+
+
+    def test_nested_call_runs_inline(self, monkeypatch):
+        monkeypatch.setenv("FIRSTORDER_THREADS", "2")  # one pool thread, busy with the outer piece
+        names = []
+
+        def outer(start, stop):
+            return _parallel.run(lambda a, b: threading.current_thread().name, [(0, 1), (1, 2)])
+
+        # On a thread of its own, so that a deadlock fails the test instead of hanging it.
+        caller = threading.Thread(target=lambda: names.extend(_parallel.run(outer, [(0, 1), (1, 2)])), daemon=True)
+        caller.start()
+        caller.join(timeout=30)
+        assert names, "a run inside a piece never finished"
+        assert names[1][0] == names[1][1]  # both inner pieces on the outer piece's thread
+
+    @pytest.mark.skipif(not hasattr(os, "fork"), reason="needs fork")
+    def test_forked_child_gets_its_own_pool(self):
+        _parallel.run(lambda a, b: a, [(0, 1), (1, 2)])  # the parent's pool exists
+        context = multiprocessing.get_context("fork")
+        with context.Pool(1) as children:
+            result = children.apply_async(_run_two_pieces).get(timeout=60)
+        assert result == [0, 1]
+
+
+def _run_two_pieces():
+    return _parallel.run(lambda a, b: a, [(0, 1), (1, 2)])
 
 
 pytest.importorskip("numba")  # below: the compiled pieces, with 1 and with 4 threads
