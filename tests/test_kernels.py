@@ -203,3 +203,25 @@ class TestDriveCopy:
             numpy_only(lambda: fo.Drive(times, end=1.0, vin=levels))
         assert str(compiled.value) == str(plain.value)
         assert str(compiled.value).startswith(message)
+
+
+class TestGridErrors:
+    """Long grids take the compiled sweep; bad times are refused with the numpy path's words."""
+
+    @pytest.mark.parametrize("index, value, message", [
+        (50_000, np.nan, "t: contains NaN or inf"),
+        (-1, np.inf, "t: contains NaN or inf"),
+        (0, -np.inf, "t: contains NaN or inf"),
+        (-1, 2.5e-3, "t: 0.0025 s is outside the drive"),
+        (0, -1e-9, "t: -1e-09 s is outside the drive"),
+    ])
+    def test_same_message(self, numpy_only, index, value, message):
+        response = fo.Fixture.rc("1k", "1u").respond(fo.Drive.steps([(0, 0.0), ("1m", 1.0)], end="2m"))
+        grid = np.linspace(0.0, 2e-3, 100_001)
+        grid[index] = value
+        with pytest.raises(InputError) as compiled:
+            response.total(grid)
+        with pytest.raises(InputError) as plain:
+            numpy_only(response.total, grid)
+        assert str(compiled.value) == str(plain.value)
+        assert str(compiled.value).startswith(message)
