@@ -513,6 +513,42 @@ def _plan_inputs(fixture: Any, levels: Any, tolerance: Any, min_dwell: Any, star
     return provisional, level_array, states, start_time, shortest
 
 
+#: Rounds of the search for a plan's repeating start (it usually takes two or three).
+_PERIODIC_ROUNDS = 100
+
+
+def _periodic(greedy, guess: float, coefficient: np.ndarray, rate: np.ndarray):
+    """The greedy plan whose start is the state it leaves at its end, so it can repeat.
+
+    A secant search on ``end(x) - x``: where the first dwell settles, the state after
+    it no longer depends on the start, so two or three rounds find it; where
+    `min_dwell` rules, the map is affine and the secant lands on it.  The start is
+    found to well inside the margin every sample keeps from its limit.
+    """
+    if (rate == 0.0).all():
+        raise InputError(
+            "initial: 'periodic' has no solution; every step holds the state, so no start repeats at the end"
+        )
+    start, previous = guess, None
+    for _ in range(_PERIODIC_ROUNDS):
+        rows, limited_by, end, time = greedy(start)
+        gap = end - start
+        # The samples aim _AIM_INSIDE of their limit inside it: a start off by far less moves no sample out.
+        allowed = 0.25 * _AIM_INSIDE * float(np.min(rows["tolerance"] / np.maximum(np.abs(coefficient), 1e-300)))
+        if abs(gap) <= allowed:
+            return rows, limited_by, end, time
+        if previous is not None and gap != previous[1]:
+            following = start - gap * (start - previous[0]) / (gap - previous[1])
+        else:
+            following = end  # the plain round: start where this plan ended
+        previous = (start, gap)
+        start = following
+    raise InputError(
+        f"initial: 'periodic' found no repeating start in {_PERIODIC_ROUNDS} rounds (last gap "
+        f"{format_value(abs(gap), '')}); give the starting state as a number"
+    )
+
+
 def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: Any, start: Any,
           sample_delay: Any, probe: str | None):
     """The greedy plan: its drive and its per-step table (see :func:`plan_dwells`)."""
@@ -570,60 +606,69 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
     if sample_delay is not None:
         hold_after = _sample_delays(sample_delay, np.full(count, np.inf), field="sample_delay", what="step")
 
-    if isinstance(initial, str) and initial.strip() == "settled":
-        if rate[0] == 0.0:
-            raise InputError("initial: 'settled' needs a first step that settles, but step 0 holds its state")
-        state = float(finals[0])
-    elif isinstance(initial, str) and initial.strip().isalpha():
-        raise InputError(
-            f"initial: {initial!r} is not allowed for a plan; give a number (the starting state, "
-            f"in {fixture.state_unit}) or 'settled'"
-        )
-    else:
-        state = parse_value(initial, field="initial", unit=fixture.state_unit)
-
-    rows = {name: np.empty(count) for name in
-            ("start", "dwell", "settle_time", "sample_delay", "sample_time", "start_value", "final",
-             "tolerance", "error_at_sample")}
-    limited_by = []
     eps = np.finfo(float).eps
-    time = start_time
-    for k in range(count):
-        r, c = float(rate[k]), abs(float(coefficient[k]))
-        final = state if r == 0.0 else float(finals[k])
-        step = c * abs(final - state)
-        limit = float(tolerance.limit(np.array([step]))[0])
-        aim = limit * (1.0 - _AIM_INSIDE) - _ROUNDING_ULPS * eps * c * max(abs(state), abs(final))
-        if aim <= 0.0:
-            aim = limit * (1.0 - _AIM_INSIDE)
-        # Already within the limit: no wait (aiming inside matters only for steps that move).
-        settle = math.log(step / aim) / r if (r > 0.0 and step > limit) else 0.0
-        need = settle + float(hold_after[k])
-        dwell = max(shortest, need)
-        if not dwell > 0.0:
+
+    def greedy(state: float):
+        """Each step as fast as its sample allows, from `state`: the rows, what limited
+        each dwell, the state left at the end and the end instant."""
+        rows = {name: np.empty(count) for name in
+                ("start", "dwell", "settle_time", "sample_delay", "sample_time", "start_value", "final",
+                 "tolerance", "error_at_sample")}
+        limited_by = []
+        time = start_time
+        for k in range(count):
+            r, c = float(rate[k]), abs(float(coefficient[k]))
+            final = state if r == 0.0 else float(finals[k])
+            step = c * abs(final - state)
+            limit = float(tolerance.limit(np.array([step]))[0])
+            aim = limit * (1.0 - _AIM_INSIDE) - _ROUNDING_ULPS * eps * c * max(abs(state), abs(final))
+            if aim <= 0.0:
+                aim = limit * (1.0 - _AIM_INSIDE)
+            # Already within the limit: no wait (aiming inside matters only for steps that move).
+            settle = math.log(step / aim) / r if (r > 0.0 and step > limit) else 0.0
+            need = settle + float(hold_after[k])
+            dwell = max(shortest, need)
+            if not dwell > 0.0:
+                raise InputError(
+                    f"step {k}: needs no settling (its start is already within {tolerance}) and min_dwell "
+                    f"and sample_delay are 0, so its dwell would be 0 s, which no drive segment can be; "
+                    f"give min_dwell > 0 (for example the time one sample takes)"
+                )
+            following = time + dwell
+            while following - time < dwell:  # the drive keeps instants, not dwells: never round short
+                following = math.nextafter(following, math.inf)
+            dwell = following - time
+            delay = dwell - float(hold_after[k])
+            decay = math.exp(-delay * r)
+            rows["start"][k] = time
+            rows["dwell"][k] = dwell
+            rows["settle_time"][k] = settle
+            rows["sample_delay"][k] = delay
+            rows["sample_time"][k] = time + delay
+            rows["start_value"][k] = coefficient[k] * state + offset[k]
+            rows["final"][k] = coefficient[k] * final + offset[k]
+            rows["tolerance"][k] = limit
+            rows["error_at_sample"][k] = step * decay
+            limited_by.append("settling" if need >= shortest else "min_dwell")
+            state = final + (state - final) * math.exp(-dwell * r)
+            time = following
+        return rows, limited_by, state, time
+
+    if isinstance(initial, str) and initial.strip() == "periodic":
+        rows, limited_by, _, time = _periodic(greedy, float(finals[-1]), coefficient, rate)
+    else:
+        if isinstance(initial, str) and initial.strip() == "settled":
+            if rate[0] == 0.0:
+                raise InputError("initial: 'settled' needs a first step that settles, but step 0 holds its state")
+            state = float(finals[0])
+        elif isinstance(initial, str) and initial.strip().isalpha():
             raise InputError(
-                f"step {k}: needs no settling (its start is already within {tolerance}) and min_dwell "
-                f"and sample_delay are 0, so its dwell would be 0 s, which no drive segment can be; "
-                f"give min_dwell > 0 (for example the time one sample takes)"
+                f"initial: {initial!r} is not allowed for a plan; give a number (the starting state, "
+                f"in {fixture.state_unit}), 'settled' or 'periodic'"
             )
-        following = time + dwell
-        while following - time < dwell:  # the drive keeps instants, not dwells: never round short
-            following = math.nextafter(following, math.inf)
-        dwell = following - time
-        delay = dwell - float(hold_after[k])
-        decay = math.exp(-delay * r)
-        rows["start"][k] = time
-        rows["dwell"][k] = dwell
-        rows["settle_time"][k] = settle
-        rows["sample_delay"][k] = delay
-        rows["sample_time"][k] = time + delay
-        rows["start_value"][k] = coefficient[k] * state + offset[k]
-        rows["final"][k] = coefficient[k] * final + offset[k]
-        rows["tolerance"][k] = limit
-        rows["error_at_sample"][k] = step * decay
-        limited_by.append("settling" if need >= shortest else "min_dwell")
-        state = final + (state - final) * math.exp(-dwell * r)
-        time = following
+        else:
+            state = parse_value(initial, field="initial", unit=fixture.state_unit)
+        rows, limited_by, _, time = greedy(state)
     drive = Drive(rows["start"].copy(), time, **provisional.columns)
     table = pd.DataFrame(rows, index=pd.RangeIndex(count, name="step"))
     table["limited_by"] = limited_by
@@ -645,9 +690,11 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
     tolerance : Tolerance
         The limit each step's sample must meet (a relative one is taken of that
         step's own ``|final - start value|``).
-    initial : float, str or "settled", optional
-        The state before the first step (V or A), or ``"settled"`` for the
-        state the first step's configuration would hold forever.
+    initial : float or str, optional
+        The state before the first step (V or A), ``"settled"`` for the state
+        the first step's configuration would hold forever, or ``"periodic"`` for
+        a sequence that repeats: the start is then the state the plan itself
+        leaves at its end (run it with ``respond(..., initial="periodic")``).
     min_dwell : float or str, optional
         No step is shorter than this (s): the time a sample takes, or the
         fastest the scanner or relay may switch.

@@ -556,6 +556,53 @@ class TestPlanDwells:
                               min_dwell="10u")
         assert table.loc[0, "start_value"] == 2.0 and table.loc[0, "limited_by"] == "min_dwell"
 
+    # -- repeating sequences ---------------------------------------------------------------
+
+    @pytest.mark.parametrize("bits", [8, 12, 16])
+    def test_periodic_square_wave_needs_ln_of_2_to_the_n_plus_1_minus_1(self, bits):
+        # Derived by hand: a sequence alternating 0 and V that repeats starts each step
+        # half an LSB from the other level, so it moves V - limit and must fall to the
+        # limit: tau * ln((V - limit) / limit) = tau * ln(2^(N+1) - 1), a hair under
+        # the (N+1) ln 2 of a step from rest (common practice).
+        fx = fo.Fixture.rc(r="1k", c="1u")  # tau = 1 ms
+        tolerance = fo.Tolerance.lsb(bits=bits, span=5.0)
+        table = fo.plan_table(fx, {"vin": [5.0, 0.0]}, tolerance, initial="periodic")
+        expected = 1e-3 * math.log(2.0 ** (bits + 1) - 1)
+        np.testing.assert_allclose(table["dwell"], expected, rtol=1e-8)
+        assert table.loc[0, "start_value"] == pytest.approx(tolerance.value, rel=1e-6)
+
+    @pytest.mark.parametrize("case", ["settling", "min_dwell", "switched", "sample_delay"])
+    def test_periodic_plan_repeats_and_every_sample_passes(self, case):
+        # Reference: the response's own periodic start, a closed-form fixed point
+        # (x0 = B / (1 - A) of the whole drive's affine map), not the plan's search.
+        tolerance = fo.Tolerance.lsb(bits=16, span=10.0)
+        options = {}
+        if case == "switched":
+            fx, levels = self.scanner(), {"v0": [1.0] * 3, "v1": [-2.0] * 3, "v2": [4.5] * 3,
+                                           "k0": [1, 0, 0], "k1": [0, 1, 0], "k2": [0, 0, 1]}
+        else:
+            fx, levels = fo.Fixture.rc(r="1k", c="10n"), {"vin": [3.0, -1.0, 4.0, 0.5]}
+        if case == "min_dwell":
+            options["min_dwell"] = "40u"  # four tau: every dwell is the minimum, none settles fully
+            tolerance = fo.Tolerance.absolute("0.2")
+        if case == "sample_delay":
+            options["sample_delay"] = "3u"
+        table = fo.plan_table(fx, levels, tolerance, initial="periodic", **options)
+        drive = fo.plan_dwells(fx, levels, tolerance, initial="periodic", **options)
+        response = fx.respond(drive, initial="periodic")
+        assert response.initial == pytest.approx(table.loc[0, "start_value"], abs=1e-9 * tolerance.value)
+        checked = response.settling(tolerance, sample_delay=table["sample_delay"].to_numpy())
+        assert checked["ok"].all()
+        if case == "min_dwell":
+            assert (table["limited_by"] == "min_dwell").all()
+
+    def test_periodic_with_every_step_holding_is_refused(self):
+        fx = (fo.Fixture().voltage_source("vin", "in", "gnd").switch("k", "in", "out")
+              .capacitor("ch", "out", "gnd", "1n"))
+        with pytest.raises(InputError, match="initial: 'periodic' has no solution"):
+            fo.plan_dwells(fx, {"vin": [1.0, 2.0], "k": [0, 0]}, fo.Tolerance.absolute("1m"), initial="periodic",
+                           min_dwell="1u")
+
     @pytest.mark.parametrize("arguments, message", [
         (dict(levels={"vin": [1.0, 1.0]}), "step 1"),
         (dict(levels={"vin": [1.0], "vx": [0.0]}), "vx"),
@@ -565,7 +612,7 @@ class TestPlanDwells:
         (dict(levels={"vin": [1.0]}, min_dwell=-1e-6), "min_dwell"),
         (dict(levels={"vin": [1.0]}, sample_delay=-1e-6), "sample_delay for step 0"),
         (dict(levels={"vin": [1.0, 2.0]}, sample_delay=[0.0]), "sample_delay"),
-        (dict(levels={"vin": [1.0]}, initial="periodic"), "initial"),
+        (dict(levels={"vin": [1.0]}, initial="cyclic"), "initial"),
         (dict(levels={"vin": [1.0]}, probe="nothing"), "probe"),
         (dict(levels={"vin": [1.0]}, tolerance=1e-3), "tolerance"),
         (dict(levels={"vin": [1.0]}, tolerance=fo.Tolerance.absolute(1e-3, unit="A")), "unit='V'"),
