@@ -545,13 +545,12 @@ class TestFloatingNodes:
         np.testing.assert_allclose(res.probe("v_mn", t), [10.0 * i, 0.0, 0.0], rtol=1e-12, atol=1e-15)
 
     def test_leakage_defines_it(self):
-        # 1 MΩ: a node held only by a leakage conductance g next to a conductance G of its
-        # neighbour is known to about eps * G / g in floating point (10 Ω next to 1 GΩ gives
-        # 1e-8 of the value), so this checks the topology, not that limit.
+        # 1 MΩ: a node held only by a leakage conductance next to a far larger one (here
+        # 10 Ω) is solved to full precision (the refined solve; see TestExtremeRatios).
         fx = self.fixture().with_values(k1=("0", "1M"))
         res = fx.respond(self.drive())
         # k1 leaks: no current flows once k2 is open too, so m sits at the source's 1 V.
-        assert res.probe("v_m", 2.5e-3) == pytest.approx(1.0, rel=1e-10)
+        assert res.probe("v_m", 2.5e-3) == pytest.approx(1.0, rel=1e-15)
 
 
 @st.composite
