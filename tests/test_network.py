@@ -417,20 +417,27 @@ def resistive_networks(draw):
     return inner, edges, values, (cap_a, cap_b)
 
 
+def _network_fixture(network) -> fo.Fixture:
+    """The fixture of a drawn network: its resistors, a source at 's', a 1 µF capacitor."""
+    _, edges, values, (cap_a, cap_b) = network
+    fx = fo.Fixture()
+    fx.voltage_source("v", "s", "gnd")
+    for k, ((a, b), r) in enumerate(zip(edges, values)):
+        fx.resistor(f"r{k}", a, b, r)
+    fx.capacitor("c", cap_a, cap_b, 1e-6)
+    try:
+        fx.check()
+    except TopologyError:
+        assume(False)  # a node on one part only: not these tests' subject
+    return fx
+
+
 class TestRandomResistiveNetworks:
     @settings(max_examples=60)
     @given(resistive_networks())
     def test_thevenin_against_nodal_analysis(self, network):
         inner, edges, values, (cap_a, cap_b) = network
-        fx = fo.Fixture()
-        fx.voltage_source("v", "s", "gnd")
-        for k, ((a, b), r) in enumerate(zip(edges, values)):
-            fx.resistor(f"r{k}", a, b, r)
-        fx.capacitor("c", cap_a, cap_b, 1e-6)
-        try:
-            fx.check()
-        except TopologyError:
-            assume(False)  # a node on one part only: not this test's subject
+        fx = _network_fixture(network)
         # Reference: textbook nodal analysis, written here.  G v = i over the inner nodes with
         # the source node held at V; V_th is the open-circuit v(a) - v(b) per volt, and
         # R_th = d^T G^-1 d with d the unit injection at a and out of b (sources zeroed).
@@ -475,15 +482,7 @@ class TestExtremeRatios:
     @given(extreme_networks())
     def test_thevenin_to_full_precision(self, network):
         inner, edges, values, (cap_a, cap_b) = network
-        fx = fo.Fixture()
-        fx.voltage_source("v", "s", "gnd")
-        for k, ((a, b), r) in enumerate(zip(edges, values)):
-            fx.resistor(f"r{k}", a, b, r)
-        fx.capacitor("c", cap_a, cap_b, 1e-6)
-        try:
-            fx.check()
-        except TopologyError:
-            assume(False)
+        fx = _network_fixture(network)
         # Reference: the textbook nodal analysis of TestRandomResistiveNetworks, in exact
         # rational arithmetic from the very conductances the fixture uses (1/R rounded once).
         index = {n: k for k, n in enumerate(inner)}
