@@ -103,7 +103,7 @@ def lab(tmp_path_factory):
                     pytest.fail(f"JupyterLab did not start; see {BUILD / 'browser-jupyterlab.log'}")
                 time.sleep(0.5)
         yield {"url": f"http://127.0.0.1:{port}", "token": token, "chromium": chromium,
-               "notebook": f"notebooks/{notebook.name}"}
+               "notebook": f"notebooks/{notebook.name}", "root": root}
     finally:
         server.terminate()
         try:
@@ -124,6 +124,39 @@ _HANDLE_POSITION = """() => {
 }"""
 
 
+def _open_and_run_all(page, lab, notebook: str) -> None:
+    """Open `notebook` in JupyterLab and run every cell."""
+    from playwright.sync_api import TimeoutError as PlaywrightTimeout
+
+    page.goto(f"{lab['url']}/lab/tree/{notebook}?token={lab['token']}")
+    page.wait_for_selector(".jp-Notebook .jp-Cell", timeout=RUN_SECONDS * 1000)
+    # A fresh JupyterLab may ask which kernel to start; the notebook's own is preselected.
+    select = page.locator(".jp-Dialog button.jp-mod-accept")
+    try:
+        select.wait_for(timeout=5000)
+        select.click()
+    except PlaywrightTimeout:
+        pass
+    page.wait_for_selector("#jp-main-statusbar :text('Idle')", timeout=RUN_SECONDS * 1000)
+    page.get_by_role("menuitem", name="Run", exact=True).click()
+    page.get_by_role("menuitem", name="Run All Cells", exact=True).click()
+    for label in ("No", "Yes"):  # JupyterLab's question about news; either answer closes it
+        news = page.locator(".jp-toast-button", has_text=label)
+        if news.count():
+            news.first.click()
+            break
+
+
+#: A dashboard of our own: the Bench inside another widget, displayed as that widget.
+_NESTED_CELL = """import ipywidgets as widgets
+import firstorder as fo
+
+fx = fo.Fixture.rc(r="2.2k", c="470n")
+drive = fo.Drive.steps([(0, 0.0), ("2m", 3.3), ("6m", 1.2)], end="10m")
+widgets.VBox([widgets.HTML("<b>Channel 3 input filter</b>"), fo.Bench(fx, drive)])
+"""
+
+
 class TestBenchInBrowser:
     def test_renders_and_follows_a_part_edit(self, lab):
         from playwright.sync_api import TimeoutError as PlaywrightTimeout
@@ -141,24 +174,7 @@ class TestBenchInBrowser:
                 page.route("**/*", lambda route: route.continue_() if route.request.url.startswith(
                     ("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:")) else (
                     blocked.append(route.request.url), route.abort()))
-                page.goto(f"{lab['url']}/lab/tree/{lab['notebook']}?token={lab['token']}")
-                page.wait_for_selector(".jp-Notebook .jp-Cell", timeout=RUN_SECONDS * 1000)
-                # A fresh JupyterLab may ask which kernel to start; the notebook's own is preselected.
-                select = page.locator(".jp-Dialog button.jp-mod-accept")
-                try:
-                    select.wait_for(timeout=5000)
-                    select.click()
-                except PlaywrightTimeout:
-                    pass
-                page.wait_for_selector("#jp-main-statusbar :text('Idle')", timeout=RUN_SECONDS * 1000)
-                page.get_by_role("menuitem", name="Run", exact=True).click()
-                page.get_by_role("menuitem", name="Run All Cells", exact=True).click()
-
-                for label in ("No", "Yes"):  # JupyterLab's question about news; either answer closes it
-                    news = page.locator(".jp-toast-button", has_text=label)
-                    if news.count():
-                        news.first.click()
-                        break
+                _open_and_run_all(page, lab, lab["notebook"])
                 field = page.locator("[class*='fo-part-'] input").first
                 field.wait_for(timeout=RUN_SECONDS * 1000)
                 canvas = page.locator(".jp-OutputArea-output canvas").first
@@ -218,6 +234,35 @@ class TestBenchInBrowser:
             except BaseException:
                 page.screenshot(path=str(BUILD / "bench-browser-failure.png"), full_page=True)
                 (BUILD / "bench-browser-console.log").write_text("\n".join(messages + blocked), encoding="utf-8")
+                raise
+            finally:
+                browser.close()
+
+    def test_renders_inside_another_widget(self, lab):
+        from playwright.sync_api import sync_playwright
+
+        notebook = {"cells": [{"cell_type": "code", "execution_count": None, "id": "nested", "metadata": {},
+                               "outputs": [], "source": _NESTED_CELL}],
+                    "metadata": {"kernelspec": {"display_name": "Python 3", "language": "python", "name": "python3"}},
+                    "nbformat": 4, "nbformat_minor": 5}
+        (lab["root"] / "notebooks" / "nested_bench.ipynb").write_text(json.dumps(notebook), encoding="utf-8")
+        with sync_playwright() as playwright:
+            browser = playwright.chromium.launch(executable_path=lab["chromium"], args=CHROMIUM_ARGS)
+            page = browser.new_page(viewport={"width": 1500, "height": 1300})
+            messages: list[str] = []
+            page.on("pageerror", lambda error: messages.append(f"pageerror: {error}"))
+            try:
+                _open_and_run_all(page, lab, "notebooks/nested_bench.ipynb")
+                page.locator("[class*='fo-part-'] input").first.wait_for(timeout=RUN_SECONDS * 1000)
+                # The plots: BokehJS must have reached the page although the Bench was not
+                # displayed itself, and its views must show the data set before they existed.
+                page.locator(".jp-OutputArea-output canvas").first.wait_for(timeout=60_000)
+                page.wait_for_timeout(2500)
+                page.locator(".jp-OutputArea-output:has(canvas)").first.screenshot(
+                    path=str(BUILD / "bench-browser-nested.png"))
+                assert not messages, messages
+            except BaseException:
+                page.screenshot(path=str(BUILD / "bench-browser-nested-failure.png"), full_page=True)
                 raise
             finally:
                 browser.close()

@@ -58,6 +58,18 @@ def _field_label(text: str, width: str = "78px") -> widgets.HTML:
     return widgets.HTML(f"<b>{html.escape(text)}</b>", layout=widgets.Layout(width=width))
 
 
+def _live_kernel_cell() -> int | None:
+    """The execution count of the cell running now in a live notebook kernel, else None."""
+    try:
+        from IPython import get_ipython
+    except ImportError:  # pragma: no cover - ipywidgets brings IPython
+        return None
+    shell = get_ipython()
+    if shell is None or getattr(shell, "kernel", None) is None:
+        return None
+    return int(shell.execution_count)
+
+
 class Bench(widgets.VBox):
     """An app for one fixture and drive: edit parts and the drive, see every component.
 
@@ -184,6 +196,13 @@ class Bench(widgets.VBox):
         self._refresh_curves()
         self._show_cautions()
         self._show_status()
+        # Shown inside another widget (a dashboard's VBox or Tab), the Bench is never asked
+        # for a display bundle of its own: so BokehJS goes to the page now, in a live
+        # notebook, and the views' bundles carry the data set above.
+        self._bokehjs_cell: int | None = None
+        if _live_kernel_cell() is not None:
+            self._publish_bokehjs()
+            self._bring_views_up_to_date()
 
     # -- public reading --------------------------------------------------------------------
     @property
@@ -216,13 +235,21 @@ class Bench(widgets.VBox):
                 f"run the cell in a live notebook to open the app)")
 
     def _repr_mimebundle_(self, **kwargs):
-        # BokehJS must be in the page before jupyter_bokeh's view is created.
+        # BokehJS must be in the page before jupyter_bokeh's view is created (once a cell).
+        if self._bokehjs_cell is None or self._bokehjs_cell != _live_kernel_cell():
+            self._publish_bokehjs()
+        self._bring_views_up_to_date()
+        return super()._repr_mimebundle_(**kwargs)
+
+    def _publish_bokehjs(self) -> None:
         publish_bokehjs()
+        self._bokehjs_cell = _live_kernel_cell()
+
+    def _bring_views_up_to_date(self) -> None:
         # A view draws from the render bundle; patches sent before any view
         # existed reached no one, so the bundle is brought up to date first.
         self.plot_view.update_from_model(self.plots.layout)
         self.table_view.update_from_model(self.drive_table)
-        return super()._repr_mimebundle_(**kwargs)
 
     # -- panels ---------------------------------------------------------------------------------
     def _build_parts_panel(self) -> widgets.VBox:
