@@ -157,6 +157,27 @@ widgets.VBox([widgets.HTML("<b>Channel 3 input filter</b>"), fo.Bench(fx, drive)
 """
 
 
+#: A drive with far more changes than the plot has pixels: the Bench draws min/max bands.
+_CROWDED_CELL = """import numpy as np
+import firstorder as fo
+
+rng = np.random.default_rng(7)
+times = np.concatenate([[0.0], np.cumsum(rng.uniform(2e-6, 8e-6, 19_999))])
+drive = fo.Drive(times, end=float(times[-1]) + 1e-5, vin=rng.choice([0.0, 5.0], 20_000))
+fo.Bench(fo.Fixture.rc(r="1k", c="10n"), drive)
+"""
+
+
+def _write_notebook(lab, name: str, source: str) -> str:
+    """A one-cell notebook in the served folder; its path for JupyterLab."""
+    notebook = {"cells": [{"cell_type": "code", "execution_count": None, "id": "cell", "metadata": {},
+                           "outputs": [], "source": source}],
+                "metadata": {"kernelspec": {"display_name": "Python 3", "language": "python", "name": "python3"}},
+                "nbformat": 4, "nbformat_minor": 5}
+    (lab["root"] / "notebooks" / name).write_text(json.dumps(notebook), encoding="utf-8")
+    return f"notebooks/{name}"
+
+
 class TestBenchInBrowser:
     def test_renders_and_follows_a_part_edit(self, lab):
         from playwright.sync_api import TimeoutError as PlaywrightTimeout
@@ -241,18 +262,14 @@ class TestBenchInBrowser:
     def test_renders_inside_another_widget(self, lab):
         from playwright.sync_api import sync_playwright
 
-        notebook = {"cells": [{"cell_type": "code", "execution_count": None, "id": "nested", "metadata": {},
-                               "outputs": [], "source": _NESTED_CELL}],
-                    "metadata": {"kernelspec": {"display_name": "Python 3", "language": "python", "name": "python3"}},
-                    "nbformat": 4, "nbformat_minor": 5}
-        (lab["root"] / "notebooks" / "nested_bench.ipynb").write_text(json.dumps(notebook), encoding="utf-8")
+        notebook = _write_notebook(lab, "nested_bench.ipynb", _NESTED_CELL)
         with sync_playwright() as playwright:
             browser = playwright.chromium.launch(executable_path=lab["chromium"], args=CHROMIUM_ARGS)
             page = browser.new_page(viewport={"width": 1500, "height": 1300})
             messages: list[str] = []
             page.on("pageerror", lambda error: messages.append(f"pageerror: {error}"))
             try:
-                _open_and_run_all(page, lab, "notebooks/nested_bench.ipynb")
+                _open_and_run_all(page, lab, notebook)
                 page.locator("[class*='fo-part-'] input").first.wait_for(timeout=RUN_SECONDS * 1000)
                 # The plots: BokehJS must have reached the page although the Bench was not
                 # displayed itself, and its views must show the data set before they existed.
@@ -263,6 +280,40 @@ class TestBenchInBrowser:
                 assert not messages, messages
             except BaseException:
                 page.screenshot(path=str(BUILD / "bench-browser-nested-failure.png"), full_page=True)
+                raise
+            finally:
+                browser.close()
+
+    def test_bands_of_a_crowded_drive_answer_the_pointer(self, lab):
+        from playwright.sync_api import sync_playwright
+
+        notebook = _write_notebook(lab, "crowded_bench.ipynb", _CROWDED_CELL)
+        with sync_playwright() as playwright:
+            browser = playwright.chromium.launch(executable_path=lab["chromium"], args=CHROMIUM_ARGS)
+            page = browser.new_page(viewport={"width": 1500, "height": 1300})
+            try:
+                _open_and_run_all(page, lab, notebook)
+                page.locator(".jp-OutputArea-output canvas").first.wait_for(timeout=RUN_SECONDS * 1000)
+                page.wait_for_timeout(2500)
+                found = False
+                # Sweep the pointer across the middle of each plot until a band's tooltip shows.
+                for canvas in page.locator(".jp-OutputArea-output canvas").all():
+                    box = canvas.bounding_box()
+                    if not box or box["width"] < 200:
+                        continue
+                    for fraction in (0.3, 0.45, 0.6):
+                        page.mouse.move(box["x"] + box["width"] * fraction, box["y"] + box["height"] * 0.5)
+                        page.wait_for_timeout(400)
+                        if page.get_by_text("lowest").count():
+                            found = True
+                            break
+                    if found:
+                        break
+                page.locator(".jp-OutputArea-output:has(canvas)").first.screenshot(
+                    path=str(BUILD / "bench-browser-band-hover.png"))
+                assert found, "no min/max band answered the pointer with its lowest and highest value"
+            except BaseException:
+                page.screenshot(path=str(BUILD / "bench-browser-band-failure.png"), full_page=True)
                 raise
             finally:
                 browser.close()

@@ -55,6 +55,15 @@ def _hover(unit: str) -> CustomJSHover:
     return CustomJSHover(code=HOVER_CODE, args={"unit": unit})
 
 
+def _band_hover(band, name: str, value_hover) -> HoverTool:
+    """Hover for a min/max band (the plot drawn per pixel column when segments crowd):
+    the lowest and highest value within the column under the pointer, and where."""
+    return HoverTool(renderers=[band], tooltips=[(f"{name}, lowest", "@low{custom}"),
+                                                 (f"{name}, highest", "@high{custom}"),
+                                                 ("around", "@t{custom}")],
+                     formatters={"@low": value_hover, "@high": value_hover, "@t": _hover("s")})
+
+
 def _empty_curve() -> dict[str, np.ndarray]:
     empty = np.zeros(0)
     return {"t": empty, "y": empty, "low": empty, "high": empty}
@@ -134,8 +143,10 @@ class Plots:
             self.line_renderers[f"drive.{name}"] = line
             self.band_renderers[f"drive.{name}"] = band
             items.append(LegendItem(label=name, renderers=[line, band]))
+            level = _hover(units.get(name, ""))
             fig.add_tools(HoverTool(renderers=[line], tooltips=[(name, "@y{custom}"), ("from", "@t{custom}")],
-                                    formatters={"@y": _hover(units.get(name, "")), "@t": _hover("s")}))
+                                    formatters={"@y": level, "@t": _hover("s")}))
+            fig.add_tools(_band_hover(band, name, level))
         handles = ColumnDataSource({"t": [], "y": [], "row": []})
         self.sources["handles"] = handles
         self.handle_renderer = fig.scatter("t", "y", source=handles, size=9, marker="square",
@@ -191,6 +202,7 @@ class Plots:
             self.value_formatters.append(value_hover)
             fig.add_tools(HoverTool(renderers=[line], tooltips=[(text, "@y{custom}"), ("at", "@t{custom}")],
                                     formatters={"@y": value_hover, "@t": _hover("s")}))
+            fig.add_tools(_band_hover(band, text, value_hover))
         samples = ColumnDataSource({"t": [], "y": [], "colour": [], "error": []})
         self.sources["samples"] = samples
         sample_renderer = fig.scatter("t", "y", source=samples, size=8, marker="diamond", fill_color="colour",
