@@ -14,6 +14,7 @@ names as they are.
 from __future__ import annotations
 
 import datetime
+import functools
 import math
 from html import escape
 from html.parser import HTMLParser
@@ -265,6 +266,35 @@ def _escaped_names(expression: Any) -> Any:
     return expression.xreplace(mapping) if mapping else expression
 
 
+def _exponentials_as_powers(expression: Any) -> Any:
+    """Every ``exp(a)`` of `expression` as a power of e that stays where it stands.
+
+    sympy's MathML printer moves a factor ``exp(-t/tau)`` under a fraction bar
+    as ``1 / e^(t/tau)``; engineers write ``e^(-t/tau)``.
+    """
+    import sympy as sp
+
+    power = _power_of_e()
+    return expression.replace(sp.exp, lambda argument: power(argument))
+
+
+@functools.cache
+def _power_of_e():
+    """A sympy function printed as e to its argument (built on first use: sympy loads lazily)."""
+    import sympy as sp
+
+    class PowerOfE(sp.Function):
+        def _mathml_presentation(self, printer):
+            element = printer.dom.createElement("msup")
+            base = printer.dom.createElement("mi")
+            base.appendChild(printer.dom.createTextNode("e"))
+            element.appendChild(base)
+            element.appendChild(printer._print(self.args[0]))
+            return element
+
+    return PowerOfE
+
+
 def mathml(expression: Any) -> str:
     """`expression` (sympy) as a block ``<math>`` element, names escaped.
 
@@ -283,7 +313,8 @@ def mathml(expression: Any) -> str:
     from sympy.printing.mathml import mathml as print_mathml
 
     # A visible dot between factors: names of several letters ("rm", "vdac") run together otherwise.
-    body = print_mathml(_escaped_names(expression), printer="presentation", mul_symbol="dot")
+    body = print_mathml(_exponentials_as_powers(_escaped_names(expression)), printer="presentation",
+                        mul_symbol="dot")
     check = _MathMLCheck()
     check.feed(body)
     check.close()

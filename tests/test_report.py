@@ -316,3 +316,15 @@ class TestInBrowser:
         assert canvases >= 1 and plot_box["width"] > 300 and plot_box["height"] > 100
         assert maths >= 20 and math_box["width"] > 10 and math_box["height"] > 5
         assert title == "Relay and hold capacitor"
+
+
+def test_mathml_writes_decay_as_a_power_of_e():
+    # Engineers write v * e^(-t/tau); sympy's MathML printer alone gives v / e^(t/tau).
+    import sympy as sp
+
+    from firstorder._report import mathml
+
+    t, tau, v = sp.symbols("t tau v", positive=True)
+    text = mathml(v * sp.exp(-t / tau))
+    assert "<msup><mi>e</mi><mrow><mo>-</mo>" in text
+    assert "<mfrac><mi>v</mi>" not in text
