@@ -12,6 +12,7 @@ FIRSTORDER_REQUIRE_BROWSER=1 (set by .ci/run) it must run and fails instead.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import secrets
@@ -128,7 +129,9 @@ def _open_and_run_all(page, lab, notebook: str) -> None:
     """Open `notebook` in JupyterLab and run every cell."""
     from playwright.sync_api import TimeoutError as PlaywrightTimeout
 
-    page.goto(f"{lab['url']}/lab/tree/{notebook}?token={lab['token']}")
+    # A workspace of its own, reset: no tabs restored from an earlier test in the same server.
+    workspace = Path(notebook).stem
+    page.goto(f"{lab['url']}/lab/workspaces/{workspace}/tree/{notebook}?reset&token={lab['token']}")
     page.wait_for_selector(".jp-Notebook .jp-Cell", timeout=RUN_SECONDS * 1000)
     # A fresh JupyterLab may ask which kernel to start; the notebook's own is preselected.
     select = page.locator(".jp-Dialog button.jp-mod-accept")
@@ -138,8 +141,16 @@ def _open_and_run_all(page, lab, notebook: str) -> None:
     except PlaywrightTimeout:
         pass
     page.wait_for_selector("#jp-main-statusbar :text('Idle')", timeout=RUN_SECONDS * 1000)
-    page.get_by_role("menuitem", name="Run", exact=True).click()
-    page.get_by_role("menuitem", name="Run All Cells", exact=True).click()
+    for _ in range(3):  # a click while the kernel still connects can be lost: try again
+        page.get_by_role("menuitem", name="Run", exact=True).click()
+        page.get_by_role("menuitem", name="Run All Cells", exact=True).click()
+        try:
+            page.wait_for_function(
+                "() => [...document.querySelectorAll('.jp-InputPrompt')].some(p => /\\[(\\*|\\d+)\\]/.test(p.textContent))",
+                timeout=20_000)
+            break
+        except PlaywrightTimeout:
+            continue
     for label in ("No", "Yes"):  # JupyterLab's question about news; either answer closes it
         news = page.locator(".jp-toast-button", has_text=label)
         if news.count():
@@ -176,6 +187,28 @@ def _write_notebook(lab, name: str, source: str) -> str:
                 "nbformat": 4, "nbformat_minor": 5}
     (lab["root"] / "notebooks" / name).write_text(json.dumps(notebook), encoding="utf-8")
     return f"notebooks/{name}"
+
+
+@contextlib.contextmanager
+def _notebook_page(lab, name: str, source: str):
+    """A one-cell notebook, run in JupyterLab in a fresh Chromium page: yields the page and
+    its page errors; on failure a full-page screenshot goes to build/."""
+    from playwright.sync_api import sync_playwright
+
+    notebook = _write_notebook(lab, name, source)
+    with sync_playwright() as playwright:
+        browser = playwright.chromium.launch(executable_path=lab["chromium"], args=CHROMIUM_ARGS)
+        page = browser.new_page(viewport={"width": 1500, "height": 1300})
+        messages: list[str] = []
+        page.on("pageerror", lambda error: messages.append(f"pageerror: {error}"))
+        try:
+            _open_and_run_all(page, lab, notebook)
+            yield page, messages
+        except BaseException:
+            page.screenshot(path=str(BUILD / f"{Path(name).stem}-failure.png"), full_page=True)
+            raise
+        finally:
+            browser.close()
 
 
 class TestBenchInBrowser:
@@ -260,60 +293,34 @@ class TestBenchInBrowser:
                 browser.close()
 
     def test_renders_inside_another_widget(self, lab):
-        from playwright.sync_api import sync_playwright
-
-        notebook = _write_notebook(lab, "nested_bench.ipynb", _NESTED_CELL)
-        with sync_playwright() as playwright:
-            browser = playwright.chromium.launch(executable_path=lab["chromium"], args=CHROMIUM_ARGS)
-            page = browser.new_page(viewport={"width": 1500, "height": 1300})
-            messages: list[str] = []
-            page.on("pageerror", lambda error: messages.append(f"pageerror: {error}"))
-            try:
-                _open_and_run_all(page, lab, notebook)
-                page.locator("[class*='fo-part-'] input").first.wait_for(timeout=RUN_SECONDS * 1000)
-                # The plots: BokehJS must have reached the page although the Bench was not
-                # displayed itself, and its views must show the data set before they existed.
-                page.locator(".jp-OutputArea-output canvas").first.wait_for(timeout=60_000)
-                page.wait_for_timeout(2500)
-                page.locator(".jp-OutputArea-output:has(canvas)").first.screenshot(
-                    path=str(BUILD / "bench-browser-nested.png"))
-                assert not messages, messages
-            except BaseException:
-                page.screenshot(path=str(BUILD / "bench-browser-nested-failure.png"), full_page=True)
-                raise
-            finally:
-                browser.close()
+        with _notebook_page(lab, "nested_bench.ipynb", _NESTED_CELL) as (page, messages):
+            page.locator("[class*='fo-part-'] input").first.wait_for(timeout=RUN_SECONDS * 1000)
+            # The plots: BokehJS must have reached the page although the Bench was not
+            # displayed itself, and its views must show the data set before they existed.
+            page.locator(".jp-OutputArea-output canvas").first.wait_for(timeout=60_000)
+            page.wait_for_timeout(2500)
+            page.locator(".jp-OutputArea-output:has(canvas)").first.screenshot(
+                path=str(BUILD / "bench-browser-nested.png"))
+            assert not messages, messages
 
     def test_bands_of_a_crowded_drive_answer_the_pointer(self, lab):
-        from playwright.sync_api import sync_playwright
-
-        notebook = _write_notebook(lab, "crowded_bench.ipynb", _CROWDED_CELL)
-        with sync_playwright() as playwright:
-            browser = playwright.chromium.launch(executable_path=lab["chromium"], args=CHROMIUM_ARGS)
-            page = browser.new_page(viewport={"width": 1500, "height": 1300})
-            try:
-                _open_and_run_all(page, lab, notebook)
-                page.locator(".jp-OutputArea-output canvas").first.wait_for(timeout=RUN_SECONDS * 1000)
-                page.wait_for_timeout(2500)
-                found = False
-                # Sweep the pointer across the middle of each plot until a band's tooltip shows.
-                for canvas in page.locator(".jp-OutputArea-output canvas").all():
-                    box = canvas.bounding_box()
-                    if not box or box["width"] < 200:
-                        continue
-                    for fraction in (0.3, 0.45, 0.6):
-                        page.mouse.move(box["x"] + box["width"] * fraction, box["y"] + box["height"] * 0.5)
-                        page.wait_for_timeout(400)
-                        if page.get_by_text("lowest").count():
-                            found = True
-                            break
-                    if found:
+        with _notebook_page(lab, "crowded_bench.ipynb", _CROWDED_CELL) as (page, _):
+            page.locator(".jp-OutputArea-output canvas").first.wait_for(timeout=RUN_SECONDS * 1000)
+            page.wait_for_timeout(2500)
+            found = False
+            # Sweep the pointer across the middle of each plot until a band's tooltip shows.
+            for canvas in page.locator(".jp-OutputArea-output canvas").all():
+                box = canvas.bounding_box()
+                if not box or box["width"] < 200:
+                    continue
+                for fraction in (0.3, 0.45, 0.6):
+                    page.mouse.move(box["x"] + box["width"] * fraction, box["y"] + box["height"] * 0.5)
+                    page.wait_for_timeout(400)
+                    if page.get_by_text("lowest").count():
+                        found = True
                         break
-                page.locator(".jp-OutputArea-output:has(canvas)").first.screenshot(
-                    path=str(BUILD / "bench-browser-band-hover.png"))
-                assert found, "no min/max band answered the pointer with its lowest and highest value"
-            except BaseException:
-                page.screenshot(path=str(BUILD / "bench-browser-band-failure.png"), full_page=True)
-                raise
-            finally:
-                browser.close()
+                if found:
+                    break
+            page.locator(".jp-OutputArea-output:has(canvas)").first.screenshot(
+                path=str(BUILD / "bench-browser-band-hover.png"))
+            assert found, "no min/max band answered the pointer with its lowest and highest value"
