@@ -313,8 +313,10 @@ def mathml(expression: Any) -> str:
     from sympy.printing.mathml import mathml as print_mathml
 
     # A visible dot between factors: names of several letters ("rm", "vdac") run together otherwise.
+    # order="none": sums print in the order they were built (derivation steps write them
+    # as an engineer would); evaluated sums are in sympy's canonical order either way.
     body = print_mathml(_exponentials_as_powers(_escaped_names(expression)), printer="presentation",
-                        mul_symbol="dot")
+                        mul_symbol="dot", order="none")
     check = _MathMLCheck()
     check.feed(body)
     check.close()
@@ -347,11 +349,33 @@ def derivation_steps(derivation: Any) -> list[tuple[str, list[Any]]]:
         steps.append((law_caption, [law]))
     else:
         steps.append((f"No resistive path for the {d.kind} ({d.configuration}): the state holds", []))
-    steps.append(("The ODE", [d.ode]))
-    steps.append(("Time constant", [equal(sp.Symbol("tau"), d.tau)]))
-    steps.append(("Final value", [equal(x.subs(t, sp.oo), d.final)]))
-    steps.append(("Zero-input + zero-state", [equal(x, sp.Add(d.zero_input, d.zero_state, evaluate=False))]))
-    steps.append(("Natural + forced", [equal(x, sp.Add(d.natural, d.forced, evaluate=False))]))
+    tau = sp.Symbol("tau")
+    if d.holds:
+        steps.append(("The ODE", [d.ode]))
+        steps.append(("Time constant", [equal(tau, d.tau)]))
+        steps.append(("Final value", [equal(x.subs(t, sp.oo), d.final)]))
+        steps.append(("Zero-input + zero-state", [equal(x, sp.Add(d.zero_input, d.zero_state, evaluate=False))]))
+        steps.append(("Natural + forced", [equal(x, sp.Add(d.natural, d.forced, evaluate=False))]))
+    else:
+        # In the names of the first step, as Derivation.steps writes them (its attributes keep
+        # the full expressions, which nest fractions inside exponents for a real fixture).
+        # A power of e from the start (not exp, which the printing step would rebuild, and
+        # with it the sums below, in sympy's own order): the terms stay as written.
+        start, decay = d.symbols["initial"], _power_of_e()(-t / tau)
+        if d.kind == "capacitor":
+            ode = equal(sp.Derivative(x, t), (equivalent - x) / sp.Mul(storage, resistance, evaluate=False))
+            tau_rule = sp.Mul(storage, resistance, evaluate=False)
+        else:
+            ode = equal(sp.Derivative(x, t), resistance * (equivalent - x) / storage)
+            tau_rule = storage / resistance
+        steps.append(("The ODE", [ode]))
+        steps.append(("Time constant", [equal(tau, tau_rule), equal(tau, d.tau)]))
+        steps.append(("Final value", [equal(x.subs(t, sp.oo), equivalent)]))
+        steps.append(("Zero-input + zero-state",
+                      [equal(x, sp.Add(start * decay, equivalent * (1 - decay), evaluate=False))]))
+        steps.append(("Natural + forced",
+                      [equal(x, sp.Add(sp.Mul(sp.Add(start, -equivalent, evaluate=False), decay, evaluate=False),
+                                       equivalent, evaluate=False))]))
     for probe, expression in d.probes.items():
         steps.append((f"Probe {probe}", [equal(sp.Symbol(probe), expression)]))
     if d.values:

@@ -138,13 +138,36 @@ class Derivation:
                  rf"R_{{{name}}} = {self._tex(self.resistance)},\quad {equivalent}_{{{name}}} = {self._tex(self.equivalent)}"),
                 ("Circuit law at the storage element", self._law()),
             ]
-        rows += [
-            ("The ODE", self._tex(self.ode)),
-            ("Time constant", rf"\tau = {self._tex(self.tau)}"),
-            ("Final value", rf"{self._tex(self.state.subs(self.symbols['t'], sp.oo))} = {self._tex(self.final)}"),
-            ("Zero-input + zero-state", rf"{x} = {self._sum(self.zero_input, self.zero_state)}"),
-            ("Natural + forced", rf"{x} = {self._sum(self.natural, self.forced)}"),
-        ]
+        at_infinity = self._tex(self.state.subs(self.symbols["t"], sp.oo))
+        if self.holds:
+            rows += [
+                ("The ODE", self._tex(self.ode)),
+                ("Time constant", rf"\tau = {self._tex(self.tau)}"),
+                ("Final value", rf"{at_infinity} = {self._tex(self.final)}"),
+                ("Zero-input + zero-state", rf"{x} = {self._sum(self.zero_input, self.zero_state)}"),
+                ("Natural + forced", rf"{x} = {self._sum(self.natural, self.forced)}"),
+            ]
+        else:
+            # Written with R, the equivalent and tau as named in the first step, the way an
+            # engineer writes them: the full expressions of a real fixture nest fractions
+            # inside exponents.  (The attributes keep the full expressions.)
+            storage = self._tex(self.symbols[self.storage])
+            start = self._tex(self.symbols["initial"])
+            resistance, target = rf"R_{{{name}}}", rf"{equivalent}_{{{name}}}"
+            decay = r"e^{-t/\tau}"
+            if self.kind == "capacitor":
+                ode = rf"\frac{{d{x}}}{{dt}} = \frac{{{target} - {x}}}{{{storage}\,{resistance}}}"
+                tau = rf"\tau = {storage}\,{resistance} = {self._tex(self.tau)}"
+            else:
+                ode = rf"\frac{{d{x}}}{{dt}} = \frac{{{resistance}\left({target} - {x}\right)}}{{{storage}}}"
+                tau = rf"\tau = \frac{{{storage}}}{{{resistance}}} = {self._tex(self.tau)}"
+            rows += [
+                ("The ODE", ode),
+                ("Time constant", tau),
+                ("Final value", rf"{at_infinity} = {target}"),
+                ("Zero-input + zero-state", rf"{x} = {start}\,{decay} + {target}\left(1 - {decay}\right)"),
+                ("Natural + forced", rf"{x} = \left({start} - {target}\right){decay} + {target}"),
+            ]
         for probe, expression in self.probes.items():
             rows.append((f"Probe {probe}", rf"{self._tex(sp.Symbol(probe))} = {self._tex(expression)}"))
         if self.values:
