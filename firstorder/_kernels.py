@@ -136,22 +136,17 @@ def _compile():
                 out[k + u(1)] = state
 
     @jit
-    def segment_exponents(times, end, rate, out, first, stop):
-        """``-((next change - change) * rate)`` of segments first:stop (numpy: the drive's
-        durations, multiply, negate); returns how many lie in ``(-SMALL_EXPONENT, 0)``."""
-        last = min(stop, times.size - 1)  # the last segment runs to `end`, not to a change
-        begin = times[first:last]
-        following = times[first + 1:last + 1]
-        rates = rate[first:last]
-        target = out[first:last]
+    def segment_exponents(times, ends, rate, out, first, stop):
+        """``-((end - start) * rate)`` of segments first:stop (numpy: the drive's durations,
+        multiply, negate); returns how many lie in ``(-SMALL_EXPONENT, 0)``."""
+        begins = times[first:stop]
+        finishes = ends[first:stop]
+        rates = rate[first:stop]
+        target = out[first:stop]
         small = 0
         for k in range(target.size):
-            e = -((following[k] - begin[k]) * rates[k])
+            e = -((finishes[k] - begins[k]) * rates[k])
             target[k] = e
-            small += (e > -SMALL_EXPONENT) & (e < 0.0)
-        for k in range(max(first, last), stop):
-            e = -((end - times[k]) * rate[k])
-            out[k] = e
             small += (e > -SMALL_EXPONENT) & (e < 0.0)
         return small
 
@@ -259,34 +254,23 @@ def _compile():
                 residuals[k] = step * decays[k]
 
     @jit_dividing
-    def settle_times(logarithm, tau, uniform, times, end, settled, first, stop):
+    def settle_times(logarithm, tau, uniform, times, ends, settled, first, stop):
         """Segments first:stop, from ``log(step / limit)`` (overwritten with the settle time,
         NaN where the segment ends first): whether each settles.  numpy: times tau (one
         value if `uniform`), 0 where held (tau inf) or not positive, compare with the
         durations."""
-        last = min(stop, times.size - 1)  # the last segment runs to `end`, not to a change
-        logs = logarithm[first:last]
-        begins = times[first:last]
-        following = times[first + 1:last + 1]
-        flags = settled[first:last]
-        if uniform:
-            taus = tau[:1]
-        else:
-            taus = tau[first:last]
+        logs = logarithm[first:stop]
+        begins = times[first:stop]
+        finishes = ends[first:stop]
+        flags = settled[first:stop]
+        taus = tau[:1] if uniform else tau[first:stop]
         for k in range(logs.size):  # selects, not branches: the loop vectorises
             t = taus[0] if uniform else taus[k]
             time = 0.0 if t == np.inf else logs[k] * t
             time = time if time >= 0.0 else 0.0
-            inside = time <= following[k] - begins[k]
+            inside = time <= finishes[k] - begins[k]
             flags[k] = inside
             logs[k] = time if inside else np.nan
-        for k in range(max(first, last), stop):
-            t = tau[0] if uniform else tau[k]
-            time = 0.0 if t == np.inf else logarithm[k] * t
-            time = time if time >= 0.0 else 0.0
-            inside = time <= end - times[k]
-            settled[k] = inside
-            logarithm[k] = time if inside else np.nan
 
     return types.SimpleNamespace(
         block_totals=block_totals,

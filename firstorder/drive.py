@@ -265,10 +265,7 @@ class Drive:
     @property
     def durations(self) -> np.ndarray:
         """Length of every segment (s)."""
-        durations = np.empty(self._times.size)
-        np.subtract(self._times[1:], self._times[:-1], out=durations[:-1])
-        durations[-1] = self._end - self._times[-1]
-        return durations
+        return np.diff(self._instants)  # the instants end with the drive's end
 
     def __len__(self) -> int:
         return int(self._times.size)

@@ -53,9 +53,14 @@ def decay_factors(durations: np.ndarray, rate: np.ndarray) -> tuple[np.ndarray, 
     >>> float(one_minus_a[0])
     1e-15
     """
-    exponent = np.multiply(durations, rate)
-    np.negative(exponent, out=exponent)
+    exponent = _exponents(durations, rate)
     return _factors_in_place(exponent, _small(exponent))
+
+
+def _exponents(durations: np.ndarray, rate: np.ndarray) -> np.ndarray:
+    """``-(durations * rate)``, the exponent of every segment's decay."""
+    exponent = np.multiply(durations, rate)
+    return np.negative(exponent, out=exponent)
 
 
 def _small(exponent: np.ndarray) -> np.ndarray:
@@ -74,28 +79,24 @@ def _factors_in_place(exponent: np.ndarray, small: np.ndarray) -> tuple[np.ndarr
     return decay, growth
 
 
-def segment_factors(times: np.ndarray, end: float, rate: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
-    """:func:`decay_factors` of the segments between `times` and `end`.
+def segment_factors(times: np.ndarray, ends: np.ndarray, rate: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    """:func:`decay_factors` of the segments from `times` to `ends`.
 
     The second array is None where it would be exactly ``1 - decay`` (no exponent
     is small), which saves storing it; :func:`relaxation_scan` takes it either way.
 
     Examples
     --------
-    >>> a, one_minus_a = segment_factors(np.array([0.0, 1.0]), 3.0, np.array([1.0, 0.5]))
+    >>> a, one_minus_a = segment_factors(np.array([0.0, 1.0]), np.array([1.0, 3.0]), np.array([1.0, 0.5]))
     >>> a.round(6).tolist(), one_minus_a
     ([0.367879, 0.367879], None)
-    >>> segment_factors(np.array([0.0]), 1e-9, np.array([1.0]))[1]
+    >>> segment_factors(np.array([0.0]), np.array([1e-9]), np.array([1.0]))[1]
     array([1.e-09])
     """
     n = times.size
     kernels = _kernels.available(n)
     if kernels is None:
-        durations = np.empty(n)
-        np.subtract(times[1:], times[:-1], out=durations[:-1])
-        durations[-1] = end - times[-1]
-        exponent = np.multiply(durations, rate)
-        np.negative(exponent, out=exponent)
+        exponent = _exponents(ends - times, rate)
         small = _small(exponent)
         if small.size == 0:
             return _exp(exponent), None
@@ -106,7 +107,7 @@ def segment_factors(times: np.ndarray, end: float, rate: np.ndarray) -> tuple[np
         # decay_factors' operations on segments first:stop; the expm1 of small exponents
         # is handed back, for the caller to place once it knows 1 - decay is needed.
         part = exponent[first:stop]
-        if not kernels.segment_exponents(times, end, rate, exponent, first, stop):
+        if not kernels.segment_exponents(times, ends, rate, exponent, first, stop):
             _exp(part)
             return None
         small = _small(part)
@@ -238,7 +239,7 @@ def _compiled_scan(kernels, a: np.ndarray, growth: np.ndarray | None, target: np
 
 
 def settling_columns(start: np.ndarray, final: np.ndarray, tau: np.ndarray, decay: np.ndarray,
-                     times: np.ndarray, end: float, value: float, relative: bool) -> tuple[np.ndarray, ...]:
+                     times: np.ndarray, ends: np.ndarray, value: float, relative: bool) -> tuple[np.ndarray, ...]:
     """Per segment, in closed form: ``(limit, settle_time, settled, residual)``.
 
     With ``step = |final - start|``: the limit is ``value * step`` if `relative`,
@@ -251,7 +252,7 @@ def settling_columns(start: np.ndarray, final: np.ndarray, tau: np.ndarray, deca
     --------
     >>> limit, settle, settled, residual = settling_columns(
     ...     np.array([0.0, 1.0]), np.array([1.0, 1.0]), np.array([1.0, 1.0]), np.exp([-1.0, -9.0]),
-    ...     np.array([0.0, 1.0]), 10.0, 0.01, relative=True)
+    ...     np.array([0.0, 1.0]), np.array([1.0, 10.0]), 0.01, relative=True)
     >>> settle.round(4).tolist(), settled.tolist(), residual.round(4).tolist()
     ([nan, 0.0], [False, True], [0.3679, 0.0])
     """
@@ -271,10 +272,7 @@ def settling_columns(start: np.ndarray, final: np.ndarray, tau: np.ndarray, deca
             np.multiply(settle, tau, out=settle)
         np.copyto(settle, 0.0, where=tau == np.inf)
         np.copyto(settle, 0.0, where=~(settle >= 0.0))  # within the limit already (or NaN)
-        durations = np.empty(n)
-        np.subtract(times[1:], times[:-1], out=durations[:-1])
-        durations[-1] = end - times[-1]
-        settled = settle <= durations
+        settled = settle <= ends - times
         np.copyto(settle, np.nan, where=~settled)
         return limit, settle, settled, step * decay
     limit = np.empty(n) if relative else np.broadcast_to(float(value), (n,))
@@ -293,7 +291,7 @@ def settling_columns(start: np.ndarray, final: np.ndarray, tau: np.ndarray, deca
                                  settle, residual, first, stop)
         with np.errstate(all="ignore"):
             np.log(settle[first:stop], out=settle[first:stop])
-        kernels.settle_times(settle, tau, uniform, times, end, settled, first, stop)
+        kernels.settle_times(settle, tau, uniform, times, ends, settled, first, stop)
 
     _parallel.run(piece, _parallel.pieces(n))
     return limit, settle, settled, residual
@@ -348,8 +346,14 @@ class SegmentLocator:
         if is_sorted is not False and t.size > 1 and t.dtype == np.float64:
             kernels = _kernels.available(t.size)
             if kernels is not None:
-                if self._walk(kernels, np.ascontiguousarray(t), np.ascontiguousarray(starts, dtype=np.float64),
-                              np.ascontiguousarray(rate, dtype=np.float64)):
+                self._t = t = np.ascontiguousarray(t)
+                self._starts = starts = np.ascontiguousarray(starts, dtype=np.float64)
+                walked = _compiled_walk(kernels, t, starts, np.ascontiguousarray(rate, dtype=np.float64))
+                if walked is not None:
+                    # The compiled walk, which also proved the grid sorted and free of NaN.
+                    self.decay, self._bounds, self._pieces = walked
+                    self._kernels = kernels
+                    self.is_sorted = self.compiled = True
                     return
                 is_sorted = False
         if is_sorted is None:
@@ -367,34 +371,6 @@ class SegmentLocator:
             elapsed = t - starts[self._index]
             elapsed *= -rate[self._index]
         self.decay = _exp(elapsed)
-
-    def _walk(self, kernels, t: np.ndarray, starts: np.ndarray, rate: np.ndarray) -> bool:
-        """The compiled walk over a grid that proves sorted (the same operations as the
-        numpy path), in pieces on several threads; False if the grid is not sorted."""
-        n = starts.size
-        exponent = np.empty(t.size)
-        bounds = np.empty(n + 1, dtype=np.int64)
-        bounds[0] = 0
-
-        def piece(first: int, stop: int, k: int, k_stop: int) -> tuple[int, bool]:
-            k_last, in_order = kernels.walk(t, first, stop, starts, rate, k, k_stop, exponent, bounds)
-            if in_order:
-                _exp(exponent[first:stop])
-            return k_last, in_order
-
-        work = _pieces_by_segment(t, starts)
-        walked = _parallel.run(piece, work)
-        if not all(in_order for _, in_order in walked):
-            return False
-        self.is_sorted = True
-        self.compiled = True
-        self._kernels = kernels
-        self._t = t
-        self._starts = starts
-        self._bounds = bounds
-        self._pieces = [(first, stop, k, k_last) for (first, stop, k, _), (k_last, _) in zip(work, walked)]
-        self.decay = exponent
-        return True
 
     def _run_lengths(self) -> np.ndarray:
         """Points per segment of a sorted grid (computed on first use)."""
@@ -461,26 +437,41 @@ def evaluate_sorted(t: np.ndarray, starts: np.ndarray, rate: np.ndarray, final: 
     kernels = _kernels.available(t.size) if t.dtype == np.float64 and t.ndim == 1 else None
     if kernels is None or t.size < 2:
         return None
-    t = np.ascontiguousarray(t)
-    starts = np.ascontiguousarray(starts, dtype=np.float64)
-    rate = np.ascontiguousarray(rate, dtype=np.float64)
     difference = np.ascontiguousarray(start_state - final, dtype=np.float64)
     final = np.ascontiguousarray(final, dtype=np.float64)
-    out = np.empty(t.size)
-    bounds = np.empty(starts.size + 1, dtype=np.int64)
+
+    def combine(first: int, stop: int, k: int, k_last: int, decay: np.ndarray, bounds: np.ndarray) -> None:
+        kernels.combine(difference, final, bounds, decay, decay, first, stop, k, k_last)
+
+    walked = _compiled_walk(kernels, np.ascontiguousarray(t), np.ascontiguousarray(starts, dtype=np.float64),
+                            np.ascontiguousarray(rate, dtype=np.float64), then=combine)
+    return None if walked is None else walked[0]
+
+
+def _compiled_walk(kernels, t: np.ndarray, starts: np.ndarray, rate: np.ndarray, then=None):
+    """The compiled walk over a grid that proves sorted (the same operations as the numpy
+    path), in pieces on several threads: ``(decay, bounds, pieces)``, or None if the grid
+    is not sorted.  Each piece is ``(first, stop, k, k_last)``, its points and first and
+    last segments.  `then(first, stop, k, k_last, decay, bounds)` runs in each piece right
+    after its ``exp``, while the piece is still at hand."""
+    n = starts.size
+    decay = np.empty(t.size)
+    bounds = np.empty(n + 1, dtype=np.int64)
     bounds[0] = 0
 
-    def piece(first: int, stop: int, k: int, k_stop: int) -> bool:
-        k_last, in_order = kernels.walk(t, first, stop, starts, rate, k, k_stop, out, bounds)
-        if not in_order:
-            return False
-        _exp(out[first:stop])
-        kernels.combine(difference, final, bounds, out, out, first, stop, k, k_last)
-        return True
+    def piece(first: int, stop: int, k: int, k_stop: int) -> tuple[int, bool]:
+        k_last, in_order = kernels.walk(t, first, stop, starts, rate, k, k_stop, decay, bounds)
+        if in_order:
+            _exp(decay[first:stop])
+            if then is not None:
+                then(first, stop, k, k_last, decay, bounds)
+        return k_last, in_order
 
-    if not all(_parallel.run(piece, _pieces_by_segment(t, starts))):
+    work = _pieces_by_segment(t, starts)
+    walked = _parallel.run(piece, work)
+    if not all(in_order for _, in_order in walked):
         return None
-    return out
+    return decay, bounds, [(first, stop, k, k_last) for (first, stop, k, _), (k_last, _) in zip(work, walked)]
 
 
 def evaluate(t: np.ndarray, starts: np.ndarray, rate: np.ndarray, final: np.ndarray,

@@ -72,6 +72,11 @@ def _configurations(states: np.ndarray) -> tuple[list[tuple[bool, ...]], np.ndar
     return configs, inverse.reshape(-1)
 
 
+def _one_value(array: np.ndarray) -> bool:
+    """True for a read-only broadcast of one value (stride 0), as one rate for every segment is."""
+    return array.ndim == 1 and array.size > 1 and array.strides == (0,)
+
+
 def _rates(taus: np.ndarray) -> np.ndarray:
     """``1 / tau``, and 0 where tau is infinite (the state is held)."""
     holding = np.isinf(taus)
@@ -225,7 +230,7 @@ class Response:
         self._rate = rate
         self._gains = gains
         self._starts = drive.times
-        self._decay, self._growth = engine.segment_factors(drive.times, drive.end, rate)
+        self._decay, self._growth = engine.segment_factors(drive.times, drive.ends, rate)
         self._scans: dict[str, np.ndarray] = {}
         self.initial_text = initial
         self.initial = self._initial_state(initial)
@@ -234,7 +239,7 @@ class Response:
     @cached_property
     def tau(self) -> np.ndarray:
         """Time constant of every segment (s); ``inf`` where the state is held (read-only)."""
-        if self._rate.strides == (0,):  # one rate for all: a broadcast answer
+        if _one_value(self._rate):  # one rate for all: a broadcast answer
             rate = float(self._rate[0])
             return np.broadcast_to(1.0 / rate if rate > 0 else np.inf, self._rate.shape)
         tau = np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
@@ -251,13 +256,12 @@ class Response:
 
     @cached_property
     def _any_holds(self) -> bool:
-        holds = self.holds
-        return bool(holds[0]) if holds.strides == (0,) else bool(holds.any())
+        return bool(self.holds[0]) if _one_value(self.holds) else bool(self.holds.any())
 
     @cached_property
     def holds(self) -> np.ndarray:
         """True for segments whose configuration holds the state (read-only)."""
-        if self._rate.strides == (0,):  # one rate for all: a broadcast answer
+        if _one_value(self._rate):  # one rate for all: a broadcast answer
             return np.broadcast_to(bool(self._rate[0] == 0.0), self._rate.shape)
         holds = self._rate == 0.0
         holds.setflags(write=False)
@@ -269,12 +273,20 @@ class Response:
         return self._gains[self._inverse] * self._levels
 
     @cached_property
+    def _one_gain(self) -> float | None:
+        """With one source and no switch changes, the gain from its level to the final
+        value (the final values are that gain times the level column); else None."""
+        if self._levels.shape[1] == 1 and len(self._configs) == 1:
+            return float(self._gains[0, 0])
+        return None
+
+    @cached_property
     def _final_sources_only(self) -> np.ndarray:
         m = self._levels.shape[1]
-        if m == 1 and len(self._configs) == 1:
-            if self._gains[0, 0] == 1.0:  # 1.0 * level is level exactly: no need for a copy
+        if self._one_gain is not None:
+            if self._one_gain == 1.0:  # 1.0 * level is level exactly: no need for a copy
                 return self._levels[:, 0]
-            return self._gains[0, 0] * self._levels[:, 0]
+            return self._one_gain * self._levels[:, 0]
         if m == 1:
             return self._gains[self._inverse, 0] * self._levels[:, 0]
         return self._source_finals.sum(axis=1)
@@ -346,8 +358,8 @@ class Response:
     def _scan_target(self, key: str) -> tuple[np.ndarray, float]:
         """`key`'s final value of every segment as ``scale * target`` (so that, for one
         source and no switch changes, the scan reads the level column directly)."""
-        if key in ("total", "zero_state") and self._levels.shape[1] == 1 and len(self._configs) == 1:
-            return self._levels[:, 0], float(self._gains[0, 0])  # as _final_sources_only
+        if key in ("total", "zero_state") and self._one_gain is not None:
+            return self._levels[:, 0], self._one_gain  # as _final_sources_only
         return self._source_final(key), 1.0
 
     def _boundary(self, key: str) -> np.ndarray:

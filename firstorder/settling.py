@@ -319,7 +319,7 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
     # error decays by the same factor as the state's (the response's decay over the segment).
     value, relative = tolerance._scale()
     limit, settle_time, settled, residual = settling_columns(
-        watched.start, watched.final, response.tau, response._decay, response.starts, response.drive.end,
+        watched.start, watched.final, response.tau, response._decay, response.starts, response.ends,
         value, relative)
     columns: dict[str, Any] = {
         "start": response.starts,

@@ -62,9 +62,9 @@ class TestSegmentFactors:
         if short_segments:
             rate[::5] = 1e-2  # exponents above -1/16: 1 - exp comes from expm1 there
         rate[::17] = 0.0  # held: exponent 0, and 1 - exp exactly 0 either way
-        end = float(times[-1]) + 1e-3
-        decay, growth = engine.segment_factors(times, end, rate)
-        reference_decay, reference_growth = numpy_only(engine.segment_factors, times, end, rate)
+        ends = np.append(times[1:], times[-1] + 1e-3)
+        decay, growth = engine.segment_factors(times, ends, rate)
+        reference_decay, reference_growth = numpy_only(engine.segment_factors, times, ends, rate)
         np.testing.assert_array_equal(decay, reference_decay)
         if short_segments:
             np.testing.assert_array_equal(growth, reference_growth)
@@ -166,7 +166,8 @@ class TestSettlingColumns:
             tau = 10 ** rng.uniform(-6, -3, n)
             tau[::11] = np.inf  # held
         decay = np.exp(-np.diff(times, append=times[-1] + 1e-4) / tau)
-        args = (start, final, tau, decay, times, float(times[-1]) + 1e-4, 0.01 if relative else 1e-3, relative)
+        args = (start, final, tau, decay, times, np.append(times[1:], times[-1] + 1e-4), 0.01 if relative else 1e-3,
+                relative)
         for got, expected in zip(engine.settling_columns(*args), numpy_only(engine.settling_columns, *args)):
             np.testing.assert_array_equal(got, expected)
 
