@@ -38,11 +38,11 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from ._files import write_atomic
+from .io.atomic import write_atomic
 from .drive import Drive
 from .errors import InputError
 from .fixture import Fixture
-from .settling import Tolerance
+from .settling.tolerance import Tolerance
 from .units import format_value, parse_value
 
 if TYPE_CHECKING:

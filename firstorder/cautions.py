@@ -27,6 +27,8 @@ from typing import Any
 import numpy as np
 
 from .errors import InputError
+from .netlist import GROUND
+from .network import node_row
 from .units import format_value, parse_value
 
 __all__ = ["Caution", "Limits", "DEFAULT_LIMITS", "check", "current_limits", "set_limits"]
@@ -147,38 +149,37 @@ def _when(response: Any, k: int, at_end: bool) -> str:
     return f"at the start of segment {k} (t = {format_value(float(response.starts[k]), 's')})"
 
 
-def _places(fixture: Any, layout: Any, reduced: Any) -> tuple[list[str], np.ndarray]:
+def _places(netlist: Any, layout: Any, reduced: Any) -> tuple[list[str], np.ndarray]:
     """Every node against ground and every part's two ends, as affine rows over [x, u...]."""
-    from ._network import GROUND, _node_row
-
     labels, rows = [], []
     for node in layout.nodes:
         labels.append(f"at node '{node}' (against ground)")
-        rows.append(_node_row(reduced.solution, layout, node))
-    for part in fixture.parts:
+        rows.append(node_row(reduced.solution, layout, node))
+    for part in netlist.parts:
         if GROUND in (part.a, part.b):
             continue  # the same as its other node's voltage, already listed
         labels.append(f"across {part.kind.replace('_', ' ')} '{part.name}' ({part.a} to {part.b})")
-        rows.append(_node_row(reduced.solution, layout, part.a) - _node_row(reduced.solution, layout, part.b))
+        rows.append(node_row(reduced.solution, layout, part.a) - node_row(reduced.solution, layout, part.b))
     width = reduced.solution.shape[1]
     return labels, np.array(rows).reshape(len(rows), width)
 
 
 def _voltage_caution(response: Any, limit: float) -> Caution | None:
     fixture = response.fixture
+    segments = response.segments
     states = response.boundary
-    levels = response._levels
-    inverse = response.segment_configuration
+    levels = segments.levels
+    inverse = segments.configuration_of
     worst = (0.0, "", 0, False, 0.0)  # |v|, place, segment, at end, signed v
     above: dict[str, None] = {}
-    for c, config in enumerate(response.configurations):
-        layout, reduced = fixture.configuration(config)
-        labels, rows = _places(fixture, layout, reduced)
+    for c in range(len(segments.configurations)):
+        layout, reduced = segments.configuration(c)
+        labels, rows = _places(fixture.netlist, layout, reduced)
         if not labels:
             continue
-        segments = np.flatnonzero(inverse == c)
-        for first in range(0, segments.size, _BLOCK):
-            block = segments[first:first + _BLOCK]
+        members = np.flatnonzero(inverse == c)
+        for first in range(0, members.size, _BLOCK):
+            block = members[first:first + _BLOCK]
             offset = levels[block] @ rows[:, 1:].T  # (segments, places)
             for at_end, state in ((False, states[block]), (True, states[block + 1])):
                 volts = state[:, None] * rows[:, 0] + offset

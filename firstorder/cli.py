@@ -194,7 +194,7 @@ def demo_analysis():
     from .analysis import Analysis
     from .drive import Drive
     from .fixture import Fixture
-    from .settling import Tolerance
+    from .settling.tolerance import Tolerance
 
     fixture = Fixture()
     fixture.voltage_source("vdac", "dac", "gnd")

@@ -20,7 +20,7 @@ from . import _kernels, _parallel
 from .errors import InputError
 from .units import format_value, parse_value
 
-__all__ = ["Drive"]
+__all__ = ["Drive", "level_columns"]
 
 _CSV_MAGIC = "# firstorder drive v1"
 _PREVIEW_ROWS = 8
@@ -68,6 +68,38 @@ def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = Fa
             f"{float(array[i - 1])!r}; times must be strictly increasing"
         )
     return buffer
+
+
+def level_columns(columns: Mapping[str, Any], count: int | None, field: str = "drive",
+                  per: str = "drive.times has {count}; give one value per change") -> dict[str, np.ndarray]:
+    """Every column as a read-only float array of `count` values (text parsed by the units layer).
+
+    A single number stands for a constant column.  `field` names the columns in
+    errors (``drive.vin[3]``); with `count` None every column must be as long as the
+    longest.  This is the one reading of level columns, for drives and for plans.
+
+    Examples
+    --------
+    >>> level_columns({"vin": [0, "2.5"], "k1": 1}, 2)
+    {'vin': array([0. , 2.5]), 'k1': array([1., 1.])}
+    """
+    if not columns:
+        raise InputError(f"{field}: no columns; give at least one source or switch column")
+    if count is None:
+        lengths = [len(v) for v in columns.values() if not isinstance(v, (int, float, str, bool, np.number))]
+        if not lengths or max(lengths) == 0:
+            raise InputError(f"{field}: give at least one column as a list with one level per step")
+        count = max(lengths)
+    parsed: dict[str, np.ndarray] = {}
+    for name, values in columns.items():
+        if isinstance(values, (int, float, str, bool, np.number)):
+            values = [values] * count  # a constant column
+        array = _as_float_array(values, field=f"{field}.{name}", unit="")
+        if array.size != count:
+            raise InputError(f"{field}.{name}: has {array.size} values but {per.format(count=count)}")
+        array.setflags(write=False)
+        parsed[name] = array
+    return parsed
 
 
 def _copy_checked(values: np.ndarray, increasing: bool, room: int = 0) -> tuple[np.ndarray, bool, bool]:
@@ -131,20 +163,7 @@ class Drive:
                 f"drive.end: {end!r} must be later than the last change "
                 f"({float(time_array[-1])!r} s)"
             )
-        if not columns:
-            raise InputError("drive: no columns; give at least one source or switch column")
-        parsed: dict[str, np.ndarray] = {}
-        for name, values in columns.items():
-            if isinstance(values, (int, float, str, bool, np.number)):
-                values = [values] * time_array.size  # a constant column
-            array = _as_float_array(values, field=f"drive.{name}", unit="")
-            if array.size != time_array.size:
-                raise InputError(
-                    f"drive.{name}: has {array.size} values but drive.times has "
-                    f"{time_array.size}; give one value per change"
-                )
-            array.setflags(write=False)
-            parsed[name] = array
+        parsed = level_columns(columns, time_array.size)
         instants[-1] = end_value
         instants.setflags(write=False)
         self._instants = instants
@@ -225,11 +244,6 @@ class Drive:
             raise InputError("staircase.levels: at least one level is needed")
         times = start_value + dwell_value * np.arange(level_array.size, dtype=np.float64)
         return cls(times, start_value + dwell_value * level_array.size, **{name: level_array})
-
-    @classmethod
-    def from_columns(cls, times: Any, end: Any, columns: Mapping[str, Any]) -> "Drive":
-        """Build a drive from a mapping of column name to values."""
-        return cls(times, end, **dict(columns))
 
     # -- reading ----------------------------------------------------------------
     @property
@@ -327,7 +341,7 @@ class Drive:
             writer.writerow([repr(t), *(repr(float(c[k])) for c in columns)])
         text = buffer.getvalue()
         if path is not None:
-            from ._files import write_atomic
+            from .io.atomic import write_atomic
 
             write_atomic(path, text)
         return text

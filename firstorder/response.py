@@ -18,143 +18,74 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from . import _kernels, engine
-from .errors import InputError, TopologyError
+from . import engine
+from .errors import InputError
+from .segments import Segments
 from .units import format_value, parse_value
 
 if TYPE_CHECKING:
     from .drive import Drive
     from .fixture import Fixture
 
-__all__ = ["Response", "respond", "COMPONENTS"]
+__all__ = ["COMPONENTS", "Response", "read_initial", "respond"]
 
 #: The component names every response offers besides per-source contributions.
 COMPONENTS = ("total", "zero_input", "zero_state", "forced", "natural")
+#: The starting states given by name rather than by number.
+NAMED_STARTS = ("settled", "periodic")
 
 
-def _match_columns(fixture: "Fixture", drive: "Drive") -> tuple[np.ndarray, np.ndarray]:
-    """Source levels (n, m) and switch states (n, s) from the drive's columns."""
-    sources = [p.name for p in fixture.sources]
-    switches = [p.name for p in fixture.switches]
-    known = set(sources) | set(switches)
-    extra = [name for name in drive.names if name not in known]
-    if extra:
-        raise InputError(
-            f"drive columns {extra} name no source or switch of the fixture; "
-            f"sources are {sources}, switches are {switches}"
-        )
-    missing = [name for name in sources + switches if name not in drive.names]
-    if missing:
-        raise InputError(f"drive: no column for {missing}; the fixture needs one column per source and switch")
-    n = len(drive)
-    if len(sources) == 1:
-        levels = drive.levels(sources[0]).reshape(n, 1)  # a view of the read-only column
-    else:
-        levels = np.column_stack([drive.levels(s) for s in sources]) if sources else np.zeros((n, 0))
-    states = np.column_stack([drive.levels(s) for s in switches]) if switches else np.zeros((n, 0))
-    bad = (states != 0) & (states != 1)
-    if bad.any():
-        k, j = np.argwhere(bad)[0]
-        raise InputError(
-            f"drive.{switches[j]}[{k}]: {float(states[k, j])!r} is not a switch state; use 1/True (closed) or 0/False (open)"
-        )
-    return levels, states.astype(bool)
+def read_initial(initial: Any, unit: str, field: str = "initial") -> float | str:
+    """The starting state as given: a number (V or A, text in engineering notation
+    allowed), or ``"settled"`` or ``"periodic"``.  The one reading of a start.
 
-
-def _configurations(states: np.ndarray) -> tuple[list[tuple[bool, ...]], np.ndarray]:
-    """The distinct switch configurations and, per segment, which one holds."""
-    n, count = states.shape
-    if count == 0:
-        return [()], np.broadcast_to(np.intp(0), (n,))  # read-only: nothing to fill
-    codes = states.astype(np.int64) @ (np.int64(1) << np.arange(count, dtype=np.int64))
-    unique, inverse = np.unique(codes, return_inverse=True)
-    configs = [tuple(bool((code >> j) & 1) for j in range(count)) for code in unique.tolist()]
-    return configs, inverse.reshape(-1)
-
-
-def _one_value(array: np.ndarray) -> bool:
-    """True for a read-only broadcast of one value (stride 0), as one rate for every segment is."""
-    return array.ndim == 1 and array.size > 1 and array.strides == (0,)
-
-
-def _rates(taus: np.ndarray) -> np.ndarray:
-    """``1 / tau``, and 0 where tau is infinite (the state is held)."""
-    holding = np.isinf(taus)
-    return np.where(holding, 0.0, 1.0 / np.where(holding, 1.0, taus))
+    Examples
+    --------
+    >>> read_initial("50m", "V"), read_initial(" settled ", "V")
+    (0.05, 'settled')
+    >>> read_initial("warm", "V")
+    Traceback (most recent call last):
+    ...
+    firstorder.errors.InputError: initial: 'warm' is not allowed; give a number (the starting state, in V), 'settled' or 'periodic'
+    """
+    if isinstance(initial, str):
+        word = initial.strip()
+        if word in NAMED_STARTS:
+            return word
+        if word.isalpha():
+            raise InputError(
+                f"{field}: {initial!r} is not allowed; give a number (the starting state, in "
+                f"{unit}), 'settled' or 'periodic'"
+            )
+    return parse_value(initial, field=field, unit=unit)
 
 
 def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response":
-    """Compute the response of `fixture` to `drive` (see :class:`Response`)."""
-    fixture.check()
-    levels, states = _match_columns(fixture, drive)
-    configs, inverse = _configurations(states)
-    if len(configs) == 1:
-        first_use = np.zeros(1, dtype=np.intp)
-    else:
-        # np.unique's return_index gives the first segment of every configuration.
-        _, first_use = np.unique(inverse, return_index=True)
-    reduced = []
-    for c, config in enumerate(configs):
-        k = int(first_use[c])
-        where = f"segment {k} (from {format_value(float(drive.times[k]), 's')}"
-        where += f"; {fixture.describe_states(config)})" if config else ")"
-        reduced.append(fixture.configuration(config, where=where))
-    taus = np.array([r.tau for _, r in reduced])
-    gains = np.array([r.gain for _, r in reduced]).reshape(len(configs), levels.shape[1])
-    drifts = np.array([r.drift for _, r in reduced]).reshape(len(configs), levels.shape[1])
+    """Compute the response of `fixture` to `drive` (see :class:`Response`).
 
-    holding = np.isinf(taus)
-    if holding.any() and (drifts != 0).any():
-        ramp = (drifts[inverse] * levels != 0).any(axis=1)
-        if ramp.any():
-            k = int(np.argmax(ramp))
-            storage = fixture.storage
-            feeding = [s.name for s, d in zip(fixture.sources, drifts[inverse[k]]) if d != 0]
-            # A capacitor fed by a current needs a path across it; a coil held at a voltage
-            # needs resistance in its loop (a resistor across it would change nothing).
-            remedy = (
-                "across the capacitor, or in series with the source" if storage.kind == "capacitor"
-                else "in series with the inductor (its winding resistance, say) or with the source"
-            )
-            raise TopologyError(
-                f"segment {k} (from {format_value(float(drive.times[k]), 's')}): {storage.kind} "
-                f"'{storage.name}' sees no resistance, yet {feeding} drive it, so its state would "
-                f"ramp without limit. Add a resistance {remedy}."
-            )
-    rate_by_config = _rates(taus)
-    if len(configs) == 1:
-        # One rate for every segment: a read-only broadcast, not an array to fill.
-        rate = np.broadcast_to(rate_by_config[0], (len(drive),))
-    else:
-        rate = rate_by_config[inverse]
-    return Response(fixture, drive, levels, configs, inverse, rate, gains, initial)
-
-
-class _FittedSegments:
-    """Stands in for the fixture of a Response built by :meth:`Response.from_segments`.
-
-    A response only asks its fixture for the unit of the state, the names of the
-    sources (here one pseudo-source, ``"fitted"``, whose share is every segment's
-    final value), the storage element's kind and name (for display) and probes
-    (none).
+    See Also
+    --------
+    Fixture.respond : the same, as a method.
+    Response.from_segments : a response of a measured model, without a fixture.
     """
-
-    switches = ()
-    probes = ()
-
-    def __init__(self, name: str, unit: str) -> None:
-        from types import SimpleNamespace
-
-        self.state_unit = unit
-        self.sources = (SimpleNamespace(name="fitted"),)
-        self.storage = SimpleNamespace(kind="fitted model", name=name)
+    return Response(Segments.of_drive(fixture, drive), drive, initial, fixture=fixture)
 
 
 class Response:
-    """The exact response of a fixture to a drive.
+    """The exact response of a fixture (or of a measured model) to a drive.
 
     Do not build directly; call :meth:`Fixture.respond` or :func:`respond` (or
     :meth:`from_segments` for a measured model).
+
+    Parameters
+    ----------
+    segments : Segments
+        The drive's segments (configurations, rates, gains), one fixture or model.
+    drive : Drive
+    initial : float or str
+        The starting state, ``"settled"`` or ``"periodic"`` (see :func:`read_initial`).
+    fixture : Fixture, optional
+        The fixture behind `segments` (None for a measured model).
 
     Examples
     --------
@@ -200,96 +131,64 @@ class Response:
         0.6321
         >>> res.forced(2e-3), round(float(res.natural(2e-3)), 4)
         (1.0, -0.3679)
+
+        See Also
+        --------
+        firstorder.segments.Segments.of_model : the segments it builds.
         """
         n = len(drive)
-        taus = np.asarray(tau, dtype=np.float64).reshape(-1)
-        finals = np.asarray(final, dtype=np.float64).reshape(-1)
-        for field, array in (("tau", taus), ("final", finals)):
-            if array.size != n:
-                raise InputError(f"from_segments.{field}: has {array.size} values but the drive has {n} segments")
-        bad = np.isnan(taus) | ~(taus > 0)
-        if bad.any():
-            k = int(np.argmax(bad))
-            raise InputError(f"from_segments.tau[{k}]: {float(taus[k])!r} is not allowed; expected a time > 0 s or inf")
-        holding = np.isinf(taus)
-        bad = ~np.isfinite(finals) & ~holding
-        if bad.any():
-            k = int(np.argmax(bad))
-            raise InputError(f"from_segments.final[{k}]: {float(finals[k])!r} is not allowed; expected a finite number")
-        rate = _rates(taus)
-        levels = np.where(holding, 0.0, finals).reshape(n, 1)
-        return cls(_FittedSegments(name, unit), drive, levels, [()], np.zeros(n, dtype=np.intp), rate,
-                   np.ones((1, 1)), initial)
+        for field, values in (("tau", tau), ("final", final)):
+            size = np.asarray(values, dtype=np.float64).size
+            if size != n:
+                raise InputError(f"from_segments.{field}: has {size} values but the drive has {n} segments")
+        try:
+            segments = Segments.of_model(tau, final, unit=unit, name=name)
+        except InputError as error:
+            raise InputError(f"from_segments.{error}") from None
+        return cls(segments, drive, initial)
 
-    def __init__(self, fixture, drive, levels, configs, inverse, rate, gains, initial) -> None:
+    def __init__(self, segments: Segments, drive: "Drive", initial: Any = 0.0,
+                 fixture: "Fixture | None" = None) -> None:
+        if len(segments) != len(drive):
+            raise InputError(f"segments: {len(segments)} of them for a drive of {len(drive)} segments")
         self.fixture = fixture
         self.drive = drive
-        self._levels = levels
-        self._configs = configs
-        self._inverse = inverse
-        self._rate = rate
-        self._gains = gains
+        self.segments = segments
+        self._levels = segments.levels
+        self._rate = segments.rate
         self._starts = drive.times
-        self._decay, self._growth = engine.segment_factors(drive.times, drive.ends, rate)
+        self._decay, self._growth = engine.segment_factors(drive.times, drive.ends, self._rate)
         self._scans: dict[str, np.ndarray] = {}
-        self.initial_text = initial
         self.initial = self._initial_state(initial)
 
     # -- per-segment data ------------------------------------------------------------
-    @cached_property
+    @property
     def tau(self) -> np.ndarray:
         """Time constant of every segment (s); ``inf`` where the state is held (read-only)."""
-        if _one_value(self._rate):  # one rate for all: a broadcast answer
-            rate = float(self._rate[0])
-            return np.broadcast_to(1.0 / rate if rate > 0 else np.inf, self._rate.shape)
-        tau = np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
-        tau.setflags(write=False)
-        return tau
+        return self.segments.tau
 
     @property
     def starts(self) -> np.ndarray:
         return self._starts
 
-    @cached_property
+    @property
     def ends(self) -> np.ndarray:
         return self.drive.ends
 
-    @cached_property
-    def _any_holds(self) -> bool:
-        return bool(self.holds[0]) if _one_value(self.holds) else bool(self.holds.any())
-
-    @cached_property
+    @property
     def holds(self) -> np.ndarray:
         """True for segments whose configuration holds the state (read-only)."""
-        if _one_value(self._rate):  # one rate for all: a broadcast answer
-            return np.broadcast_to(bool(self._rate[0] == 0.0), self._rate.shape)
-        holds = self._rate == 0.0
-        holds.setflags(write=False)
-        return holds
+        return self.segments.holds
 
-    @cached_property
-    def _source_finals(self) -> np.ndarray:
-        """(n, m): each source's share of each segment's final value."""
-        return self._gains[self._inverse] * self._levels
+    @property
+    def decay(self) -> np.ndarray:
+        """``exp(-duration / tau)`` of every segment: how much of a step is left at its end."""
+        return self._decay
 
-    @cached_property
-    def _one_gain(self) -> float | None:
-        """With one source and no switch changes, the gain from its level to the final
-        value (the final values are that gain times the level column); else None."""
-        if self._levels.shape[1] == 1 and len(self._configs) == 1:
-            return float(self._gains[0, 0])
-        return None
-
-    @cached_property
-    def _final_sources_only(self) -> np.ndarray:
-        m = self._levels.shape[1]
-        if self._one_gain is not None:
-            if self._one_gain == 1.0:  # 1.0 * level is level exactly: no need for a copy
-                return self._levels[:, 0]
-            return self._one_gain * self._levels[:, 0]
-        if m == 1:
-            return self._gains[self._inverse, 0] * self._levels[:, 0]
-        return self._source_finals.sum(axis=1)
+    @property
+    def state_unit(self) -> str:
+        """V (a capacitor's voltage) or A (an inductor's current), or a model's unit."""
+        return self.segments.state_unit
 
     @property
     def final(self) -> np.ndarray:
@@ -298,23 +197,24 @@ class Response:
 
     @property
     def configurations(self) -> list[tuple[bool, ...]]:
-        return list(self._configs)
+        return list(self.segments.configurations)
 
     @property
     def segment_configuration(self) -> np.ndarray:
         """Index into :attr:`configurations` for every segment."""
-        return self._inverse
+        return self.segments.configuration_of
 
     # -- starting state -------------------------------------------------------------
     def _initial_state(self, initial: Any) -> float:
-        if isinstance(initial, str) and initial.strip() == "settled":
+        start = read_initial(initial, self.state_unit)
+        if start == "settled":
             if self._rate[0] == 0.0:
                 raise InputError(
                     "initial: 'settled' needs a first segment that settles, but segment 0 holds its "
                     "state (no resistive path); give the starting state as a number"
                 )
-            return float(self._final_sources_only[0])
-        if isinstance(initial, str) and initial.strip() == "periodic":
+            return float(self.segments.final[0])
+        if start == "periodic":
             # x_end = A x0 + B, with 1 - A computed without cancellation.
             exponent = -float(np.sum(self.drive.durations * self._rate))
             drift = float(self._boundary("zero_state")[-1])  # cached: zero_state needs it again
@@ -326,18 +226,13 @@ class Response:
                     )
                 return 0.0
             return drift / -np.expm1(exponent)
-        if isinstance(initial, str) and initial.strip().isalpha():
-            raise InputError(
-                f"initial: {initial!r} is not allowed; give a number (the starting state, in "
-                f"{self.fixture.state_unit}), 'settled' or 'periodic'"
-            )
-        return parse_value(initial, field="initial", unit=self.fixture.state_unit)
+        return start
 
     # -- scans --------------------------------------------------------------------------
     def _component_key(self, component: str) -> str:
         if component in ("total", "zero_input", "zero_state"):
             return component
-        names = [p.name for p in self.fixture.sources]
+        names = list(self.segments.source_names)
         if component in names:
             return component
         raise InputError(
@@ -349,17 +244,16 @@ class Response:
 
     def _source_final(self, key: str) -> np.ndarray:
         if key == "total" or key == "zero_state":
-            return self._final_sources_only
+            return self.segments.final
         if key == "zero_input":
             return np.zeros(len(self.drive))
-        j = [p.name for p in self.fixture.sources].index(key)
-        return self._source_finals[:, j]
+        return self.segments.source_final(key)
 
     def _scan_target(self, key: str) -> tuple[np.ndarray, float]:
         """`key`'s final value of every segment as ``scale * target`` (so that, for one
         source and no switch changes, the scan reads the level column directly)."""
-        if key in ("total", "zero_state") and self._one_gain is not None:
-            return self._levels[:, 0], self._one_gain  # as _final_sources_only
+        if key in ("total", "zero_state") and self.segments.one_gain is not None:
+            return self._levels[:, 0], self.segments.one_gain  # as Segments.final
         return self._source_final(key), 1.0
 
     def _boundary(self, key: str) -> np.ndarray:
@@ -372,7 +266,7 @@ class Response:
 
     def _finals(self, key: str) -> np.ndarray:
         final = self._source_final(key)
-        if self._any_holds:
+        if self.segments.any_holds:
             final = np.where(self.holds, self._boundary(key)[:-1], final)
         return final
 
@@ -380,10 +274,6 @@ class Response:
     def boundary(self) -> np.ndarray:
         """The state at every change and at the end (length ``len(drive) + 1``)."""
         return self._boundary("total")
-
-    def boundary_of(self, component: str) -> np.ndarray:
-        """Like :attr:`boundary` for ``"zero_input"``, ``"zero_state"`` or a source."""
-        return self._boundary(self._component_key(component))
 
     # -- evaluation -------------------------------------------------------------------------
     def _times(self, t: Any) -> np.ndarray:
@@ -422,10 +312,6 @@ class Response:
         self._check_times(flat, locator.is_sorted, no_nan=locator.compiled)
         return locator
 
-    def locate(self, t: Any) -> engine.SegmentLocator:
-        """Pre-compute where times fall, to evaluate several components at once."""
-        return self._locator(self._times(t))
-
     def evaluate(self, t: Any, components: tuple[str, ...] = ("total",), probe: str | None = None) -> dict[str, np.ndarray]:
         """Evaluate several components (of the state, or of `probe`) on one time array."""
         array = self._times(t)
@@ -439,7 +325,7 @@ class Response:
                 self._check_times(flat, is_sorted=True, no_nan=True)
                 return {components[0]: values.reshape(array.shape)}
         locator = self._locator(array)
-        rows = self._probe_rows(probe) if probe is not None else None
+        rows = self.segments.probe_rows(probe) if probe is not None else None
         out = {}
         consume = len(components) == 1 and rows is None
         for component in components:
@@ -470,7 +356,7 @@ class Response:
         if key in ("total", "zero_state"):
             offset = np.einsum("ij,ij->i", rows[:, 1:], self._levels)
         else:
-            j = [p.name for p in self.fixture.sources].index(key)
+            j = self.segments.source_names.index(key)
             offset = rows[:, 1 + j] * self._levels[:, j]
         state += locator.spread(offset)
         return state
@@ -501,36 +387,19 @@ class Response:
 
     def contribution(self, source: str, t: Any):
         """The zero-state response to one source alone (they add up to ``zero_state``)."""
-        names = [p.name for p in self.fixture.sources]
+        names = list(self.segments.source_names)
         if source not in names:
             raise InputError(f"contribution: {source!r} names no source; sources are {names}")
         return self._single(source, t)
 
     # -- probes --------------------------------------------------------------------------------
-    def _probe_rows(self, name: str) -> np.ndarray:
-        """(n, 1 + m): the probe as an affine row over [x, u...] in every segment."""
-        from ._network import probe_row
-
-        probes = {p.name: p for p in self.fixture.probes}
-        if name not in probes:
-            raise InputError(f"probe: {name!r} is not a probe of the fixture; probes are {list(probes)}")
-        rows = []
-        for c, config in enumerate(self._configs):
-            layout, reduced = self.fixture.configuration(config)
-            k = int(np.argmax(self._inverse == c))  # the first segment in this configuration
-            where = f"segment {k} (from {format_value(float(self._starts[k]), 's')}"
-            where += f"; {self.fixture.describe_states(config)})" if config else ")"
-            rows.append(probe_row(layout, self.fixture, reduced, probes[name], where))
-        by_config = np.array(rows)
-        return by_config[self._inverse]
-
     def probe(self, name: str, t: Any, component: str = "total"):
         """A probe's value at times `t` (probes may jump at changes)."""
         return self._single(component, t, probe=name)
 
     def probe_boundary(self, name: str) -> tuple[np.ndarray, np.ndarray]:
         """A probe just after each change and just before the next (two arrays of length n)."""
-        rows = self._probe_rows(name)
+        rows = self.segments.probe_rows(name)
         states = self.boundary
         offset = np.einsum("ij,ij->i", rows[:, 1:], self._levels)
         return rows[:, 0] * states[:-1] + offset, rows[:, 0] * states[1:] + offset
@@ -539,7 +408,7 @@ class Response:
     def settling(self, tolerance, sample_delay: Any = None, probe: str | None = None):
         """Per-segment settle times, residuals and sample errors (a pandas DataFrame).
 
-        See :func:`firstorder.settling.settling_table` for the columns.
+        See :func:`firstorder.settling.table.settling_table` for the columns.
 
         Examples
         --------
@@ -548,16 +417,16 @@ class Response:
         >>> round(float(res.settling(fo.Tolerance.relative(0.01))["settle_time"].iloc[0]) / 1e-3, 3)
         4.605
         """
-        from .settling import settling_table
+        from .settling.table import settling_table
 
         return settling_table(self, tolerance, sample_delay=sample_delay, probe=probe)
 
     def summary(self, tolerance, sample_delay: Any = None, probe: str | None = None):
         """The worst segment, how many did not settle, total time, smallest margin at the samples.
 
-        See :func:`firstorder.settling.settling_summary`.
+        See :func:`firstorder.settling.table.settling_summary`.
         """
-        from .settling import settling_summary
+        from .settling.table import settling_summary
 
         return settling_summary(self, tolerance, sample_delay=sample_delay, probe=probe)
 
@@ -567,8 +436,11 @@ class Response:
 
         Checked against the limits in force when first read (see
         :func:`firstorder.cautions.set_limits`); call
-        :func:`firstorder.cautions.check` for other limits.
+        :func:`firstorder.cautions.check` for other limits.  A measured model
+        (:meth:`from_segments`) has no network to check: none.
         """
+        if self.fixture is None:
+            return []
         from .cautions import check
 
         return check(self)
@@ -576,14 +448,14 @@ class Response:
     # -- display ---------------------------------------------------------------------------------
     def __repr__(self) -> str:
         return (
-            f"Response({len(self.drive)} segments, start {format_value(self.initial, self.fixture.state_unit)}, "
-            f"end {format_value(float(self.boundary[-1]), self.fixture.state_unit)})"
+            f"Response({len(self.drive)} segments, start {format_value(self.initial, self.state_unit)}, "
+            f"end {format_value(float(self.boundary[-1]), self.state_unit)})"
         )
 
     def _repr_html_(self) -> str:
         from ._html import table
 
-        unit = self.fixture.state_unit
+        unit = self.state_unit
         n = len(self.drive)
         shown = list(range(n)) if n <= 8 else [*range(6), n - 1]
         rows = []
@@ -594,11 +466,11 @@ class Response:
                 format_value(float(self.boundary[k + 1]), unit),
             ])
         caption = (
-            f"Response of {self.fixture.storage.kind} '{self.fixture.storage.name}': {n} segments, "
+            f"Response of {self.segments.storage_kind} '{self.segments.storage_name}': {n} segments, "
             f"start {format_value(self.initial, unit)}"
         )
         html = table(["segment", "from", "τ", "start value", "final", "value at end"], rows, caption=caption)
-        cautions = getattr(self, "cautions", None)
+        cautions = self.cautions
         if cautions:
             from ._html import paragraph
 

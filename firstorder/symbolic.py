@@ -2,7 +2,7 @@
 the ODE, tau, and the response split into zero-input/zero-state and natural/forced.
 
 Each configuration is taken from the same plan as the numeric path
-(:func:`firstorder._network.plan`: the same parts, ideal elements and island
+(:func:`firstorder.network.plan`: the same parts, ideal elements and island
 pins), written as nodal equations on supernodes and solved by Gaussian
 elimination in the order a hand calculation would take (fewest neighbours first),
 without expanding.  Small entries are put over one denominator as they appear and
@@ -24,7 +24,8 @@ import sympy as sp
 from sympy.polys.matrices import DomainMatrix
 from sympy.polys.rings import PolyRing
 
-from . import _network
+from .netlist import GROUND
+from .network import Layout
 
 if TYPE_CHECKING:
     from .fixture import Fixture
@@ -259,7 +260,7 @@ class _Nodal:
     Every voltage and current is an affine row over ``e``: a list of expressions.
     """
 
-    def __init__(self, layout: _network.Layout, symbols: dict[str, sp.Symbol], excitations: int):
+    def __init__(self, layout: Layout, symbols: dict[str, sp.Symbol], excitations: int):
         zero = sp.Integer(0)
         self.zero = zero
         self.width = excitations
@@ -271,7 +272,7 @@ class _Nodal:
         for label, p, n, source in layout.voltage_branches:
             branches[p].append((label, n, source, +1))  # v(p) - v(n) = e[source]
             branches[n].append((label, p, source, -1))
-        all_nodes = [_network.GROUND, *layout.nodes]
+        all_nodes = [GROUND, *layout.nodes]
         self.root: dict[str, str] = {}
         self.offset: dict[str, list[int]] = {}
         self.parent: dict[str, tuple[str, str]] = {}  # node -> (branch label, parent node)
@@ -296,7 +297,7 @@ class _Nodal:
                     self.parent[other] = (label, node)
                     queue.append(other)
         self.order = order  # every parent before its children
-        roots = [n for n in all_nodes if self.root[n] == n and n != _network.GROUND]
+        roots = [n for n in all_nodes if self.root[n] == n and n != GROUND]
         self.unknown = {r: k for k, r in enumerate(roots)}
         size = len(roots)
 
@@ -317,7 +318,7 @@ class _Nodal:
         rhs: list[list] = [[zero] * excitations for _ in range(size)]
         for node in all_nodes:
             root = self.root[node]
-            if root == _network.GROUND:
+            if root == GROUND:
                 continue
             k = self.unknown[root]
             out_v, out_e = self.outflow[node]
@@ -370,7 +371,7 @@ class _Nodal:
         across_e = [0] * self.width
         for node, sign in ((a, 1), (b, -1)):
             root = self.root[node]
-            if root != _network.GROUND:
+            if root != GROUND:
                 k = self.unknown[root]
                 across_v[k] = across_v.get(k, 0) + sign
             for j, c in enumerate(self.offset[node]):
@@ -386,7 +387,7 @@ class _Nodal:
                 row = [r + c * v for r, v in zip(row, self.solution[k])]
         return [_compact(r) for r in row]
 
-    def voltage(self, a: str, b: str = _network.GROUND) -> list:
+    def voltage(self, a: str, b: str = GROUND) -> list:
         return self.row(self.difference(a, b))
 
     def conductance_current(self, name: str, a: str, b: str) -> list:
@@ -449,7 +450,7 @@ def _compact(expression: sp.Expr) -> sp.Expr:
     return sp.cancel(expression) if _at_most(expression, _COMPACT_LIMIT) else expression
 
 
-def _structure_key(fixture: "Fixture", layout: _network.Layout, states: tuple[bool, ...]) -> tuple:
+def _structure_key(fixture: "Fixture", layout: Layout, states: tuple[bool, ...]) -> tuple:
     parts = tuple((p.kind, p.name, p.a, p.b) for p in fixture.parts)
     return (parts, tuple(fixture.probes), states, layout)
 
@@ -503,7 +504,7 @@ def derive(fixture: "Fixture", states: tuple[bool, ...]) -> Derivation:
     return replace(cached, values=values)
 
 
-def _derive(fixture: "Fixture", layout: _network.Layout, states: tuple[bool, ...],
+def _derive(fixture: "Fixture", layout: Layout, states: tuple[bool, ...],
             switch_state: dict[str, bool]) -> Derivation:
     parts = fixture.parts
     symbols = {p.name: _symbol_for(p, switch_state) for p in parts}

@@ -186,7 +186,7 @@ class Trace:
         lines += [f"{t!r},{v!r}" for t, v in zip(self.times.tolist(), self.values.tolist())]
         text = "\n".join(lines) + "\n"
         if path is not None:
-            from ._files import write_atomic
+            from .io.atomic import write_atomic
 
             write_atomic(path, text)
         return text
@@ -773,12 +773,10 @@ def _segment_groups(drive: "Drive", fixture: "Fixture | None") -> tuple[list[str
     """Configuration labels and, per segment, which one holds."""
     if fixture is None or not fixture.switches:
         return ["all segments"], np.zeros(len(drive), dtype=np.intp)
-    from .response import _configurations, _match_columns
+    from .segments import Segments
 
-    fixture.check()
-    _, states = _match_columns(fixture, drive)
-    configs, inverse = _configurations(states)
-    return [fixture.describe_states(c) for c in configs], inverse
+    segments = Segments.of_drive(fixture, drive)
+    return [fixture.describe_states(c) for c in segments.configurations], segments.configuration_of
 
 
 def _fit_segments(times: np.ndarray, values: np.ndarray, drive: "Drive", offset: float,

@@ -13,7 +13,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import firstorder as fo
-from firstorder import _files
+from firstorder.io import atomic
 from firstorder.analysis import MAX_FILE_BYTES, Analysis, _path_text
 
 
@@ -273,7 +273,7 @@ class TestInterruptedSave:
             written.append(os.fstat(descriptor).st_size)
             raise failure
 
-        monkeypatch.setattr(_files.os, "fsync", failing_fsync)
+        monkeypatch.setattr(atomic.os, "fsync", failing_fsync)
         with pytest.raises(type(failure)):
             general_analysis(title="a new title").save(path)
         assert written and written[0] > 0

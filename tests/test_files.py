@@ -1,4 +1,4 @@
-"""Tests for firstorder._files: atomic writes."""
+"""Tests for firstorder.io.atomic: atomic writes."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import stat
 
 import pytest
 
-from firstorder._files import write_atomic
+from firstorder.io.atomic import write_atomic
 
 
 class TestWriteAtomic:

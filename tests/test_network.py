@@ -14,7 +14,7 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 import firstorder as fo
-from firstorder import _network
+from firstorder import network
 from firstorder.errors import InputError, TopologyError, ZeroTimeError
 
 
@@ -336,7 +336,7 @@ class TestProbeRow:
     def test_rows_are_affine_in_state_and_levels(self, fixture):
         layout, red = reduced(fixture, k1=True)
         probes = {p.name: p for p in fixture.probes}
-        row = _network.probe_row(layout, fixture, red, probes["i_ch"])
+        row = network.probe_row(layout, fixture.netlist, red, probes["i_ch"])
         # KCL at b: i_ch = (vs - x) / (RS + RON) + ib - x / RLOAD; sources in fixture order (vs, ib).
         g = 1.0 / (self.RS + self.RON)
         np.testing.assert_allclose(row, [-g - 1.0 / self.RLOAD, g, 1.0], rtol=1e-12)
@@ -366,7 +366,7 @@ class TestStamp:
     def test_sizes_follow_the_layout(self):
         fx = fo.Fixture.rc(r=1e3, c=1e-6)
         layout, _ = fx.configuration(())
-        A, B = _network.stamp(layout, lambda name, key: 1.0, 0.0, 1.0, 2)
+        A, B = network.stamp(layout, lambda name, key: 1.0, 0.0, 1.0, 2)
         assert len(A) == layout.size == len(layout.nodes) + len(layout.voltage_branches)
         assert len(B) == layout.size and len(B[0]) == 2
 

@@ -121,7 +121,7 @@ class TestSameResultsAnyThreadCount:
         drive = fo.Drive(self.times, end=self.end, **self.columns)
         response = self.fixture.respond(drive, initial="periodic")
         grid = np.linspace(self.times[0], self.end, 250_001)
-        results = {"boundary": response.boundary, "zero_state": response.boundary_of("zero_state"),
+        results = {"boundary": response.boundary, "zero_state": response.zero_state(np.append(drive.times, drive.end)),
                    "total": response.total(grid), "probe": response.probe("ir1", grid)}
         results.update(response.evaluate(grid, ("zero_input", "natural", "vin")))
         for tolerance in (fo.Tolerance.absolute("1m"), fo.Tolerance.relative(0.001)):

@@ -239,7 +239,7 @@ class TestSettlingTable:
             # The same tau and a scaled error: the probe c*x + offset meets tol exactly when the
             # state meets tol / |c| (c, the probe's coefficient of the state, is one number while
             # the relay stays closed).
-            rows = res._probe_rows(probe)
+            rows = res.segments.probe_rows(probe)
             scale = abs(rows[0, 0])
             assert np.allclose(np.abs(rows[:3, 0]), scale)
             state = res.settling(fo.Tolerance.absolute(unit_tolerance.value / scale))

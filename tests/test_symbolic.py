@@ -11,7 +11,7 @@ import sympy as sp
 
 import firstorder as fo
 from firstorder import symbolic
-from firstorder._network import probe_row
+from firstorder.network import probe_row
 
 
 def divider_fixture():
@@ -102,7 +102,7 @@ class TestDerive:
             for probe in fx.probes:
                 expression = d.substitute(d.probes[probe.name])
                 got = [float(expression.diff(e)) for e in excitation]
-                np.testing.assert_allclose(got, probe_row(layout, fx, reduced, probe), rtol=1e-10, atol=1e-18,
+                np.testing.assert_allclose(got, probe_row(layout, fx.netlist, reduced, probe), rtol=1e-10, atol=1e-18,
                                            err_msg=f"{probe.name} {states}")
 
     def test_flyback_probe_is_minus_current_times_flyback_resistor(self):
@@ -184,7 +184,7 @@ class TestRandomNetworks:
             for probe in fx.probes:
                 expression = d.substitute(d.probes[probe.name])
                 got = [float(expression.diff(e)) for e in excitation]
-                np.testing.assert_allclose(got, probe_row(layout, fx, reduced, probe), rtol=1e-9, atol=1e-12,
+                np.testing.assert_allclose(got, probe_row(layout, fx.netlist, reduced, probe), rtol=1e-9, atol=1e-12,
                                            err_msg=f"seed {seed}, k1 {closed}, {probe.name}")
             checked += 1
         assert checked  # every seed here builds at least one solvable configuration

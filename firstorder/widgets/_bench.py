@@ -19,17 +19,17 @@ from bokeh.events import RangesUpdate, Tap
 from bokeh.models import ColumnDataSource, DataTable, SelectEditor, StringEditor, TableColumn
 from jupyter_bokeh import BokehModel
 
-from .._files import write_atomic
+from ..io.atomic import write_atomic
 from ..drive import Drive
 from ..errors import InputError
-from ..fixture import PART_UNITS, SOURCE_UNITS, Fixture
+from ..fixture import Fixture
+from ..netlist import PART_UNITS, SOURCE_UNITS
 from ..response import COMPONENTS
-from ..settling import Tolerance
+from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
 from ..units import format_value, parse_value
 from ._drive_table import DriveText
 from ._loader import publish_bokehjs
 from ._plot import LABELS, MAX_HANDLES, PIXELS, Plots, View
-from ._tolerance_text import parse_tolerance, tolerance_text
 
 __all__ = ["Bench"]
 

@@ -5,6 +5,8 @@ from __future__ import annotations
 import os
 import tempfile
 
+__all__ = ["write_atomic"]
+
 
 def write_atomic(path: str | os.PathLike[str], data: str | bytes) -> None:
     """Write `data` to a temporary file beside `path`, then rename it over `path`.

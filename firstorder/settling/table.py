@@ -1,0 +1,371 @@
+"""Settling tables: when each segment is within tolerance, and its error at a sample.
+
+Closed form throughout: in segment ``k`` the watched quantity (the state, or a
+probe ``c*x + offset``) moves from its value just after the change, ``start``,
+towards ``final`` as
+
+    value(t) = final + (start - final) * exp(-(t - s_k) / tau_k),
+
+so its error ``|start - final| * exp(-(t - s_k) / tau_k)`` falls monotonically and
+the settle time is ``tau_k * ln(|start - final| / limit)`` (zero when the step is
+already within the limit).  No search, no sampling grid.
+
+:func:`sample_delays` is the one rule for what a sample delay may be; the
+settling table, the plans, the analysis file and the Bench all use it.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..engine import settling_columns
+from ..errors import InputError
+from ..units import format_value, parse_value
+from .tolerance import Tolerance
+
+__all__ = ["SAMPLE_COLUMNS", "TABLE_COLUMNS", "SettlingSummary", "check_tolerance", "check_unit", "sample_delays",
+           "Watched", "settling_summary", "settling_table", "watched"]
+
+
+#: Columns of :func:`settling_table`, in order; the sample columns follow with a delay.
+TABLE_COLUMNS = ("start", "end", "start_value", "final", "tolerance", "settle_time", "settled", "residual_at_end")
+SAMPLE_COLUMNS = ("sample_time", "value_at_sample", "error_at_sample", "ok")
+
+
+@dataclass(frozen=True, slots=True)
+class Watched:
+    """The watched quantity, per segment: where it starts, where it heads, how fast."""
+
+    label: str
+    unit: str
+    start: np.ndarray
+    final: np.ndarray
+    rate: np.ndarray  # 1/tau, zero where the state is held
+
+    @property
+    def step(self) -> np.ndarray:
+        """``|final - start|``: the error just after each change."""
+        return np.abs(self.final - self.start)
+
+
+def check_unit(tolerance: Tolerance, unit: str, label: str) -> None:
+    # A relative tolerance is a pure fraction; the others carry the unit they were built in.
+    if tolerance.kind != "relative" and tolerance.unit != unit:
+        raise InputError(
+            f"tolerance: {tolerance} is in {tolerance.unit}, but {label} is in {unit}; "
+            f"build the tolerance with unit={unit!r}"
+        )
+
+
+def watched(response: Any, probe: str | None) -> Watched:
+    """The state, or `probe`, of `response` as start/final/rate arrays."""
+    segments = response.segments
+    rate = segments.rate
+    state_start = response.boundary[:-1]
+    if probe is None:
+        return Watched(f"the state of {segments.storage_kind} '{segments.storage_name}'", segments.state_unit,
+                       state_start, response.final, rate)
+    rows = segments.probe_rows(probe)  # raises InputError naming the probe
+    start, _ = response.probe_boundary(probe)
+    # The probe is c*x + offset within a segment, so it moves by c times the state's step;
+    # written this way the step has no cancellation from the offset.
+    final = start + rows[:, 0] * (response.final - state_start)
+    return Watched(f"probe '{probe}'", segments.probe(probe).unit, start, final, rate)
+
+
+def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sample_delay", what: str = "segment",
+                  ends: np.ndarray | None = None, past_end: str = "refuse") -> np.ndarray:
+    """Delays after each change (s), one per segment, checked against their segments.
+
+    The one rule for a sample delay: one value for every segment, or one per
+    segment; each finite and >= 0.  A delay past its segment's end by no more than
+    the rounding of the instants (a few units in the last place of `ends`) is taken
+    as the end: a drive stores instants, so its durations can differ by that much
+    from the dwells it was built from.  Past that, ``past_end="refuse"`` raises
+    naming the segment; ``past_end="end"`` samples such a segment at its end.
+
+    Examples
+    --------
+    >>> sample_delays("2m", np.array([1e-3, 5e-3]), past_end="end")
+    array([0.001, 0.002])
+    >>> sample_delays("2m", np.array([1e-3, 5e-3]))
+    Traceback (most recent call last):
+    ...
+    firstorder.errors.InputError: sample_delay for segment 0: 0.002 s falls after the segment's end (segment 0 lasts 1 ms); a sample must fall inside its segment, from 0 to 1 ms after the change
+    """
+    n = durations.size
+    if isinstance(sample_delay, (str, int, float, np.number)) and not isinstance(sample_delay, bool):
+        delays = np.full(n, parse_value(sample_delay, field=field, unit="s"))
+    else:
+        array = np.asarray(sample_delay) if not isinstance(sample_delay, bool) else None
+        if array is None or array.dtype.kind == "b" or array.size != n:
+            count = "a bool" if array is None or array.dtype.kind == "b" else f"{array.size} values"
+            raise InputError(
+                f"{field}: got {count}; give one delay in seconds for all {what}s or one per {what} ({n})"
+            )
+        if array.dtype.kind in "iuf":
+            delays = array.astype(np.float64).reshape(-1)
+        else:  # text such as "12u" among the numbers
+            delays = np.array([
+                float(item) if isinstance(item, (float, int, np.number)) and not isinstance(item, bool)
+                else parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
+                for k, item in enumerate(array.reshape(-1).tolist())
+            ])
+    late = delays > durations
+    if late.any():
+        if past_end == "end":
+            delays = np.where(late & np.isfinite(delays), durations, delays)
+        elif ends is not None:
+            slack = 4.0 * np.spacing(np.abs(ends))
+            delays = np.where(late & (delays <= durations + slack), durations, delays)
+    bad = ~np.isfinite(delays) | (delays < 0) | (delays > durations)
+    if bad.any():
+        k = int(np.argmax(bad))
+        value, length = float(delays[k]), float(durations[k])
+        if not math.isfinite(value) or value < 0:
+            reason = "must be a finite time >= 0"
+        else:
+            reason = f"falls after the {what}'s end ({what} {k} lasts {format_value(length, 's')})"
+        inside = (f"; a sample must fall inside its {what}, from 0 to {format_value(length, 's')} "
+                  f"after the change") if math.isfinite(length) else ""
+        raise InputError(f"{field} for {what} {k}: {value!r} s {reason}{inside}")
+    return delays
+
+
+def check_tolerance(tolerance: Any) -> Tolerance:
+    """`tolerance` if it is a :class:`Tolerance`; else an InputError saying how to build one."""
+    if not isinstance(tolerance, Tolerance):
+        raise InputError(
+            f"tolerance: {tolerance!r} is not a Tolerance; build one with Tolerance.absolute(...), "
+            f".relative(...), .ppm(...) or .lsb(...)"
+        )
+    return tolerance
+
+
+def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None, probe: str | None = None):
+    """Per segment: when the state (or a probe) is within `tolerance`, and its error at a sample.
+
+    Parameters
+    ----------
+    response : Response
+    tolerance : Tolerance
+        The limit; a relative one is taken of each segment's own step
+        ``|final - start_value|``.  An absolute, ppm or LSB tolerance must be in
+        the unit of the watched quantity (V for a capacitor or a node probe, A
+        for an inductor or a current probe).
+    sample_delay : float, str or sequence, optional
+        Seconds after each change at which the sample is taken: one value for
+        every segment, or one per segment.  Each must lie within its segment (a
+        delay equal to the segment's length samples just before the next change;
+        one past it by only the rounding of the change instants counts as that).
+    probe : str, optional
+        Settle this probe instead of the state.  Within a segment a probe is
+        ``c*x + offset``, so it settles with the same tau; its error is ``|c|``
+        times the state's.  ``start_value`` is the probe just after the change
+        (probes may jump at changes).
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per segment (index ``segment``) with columns ``start``, ``end``,
+        ``start_value``, ``final``, ``tolerance`` (the absolute limit used),
+        ``settle_time`` (seconds after the change from which the error stays
+        within the limit; NaN when the segment ends first), ``settled``,
+        ``residual_at_end`` (``|value at the end - final|``) and, with
+        `sample_delay`, ``sample_time``, ``value_at_sample``,
+        ``error_at_sample`` and ``ok`` (``error_at_sample <= tolerance``).
+
+    Raises
+    ------
+    InputError
+        An unknown probe, a tolerance in the wrong unit, or a sample delay that
+        is negative, not finite or past its segment's end (naming the segment).
+
+    Notes
+    -----
+    Closed form: the error after a change is ``|start_value - final| *
+    exp(-t/tau)``, which only falls, so the settle time is ``tau *
+    ln(|start_value - final| / limit)`` where that is positive and 0 otherwise.  A
+    segment that holds its state (tau = inf) does not move and is settled at 0.
+
+    Examples
+    --------
+    >>> import firstorder as fo
+    >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 0.0), ("1m", 5.0)], end="15m"))
+    >>> table = settling_table(res, fo.Tolerance.lsb(bits=12, span=5.0), sample_delay="12m", probe=None)
+    Traceback (most recent call last):
+    ...
+    firstorder.errors.InputError: sample_delay for segment 0: 0.012 s falls after the segment's end (segment 0 lasts 1 ms); a sample must fall inside its segment, from 0 to 1 ms after the change
+    >>> table = settling_table(res, fo.Tolerance.lsb(bits=12, span=5.0), sample_delay=[0.0, "12m"])
+    >>> round(float(table.loc[1, "settle_time"]) / 1e-3, 3)    # (12 + 1) ln 2 time constants
+    9.011
+    >>> table[["settled", "ok"]]
+             settled    ok
+    segment
+    0           True  True
+    1           True  True
+    """
+    import pandas as pd
+
+    check_tolerance(tolerance)
+    quantity = watched(response, probe)
+    check_unit(tolerance, quantity.unit, quantity.label)
+    # A probe within a segment is c*x + offset: it settles at the state's rate, and its
+    # error decays by the same factor as the state's (the response's decay over the segment).
+    value, relative = tolerance._scale()
+    limit, settle_time, settled, residual = settling_columns(
+        quantity.start, quantity.final, response.tau, response.decay, response.starts, response.ends,
+        value, relative)
+    columns: dict[str, Any] = {
+        "start": response.starts,
+        "end": response.ends,
+        "start_value": quantity.start,
+        "final": quantity.final,
+        "tolerance": limit,
+        "settle_time": settle_time,
+        "settled": settled,
+        "residual_at_end": residual,
+    }
+    if sample_delay is not None:
+        durations = response.drive.durations
+        delays = sample_delays(sample_delay, durations, field="sample_delay", what="segment", ends=response.ends)
+        decay = np.exp(-delays * quantity.rate)
+        error = quantity.step * decay
+        columns["sample_time"] = response.starts + delays
+        # final + (start - final) * decay, the left limit at a delay that reaches the next change.
+        columns["value_at_sample"] = quantity.final + (quantity.start - quantity.final) * decay
+        columns["error_at_sample"] = error
+        columns["ok"] = error <= limit
+    # Every column is a fresh array, the response's read-only per-segment data, or (a fixed
+    # tolerance) a read-only broadcast: no copy needed.
+    table = pd.DataFrame(columns, index=pd.RangeIndex(settled.size, name="segment"), copy=False)
+    table.attrs.update(tolerance=str(tolerance), unit=quantity.unit, watched=quantity.label)
+    return table
+
+
+# -- summary ----------------------------------------------------------------------------------
+
+@dataclass(frozen=True, slots=True)
+class SettlingSummary:
+    """The few numbers a test engineer reads first from a settling table.
+
+    Attributes
+    ----------
+    tolerance : str
+        The tolerance, as text.
+    unit : str
+        Unit of the watched quantity (V or A).
+    segments : int
+        Number of segments.
+    unsettled : int
+        Segments that end before they settle.
+    failing_samples : int
+        Samples outside the tolerance (the samples are at each segment's end
+        when no sample delay is given, so then this equals `unsettled`).
+    worst_segment : int
+        The segment whose sample is worst relative to its limit.
+    worst_ratio : float
+        Its error at the sample divided by its limit (above 1 fails).
+    smallest_margin : float
+        The smallest ``limit - error`` over the samples (negative: a failure).
+    slowest_segment : int
+        The segment with the longest settle time (-1 when none settles).
+    longest_settle_time : float
+        That settle time (s; NaN when no segment settles).
+    total_time : float
+        From the first change to the end of the drive (s).
+    sampled_at_end : bool
+        True when no sample delay was given and the samples are the segment ends.
+    """
+
+    tolerance: str
+    unit: str
+    segments: int
+    unsettled: int
+    failing_samples: int
+    worst_segment: int
+    worst_ratio: float
+    smallest_margin: float
+    slowest_segment: int
+    longest_settle_time: float
+    total_time: float
+    sampled_at_end: bool
+
+    def _rows(self) -> list[tuple[str, str]]:
+        where = "at each segment's end" if self.sampled_at_end else "at the sample instants"
+        return [
+            ("tolerance", self.tolerance),
+            ("segments", str(self.segments)),
+            ("not settled by their end", str(self.unsettled)),
+            (f"samples outside tolerance ({where})", str(self.failing_samples)),
+            ("worst segment", f"{self.worst_segment} (error {self.worst_ratio:.3g} × its limit)"),
+            ("smallest margin", format_value(self.smallest_margin, self.unit)),
+            ("longest settle time", "none settles" if self.slowest_segment < 0 else
+             f"{format_value(self.longest_settle_time, 's')} (segment {self.slowest_segment})"),
+            ("total time", format_value(self.total_time, "s")),
+        ]
+
+    def __str__(self) -> str:
+        return "\n".join(f"{name}: {value}" for name, value in self._rows())
+
+    def _repr_html_(self) -> str:
+        from .._html import table
+
+        verdict = "all samples within tolerance" if self.failing_samples == 0 else (
+            f"{self.failing_samples} of {self.segments} samples outside tolerance")
+        return table(["", ""], self._rows(), caption=f"Settling summary: {verdict}")
+
+
+def settling_summary(response: Any, tolerance: Tolerance, sample_delay: Any = None,
+                     probe: str | None = None) -> SettlingSummary:
+    """Summarise :func:`settling_table`: the worst segment, failures, margins, total time.
+
+    Without `sample_delay` each segment is judged at its end (the latest
+    instant it could be sampled).
+
+    Examples
+    --------
+    >>> import firstorder as fo
+    >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0, "2m", "12m"], end="22m", vin=[5, 0, 5]))
+    >>> s = settling_summary(res, fo.Tolerance.lsb(bits=12, span=5.0))
+    >>> s.unsettled, s.worst_segment, s.slowest_segment
+    (1, 0, 2)
+    >>> print(s)   # doctest: +NORMALIZE_WHITESPACE
+    tolerance: ±610.4 µV (½ LSB of 12 bits on 5 V)
+    segments: 3
+    not settled by their end: 1
+    samples outside tolerance (at each segment's end): 1
+    worst segment: 0 (error 1.11e+03 × its limit)
+    smallest margin: -676.1 mV
+    longest settle time: 9.011 ms (segment 2)
+    total time: 22 ms
+    """
+    table = settling_table(response, tolerance, sample_delay=sample_delay, probe=probe)
+    limit = table["tolerance"].to_numpy()
+    error = (table["error_at_sample"] if sample_delay is not None else table["residual_at_end"]).to_numpy()
+    with np.errstate(divide="ignore", invalid="ignore"):
+        # A zero limit with a zero error (a relative tolerance on no step) is exactly met.
+        ratio = np.where(error == 0.0, 0.0, error / limit)
+    settle = table["settle_time"].to_numpy()
+    any_settles = bool(np.isfinite(settle).any())
+    slowest = int(np.nanargmax(settle)) if any_settles else -1
+    return SettlingSummary(
+        tolerance=str(tolerance),
+        unit=table.attrs["unit"],
+        segments=len(table),
+        unsettled=int((~table["settled"]).sum()),
+        failing_samples=int((error > limit).sum()),
+        worst_segment=int(np.argmax(ratio)),
+        worst_ratio=float(np.max(ratio)),
+        smallest_margin=float(np.min(limit - error)),
+        slowest_segment=slowest,
+        longest_settle_time=float(settle[slowest]) if any_settles else math.nan,
+        total_time=float(response.drive.end - response.drive.start),
+        sampled_at_end=sample_delay is None,
+    )
+
+

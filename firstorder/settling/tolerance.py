@@ -1,0 +1,220 @@
+"""Tolerance: how close to its final value a node must be, and its text form.
+
+A :class:`Tolerance` turns each segment's step into the absolute error limit the
+engineer accepts at the sample instant: a fixed value, a fraction of the step,
+parts per million of a span, or a fraction of a converter's LSB.  Its text form
+("1 mV", "0.1 %", "10 ppm of 5 V", "0.5 LSB of 16 bits on 5 V") is read with
+regular expressions and :func:`firstorder.units.parse_value` only; nothing is
+evaluated.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+from numbers import Integral
+from typing import Any
+
+import numpy as np
+
+from ..errors import InputError
+from ..units import format_value, parse_value
+
+__all__ = ["Tolerance", "parse_tolerance", "tolerance_text"]
+
+_KINDS = ("absolute", "relative", "ppm", "lsb")
+_FRACTION_WORDS = {0.5: "½", 0.25: "¼", 1.0: "1"}
+
+
+@dataclass(frozen=True, slots=True)
+class Tolerance:
+    """How close to its final value a node must be.
+
+    Build with one of the factories: :meth:`absolute`, :meth:`relative`,
+    :meth:`ppm` or :meth:`lsb`.
+
+    Examples
+    --------
+    >>> Tolerance.lsb(bits=16, span=5.0)
+    Tolerance.lsb(bits=16, span=5.0, fraction=0.5)
+    >>> print(Tolerance.lsb(bits=16, span=5.0))
+    ±38.15 µV (½ LSB of 16 bits on 5 V)
+    >>> float(Tolerance.relative(0.01).limit(np.array([2.0]))[0])
+    0.02
+    """
+
+    kind: str
+    value: float
+    span: float = math.nan
+    bits: int = 0
+    fraction: float = 0.5
+    unit: str = "V"
+
+    def __post_init__(self) -> None:
+        if self.kind not in _KINDS:
+            raise InputError(f"tolerance kind: {self.kind!r} is not one of {list(_KINDS)}")
+        if self.unit not in ("V", "A"):
+            raise InputError(f"tolerance.unit: {self.unit!r} must be 'V' or 'A'")
+
+    # -- factories ------------------------------------------------------------------
+    @classmethod
+    def absolute(cls, value: Any, unit: str = "V") -> "Tolerance":
+        """A fixed limit, in the unit of the watched quantity (V or A)."""
+        limit = parse_value(value, field="tolerance.value", unit=("V", "A"), positive=True)
+        return cls("absolute", limit, unit=unit)
+
+    @classmethod
+    def relative(cls, fraction: Any, unit: str = "V") -> "Tolerance":
+        """A fraction of each segment's step ``|final - start value|`` (0 < fraction < 1)."""
+        number = parse_value(fraction, field="tolerance.fraction", positive=True)
+        if not number < 1.0:
+            raise InputError(f"tolerance.fraction: {fraction!r} must be < 1 (0.01 is 1 %)")
+        return cls("relative", number, unit=unit)
+
+    @classmethod
+    def ppm(cls, ppm: Any, span: Any, unit: str = "V") -> "Tolerance":
+        """`ppm` parts per million of `span` (the full scale, V or A)."""
+        parts = parse_value(ppm, field="tolerance.ppm", positive=True)
+        full = parse_value(span, field="tolerance.span", unit=("V", "A"), positive=True)
+        return cls("ppm", parts, span=full, unit=unit)
+
+    @classmethod
+    def lsb(cls, bits: Any, span: Any, fraction: Any = 0.5, unit: str = "V") -> "Tolerance":
+        """`fraction` of one LSB of a `bits`-bit converter over `span` (V or A)."""
+        if isinstance(bits, bool) or not isinstance(bits, Integral) or not 1 <= bits <= 32:
+            raise InputError(f"tolerance.bits: {bits!r} must be a whole number from 1 to 32")
+        full = parse_value(span, field="tolerance.span", unit=("V", "A"), positive=True)
+        part = parse_value(fraction, field="tolerance.fraction", positive=True)
+        if not part <= 1.0:
+            raise InputError(f"tolerance.fraction: {fraction!r} must be in (0, 1]")
+        return cls("lsb", part * full / 2.0 ** int(bits), span=full, bits=int(bits), fraction=part, unit=unit)
+
+    # -- use -----------------------------------------------------------------------------
+    def limit(self, step: np.ndarray) -> np.ndarray:
+        """The absolute limit for segments whose steps are `step` (``|final - start|``)."""
+        step = np.abs(np.asarray(step, dtype=float))
+        if self.kind == "relative":
+            return self.value * step
+        if self.kind == "ppm":
+            return np.full(step.shape, self.value * 1e-6 * self.span)
+        return np.full(step.shape, self.value)
+
+    def _scale(self) -> tuple[float, bool]:
+        """``(value, relative)``: the limit is ``value * step`` if relative, else ``value``."""
+        if self.kind == "relative":
+            return self.value, True
+        return (self.value * 1e-6 * self.span if self.kind == "ppm" else self.value), False
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain data for saving (see :meth:`from_dict`)."""
+        if self.kind == "absolute":
+            data: dict[str, Any] = {"kind": "absolute", "value": self.value}
+        elif self.kind == "relative":
+            data = {"kind": "relative", "fraction": self.value}
+        elif self.kind == "ppm":
+            data = {"kind": "ppm", "ppm": self.value, "span": self.span}
+        else:
+            data = {"kind": "lsb", "bits": self.bits, "span": self.span, "fraction": self.fraction}
+        if self.unit != "V":
+            data["unit"] = self.unit
+        return data
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "Tolerance":
+        """Rebuild a tolerance saved by :meth:`to_dict`."""
+        kind = data.get("kind")
+        arguments = {k: v for k, v in data.items() if k != "kind"}
+        factory = {"absolute": cls.absolute, "relative": cls.relative, "ppm": cls.ppm, "lsb": cls.lsb}.get(kind)
+        if factory is None:
+            raise InputError(f"tolerance.kind: {kind!r} is not one of {list(_KINDS)}")
+        try:
+            return factory(**arguments)
+        except TypeError as error:
+            raise InputError(f"tolerance: {arguments!r} do not fit kind {kind!r} ({error})") from None
+
+    def __repr__(self) -> str:
+        arguments = ", ".join(f"{k}={v!r}" for k, v in self.to_dict().items() if k != "kind")
+        return f"Tolerance.{self.kind}({arguments})"
+
+    def __str__(self) -> str:
+        return _described(self)
+
+    def _describe(self) -> str:
+        unit = self.unit
+        if self.kind == "absolute":
+            return f"±{format_value(self.value, unit)}"
+        if self.kind == "relative":
+            return f"±{self.value * 100:g} % of each step"
+        if self.kind == "ppm":
+            return f"±{format_value(self.value * 1e-6 * self.span, unit)} ({self.value:g} ppm of {format_value(self.span, unit)})"
+        share = _FRACTION_WORDS.get(self.fraction, f"{self.fraction:g}")
+        return f"±{format_value(self.value, unit)} ({share} LSB of {self.bits} bits on {format_value(self.span, unit)})"
+
+
+@lru_cache(maxsize=256)
+def _described(tolerance: Tolerance) -> str:
+    # Engineering notation costs tens of microseconds; a table or a plot asks for the same
+    # tolerance's text again and again.
+    return tolerance._describe()
+
+
+_PERCENT = re.compile(r"^\s*(?P<number>[^%]+?)\s*%\s*$")
+_PPM = re.compile(r"^\s*(?P<ppm>\S+)\s*ppm\s+of\s+(?P<span>.+?)\s*$", re.IGNORECASE)
+_LSB = re.compile(r"^\s*(?P<fraction>\S+)\s*LSB\s+of\s+(?P<bits>\d+)\s*bits?\s+on\s+(?P<span>.+?)\s*$", re.IGNORECASE)
+_HELP = "'1 mV' (absolute), '0.1 %' (of each step), '10 ppm of 5 V' or '0.5 LSB of 16 bits on 5 V'"
+
+
+def parse_tolerance(text: str, unit: str = "V") -> Tolerance | None:
+    """A :class:`Tolerance` from text, or None for an empty field.
+
+    Examples
+    --------
+    >>> parse_tolerance("0.5 LSB of 16 bits on 5 V")
+    Tolerance.lsb(bits=16, span=5.0, fraction=0.5)
+    >>> parse_tolerance("0.1 %")
+    Tolerance.relative(fraction=0.001)
+    >>> parse_tolerance("2m")
+    Tolerance.absolute(value=0.002)
+    """
+    stripped = str(text).strip()
+    if not stripped:
+        return None
+    try:
+        match = _LSB.match(stripped)
+        if match:
+            return Tolerance.lsb(int(match["bits"]), match["span"], _fraction(match["fraction"]), unit=unit)
+        match = _PPM.match(stripped)
+        if match:
+            return Tolerance.ppm(match["ppm"], match["span"], unit=unit)
+        match = _PERCENT.match(stripped)
+        if match:
+            return Tolerance.relative(parse_value(match["number"], field="tolerance (percent)") / 100.0, unit=unit)
+        return Tolerance.absolute(stripped, unit=unit)
+    except InputError as error:
+        raise InputError(f"tolerance: {text!r} is not understood ({error}); write {_HELP}") from None
+
+
+def _fraction(text: str) -> float:
+    return {"½": 0.5, "¼": 0.25}.get(text) or parse_value(text, field="tolerance (LSB fraction)")
+
+
+def tolerance_text(tolerance: Tolerance | None) -> str:
+    """Text that :func:`parse_tolerance` reads back to `tolerance`.
+
+    Examples
+    --------
+    >>> tolerance_text(Tolerance.ppm(10, 5.0))
+    '10 ppm of 5 V'
+    """
+    if tolerance is None:
+        return ""
+    unit = tolerance.unit
+    if tolerance.kind == "absolute":
+        return format_value(tolerance.value, unit, digits=6)
+    if tolerance.kind == "relative":
+        return f"{tolerance.value * 100:g} %"
+    if tolerance.kind == "ppm":
+        return f"{tolerance.value:g} ppm of {format_value(tolerance.span, unit, digits=6)}"
+    return f"{tolerance.fraction:g} LSB of {tolerance.bits} bits on {format_value(tolerance.span, unit, digits=6)}"
