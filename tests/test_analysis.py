@@ -14,7 +14,8 @@ from hypothesis import strategies as st
 
 import firstorder as fo
 from firstorder.io import atomic
-from firstorder.analysis import MAX_FILE_BYTES, Analysis, _path_text
+from firstorder.analysis import MAX_FILE_BYTES, Analysis
+from firstorder.io.analysis_format import path_text
 
 
 def general_fixture() -> fo.Fixture:
@@ -95,12 +96,12 @@ class TestAnalysis:
             ({"tolerance": 1e-3}, "tolerance: expected a firstorder.Tolerance"),
             ({"title": 5}, "title: expected text"),
             ({"tolerance": fo.Tolerance.absolute("1m", unit="A")}, "tolerance.unit"),
-            ({"sample_delay": "-1u"}, "sample_delay: '-1u' must be >= 0"),
+            ({"sample_delay": "-1u"}, "sample_delay: '-1u' is not allowed for segment 0; a sample delay is a finite time >= 0"),
             ({"sample_delay": "2m"}, "sample_delay: '2m' is past the end of segment 0, which lasts 1 ms"),
-            ({"sample_delay": [0.0, 1e-3]}, "sample_delay: has 2 delays but the drive has 4 segments"),
+            ({"sample_delay": [0.0, 1e-3]}, "sample_delay: got 2 delays for 4 segments"),
             ({"sample_delay": [0.0, 1e-3, 0.6e-3, 0.0]}, r"sample_delay\[2\]: 0.0006 is past the end of segment 2, which lasts 500 µs"),
             ({"sample_delay": np.array([0.0, 1e-3, 0.6e-3, 0.0])}, r"sample_delay\[2\]: 0.0006 is past the end"),
-            ({"sample_delay": np.array([0.0, -1e-3, 0.0, 0.0])}, r"sample_delay\[1\]: -0.001 must be >= 0"),
+            ({"sample_delay": np.array([0.0, -1e-3, 0.0, 0.0])}, r"sample_delay\[1\]: -0.001 is not allowed for segment 1"),
             ({"sample_delay": [0.0, 0.0, float("nan"), 0.0]}, r"sample_delay\[2\]: nan is not allowed"),
             ({"initial": "sometimes"}, "initial: 'sometimes' is not allowed"),
             ({"initial": object()}, "initial"),
@@ -176,7 +177,7 @@ class TestToJson:
         assert a.to_json().count("\n") < 40
 
     def test_refuses_to_write_what_it_could_not_read(self, monkeypatch):
-        monkeypatch.setattr("firstorder.analysis.MAX_FILE_BYTES", 1000)
+        monkeypatch.setattr("firstorder.io.analysis_format.MAX_FILE_BYTES", 1000)
         with pytest.raises(fo.InputError, match="more than the 0 MB|an analysis file may hold"):
             general_analysis().to_json()
 
@@ -385,7 +386,7 @@ class TestMalformedFiles:
         path.write_text(json.dumps(data), encoding="utf-8")
         assert path.stat().st_size > 60_000_000 > MAX_FILE_BYTES
         parsed = []
-        monkeypatch.setattr("firstorder.analysis._parse_json", lambda *a: parsed.append(a))
+        monkeypatch.setattr("firstorder.io.analysis_format.parse_json", lambda *a: parsed.append(a))
         with pytest.raises(fo.InputError, match=r"big\.json: is 62\.9 MB; an analysis file may hold at most 50 MB"):
             Analysis.load(path)
         assert parsed == []
@@ -394,12 +395,12 @@ class TestMalformedFiles:
         # A file (or device) that reports a small size but holds more is cut off at the limit.
         path = tmp_path / "a.json"
         path.write_bytes(b" " * 200)
-        monkeypatch.setattr("firstorder.analysis.MAX_FILE_BYTES", 100)
+        monkeypatch.setattr("firstorder.io.analysis_format.MAX_FILE_BYTES", 100)
 
         class Small:
             st_size = 10
 
-        monkeypatch.setattr("firstorder.analysis.os.stat", lambda p: Small())
+        monkeypatch.setattr("firstorder.io.analysis_format.os.stat", lambda p: Small())
         with pytest.raises(fo.InputError, match="holds more than"):
             Analysis.load(path)
 
@@ -463,7 +464,7 @@ class TestNothingIsExecuted:
             file = write_json(tmp_path / "a.json", _set(_text_data(), list(path), HOSTILE.format(marker="x")))
             with pytest.raises(fo.InputError) as caught:
                 Analysis.load(file)
-            refused.append(str(caught.value).startswith(f"{file}: {_path_text(list(path))}: "))
+            refused.append(str(caught.value).startswith(f"{file}: {path_text(list(path))}: "))
         assert len(refused) >= 25 and all(refused)
 
     def test_every_text_field_is_tried(self):
@@ -482,7 +483,7 @@ class TestNothingIsExecuted:
         except fo.InputError as error:
             if _is_value_field(path):
                 # Refused, naming the field's own JSON path.
-                assert str(error).startswith(f"{file}: {_path_text(list(path))}: "), str(error)
+                assert str(error).startswith(f"{file}: {path_text(list(path))}: "), str(error)
             # A strange name or node is only text; what refuses it is the fixture no longer
             # fitting together (a node with one part, a drive column for no source).
         else:
@@ -535,7 +536,7 @@ class TestNoEvaluation:
         path = write_json(tmp_path / "a.json", _text_data())
         code = (
             "import builtins, pickle, sys\n"
-            "import firstorder as fo, firstorder._schema\n"
+            "import firstorder as fo, firstorder.io.schema\n"
             "def guard(original):\n"
             "    def run(source, *a, **k):\n"
             "        if isinstance(source, (str, bytes)):\n"

@@ -13,7 +13,7 @@ import pytest
 import sympy as sp
 
 import firstorder as fo
-from firstorder import _report
+from firstorder.report import mathml as report_mathml, tables as report_tables
 from firstorder.analysis import EMBED_ID, Analysis
 
 CHROMIUM = "/usr/bin/chromium"
@@ -168,7 +168,7 @@ class TestReport:
         states = [[(code >> j) & 1 for code in range(16)] for j in range(4)]
         drive = fo.Drive(np.arange(16) * 1e-5, 16e-5, vref=np.ones(16), **{f"k{j}": states[j] for j in range(4)})
         section = Analysis(fx, drive).to_html().split("<section id=derivations>")[1].split("</section>")[0]
-        assert section.count("<h3>") == _report.MAX_DERIVATIONS == 8
+        assert section.count("<h3>") == report_tables.MAX_DERIVATIONS == 8
         assert "8 further configurations are not shown" in section
 
 
@@ -190,7 +190,7 @@ class TestLayers:
         # Reports need bokeh, not a notebook: the figure module stays free of ipywidgets.
         import ast
 
-        import firstorder.widgets.report_figure as module
+        import firstorder.report.figure as module
 
         tree = ast.parse(open(module.__file__, encoding="utf-8").read())
         imported = {alias.name.split(".")[0] for node in ast.walk(tree) if isinstance(node, ast.Import)
@@ -215,16 +215,16 @@ class TestLayers:
 class TestMathml:
     def test_presentation_markup(self):
         r, c = sp.symbols("r c", positive=True)
-        text = _report.mathml(sp.Eq(sp.Symbol("tau"), r * c))
+        text = report_mathml.mathml(sp.Eq(sp.Symbol("tau"), r * c))
         assert text.startswith('<math xmlns="http://www.w3.org/1998/Math/MathML" display="block">')
         assert "<mi>&#964;</mi><mo>=</mo><mrow><mi>c</mi><mo>&#xB7;</mo><mi>r</mi></mrow>" in text
 
     @pytest.mark.parametrize("name", ["<script>alert(1)</script>", "a&b", "x\"><img src=x onerror=alert(1)>"])
     def test_names_are_escaped(self, name):
         t = sp.Symbol("t")
-        text = _report.mathml(sp.Eq(sp.Function(name)(t), sp.Symbol(name) + 1))
+        text = report_mathml.mathml(sp.Eq(sp.Function(name)(t), sp.Symbol(name) + 1))
         assert "<script" not in text and "<img" not in text
-        check = _report._MathMLCheck()
+        check = report_mathml._MathMLCheck()
         check.feed(text)
         assert check.clean
 
@@ -233,7 +233,7 @@ class TestMathml:
 
         printer = sys.modules["sympy.printing.mathml"]  # the package re-exports the function under the same name
         monkeypatch.setattr(printer, "mathml", lambda *a, **k: "<mi>x</mi><iframe></iframe>")
-        assert _report.mathml(sp.Symbol("x")) == "<code>x</code>"
+        assert report_mathml.mathml(sp.Symbol("x")) == "<code>x</code>"
 
 
 class TestDerivationLatex:
@@ -322,7 +322,7 @@ def test_mathml_writes_decay_as_a_power_of_e():
     # Engineers write v * e^(-t/tau); sympy's MathML printer alone gives v / e^(t/tau).
     import sympy as sp
 
-    from firstorder._report import mathml
+    from firstorder.report.mathml import mathml
 
     t, tau, v = sp.symbols("t tau v", positive=True)
     text = mathml(v * sp.exp(-t / tau))

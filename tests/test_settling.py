@@ -610,7 +610,7 @@ class TestPlanDwells:
         (dict(levels={"vin": []}), "levels"),
         (dict(levels={"vin": [1.0, "x"]}), r"levels\.vin\[1\]"),
         (dict(levels={"vin": [1.0]}, min_dwell=-1e-6), "min_dwell"),
-        (dict(levels={"vin": [1.0]}, sample_delay=-1e-6), "sample_delay for step 0"),
+        (dict(levels={"vin": [1.0]}, sample_delay=-1e-6), "sample_delay: .* step 0"),
         (dict(levels={"vin": [1.0, 2.0]}, sample_delay=[0.0]), "sample_delay"),
         (dict(levels={"vin": [1.0]}, initial="cyclic"), "initial"),
         (dict(levels={"vin": [1.0]}, probe="nothing"), "probe"),

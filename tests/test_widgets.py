@@ -21,8 +21,8 @@ from hypothesis import strategies as st
 import firstorder as fo
 from firstorder.widgets import Bench
 from firstorder.widgets._drive_table import DriveText, parse_switch
-from firstorder.widgets._format import format_many
-from firstorder.widgets._sampling import envelope, plan_samples
+from firstorder.plotting.format import format_many
+from firstorder.plotting.sampling import envelope, plan_samples
 from firstorder.settling.tolerance import parse_tolerance, tolerance_text
 from firstorder.units import parse_value
 

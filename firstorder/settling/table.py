@@ -81,12 +81,14 @@ def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sam
                   ends: np.ndarray | None = None, past_end: str = "refuse") -> np.ndarray:
     """Delays after each change (s), one per segment, checked against their segments.
 
-    The one rule for a sample delay: one value for every segment, or one per
-    segment; each finite and >= 0.  A delay past its segment's end by no more than
-    the rounding of the instants (a few units in the last place of `ends`) is taken
-    as the end: a drive stores instants, so its durations can differ by that much
-    from the dwells it was built from.  Past that, ``past_end="refuse"`` raises
-    naming the segment; ``past_end="end"`` samples such a segment at its end.
+    The one rule for a sample delay, wherever one is given (settling tables, plans,
+    analysis files, the Bench): one value for every segment, or one per segment;
+    each a finite time >= 0 after its change.  A delay past its segment's end by
+    no more than the rounding of the instants (a few units in the last place of
+    `ends`) is taken as the end: a drive stores instants, so its durations can
+    differ by that much from the dwells it was built from.  Past that,
+    ``past_end="refuse"`` raises naming the segment; ``past_end="end"`` samples
+    such a segment at its end.
 
     Examples
     --------
@@ -95,26 +97,31 @@ def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sam
     >>> sample_delays("2m", np.array([1e-3, 5e-3]))
     Traceback (most recent call last):
     ...
-    firstorder.errors.InputError: sample_delay for segment 0: 0.002 s falls after the segment's end (segment 0 lasts 1 ms); a sample must fall inside its segment, from 0 to 1 ms after the change
+    firstorder.errors.InputError: sample_delay: '2m' is past the end of segment 0, which lasts 1 ms; a sample must fall inside its segment, from 0 to 1 ms after the change
     """
     n = durations.size
     if isinstance(sample_delay, (str, int, float, np.number)) and not isinstance(sample_delay, bool):
-        delays = np.full(n, parse_value(sample_delay, field=field, unit="s"))
+        delays = np.full(n, parse_value(sample_delay, field=field, unit="s", allow_infinite=True))
+        typed: Any = None
     else:
-        array = np.asarray(sample_delay) if not isinstance(sample_delay, bool) else None
-        if array is None or array.dtype.kind == "b" or array.size != n:
-            count = "a bool" if array is None or array.dtype.kind == "b" else f"{array.size} values"
+        array = None if isinstance(sample_delay, (bool, str, bytes, dict)) else np.asarray(sample_delay, dtype=object)
+        if array is None or array.ndim != 1 or any(isinstance(v, (bool, np.bool_)) for v in array.tolist()) \
+                or array.size != n:
+            count = (f"{array.size} delays" if array is not None and array.ndim == 1 and array.size != n
+                     else repr(sample_delay))
             raise InputError(
-                f"{field}: got {count}; give one delay in seconds for all {what}s or one per {what} ({n})"
+                f"{field}: got {count} for {n} {what}s; give one delay in seconds for every {what}, "
+                f"or one per {what}"
             )
-        if array.dtype.kind in "iuf":
-            delays = array.astype(np.float64).reshape(-1)
-        else:  # text such as "12u" among the numbers
+        typed = array.tolist()
+        if isinstance(sample_delay, np.ndarray) and sample_delay.dtype.kind in "iuf":
+            delays = sample_delay.astype(np.float64).reshape(-1)  # a million delays need no Python loop
+        else:
             delays = np.array([
-                float(item) if isinstance(item, (float, int, np.number)) and not isinstance(item, bool)
+                float(item) if isinstance(item, (float, int, np.number))
                 else parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
-                for k, item in enumerate(array.reshape(-1).tolist())
-            ])
+                for k, item in enumerate(typed)
+            ], dtype=np.float64)
     late = delays > durations
     if late.any():
         if past_end == "end":
@@ -125,14 +132,17 @@ def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sam
     bad = ~np.isfinite(delays) | (delays < 0) | (delays > durations)
     if bad.any():
         k = int(np.argmax(bad))
+        where = f"{field}[{k}]" if typed is not None else field
+        given = typed[k] if typed is not None else sample_delay
+        given = float(given) if isinstance(given, np.number) else given
         value, length = float(delays[k]), float(durations[k])
         if not math.isfinite(value) or value < 0:
-            reason = "must be a finite time >= 0"
-        else:
-            reason = f"falls after the {what}'s end ({what} {k} lasts {format_value(length, 's')})"
-        inside = (f"; a sample must fall inside its {what}, from 0 to {format_value(length, 's')} "
-                  f"after the change") if math.isfinite(length) else ""
-        raise InputError(f"{field} for {what} {k}: {value!r} s {reason}{inside}")
+            raise InputError(f"{where}: {given!r} is not allowed for {what} {k}; a sample delay is a finite time "
+                             f">= 0 after the change")
+        raise InputError(
+            f"{where}: {given!r} is past the end of {what} {k}, which lasts {format_value(length, 's')}; a sample "
+            f"must fall inside its {what}, from 0 to {format_value(length, 's')} after the change"
+        )
     return delays
 
 
@@ -199,7 +209,7 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
     >>> table = settling_table(res, fo.Tolerance.lsb(bits=12, span=5.0), sample_delay="12m", probe=None)
     Traceback (most recent call last):
     ...
-    firstorder.errors.InputError: sample_delay for segment 0: 0.012 s falls after the segment's end (segment 0 lasts 1 ms); a sample must fall inside its segment, from 0 to 1 ms after the change
+    firstorder.errors.InputError: sample_delay: '12m' is past the end of segment 0, which lasts 1 ms; a sample must fall inside its segment, from 0 to 1 ms after the change
     >>> table = settling_table(res, fo.Tolerance.lsb(bits=12, span=5.0), sample_delay=[0.0, "12m"])
     >>> round(float(table.loc[1, "settle_time"]) / 1e-3, 3)    # (12 + 1) ln 2 time constants
     9.011

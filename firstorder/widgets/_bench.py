@@ -29,7 +29,8 @@ from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
 from ..units import format_value, parse_value
 from ._drive_table import DriveText
 from ._loader import publish_bokehjs
-from ._plot import LABELS, MAX_HANDLES, PIXELS, Plots, View
+from ..plotting.palette import component_label
+from ._plot import MAX_HANDLES, PIXELS, Plots, View
 
 __all__ = ["Bench"]
 
@@ -314,7 +315,7 @@ class Bench(widgets.VBox):
         self.overlays: dict[str, widgets.ToggleButton] = {}
         buttons = []
         for name in self._curve_names:
-            label = LABELS.get(name, f"from {name}")
+            label = component_label(name)
             button = widgets.ToggleButton(value=name in self._visible, description=label,
                                           layout=widgets.Layout(width="146px"))
             button.tooltip = f"show or hide the {label} curve"

@@ -14,7 +14,7 @@ import numpy as np
 from ..drive import Drive
 from ..errors import InputError
 from ..units import parse_value
-from ._format import format_many
+from ..plotting.format import format_many
 
 __all__ = ["DriveText", "switch_text", "parse_switch"]
 

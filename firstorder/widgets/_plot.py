@@ -1,7 +1,7 @@
 """The Bench's two linked bokeh panels: the drive above, the response below.
 
 Data flow is one way: the Bench hands in a response and a view, this module
-chooses the samples (:mod:`._sampling`), evaluates every visible component on
+chooses the samples (:mod:`firstorder.plotting.sampling`), evaluates every visible component on
 one shared time array, and assigns whole new dicts to the data sources.
 """
 
@@ -17,30 +17,13 @@ from bokeh.models import (
 )
 from bokeh.plotting import figure
 
-from ..response import COMPONENTS
-from ._format import HOVER_CODE, TICK_CODE
-from ._sampling import envelope, plan_samples, segments_in_view
+from ..plotting.format import HOVER_CODE, TICK_CODE
+from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, SAMPLE_FAIL, SAMPLE_NEUTRAL, SAMPLE_PASS, SELECTION_COLOUR,
+                                TOLERANCE_COLOUR, component_label, source_colour, switch_colour)
+from ..plotting.sampling import envelope, plan_samples, segments_in_view, step_envelope
 
-__all__ = ["Plots", "COLOURS", "LABELS"]
+__all__ = ["MAX_HANDLES", "PIXELS", "Plots", "View"]
 
-#: Our own palette: total dark and solid, the splits in muted distinct hues.
-COLOURS = {
-    "total": "#17324d",
-    "zero_input": "#c27c0e",
-    "zero_state": "#0f7b6c",
-    "forced": "#7d3c98",
-    "natural": "#b03a2e",
-}
-CONTRIBUTION_COLOURS = ("#2874a6", "#ca6f1e", "#1e8449", "#884ea0", "#a93226", "#566573")
-SWITCH_COLOURS = ("#5dade2", "#f5b041", "#58d68d", "#af7ac5", "#ec7063")
-LABELS = {
-    "total": "total",
-    "zero_input": "zero-input",
-    "zero_state": "zero-state",
-    "forced": "forced",
-    "natural": "natural",
-}
-LINE_DASH = {"forced": "dashed", "natural": "dotdash"}
 #: Drag handles are offered up to this many changes (beyond it, edit the table).
 MAX_HANDLES = 400
 PLOT_WIDTH = 720
@@ -130,14 +113,13 @@ class Plots:
                 source = ColumnDataSource({"left": [], "right": [], "bottom": [], "top": []})
                 self.sources[f"switch.{name}"] = source
                 renderer = fig.quad(left="left", right="right", bottom="bottom", top="top", source=source,
-                                    y_range_name="lanes", fill_color=SWITCH_COLOURS[j % len(SWITCH_COLOURS)],
+                                    y_range_name="lanes", fill_color=switch_colour(j),
                                     fill_alpha=0.28, line_alpha=0)
                 items.append(LegendItem(label=f"{name} closed", renderers=[renderer]))
-        palette = CONTRIBUTION_COLOURS
         for j, name in enumerate(names):
             source = ColumnDataSource(_empty_curve())
             self.sources[f"drive.{name}"] = source
-            colour = palette[j % len(palette)]
+            colour = source_colour(j)
             line = fig.step("t", "y", source=source, mode="after", line_width=2, color=colour)
             band = fig.varea("t", "low", "high", source=source, fill_color=colour, fill_alpha=0.45, visible=False)
             self.line_renderers[f"drive.{name}"] = line
@@ -168,7 +150,7 @@ class Plots:
             self.sources["selection"] = ColumnDataSource({"left": [], "right": []})
         fig.extra_y_ranges = {**fig.extra_y_ranges, "full": Range1d(0, 1)}
         fig.quad(left="left", right="right", bottom=0, top=1, y_range_name="full",
-                 source=self.sources["selection"], fill_color="#f4d03f", fill_alpha=0.22, line_alpha=0)
+                 source=self.sources["selection"], fill_color=SELECTION_COLOUR, fill_alpha=0.22, line_alpha=0)
 
     def _build_response_figure(self, curve_names, contributions, unit, label, trace_name) -> None:
         fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
@@ -181,12 +163,12 @@ class Plots:
         tolerance = ColumnDataSource({"left": [], "right": [], "bottom": [], "top": []})
         self.sources["tolerance"] = tolerance
         tolerance_renderer = fig.quad(left="left", right="right", bottom="bottom", top="top", source=tolerance,
-                                      fill_color="#82e0aa", fill_alpha=0.35, line_alpha=0)
+                                      fill_color=TOLERANCE_COLOUR, fill_alpha=0.35, line_alpha=0)
         items = [LegendItem(label="tolerance band", renderers=[tolerance_renderer])]
         for name in curve_names:
-            colour = COLOURS.get(name)
+            colour = COMPONENT_COLOURS.get(name)
             if colour is None:
-                colour = CONTRIBUTION_COLOURS[contributions.index(name) % len(CONTRIBUTION_COLOURS)]
+                colour = source_colour(contributions.index(name))
             source = ColumnDataSource(_empty_curve())
             self.sources[name] = source
             line = fig.line("t", "y", source=source, color=colour, line_width=2.4 if name == "total" else 1.6,
@@ -194,7 +176,7 @@ class Plots:
             band = fig.varea("t", "low", "high", source=source, fill_color=colour, fill_alpha=0.5, visible=False)
             self.line_renderers[name] = line
             self.band_renderers[name] = band
-            text = LABELS.get(name, f"from {name}")
+            text = component_label(name)
             item = LegendItem(label=text, renderers=[line, band])
             self.legend_items[name] = item
             items.append(item)
@@ -283,8 +265,7 @@ class Plots:
                 y = np.append(levels[first:last + 1], levels[last])
                 source.data = {"t": t, "y": y, "low": y, "high": y}
             else:
-                index = np.clip(np.searchsorted(drive.times, plan.times, side="right") - 1, 0, len(drive) - 1)
-                low, high = envelope(plan, levels[index])
+                low, high = step_envelope(plan, drive.times, levels)
                 source.data = {"t": plan.centres, "y": 0.5 * (low + high), "low": low, "high": high}
             self.line_renderers[f"drive.{name}"].visible = plan.mode == "line"
             self.band_renderers[f"drive.{name}"].visible = plan.mode == "envelope"
@@ -337,9 +318,9 @@ class Plots:
         error = sampled - final[inside]
         if tolerance is not None:
             ok = np.abs(error) <= tolerance.limit(final - at_start["total"])[inside]
-            colour = np.where(ok, "#27ae60", "#e74c3c").tolist()
+            colour = np.where(ok, SAMPLE_PASS, SAMPLE_FAIL).tolist()
         else:
-            colour = ["#5d6d7e"] * instants.size
+            colour = [SAMPLE_NEUTRAL] * instants.size
         self.sources["samples"].data = {"t": instants, "y": sampled, "colour": colour, "error": error}
 
     def update_settle_marks(self, response, probe, table, view: View) -> None:
@@ -370,8 +351,7 @@ def _runs(starts, ends, closed, plan, view) -> tuple[np.ndarray, np.ndarray]:
     """Left and right edges of the stretches where `closed` holds (merged per pixel when crowded)."""
     if plan.mode == "envelope":
         edges = plan.edges
-        index = np.clip(np.searchsorted(starts, plan.times, side="right") - 1, 0, starts.size - 1)
-        low, high = envelope(plan, closed[index].astype(float))
+        low, high = step_envelope(plan, starts, closed.astype(float))
         marked = high > 0
         starts, ends, closed = edges[:-1], edges[1:], marked
     if not closed.any():

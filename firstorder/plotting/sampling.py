@@ -21,7 +21,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["SamplePlan", "plan_samples", "envelope", "segments_in_view"]
+__all__ = ["SamplePlan", "envelope", "plan_samples", "segments_in_view", "step_envelope"]
 
 #: Offsets after each change, in time constants, where the curve bends most.
 DENSE_TAUS = np.array([1 / 64, 1 / 32, 1 / 16, 1 / 8, 1 / 4, 1 / 2, 3 / 4, 1, 1.5, 2, 3, 4, 6, 9, 14])
@@ -165,3 +165,19 @@ def envelope(plan: SamplePlan, values: np.ndarray) -> tuple[np.ndarray, np.ndarr
     low[:-1] = np.minimum(low[:-1], values[edge_positions])
     high[:-1] = np.maximum(high[:-1], values[edge_positions])
     return low, high
+
+
+def step_envelope(plan: SamplePlan, starts: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`envelope` of a piecewise-constant column (a drive's levels, each segment's
+    final value): ``values[k]`` holds from ``starts[k]`` to the next start.
+
+    Examples
+    --------
+    >>> starts = np.arange(100.0)
+    >>> plan = plan_samples(starts, 100.0, np.ones(100), 0.0, 100.0, 16)
+    >>> low, high = step_envelope(plan, starts, starts % 2)
+    >>> low.tolist() == [0.0] * 16, high.tolist() == [1.0] * 16
+    (True, True)
+    """
+    index = np.clip(np.searchsorted(starts, plan.times, side="right") - 1, 0, starts.size - 1)
+    return envelope(plan, np.asarray(values, dtype=float)[index])

@@ -1,16 +1,18 @@
 """The report's figure: drive and response on one time axis, as a standalone HTML page.
 
-:mod:`firstorder._report` writes the report's text; this module adds the
+:mod:`firstorder.report.html` writes the report's text; this module adds the
 interactive plot and assembles the page, with BokehJS inline (nothing is
-fetched from the network).  It imports bokeh, which only this package may do,
-and no ipywidgets, so a report needs bokeh but not a notebook.
+fetched from the network).  It imports bokeh and no ipywidgets, so a report
+needs bokeh but not a notebook.  Colours and names come from
+:mod:`firstorder.plotting.palette`, as on the Bench.
 
 How the plot samples a response: with up to :data:`MAX_DETAILED_SEGMENTS`
 segments every segment gets :data:`POINTS_PER_SEGMENT` points, packed towards
 its change where the exponential moves fastest, plus its exact end value.
-Longer drives are drawn as a min/max band per screen column, which is exact:
-within a segment a first-order state moves monotonically, so the extremes in
-a column are at its edges or at the changes inside it.
+Longer drives are drawn as a min/max band per screen column
+(:func:`firstorder.plotting.sampling.envelope`), which is exact: within a
+segment a first-order state moves monotonically, so the extremes in a column
+are at its edges or at the changes inside it.
 """
 
 from __future__ import annotations
@@ -24,9 +26,13 @@ from bokeh.models import ColumnDataSource, HoverTool
 from bokeh.plotting import figure
 from bokeh.resources import INLINE
 
+from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, TOLERANCE_COLOUR, component_label, source_colour,
+                                switch_colour)
+from ..plotting.sampling import envelope, plan_samples, step_envelope
+
 if TYPE_CHECKING:
     from ..response import Response
-    from ..settling import Tolerance
+    from ..settling.tolerance import Tolerance
 
 __all__ = ["response_figure", "standalone_page", "MAX_DETAILED_SEGMENTS"]
 
@@ -35,26 +41,9 @@ POINTS_PER_SEGMENT = 24
 ENVELOPE_COLUMNS = 1_500
 _FRAME_WIDTH = 640
 
-# Our own palette: one colour per component, readable on white and in grey print.
-_COLOURS = {
-    "total": "#1b3a5c",
-    "zero_input": "#c0392b",
-    "zero_state": "#2e8b57",
-    "forced": "#7f7f7f",
-    "natural": "#d68910",
-}
-_SOURCE_COLOURS = ("#6c3483", "#117a8b", "#a04000", "#196f3d", "#5d6d7e", "#922b21")
-_LABELS = {
-    "total": "total",
-    "zero_input": "zero-input",
-    "zero_state": "zero-state",
-    "forced": "forced (final value)",
-    "natural": "natural",
-}
-
 # The page around the plot; bokeh's own file template supplies <head> and the
 # inline BokehJS bundle, and we fill its blocks.  Every variable is HTML made
-# and escaped by firstorder._report.
+# and escaped by firstorder.report.html.
 _TEMPLATE = """
 {% from macros import embed %}
 {% block postamble %}{{ report_head }}{% endblock %}
@@ -90,38 +79,13 @@ def _detailed_times(response: "Response") -> np.ndarray:
     return grid.reshape(-1)
 
 
-def _column_edges(response: "Response") -> np.ndarray:
-    return np.linspace(response.starts[0], response.drive.end, ENVELOPE_COLUMNS + 1)
+def _envelope_plan(response: "Response"):
+    """Where to evaluate a long response so that each screen column's extremes are exact."""
+    return plan_samples(response.starts, response.drive.end, response.tau, response.starts[0], response.drive.end,
+                        ENVELOPE_COLUMNS)
 
 
-def _column_of(times: np.ndarray, edges: np.ndarray) -> np.ndarray:
-    return np.clip(np.searchsorted(edges, times, side="right") - 1, 0, edges.size - 2)
-
-
-def _state_envelope(response: "Response", edges: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Exact min and max of the total state in every column between `edges`."""
-    at_edges = np.asarray(response.total(edges))
-    low = np.minimum(at_edges[:-1], at_edges[1:])
-    high = np.maximum(at_edges[:-1], at_edges[1:])
-    inside = _column_of(response.starts, edges)
-    states = response.boundary[:-1]
-    np.minimum.at(low, inside, states)
-    np.maximum.at(high, inside, states)
-    return low, high
-
-
-def _step_envelope(values: np.ndarray, starts: np.ndarray, edges: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Min and max of a piecewise-constant column over every column between `edges`."""
-    active = np.clip(np.searchsorted(starts, edges[:-1], side="right") - 1, 0, starts.size - 1)
-    low = values[active].astype(float)
-    high = low.copy()
-    inside = _column_of(starts, edges)
-    np.minimum.at(low, inside, values)
-    np.maximum.at(high, inside, values)
-    return low, high
-
-
-def _drive_figure(response: "Response", factor: float, unit: str, detailed: bool, edges: np.ndarray):
+def _drive_figure(response: "Response", factor: float, unit: str, detailed: bool, plan):
     fixture = response.fixture
     drive = response.drive
     source_names = [p.name for p in fixture.sources]
@@ -133,15 +97,15 @@ def _drive_figure(response: "Response", factor: float, unit: str, detailed: bool
     )
     x = np.append(drive.times, drive.end) * factor
     for j, name in enumerate(source_names):
-        colour = _SOURCE_COLOURS[j % len(_SOURCE_COLOURS)]
+        colour = source_colour(j)
         levels = drive.levels(name)
         if detailed:
             y = np.append(levels, levels[-1])
             panel.step(x, y, mode="after", line_width=2, color=colour, legend_label=name)
         else:
-            low, high = _step_envelope(levels, drive.times, edges)
-            centres = 0.5 * (edges[:-1] + edges[1:]) * factor
-            panel.varea(centres, low, high, fill_color=colour, fill_alpha=0.5, legend_label=f"{name} (range per column)")
+            low, high = step_envelope(plan, drive.times, levels)
+            panel.varea(plan.centres * factor, low, high, fill_color=colour, fill_alpha=0.5,
+                        legend_label=f"{name} (range per column)")
     if not source_names:
         panel.title.text = "Drive: no sources"
     switch_panel = None
@@ -155,14 +119,15 @@ def _drive_figure(response: "Response", factor: float, unit: str, detailed: bool
         switch_panel.yaxis.major_label_overrides = {j + 0.4: name for j, name in enumerate(switch_names)}
         for j, name in enumerate(switch_names):
             states = drive.levels(name)
+            colour = switch_colour(j)
             if detailed:
                 y = np.append(states, states[-1])
                 switch_panel.varea_step(x=x, y1=np.full(x.size, float(j)), y2=j + 0.8 * y,
-                                        step_mode="after", fill_color="#5b7fa6", fill_alpha=0.6)
+                                        step_mode="after", fill_color=colour, fill_alpha=0.6)
             else:
-                low, high = _step_envelope(states, drive.times, edges)
-                centres = 0.5 * (edges[:-1] + edges[1:]) * factor
-                switch_panel.varea(centres, j + 0.8 * low, j + 0.8 * high, fill_color="#5b7fa6", fill_alpha=0.6)
+                low, high = step_envelope(plan, drive.times, states)
+                switch_panel.varea(plan.centres * factor, j + 0.8 * low, j + 0.8 * high, fill_color=colour,
+                                   fill_alpha=0.6)
     return panel, switch_panel
 
 
@@ -185,14 +150,14 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None):
     span = float(drive.end - drive.times[0])
     factor, unit = _time_scale(span)
     detailed = len(drive) <= MAX_DETAILED_SEGMENTS
-    edges = _column_edges(response)
+    plan = None if detailed else _envelope_plan(response)
     plot = figure(
         height=380, frame_width=_FRAME_WIDTH,
         title=f"Response: state of {response.fixture.storage.kind} '{response.fixture.storage.name}'",
         x_axis_label=f"time ({unit})", y_axis_label=f"state ({state_unit})",
         tools="pan,xwheel_zoom,box_zoom,reset,save",
     )
-    drive_panel, switch_panel = _drive_figure(response, factor, unit, detailed, edges)
+    drive_panel, switch_panel = _drive_figure(response, factor, unit, detailed, plan)
     plot.x_range = drive_panel.x_range
     source_names = [p.name for p in response.fixture.sources]
     if detailed:
@@ -205,22 +170,21 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None):
             x = np.append(drive.times, drive.end) * factor
             low = np.append(response.final - limit, (response.final - limit)[-1])
             high = np.append(response.final + limit, (response.final + limit)[-1])
-            plot.varea_step(x=x, y1=low, y2=high, step_mode="after", fill_color="#9ecae1",
+            plot.varea_step(x=x, y1=low, y2=high, step_mode="after", fill_color=TOLERANCE_COLOUR,
                             fill_alpha=0.45, legend_label="tolerance band")
         renderers = []
         for name in components:
             source = ColumnDataSource({"t": t * factor, "y": values[name]})
-            dash = "dashed" if name in ("forced", "natural") else "solid"
             renderers.append(plot.line(
-                "t", "y", source=source, color=_COLOURS[name], line_width=3 if name == "total" else 1.8,
-                line_dash=dash, legend_label=_LABELS[name], name=_LABELS[name],
+                "t", "y", source=source, color=COMPONENT_COLOURS[name], line_width=3 if name == "total" else 1.8,
+                line_dash=LINE_DASH.get(name, "solid"), legend_label=component_label(name), name=component_label(name),
             ))
         if len(source_names) > 1:
             for j, name in enumerate(source_names):
                 source = ColumnDataSource({"t": t * factor, "y": values[name]})
                 renderers.append(plot.line(
-                    "t", "y", source=source, color=_SOURCE_COLOURS[j % len(_SOURCE_COLOURS)],
-                    line_width=1.5, line_dash="dotted", legend_label=f"from {name}", name=f"from {name}",
+                    "t", "y", source=source, color=source_colour(j),
+                    line_width=1.5, line_dash="dotted", legend_label=component_label(name), name=component_label(name),
                 ))
         plot.add_tools(HoverTool(
             renderers=renderers,
@@ -234,12 +198,12 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None):
             if renderer.name == "natural" or renderer.name.startswith("from "):
                 renderer.visible = False
     else:
-        centres = 0.5 * (edges[:-1] + edges[1:]) * factor
-        low, high = _state_envelope(response, edges)
-        forced_low, forced_high = _step_envelope(response.final, response.starts, edges)
-        plot.varea(centres, forced_low, forced_high, fill_color=_COLOURS["forced"], fill_alpha=0.35,
+        centres = plan.centres * factor
+        low, high = envelope(plan, response.total(plan.times))
+        forced_low, forced_high = step_envelope(plan, response.starts, response.final)
+        plot.varea(centres, forced_low, forced_high, fill_color=COMPONENT_COLOURS["forced"], fill_alpha=0.35,
                    legend_label="forced (range per column)")
-        plot.varea(centres, low, high, fill_color=_COLOURS["total"], fill_alpha=0.6,
+        plot.varea(centres, low, high, fill_color=COMPONENT_COLOURS["total"], fill_alpha=0.6,
                    legend_label="total (range per column)")
         caption = (
             f"{len(drive)} segments, more than a screen shows: each of {ENVELOPE_COLUMNS} columns is "

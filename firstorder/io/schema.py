@@ -24,8 +24,8 @@ from pydantic import (
     StrictStr,
 )
 
-from .analysis import FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES
-from .units import parse_value
+from ..units import parse_value
+from .analysis_format import FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES
 
 __all__ = ["AnalysisFile"]
 

@@ -1,0 +1,184 @@
+"""The report as one standalone, offline HTML page.
+
+Styles inline, BokehJS inline (:mod:`.figure`), the derivations as MathML
+(:mod:`.mathml`), the rows from :mod:`.tables`, and the analysis JSON in a
+``<script type="application/json">`` block that :meth:`Analysis.load
+<firstorder.analysis.Analysis.load>` reads back.  Everything the user typed
+(title, notes, names, values) is escaped before it reaches the page.
+"""
+
+from __future__ import annotations
+
+from html import escape
+from typing import TYPE_CHECKING
+
+from ..units import format_value
+from .mathml import derivation_steps, mathml
+from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, drive_rows, drive_summary_rows, part_rows,
+                     probe_rows, settling_rows, states_text, summary_rows, timestamp, version)
+
+if TYPE_CHECKING:
+    from ..analysis import Analysis
+    from ..drive import Drive
+
+__all__ = ["html_report"]
+
+_CSS = """
+<style>
+  body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; color: #1d2733;
+         max-width: 980px; margin: 0 auto; padding: 1.2em 1.5em 3em; line-height: 1.45;
+         height: auto; display: block; }
+  h1 { font-size: 1.7em; margin-bottom: 0.1em; color: #14324f; }
+  h2 { font-size: 1.25em; border-bottom: 2px solid #d5dee8; padding-bottom: 0.15em; margin-top: 1.8em; color: #14324f; }
+  h3 { font-size: 1.05em; margin-bottom: 0.3em; }
+  .meta { color: #5a6877; font-size: 0.9em; }
+  .notes { white-space: pre-wrap; background: #f5f8fb; border-left: 4px solid #8fa9c4; padding: 0.6em 0.9em; }
+  table.fo { border-collapse: collapse; font-size: 0.88em; margin: 0.4em 0 0.8em; }
+  table.fo th, table.fo td { padding: 2px 9px; text-align: left; border-bottom: 1px solid #dde3ea; }
+  table.fo th { background: #eef2f6; }
+  table.fo td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+  tr.bad td { background: #fbeaea; }
+  .caution { border-left: 4px solid #b03a2e; background: #fdf2f1; padding: 0.5em 0.8em; margin: 0.4em 0; }
+  .fine { color: #2e6b3f; }
+  ol.steps li { margin-bottom: 0.6em; }
+  /* Display-style maths, set flush left under its caption (block math is centred). */
+  div.eq { margin: 0.35em 0 0.35em 1.5em; }
+  div.eq math { display: inline math; math-style: normal; }
+  footer { margin-top: 2.5em; font-size: 0.85em; color: #5a6877; border-top: 1px solid #d5dee8; padding-top: 0.6em; }
+  code { background: #eef2f6; padding: 0 0.25em; }
+</style>
+"""
+
+
+def _html_table(header: list[str] | None, rows: list[list[str]], numeric_from: int | None = None) -> str:
+    head = "<thead><tr>" + "".join(f"<th>{escape(h)}</th>" for h in header) + "</tr></thead>" if header else ""
+    body = []
+    for row in rows:
+        cells = "".join(
+            f"<td{' class=num' if numeric_from is not None and i >= numeric_from else ''}>{escape(str(c))}</td>"
+            for i, c in enumerate(row)
+        )
+        body.append(f"<tr>{cells}</tr>")
+    return f"<table class=fo>{head}<tbody>{''.join(body)}</tbody></table>"
+
+
+def _settling_html(analysis: "Analysis") -> str:
+    if analysis.tolerance is None:
+        return ("<p>No tolerance was given, so there is no settling table. Give one with "
+                "<code>tolerance=fo.Tolerance.lsb(bits=16, span=5.0)</code> (for example).</p>")
+    table = analysis.settling()
+    unit = analysis.fixture.state_unit
+    header, rows, left_out = settling_rows(table, unit)
+    head = "".join(f"<th>{escape(h)}</th>" for h in header)
+    body = "".join(
+        f"<tr{' class=bad' if bad else ''}><td>{k}</td>"
+        + "".join(f"<td class=num>{escape(c)}</td>" for c in cells) + "</tr>"
+        for k, cells, bad in rows
+    )
+    not_settled = int((~table["settled"].to_numpy(dtype=bool)).sum()) if "settled" in table.columns else 0
+    failed = int((~table["ok"].to_numpy(dtype=bool)).sum()) if "ok" in table.columns else 0
+    verdict = (f"{not_settled} of {len(table)} segments do not settle within the tolerance before they end "
+               "(settle time \"ends first\")"
+               + (f"; {failed} fail at their sample instant" if "ok" in table.columns else "") + ".")
+    note = f" {left_out} rows that settled are left out; the CLI's <code>settle</code> lists them all." if left_out else ""
+    return (f"<p>Tolerance {escape(str(analysis.tolerance))}. {escape(verdict)}{note}</p>"
+            f"<table class=fo><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
+
+
+def _cautions_html(analysis: "Analysis") -> str:
+    cautions = analysis.cautions
+    if not cautions:
+        return ("<p class=fine>No hazard was found by the checks firstorder makes (voltage and "
+                "stored energy); that is not a safety assessment.</p>")
+    items = []
+    for caution in cautions:
+        kind = getattr(caution, "kind", "")
+        label = f"<strong>{escape(str(kind).replace('_', ' '))}:</strong> " if kind else ""
+        items.append(f"<div class=caution>⚠ {label}{escape(str(caution))}</div>")
+    return "".join(items)
+
+
+def _derivations_html(analysis: "Analysis") -> str:
+    shown = analysis.derivations(limit=MAX_DERIVATIONS)
+    total = len(analysis.response.configurations)
+    parts = [
+        "<p>One derivation per switch configuration the drive uses. Within a segment, t is the "
+        "time since its change and the 0 subscript marks the state at that change.</p>"
+    ]
+    for states, derivation in shown:
+        parts.append(f"<h3>{escape(states_text(analysis.fixture, states))}</h3><ol class=steps>")
+        for caption, equations in derivation_steps(derivation):
+            maths = "".join(f"<div class=eq>{mathml(equation)}</div>" for equation in equations)
+            parts.append(f"<li>{escape(caption)}{maths}</li>")
+        parts.append("</ol>")
+    if total > len(shown):
+        parts.append(f"<p>{total - len(shown)} further configurations are not shown; "
+                     f"<code>firstorder derive</code> prints them all.</p>")
+    return "".join(parts)
+
+
+def _drive_html(drive: "Drive") -> str:
+    header, rows, shortened = drive_rows(drive)
+    text = []
+    if shortened:
+        text.append(
+            f"<p>{len(drive)} changes: the first {HEAD_ROWS} and the last {TAIL_ROWS} are listed, "
+            f"and each column is summarised. The whole drive is in the analysis embedded in this "
+            f"page.</p>"
+        )
+        text.append(_html_table(["column", "lowest", "highest", "distinct levels"], drive_summary_rows(drive), 1))
+    text.append(_html_table(header, rows, 2))
+    text.append(f"<p class=meta>The last segment ends at {escape(format_value(drive.end, 's'))}. "
+                f"Switch columns: 1 closed, 0 open.</p>")
+    return "".join(text)
+
+
+def html_report(analysis: "Analysis", now: str | None = None) -> str:
+    """The standalone HTML page for `analysis` (see :meth:`Analysis.report`)."""
+    try:
+        from .figure import standalone_page
+    except ImportError as error:
+        from ..errors import InputError
+
+        raise InputError(
+            f"report: needs bokeh for its plot ({error}); install it with "
+            f"pip install 'firstorder[widgets]'"
+        ) from None
+    from ..io.analysis_format import EMBED_ID
+
+    stamp = now or timestamp()
+    title = analysis.title or "firstorder analysis"
+    fixture = analysis.fixture
+    top = [
+        f"<header><h1>{escape(title)}</h1>",
+        f"<p class=meta>Written by firstorder {escape(version())} on {escape(stamp)}. "
+        f"This page needs no network; reload the analysis with "
+        f"<code>firstorder.Analysis.load(&quot;this-file.html&quot;)</code>.</p></header>",
+    ]
+    if analysis.notes:
+        top.append(f"<section id=notes><h2>Notes</h2><div class=notes>{escape(analysis.notes)}</div></section>")
+    top.append("<section id=summary><h2>Summary</h2>"
+               + _html_table(None, [list(r) for r in summary_rows(analysis)]) + "</section>")
+    top.append("<section id=parts><h2>Fixture</h2>"
+               + _html_table(["name", "kind", "nodes", "as typed", "value"], part_rows(fixture)))
+    if fixture.probes:
+        top.append("<h3>Probes</h3>" + _html_table(["name", "watches"], probe_rows(fixture)))
+    top.append("</section>")
+    top.append(f"<section id=drive><h2>Drive</h2>{_drive_html(analysis.drive)}</section>")
+    bottom = [
+        f"<section id=settling><h2>Settling</h2>{_settling_html(analysis)}</section>",
+        f"<section id=cautions><h2>Cautions</h2>{_cautions_html(analysis)}</section>",
+        f"<section id=derivations><h2>Derivations</h2>{_derivations_html(analysis)}</section>",
+        f"<footer>firstorder {escape(version())} · report written {escape(stamp)} · the analysis "
+        f"below this line is the whole input, in the firstorder-analysis JSON format, version 1.</footer>",
+        f'<script type="application/json" id="{EMBED_ID}">{analysis.embedded_json()}</script>',
+    ]
+    return standalone_page(
+        analysis.response,
+        title=title,
+        head_html=_CSS,
+        top_html="".join(top),
+        bottom_html="".join(bottom),
+        caption_html_for=lambda caption: f"<p class=meta>{escape(caption)}</p>",
+        tolerance=analysis.tolerance,
+    )

@@ -1,0 +1,63 @@
+"""The report as Markdown, for lab records (derivations as LaTeX display math)."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING, Any
+
+from ..units import format_value
+from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, drive_rows, drive_summary_rows, part_rows,
+                     probe_rows, settling_rows, states_text, summary_rows, timestamp, version)
+
+if TYPE_CHECKING:
+    from ..analysis import Analysis
+
+__all__ = ["markdown_report"]
+
+
+def _md_cell(value: Any) -> str:
+    return str(value).replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
+
+
+def _md_table(header: list[str], rows: list[list[str]]) -> str:
+    lines = ["| " + " | ".join(_md_cell(h) for h in header) + " |",
+             "|" + "|".join("---" for _ in header) + "|"]
+    lines += ["| " + " | ".join(_md_cell(c) for c in row) + " |" for row in rows]
+    return "\n".join(lines)
+
+
+def markdown_report(analysis: "Analysis", derivations: bool = True, now: str | None = None) -> str:
+    """A Markdown summary of `analysis` for lab records (see :meth:`Analysis.markdown`)."""
+    stamp = now or timestamp()
+    fixture = analysis.fixture
+    out = [f"# {_md_cell(analysis.title or 'firstorder analysis')}",
+           f"_Written by firstorder {version()} on {stamp}._"]
+    if analysis.notes:
+        out += ["## Notes", analysis.notes]
+    out += ["## Summary", _md_table(["", ""], [list(r) for r in summary_rows(analysis)])]
+    out += ["## Fixture", _md_table(["name", "kind", "nodes", "as typed", "value"], part_rows(fixture))]
+    if fixture.probes:
+        out += ["Probes:", _md_table(["name", "watches"], probe_rows(fixture))]
+    header, rows, shortened = drive_rows(analysis.drive)
+    out.append("## Drive")
+    if shortened:
+        out += [f"{len(analysis.drive)} changes; the first {HEAD_ROWS} and the last {TAIL_ROWS} are listed.",
+                _md_table(["column", "lowest", "highest", "distinct levels"], drive_summary_rows(analysis.drive))]
+    out += [_md_table(header, rows), f"The last segment ends at {format_value(analysis.drive.end, 's')}."]
+    out.append("## Settling")
+    if analysis.tolerance is None:
+        out.append("No tolerance was given.")
+    else:
+        table = analysis.settling()
+        header, rows, left_out = settling_rows(table, fixture.state_unit)
+        out.append(f"Tolerance {analysis.tolerance}.")
+        out.append(_md_table(header, [[str(k), *cells] for k, cells, _ in rows]))
+        if left_out:
+            out.append(f"{left_out} rows that settled are left out.")
+    out.append("## Cautions")
+    cautions = analysis.cautions
+    out.append("\n".join(f"- ⚠ {c}" for c in cautions) if cautions else "None raised by firstorder's checks.")
+    if derivations:
+        out.append("## Derivations")
+        for states, derivation in analysis.derivations(limit=MAX_DERIVATIONS):
+            out += [f"### {states_text(fixture, states)}", derivation.markdown()]
+    return "\n\n".join(out) + "\n"

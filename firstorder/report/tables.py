@@ -1,0 +1,179 @@
+"""Rows and cells shared by every place that shows an analysis: HTML, Markdown, the CLI, the Bench.
+
+Each function turns results into rows of text (engineering notation, words for
+flags), and nothing else: no markup.  The HTML and Markdown reports, the
+``firstorder settle`` table and the Bench's panels lay these rows out in their
+own way, so a number reads the same everywhere.
+"""
+
+from __future__ import annotations
+
+import datetime
+import math
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from ..units import format_value
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from ..analysis import Analysis
+    from ..drive import Drive
+    from ..fixture import Fixture
+
+__all__ = ["FULL_DRIVE_ROWS", "FULL_SETTLING_ROWS", "HEAD_ROWS", "MAX_DERIVATIONS", "TAIL_ROWS", "drive_rows",
+           "drive_summary_rows", "part_rows", "probe_rows", "settling_cell", "settling_rows", "states_text",
+           "summary_rows", "timestamp", "version"]
+
+#: A drive with at most this many changes is shown in full; longer ones are summarised.
+FULL_DRIVE_ROWS = 40
+HEAD_ROWS, TAIL_ROWS = 10, 5
+#: A settling table with at most this many rows is shown in full.
+FULL_SETTLING_ROWS = 200
+#: Derivations shown, in order of first use (each switch configuration has one).
+MAX_DERIVATIONS = 8
+
+def timestamp() -> str:
+    """The time now, as a report writes it (UTC, to the minute)."""
+    return datetime.datetime.now(datetime.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
+
+
+def version() -> str:
+    """The firstorder version that writes the report."""
+    from .. import __version__
+
+    return __version__
+
+
+def states_text(fixture: "Fixture", states: tuple[bool, ...]) -> str:
+    """``"k1 closed, k2 open"``, or ``"no switches"``."""
+    return fixture.describe_states(states) or "no switches"
+
+
+def summary_rows(analysis: "Analysis") -> list[tuple[str, str]]:
+    """(label, text) pairs summarising an analysis."""
+    response = analysis.response
+    fixture = analysis.fixture
+    drive = analysis.drive
+    unit = fixture.state_unit
+    storage = fixture.storage
+    rows = [
+        ("storage element", f"{storage.kind} '{storage.name}', {storage.describe_value()}; "
+                            f"state {'v' if unit == 'V' else 'i'}_{storage.name} in {unit}"),
+        ("starting state", f"{analysis.initial!r} → {format_value(response.initial, unit)}"),
+        ("drive", f"{len(drive)} segments from {format_value(drive.start, 's')} to "
+                  f"{format_value(drive.end, 's')}; columns {', '.join(drive.names)}"),
+    ]
+    configurations = response.configurations
+    order = dict.fromkeys(response.segment_configuration.tolist())
+    for index in order:
+        states = configurations[index]
+        tau = response.tau[response.segment_configuration == index][0]
+        text = "holds its state (no resistive path)" if math.isinf(tau) else format_value(float(tau), "s")
+        rows.append((f"time constant ({states_text(fixture, states)})", text))
+    rows.append(("state at the end", format_value(float(response.boundary[-1]), unit)))
+    rows.append(("tolerance", str(analysis.tolerance) if analysis.tolerance is not None else "none given"))
+    delay = analysis.sample_delay
+    if delay is None:
+        delay_text = "none given"
+    elif isinstance(delay, list):
+        delay_text = (f"one per segment, {format_value(min(delay), 's')} to "
+                      f"{format_value(max(delay), 's')} after the change")
+    else:
+        delay_text = f"{delay!r} after every change"
+    rows.append(("sample delay", delay_text))
+    return rows
+
+
+def part_rows(fixture: "Fixture") -> list[list[str]]:
+    """One row per part: name, kind, nodes, value as typed, value."""
+    rows = []
+    for part in fixture.parts:
+        typed = ", ".join(f"{key} {value!r}" if len(part.typed) > 1 else repr(value) for key, value in part.typed)
+        rows.append([part.name, part.kind.replace("_", " "), f"{part.a} → {part.b}",
+                     typed or "from the drive", part.describe_value()])
+    return rows
+
+
+def probe_rows(fixture: "Fixture") -> list[list[str]]:
+    """One row per probe: name, what it watches."""
+    return [[probe.name, probe.describe()] for probe in fixture.probes]
+
+
+def drive_rows(drive: "Drive") -> tuple[list[str], list[list[str]], bool]:
+    """Header and rows of the drive table, and whether rows were left out.
+
+    A short drive is given in full; a long one as its first and last rows,
+    with a row of ellipses between.
+    """
+    header = ["#", "change at", *drive.names]
+    n = len(drive)
+    shown = list(range(n)) if n <= FULL_DRIVE_ROWS else [*range(HEAD_ROWS), *range(n - TAIL_ROWS, n)]
+    columns = list(drive.columns.values())
+    rows = []
+    previous = None
+    for k in shown:
+        if previous is not None and k != previous + 1:
+            rows.append(["…"] * len(header))
+        rows.append([str(k), format_value(float(drive.times[k]), "s", digits=7), *(f"{float(c[k]):.6g}" for c in columns)])
+        previous = k
+    return header, rows, n > FULL_DRIVE_ROWS
+
+
+def drive_summary_rows(drive: "Drive") -> list[list[str]]:
+    """Per column: lowest, highest and how many distinct levels."""
+    rows = []
+    for name, values in drive.columns.items():
+        rows.append([name, f"{float(values.min()):.6g}", f"{float(values.max()):.6g}", str(np.unique(values).size)])
+    return rows
+
+
+_SETTLING_UNITS = {
+    "start": "s", "end": "s", "settle_time": "s", "sample_time": "s",
+    "start_value": None, "final": None, "tolerance": None, "residual_at_end": None,
+    "value_at_sample": None, "error_at_sample": None,
+}
+
+
+def settling_cell(column: str, value: Any, unit: str) -> str:
+    """One cell of a settling table as text: engineering notation, "yes"/"NO", "ends first"."""
+    if isinstance(value, (bool, np.bool_)):
+        return "yes" if value else "NO"
+    if isinstance(value, (int, np.integer)):
+        return str(int(value))
+    if isinstance(value, (float, np.floating)):
+        number = float(value)
+        if math.isnan(number):
+            return "ends first" if column == "settle_time" else "—"
+        known = _SETTLING_UNITS.get(column, "")
+        return format_value(number, known if known is not None else unit, digits=5)
+    return str(value)
+
+
+def settling_rows(table: "pd.DataFrame", unit: str) -> tuple[list[str], list[tuple[int, list[str], bool]], int]:
+    """Header, rows (segment, cells, bad) and how many rows were left out.
+
+    A long table keeps its first rows and every segment that did not settle
+    or failed at its sample, up to :data:`FULL_SETTLING_ROWS` in all.
+    """
+    header = ["segment", *[str(c).replace("_", " ") for c in table.columns]]
+    bad = np.zeros(len(table), dtype=bool)
+    if "settled" in table.columns:
+        bad |= ~table["settled"].to_numpy(dtype=bool)
+    if "ok" in table.columns:
+        bad |= ~table["ok"].to_numpy(dtype=bool)
+    if len(table) <= FULL_SETTLING_ROWS:
+        keep = np.arange(len(table))
+    else:
+        first = np.arange(FULL_SETTLING_ROWS // 2)
+        failing = np.flatnonzero(bad)
+        keep = np.union1d(first, failing)[:FULL_SETTLING_ROWS]
+    columns = list(table.columns)
+    values = [table[c].to_numpy() for c in columns]
+    rows = []
+    for k in keep.tolist():
+        cells = [settling_cell(c, v[k], unit) for c, v in zip(columns, values)]
+        rows.append((k, cells, bool(bad[k])))
+    return header, rows, len(table) - len(keep)
