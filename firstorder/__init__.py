@@ -6,6 +6,7 @@ and bokeh are imported when a derivation or the Bench is first asked for.
 
 from __future__ import annotations
 
+from ._version import __version__ as __version__
 from .analysis import Analysis
 from .cautions import Caution
 from .drive import Drive
@@ -38,7 +39,6 @@ __all__ = [
     "respond",
 ]
 
-__version__ = "0.1.0"
 
 
 def __getattr__(name: str):

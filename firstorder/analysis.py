@@ -40,6 +40,7 @@ from .errors import InputError
 from .fixture import Fixture
 from .io import analysis_format as file_format
 from .io.analysis_format import EMBED_ID, FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES, MAX_FILE_BYTES, as_typed, at
+from ._version import __version__
 from .io.atomic import write_atomic
 from .settling.table import sample_delays
 from .settling.tolerance import Tolerance
@@ -228,8 +229,6 @@ class Analysis:
     # -- plain data and JSON -----------------------------------------------------------------------
     def to_dict(self) -> dict[str, Any]:
         """The analysis as plain data in the file format (see the README for its fields)."""
-        from . import __version__
-
         parts = []
         for part in self._fixture.parts:
             record: dict[str, Any] = {"kind": part.kind, "name": part.name, "a": part.a, "b": part.b}

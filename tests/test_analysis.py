@@ -511,20 +511,6 @@ class TestNothingIsExecuted:
         assert not marker.exists()
 
 
-class TestImportCost:
-    def test_import_loads_no_schema_or_report_libraries(self):
-        # Reading files needs pydantic, reports need sympy and bokeh: none of them on `import firstorder`.
-        import subprocess
-        import sys
-
-        code = ("import sys, firstorder; "
-                "print(sorted(m for m in ('pydantic', 'sympy', 'bokeh', 'ipywidgets') if m in sys.modules))")
-        result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
-                                env=dict(os.environ, PYTHONPATH=os.path.dirname(os.path.dirname(fo.__file__))))
-        assert result.returncode == 0, result.stderr
-        assert result.stdout.strip() == "[]"
-
-
 class TestNoEvaluation:
     def test_load_calls_no_eval_exec_pickle_or_sympy(self, tmp_path):
         # Loading is parsing and validating only: with eval and exec refusing text (imports still

@@ -42,7 +42,7 @@ def timestamp() -> str:
 
 def version() -> str:
     """The firstorder version that writes the report."""
-    from .. import __version__
+    from .._version import __version__
 
     return __version__
 
