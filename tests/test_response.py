@@ -1,5 +1,6 @@
 """Tests for firstorder.response: exact responses against outside references."""
 
+import math
 
 import numpy as np
 import pytest
@@ -10,6 +11,7 @@ from scipy.integrate import solve_ivp
 
 import firstorder as fo
 from firstorder.errors import InputError, TopologyError
+from firstorder.response import Response
 
 
 @st.composite
@@ -283,3 +285,45 @@ def test_ramp_without_resistance_refused():
         fixture.respond(drive)
 
 
+# Response.from_segments: a response of a measured model (see firstorder.traces), without a fixture.
+class TestResponseFromSegments:
+    def test_matches_a_fixture_response_in_every_component(self):
+        # Reference: the engine's response of an RC fixture with the same tau and finals.
+        drive = fo.Drive.steps([(0, 0.5), ("1m", 2.0), ("2.5m", -1.0)], end="5m")
+        fixture = fo.Fixture.rc(r="2k", c="500n")
+        expected = fixture.respond(drive, initial=0.3)
+        built = Response.from_segments(drive, [1e-3] * 3, [0.5, 2.0, -1.0], initial=0.3, unit="V")
+        t = np.linspace(0.0, 5e-3, 301)
+        for component in ("total", "zero_input", "zero_state", "forced", "natural"):
+            np.testing.assert_allclose(getattr(built, component)(t), getattr(expected, component)(t), atol=1e-12)
+        np.testing.assert_allclose(built.contribution("fitted", t), expected.zero_state(t), atol=1e-12)
+
+    def test_closed_form_and_hold(self):
+        # Handbook closed form x(t) = f + (x0 - f) exp(-t / tau); inf tau holds the state.
+        drive = fo.Drive([0, "2m"], end="4m", vin=[0, 0])
+        built = Response.from_segments(drive, [0.5e-3, math.inf], [1.0, 123.0], initial=0.0)
+        assert built.total(1e-3) == pytest.approx(1.0 - math.exp(-2.0))
+        assert built.total(4e-3) == pytest.approx(1.0 - math.exp(-4.0))
+        assert built.forced(3e-3) == pytest.approx(1.0 - math.exp(-4.0))
+
+    def test_settled_and_periodic(self):
+        drive = fo.Drive.steps([(0, 1.0), ("1m", 0.0)], end="2m")
+        settled = Response.from_segments(drive, [0.2e-3, 0.2e-3], [1.0, 0.0], initial="settled")
+        assert settled.initial == 1.0
+        periodic = Response.from_segments(drive, [0.5e-3, 0.5e-3], [1.0, 0.0], initial="periodic")
+        assert periodic.boundary[-1] == pytest.approx(periodic.initial)
+
+    @pytest.mark.parametrize(
+        "tau, final, match",
+        [
+            ([1e-3], [0.0, 1.0], r"from_segments\.tau: has 1 values but the drive has 2"),
+            ([1e-3, 1e-3], [0.0], r"from_segments\.final: has 1 values"),
+            ([1e-3, 0.0], [0.0, 1.0], r"from_segments\.tau\[1\]: 0\.0 is not allowed"),
+            ([1e-3, float("nan")], [0.0, 1.0], r"from_segments\.tau\[1\]: nan"),
+            ([1e-3, 1e-3], [0.0, float("nan")], r"from_segments\.final\[1\]: nan"),
+        ],
+    )
+    def test_bad_input_names_the_field(self, tau, final, match):
+        drive = fo.Drive.steps([(0, 0.0), ("1m", 1.0)], end="2m")
+        with pytest.raises(fo.InputError, match=match):
+            Response.from_segments(drive, tau, final)

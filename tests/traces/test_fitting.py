@@ -1,9 +1,5 @@
-"""Tests for firstorder.traces: reading captures and fitting every step.
-
-Synthetic captures are closed-form exponentials (or the engine's response) plus
-Gaussian noise from fixed random generators; "60 dB signal to noise" means a
-noise standard deviation of 1/1000 of the step (20 log10(1000) = 60 dB).
-"""
+"""Tests for firstorder.traces.fitting and .result: fits of simulated captures (labelled as such)
+against the true parameters, scipy.optimize.curve_fit and the model's own response."""
 
 from __future__ import annotations
 
@@ -15,7 +11,7 @@ from scipy.optimize import curve_fit
 
 import firstorder as fo
 from firstorder.response import Response
-from firstorder.traces import TABLE_COLUMNS, MIN_POINTS, _noise
+from firstorder.traces import MIN_POINTS, TABLE_COLUMNS
 
 TAU = 1e-3
 STEP_AT = 1e-3
@@ -40,147 +36,6 @@ def many_single_fits():
     clean = single_step_clean(t)
     drive = single_step_drive()
     return [fo.fit_trace(fo.Trace.from_arrays(t, clean + n, name="v_out", units="V"), drive) for n in noise]
-
-
-# ---------------------------------------------------------------------------------------
-class TestTrace:
-    def test_from_arrays_scales_and_freezes(self):
-        trace = fo.Trace.from_arrays([0, 1, 2], [1, 2, 3], name="v", units="V", time_scale="1m", value_scale=10)
-        np.testing.assert_allclose(trace.times, [0.0, 1e-3, 2e-3])
-        np.testing.assert_allclose(trace.values, [10.0, 20.0, 30.0])
-        assert not trace.times.flags.writeable
-        with pytest.raises(AttributeError):
-            trace.name = "other"
-
-    def test_has_what_an_overlay_needs(self):
-        trace = fo.Trace.from_arrays([0, 1e-6], [0.0, 1.0], name="v_hold", units="V")
-        assert (trace.name, trace.units, len(trace.times), len(trace.values)) == ("v_hold", "V", 2, 2)
-
-    @pytest.mark.parametrize(
-        "times, values, name, match",
-        [
-            ([0, 1, 2], [0, 1], "v", r"trace\.values: has 2 values but trace\.times has 3"),
-            ([0, 1, 1], [0, 1, 2], "v", r"trace\.times\[2\]: 1\.0 does not come after"),
-            ([0, 2, 1], [0, 1, 2], "v", r"trace\.times\[2\]"),
-            ([0, 1], [0, float("nan")], "v", r"trace\.values\[1\]: nan"),
-            ([0, float("inf")], [0, 1], "v", r"trace\.times\[1\]: inf"),
-            ([0], [0], "v", r"trace\.times: 1 point"),
-            ([0, 1], [0, 1], "", r"trace\.name"),
-            ("0,1", [0, 1], "v", r"trace\.times: expected a list or array"),
-        ],
-    )
-    def test_bad_arrays_name_the_field(self, times, values, name, match):
-        with pytest.raises(fo.InputError, match=match):
-            fo.Trace(times, values, name=name)
-
-    @pytest.mark.parametrize(
-        "scale, match", [({"time_scale": 0}, "time_scale"), ({"time_scale": -1e-3}, "time_scale"),
-                         ({"value_scale": 0}, "value_scale"), ({"value_scale": "x"}, "value_scale")],
-    )
-    def test_bad_scales_name_the_field(self, scale, match):
-        with pytest.raises(fo.InputError, match=match):
-            fo.Trace.from_arrays([0, 1], [0, 1], **scale)
-
-    def test_csv_round_trip_is_exact(self, tmp_path):
-        rng = np.random.default_rng(3)
-        trace = fo.Trace.from_arrays(np.cumsum(rng.uniform(1e-7, 2e-7, 50)), rng.normal(size=50),
-                                     name="i_coil", units="A")
-        path = tmp_path / "capture.csv"
-        trace.to_csv(path)
-        back = fo.read_trace(path, value="i_coil")
-        np.testing.assert_array_equal(back.times, trace.times)
-        np.testing.assert_array_equal(back.values, trace.values)
-        assert (back.name, back.units) == ("i_coil", "A")
-
-
-# ---------------------------------------------------------------------------------------
-class TestReadTrace:
-    def write(self, tmp_path, text, name="capture.csv"):
-        path = tmp_path / name
-        path.write_text(text, encoding="utf-8")
-        return path
-
-    def test_comments_blank_lines_units_and_index(self, tmp_path):
-        path = self.write(tmp_path, "# bench 3, simulated\n\ntime [s], marker, v_a (V)\n0, start, 1.5\n"
-                                    "# a comment inside\n1e-3, x, 2.5\n")
-        by_name = fo.read_trace(path, value="v_a")
-        by_index = fo.read_trace(path, time=0, value=2)
-        for trace in (by_name, by_index):
-            np.testing.assert_array_equal(trace.times, [0.0, 1e-3])
-            np.testing.assert_array_equal(trace.values, [1.5, 2.5])
-            assert trace.units == "V" and trace.name == "v_a"
-
-    def test_names_match_without_case_and_units_scale(self, tmp_path):
-        path = self.write(tmp_path, "Time (ms),Value\n0,1\n2,3\n")
-        trace = fo.read_trace(path, time_scale=1e-3, value_scale=-2)
-        np.testing.assert_allclose(trace.times, [0.0, 2e-3])
-        np.testing.assert_allclose(trace.values, [-2.0, -6.0])
-
-    @pytest.mark.parametrize(
-        "text, match",
-        [
-            ("", r"the file is empty"),
-            ("# only a comment\n\n", r"the file is empty"),
-            ("0,1\n1,2\n", r"line 1: expected a header row"),
-            ("# c\ntime\n0\n1\n", r"line 2: the header has one column"),
-            ("time,value\n0,1\n1e-3,abc\n", r"line 3, column 'value': 'abc' is not a number"),
-            ("time,value\n0,1\n1e-3,nan\n", r"line 3, column 'value': 'nan' is not allowed"),
-            ("time,value\n0,1\n1e-3,inf\n", r"line 3, column 'value': 'inf' is not allowed"),
-            ("time,value\n0,1\n1e-3,\n", r"line 3, column 'value': is empty"),
-            ("time,value\n0,1\nlate,2\n", r"line 3, column 'time': 'late' is not a number"),
-            ("time,value\n0,1\n2e-3,2\n1e-3,3\n", r"line 4, column 'time': 0\.001 does not come after 0\.002 on line 3"),
-            ("time,value\n0,1\n0,2\n", r"line 3, column 'time': 0\.0 does not come after"),
-            ("time,value\n0,1\n1e-3,2,9\n", r"line 3: 3 cells, but the header on line 1 has 2"),
-            ("time,value\n", r"no samples after the header on line 1"),
-            ("time,value\n0,1\n", r"one sample after the header"),
-            ("time,volts\n0,1\n1,2\n", r"value: no column named 'value' in the header on line 1"),
-            ("time (ms),value\n0,1\n1,2\n", r"time_scale: column 'time \(ms\)' is in 'ms'"),
-            ("time,value,value\n0,1,2\n1,2,3\n", r"value: 'value' names columns \[1, 2\]"),
-        ],
-    )
-    def test_bad_files_name_line_and_column(self, tmp_path, text, match):
-        with pytest.raises(fo.InputError, match=match):
-            fo.read_trace(self.write(tmp_path, text))
-
-    def test_not_text(self, tmp_path):
-        path = tmp_path / "binary.csv"
-        path.write_bytes(b"time,value\n0,\xff\xfe\n")
-        with pytest.raises(fo.InputError, match=r"binary\.csv: not UTF-8"):
-            fo.read_trace(path)
-
-    @pytest.mark.parametrize(
-        "arguments, match",
-        [
-            ({"value": 5}, r"value: column index 5 does not exist"),
-            ({"value": -1}, r"value: column index -1 does not exist"),
-            ({"value": True}, r"value: True must be a column name or an index"),
-            ({"value": 1.5}, r"value: 1\.5 must be a column name"),
-            ({"value": "time"}, r"value: 'time' is the time column"),
-            ({"time_scale": 0}, r"time_scale: 0 must be > 0"),
-            ({"value_scale": 0}, r"value_scale: 0 is not allowed"),
-            ({"time_scale": "fast"}, r"time_scale: 'fast' is not a number"),
-        ],
-    )
-    def test_bad_arguments_name_the_field(self, tmp_path, arguments, match):
-        path = self.write(tmp_path, "time,value\n0,1\n1,2\n")
-        with pytest.raises(fo.InputError, match=match):
-            fo.read_trace(path, **arguments)
-
-
-# ---------------------------------------------------------------------------------------
-class TestNoise:
-    def test_matches_the_sample_deviation_of_pure_noise(self):
-        # Reference: numpy's sample standard deviation of the same white noise.
-        noise = np.random.default_rng(11).normal(0.0, 2.5e-3, 50_000)
-        assert _noise(noise) == pytest.approx(np.std(noise, ddof=1), rel=0.02)
-
-    def test_ignores_level_slope_and_a_steep_start(self):
-        # A fast exponential sampled coarsely curves strongly over its first samples;
-        # the estimate must still be the noise alone (numpy's deviation of the noise added).
-        x = np.arange(2000.0)
-        noise = np.random.default_rng(12).normal(0.0, 1e-3, x.size)
-        signal = 5.0 + 1e-4 * x - 4.0 * np.exp(-x / 3.0)
-        assert _noise(signal + noise) == pytest.approx(np.std(noise, ddof=1), rel=0.05)
 
 
 # ---------------------------------------------------------------------------------------
@@ -446,50 +301,3 @@ class TestFitTrace:
         assert "1 of 2 segments fitted" in repr(fit)
         html = fit._repr_html_()
         assert "segment 0: no step" in html and "<table" in html
-
-
-# ---------------------------------------------------------------------------------------
-# Response.from_segments lives in response.py; its tests sit here beside its only user.
-class TestResponseFromSegments:
-    def test_matches_a_fixture_response_in_every_component(self):
-        # Reference: the engine's response of an RC fixture with the same tau and finals.
-        drive = fo.Drive.steps([(0, 0.5), ("1m", 2.0), ("2.5m", -1.0)], end="5m")
-        fixture = fo.Fixture.rc(r="2k", c="500n")
-        expected = fixture.respond(drive, initial=0.3)
-        built = Response.from_segments(drive, [1e-3] * 3, [0.5, 2.0, -1.0], initial=0.3, unit="V")
-        t = np.linspace(0.0, 5e-3, 301)
-        for component in ("total", "zero_input", "zero_state", "forced", "natural"):
-            np.testing.assert_allclose(getattr(built, component)(t), getattr(expected, component)(t), atol=1e-12)
-        np.testing.assert_allclose(built.contribution("fitted", t), expected.zero_state(t), atol=1e-12)
-
-    def test_closed_form_and_hold(self):
-        # Handbook closed form x(t) = f + (x0 - f) exp(-t / tau); inf tau holds the state.
-        drive = fo.Drive([0, "2m"], end="4m", vin=[0, 0])
-        built = Response.from_segments(drive, [0.5e-3, math.inf], [1.0, 123.0], initial=0.0)
-        assert built.total(1e-3) == pytest.approx(1.0 - math.exp(-2.0))
-        assert built.total(4e-3) == pytest.approx(1.0 - math.exp(-4.0))
-        assert built.forced(3e-3) == pytest.approx(1.0 - math.exp(-4.0))
-
-    def test_settled_and_periodic(self):
-        drive = fo.Drive.steps([(0, 1.0), ("1m", 0.0)], end="2m")
-        settled = Response.from_segments(drive, [0.2e-3, 0.2e-3], [1.0, 0.0], initial="settled")
-        assert settled.initial == 1.0
-        periodic = Response.from_segments(drive, [0.5e-3, 0.5e-3], [1.0, 0.0], initial="periodic")
-        assert periodic.boundary[-1] == pytest.approx(periodic.initial)
-
-    @pytest.mark.parametrize(
-        "tau, final, match",
-        [
-            ([1e-3], [0.0, 1.0], r"from_segments\.tau: has 1 values but the drive has 2"),
-            ([1e-3, 1e-3], [0.0], r"from_segments\.final: has 1 values"),
-            ([1e-3, 0.0], [0.0, 1.0], r"from_segments\.tau\[1\]: 0\.0 is not allowed"),
-            ([1e-3, float("nan")], [0.0, 1.0], r"from_segments\.tau\[1\]: nan"),
-            ([1e-3, 1e-3], [0.0, float("nan")], r"from_segments\.final\[1\]: nan"),
-        ],
-    )
-    def test_bad_input_names_the_field(self, tau, final, match):
-        drive = fo.Drive.steps([(0, 0.0), ("1m", 1.0)], end="2m")
-        with pytest.raises(fo.InputError, match=match):
-            Response.from_segments(drive, tau, final)
-
-

@@ -1,4 +1,5 @@
-"""Tests for the reports of an Analysis: the standalone HTML page, MathML, Markdown, and a real browser."""
+"""Tests for firstorder.report.html: the standalone report, read back as its analysis, and in
+headless Chromium with no network."""
 
 from __future__ import annotations
 
@@ -10,35 +11,15 @@ from html.parser import HTMLParser
 
 import numpy as np
 import pytest
-import sympy as sp
+from builders import relay_analysis
 
 import firstorder as fo
-from firstorder.report import mathml as report_mathml, tables as report_tables
 from firstorder.analysis import EMBED_ID, Analysis
+from firstorder.report import tables as report_tables
 
 CHROMIUM = "/usr/bin/chromium"
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
                   "--disable-component-update", "--disable-sync", "--no-first-run"]
-
-
-def relay_analysis(**changes) -> Analysis:
-    """A DAC, a relay and a hold capacitor loaded by a meter (an invented scenario)."""
-    fx = fo.Fixture()
-    fx.voltage_source("vdac", "drv", "gnd")
-    fx.resistor("rs", "drv", "a", "1k")
-    fx.switch("k1", "a", "b", r_on="0.1", r_off="1G")
-    fx.capacitor("ch", "b", "gnd", "100n")
-    fx.resistor("rm", "b", "gnd", "10M")
-    fx.probe("v_b", node="b")
-    fx.probe("i_rs", through="rs")
-    arguments = dict(
-        fixture=fx,
-        drive=fo.Drive([0, "1m", "3m"], end="6m", vdac=[0, 2.5, -1.2], k1=[1, 1, 0]),
-        initial="settled", tolerance=fo.Tolerance.lsb(bits=16, span=5.0), sample_delay="0.9m",
-        title="Relay and hold capacitor", notes="First line.\nSecond line.",
-    )
-    arguments.update(changes)
-    return Analysis(**arguments)
 
 
 class _Elements(HTMLParser):
@@ -72,6 +53,21 @@ def elements(html: str) -> _Elements:
 @pytest.fixture(scope="module")
 def report_html() -> str:
     return relay_analysis().to_html()
+
+
+def _browser_or_skip():
+    required = os.environ.get("FIRSTORDER_REQUIRE_BROWSER") == "1"
+    if not shutil.which(CHROMIUM) and not os.path.exists(CHROMIUM):
+        if required:
+            pytest.fail(f"FIRSTORDER_REQUIRE_BROWSER=1 but {CHROMIUM} is missing")
+        pytest.skip(f"no chromium at {CHROMIUM}; the browser test needs Debian's chromium")
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        if required:
+            raise
+        pytest.skip("playwright is not installed")
+    return sync_playwright
 
 
 class TestReport:
@@ -185,107 +181,6 @@ class TestSettlingAndCautions:
         assert "class=caution" in section and "400" in section and "local codes" in section
 
 
-class TestLayers:
-    def test_report_figure_imports_bokeh_but_not_ipywidgets(self):
-        # Reports need bokeh, not a notebook: the figure module stays free of ipywidgets.
-        import ast
-
-        import firstorder.report.figure as module
-
-        tree = ast.parse(open(module.__file__, encoding="utf-8").read())
-        imported = {alias.name.split(".")[0] for node in ast.walk(tree) if isinstance(node, ast.Import)
-                    for alias in node.names}
-        imported |= {node.module.split(".")[0] for node in ast.walk(tree)
-                     if isinstance(node, ast.ImportFrom) and node.module and node.level == 0}
-        assert "bokeh" in imported and "ipywidgets" not in imported
-
-    def test_only_widgets_imports_bokeh(self):
-        import ast
-        from pathlib import Path
-
-        package = Path(fo.__file__).parent
-        for path in package.glob("*.py"):
-            tree = ast.parse(path.read_text(encoding="utf-8"))
-            for node in ast.walk(tree):
-                names = ([a.name for a in node.names] if isinstance(node, ast.Import)
-                         else [node.module or ""] if isinstance(node, ast.ImportFrom) else [])
-                assert not [n for n in names if n.split(".")[0] in ("bokeh", "ipywidgets")], path
-
-
-class TestMathml:
-    def test_presentation_markup(self):
-        r, c = sp.symbols("r c", positive=True)
-        text = report_mathml.mathml(sp.Eq(sp.Symbol("tau"), r * c))
-        assert text.startswith('<math xmlns="http://www.w3.org/1998/Math/MathML" display="block">')
-        assert "<mi>&#964;</mi><mo>=</mo><mrow><mi>c</mi><mo>&#xB7;</mo><mi>r</mi></mrow>" in text
-
-    @pytest.mark.parametrize("name", ["<script>alert(1)</script>", "a&b", "x\"><img src=x onerror=alert(1)>"])
-    def test_names_are_escaped(self, name):
-        t = sp.Symbol("t")
-        text = report_mathml.mathml(sp.Eq(sp.Function(name)(t), sp.Symbol(name) + 1))
-        assert "<script" not in text and "<img" not in text
-        check = report_mathml._MathMLCheck()
-        check.feed(text)
-        assert check.clean
-
-    def test_falls_back_to_latex_text_if_markup_is_not_mathml(self, monkeypatch):
-        import sys
-
-        printer = sys.modules["sympy.printing.mathml"]  # the package re-exports the function under the same name
-        monkeypatch.setattr(printer, "mathml", lambda *a, **k: "<mi>x</mi><iframe></iframe>")
-        assert report_mathml.mathml(sp.Symbol("x")) == "<code>x</code>"
-
-
-class TestDerivationLatex:
-    def test_names_with_underscores_are_escaped_in_text(self):
-        # LaTeX reads "_" in \text{} as an error; part names like c_hold are common.  The
-        # underscore is set in math mode, between two \text{} pieces.
-        from firstorder.cli import demo_analysis
-
-        latex = demo_analysis().derivations()[0][1].latex()
-        pieces = re.findall(r"\\text\{([^}]*)\}", latex)
-        assert pieces and not [piece for piece in pieces if "_" in piece]
-        assert r"\text{Equivalent seen by capacitor c}\_\text{hold (k}\_\text{hold closed):}" in latex
-
-    def test_final_value_written_at_infinity(self):
-        latex = relay_analysis().derivations()[0][1].latex()
-        # the state is named as typed (upright "ch"), see tests/test_symbolic.py
-        assert r"v_{ch}{\left(\infty \right)}" in latex and r"{\left(t \right)}(\infty)" not in latex
-
-
-class TestMarkdown:
-    def test_sections(self):
-        text = relay_analysis().markdown()
-        for heading in ("# Relay and hold capacitor", "## Notes", "## Summary", "## Fixture", "## Drive",
-                        "## Settling", "## Cautions", "## Derivations", "### k1 closed", "### k1 open"):
-            assert f"\n{heading}\n" in f"\n{text}"
-        assert "| rs | resistor | drv → a | '1k' | 1 kΩ |" in text
-        assert "$$" in text
-
-    def test_without_derivations(self):
-        assert "## Derivations" not in relay_analysis().markdown(derivations=False)
-
-    def test_cells_cannot_break_the_table(self):
-        fx = fo.Fixture.rc(r="1k", c="1n")
-        a = Analysis(fx, fo.Drive.steps([(0, 1.0)], end="1m"), title="a | b\nc")
-        assert "# a \\| b c" in a.markdown(derivations=False)
-
-
-def _browser_or_skip():
-    required = os.environ.get("FIRSTORDER_REQUIRE_BROWSER") == "1"
-    if not shutil.which(CHROMIUM) and not os.path.exists(CHROMIUM):
-        if required:
-            pytest.fail(f"FIRSTORDER_REQUIRE_BROWSER=1 but {CHROMIUM} is missing")
-        pytest.skip(f"no chromium at {CHROMIUM}; the browser test needs Debian's chromium")
-    try:
-        from playwright.sync_api import sync_playwright
-    except ImportError:
-        if required:
-            raise
-        pytest.skip("playwright is not installed")
-    return sync_playwright
-
-
 class TestInBrowser:
     def test_offline_plot_and_math(self, tmp_path):
         sync_playwright = _browser_or_skip()
@@ -316,15 +211,3 @@ class TestInBrowser:
         assert canvases >= 1 and plot_box["width"] > 300 and plot_box["height"] > 100
         assert maths >= 20 and math_box["width"] > 10 and math_box["height"] > 5
         assert title == "Relay and hold capacitor"
-
-
-def test_mathml_writes_decay_as_a_power_of_e():
-    # Engineers write v * e^(-t/tau); sympy's MathML printer alone gives v / e^(t/tau).
-    import sympy as sp
-
-    from firstorder.report.mathml import mathml
-
-    t, tau, v = sp.symbols("t tau v", positive=True)
-    text = mathml(v * sp.exp(-t / tau))
-    assert "<msup><mi>e</mi><mrow><mo>-</mo>" in text
-    assert "<mfrac><mi>v</mi>" not in text

@@ -1,15 +1,13 @@
-"""_network: per-configuration reduction against handbook formulas and against
+"""Tests for firstorder.network: per-configuration reduction against handbook formulas and against
 scipy.integrate.solve_ivp of nodal equations written by hand in this file.
 
-Every network here is a scenario of our own invention.
-"""
+Every network here is a scenario of our own invention."""
 
 import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
 import firstorder as fo
-from firstorder import network
 
 
 def parallel(*resistances):
@@ -36,6 +34,24 @@ def bridge(r1=1e3, r2=2.2e3, r3=3.3e3, r4=4.7e3, c=1e-6):
     fx.resistor("r4", "b", "gnd", r4)
     fx.capacitor("c", "a", "b", c)
     return fx
+
+
+# -- solve_ivp of hand-written nodal equations -------------------------------------------------
+def integrate(rhs, drive, names, x0, t_eval):
+    """Integrate dx/dt = rhs(x, levels) segment by segment with scipy's solve_ivp."""
+    out = np.empty_like(t_eval)
+    x = x0
+    bounds = list(drive.times) + [drive.end]
+    for k in range(len(drive)):
+        levels = {n: drive.levels(n)[k] for n in names}
+        start, stop = bounds[k], bounds[k + 1]
+        inside = (t_eval >= start) & ((t_eval < stop) | ((k == len(drive) - 1) & (t_eval <= stop)))
+        solution = solve_ivp(lambda t, y: [rhs(y[0], levels)], (start, stop), [x], method="DOP853",
+                             rtol=1e-12, atol=1e-15, t_eval=t_eval[inside], dense_output=False)
+        out[inside] = solution.y[0]
+        x = solve_ivp(lambda t, y: [rhs(y[0], levels)], (start, stop), [x], method="DOP853",
+                      rtol=1e-12, atol=1e-15).y[0, -1]
+    return out
 
 
 class TestTheveninReduction:
@@ -93,24 +109,6 @@ class TestTheveninNortonEquivalence:
         t = np.linspace(0, 300e-6, 301)
         np.testing.assert_allclose(a.total(t), b.total(t), rtol=1e-13, atol=1e-15)
         assert norton.tau == pytest.approx(thevenin.tau, rel=1e-15)
-
-
-# -- solve_ivp of hand-written nodal equations -------------------------------------------------
-def integrate(rhs, drive, names, x0, t_eval):
-    """Integrate dx/dt = rhs(x, levels) segment by segment with scipy's solve_ivp."""
-    out = np.empty_like(t_eval)
-    x = x0
-    bounds = list(drive.times) + [drive.end]
-    for k in range(len(drive)):
-        levels = {n: drive.levels(n)[k] for n in names}
-        start, stop = bounds[k], bounds[k + 1]
-        inside = (t_eval >= start) & ((t_eval < stop) | ((k == len(drive) - 1) & (t_eval <= stop)))
-        solution = solve_ivp(lambda t, y: [rhs(y[0], levels)], (start, stop), [x], method="DOP853",
-                             rtol=1e-12, atol=1e-15, t_eval=t_eval[inside], dense_output=False)
-        out[inside] = solution.y[0]
-        x = solve_ivp(lambda t, y: [rhs(y[0], levels)], (start, stop), [x], method="DOP853",
-                      rtol=1e-12, atol=1e-15).y[0, -1]
-    return out
 
 
 class TestAgainstSolveIvp:
@@ -181,26 +179,3 @@ class TestAgainstSolveIvp:
         t = np.linspace(0, 1.2e-3, 400)
         got = fx.respond(drive, initial=0.0).total(t)
         np.testing.assert_allclose(got, integrate(rhs, drive, ["v1", "v2", "k"], 0.0, t), rtol=1e-8, atol=1e-11)
-
-
-class TestPlan:
-    def test_holding_configuration(self):
-        fx = fo.Fixture()
-        fx.voltage_source("vin", "in", "gnd")
-        fx.resistor("r", "in", "a", "1k")
-        fx.switch("k", "a", "b")
-        fx.capacitor("c", "b", "gnd", "1n")
-        assert network.plan(fx.netlist, (False,), "here").holds
-        assert not network.plan(fx.netlist, (True,), "here").holds
-
-    def test_floating_island_is_pinned(self):
-        fx = fo.Fixture()
-        fx.voltage_source("vin", "in", "gnd")
-        fx.resistor("r", "in", "a", "1k")
-        fx.capacitor("c", "a", "gnd", "1n")
-        fx.switch("k", "a", "m")
-        fx.resistor("r_meter", "m", "mlo", "10M")
-        fx.resistor("r_lead", "mlo", "m", "1")
-        layout = network.plan(fx.netlist, (False,), "here")
-        assert any(label.startswith("pin:") for label, *_ in layout.voltage_branches)
-        assert fx.time_constant(k=False) == pytest.approx(1e-6, rel=1e-14)

@@ -1,9 +1,8 @@
-"""Tests for firstorder._network: topology checks and the reduction of each switch configuration.
+"""Tests for firstorder.network.reduce and .mna: the reduction of each switch configuration.
 
 Every number is checked against a formula written here by hand (handbook series/parallel,
-voltage divider and bridge formulas; Ohm's and Kirchhoff's laws), never against the
-reduction itself.
-"""
+voltage divider and bridge formulas; Ohm's and Kirchhoff's laws) or exact rational nodal
+analysis with fractions, never against the reduction itself."""
 
 import math
 from fractions import Fraction
@@ -55,6 +54,74 @@ def _unit_injection(index, into, out_of):
         if node in index:
             d[index[node]] += sign
     return d
+
+
+@st.composite
+def resistive_networks(draw):
+    """A random connected resistor network, a source from 's' to ground, and a capacitor."""
+    count = draw(st.integers(1, 5))
+    inner = [f"n{k}" for k in range(count)]
+    placed = ["gnd", "s"]
+    edges = []
+    for node in inner:  # a spanning tree: every node joins one placed before it
+        edges.append((draw(st.sampled_from(placed)), node))
+        placed.append(node)
+    for _ in range(draw(st.integers(0, 6))):
+        a, b = draw(st.sampled_from(placed)), draw(st.sampled_from(placed))
+        if a != b and {a, b} != {"gnd", "s"}:
+            edges.append((a, b))
+    values = [draw(st.floats(1.0, 1e6)) for _ in edges]
+    cap_a, cap_b = draw(st.sampled_from([("gnd", n) for n in inner] + [(a, b) for a in inner for b in inner if a < b]))
+    return inner, edges, values, (cap_a, cap_b)
+
+
+def _network_fixture(network) -> fo.Fixture:
+    """The fixture of a drawn network: its resistors, a source at 's', a 1 µF capacitor."""
+    _, edges, values, (cap_a, cap_b) = network
+    fx = fo.Fixture()
+    fx.voltage_source("v", "s", "gnd")
+    for k, ((a, b), r) in enumerate(zip(edges, values)):
+        fx.resistor(f"r{k}", a, b, r)
+    fx.capacitor("c", cap_a, cap_b, 1e-6)
+    try:
+        fx.check()
+    except TopologyError:
+        assume(False)  # a node on one part only: not these tests' subject
+    return fx
+
+
+def _exact_solve(matrix, rhs):
+    """Gauss-Jordan elimination in exact rational arithmetic (Python's fractions module)."""
+    n = len(matrix)
+    rows = [list(matrix[i]) + [rhs[i]] for i in range(n)]
+    for col in range(n):
+        pivot = next(r for r in range(col, n) if rows[r][col] != 0)
+        rows[col], rows[pivot] = rows[pivot], rows[col]
+        for r in range(n):
+            if r != col and rows[r][col] != 0:
+                factor = rows[r][col] / rows[col][col]
+                rows[r] = [x - factor * y for x, y in zip(rows[r], rows[col])]
+    return [rows[i][n] / rows[i][i] for i in range(n)]
+
+
+@st.composite
+def extreme_networks(draw):
+    """Like resistive_networks, with values from 0.1 Ω to 1 TΩ: a relay contact beside
+    board leakage, thirteen decades in one network."""
+    inner, edges, _, capacitor = draw(resistive_networks())
+    values = [10.0 ** draw(st.floats(-1.0, 12.0)) for _ in edges]
+    return inner, edges, values, capacitor
+
+
+@st.composite
+def switched_networks(draw):
+    """A random network as above where some branches are switches, plus a current source."""
+    inner, edges, values, cap = draw(resistive_networks())
+    kinds = [draw(st.sampled_from(["resistor", "switch"])) for _ in edges]
+    r_off = [draw(st.sampled_from([math.inf, 1e7, 1e9])) for _ in edges]
+    closed = [draw(st.booleans()) for _ in edges]
+    inject = draw(st.sampled_from(inner))
+    return inner, edges, values, cap, kinds, r_off, closed, inject
 
 
 class TestReduceNumeric:
@@ -164,121 +231,6 @@ class TestReduceNumeric:
         layout, red = reduced(fx, kshort=True)
         # An ideal short keeps an ideal coil's current (L / 0: no decay).
         assert layout.holds and red.tau == math.inf
-
-
-# ------------------------------------------------------------------------------------------
-class TestPlan:
-    """Topology checks of one configuration: errors name the parts, nodes and segment."""
-
-    def test_loop_of_voltage_sources(self):
-        fx = fo.Fixture()
-        fx.voltage_source("v1", "a", "gnd")
-        fx.voltage_source("v2", "a", "gnd")
-        fx.resistor("r", "a", "b", 1e3)
-        fx.capacitor("c", "b", "gnd", 1e-6)
-        with pytest.raises(TopologyError, match="'v1' and 'v2' form a loop of ideal voltage elements"):
-            fx.configuration(())
-
-    def test_loop_closed_by_a_switch_in_one_configuration_only(self):
-        fx = fo.Fixture()
-        fx.voltage_source("vhi", "a", "gnd")
-        fx.voltage_source("vlo", "b", "gnd")
-        fx.switch("ksel", "a", "b")          # ideal: zero ohms when closed
-        fx.resistor("r", "b", "c", 1e3)
-        fx.capacitor("ch", "c", "gnd", 1e-6)
-        drive = fo.Drive([0, 1e-3, 2e-3], end=3e-3, vhi=[5, 5, 5], vlo=[1, 1, 1], ksel=[0, 0, 1])
-        with pytest.raises(TopologyError) as caught:
-            fx.respond(drive)
-        message = str(caught.value)
-        assert not isinstance(caught.value, ZeroTimeError)
-        assert "segment 2" in message and "ksel closed" in message
-        assert "'ksel', 'vhi' and 'vlo'" in message
-        assert "r_on" in message  # suggests the remedy
-        # The open configuration is fine on its own.
-        assert fx.time_constant(ksel=False) == pytest.approx(1e-3, rel=1e-12)
-
-    def test_cut_set_of_current_sources(self):
-        fx = fo.Fixture()
-        fx.current_source("i1", "gnd", "a")
-        fx.current_source("i2", "a", "b")
-        fx.resistor("r", "b", "gnd", 1e3)
-        fx.capacitor("c", "b", "gnd", 1e-6)
-        with pytest.raises(TopologyError, match="current sources 'i1' and 'i2' form a cut set") as caught:
-            fx.configuration(())
-        assert "'a'" in str(caught.value)
-
-    def test_current_source_cut_by_an_open_switch(self):
-        fx = fo.Fixture()
-        fx.current_source("ibias", "gnd", "a")
-        fx.switch("k", "a", "b")
-        fx.resistor("r", "b", "gnd", 1e3)
-        fx.capacitor("c", "b", "gnd", 1e-6)
-        drive = fo.Drive([0, 1e-3], end=2e-3, ibias=[1e-3, 1e-3], k=[1, 0])
-        with pytest.raises(TopologyError, match=r"segment 1 .*k open.*current source 'ibias' is a cut set"):
-            fx.respond(drive)
-
-    def test_capacitor_across_an_ideal_voltage_loop(self):
-        fx = fo.Fixture()
-        fx.voltage_source("vref", "a", "gnd")
-        fx.switch("kcharge", "a", "b")
-        fx.capacitor("cs", "b", "gnd", 1e-9)
-        fx.resistor("rbleed", "b", "gnd", 1e6)
-        drive = fo.Drive([0, 1e-3], end=2e-3, vref=[2.5, 2.5], kcharge=[0, 1])
-        with pytest.raises(ZeroTimeError) as caught:
-            fx.respond(drive)
-        message = str(caught.value)
-        assert "segment 1" in message and "kcharge closed" in message
-        assert "'cs', 'kcharge' and 'vref'" in message
-        assert "resistance" in message  # suggests a realistic resistance
-
-    def test_inductor_cut_names_the_parts_and_cautions(self):
-        fx = fo.Fixture()
-        fx.voltage_source("vsup", "sup", "gnd")
-        fx.inductor("coil", "sup", "mid", 0.1)
-        fx.resistor("rcoil", "mid", "drain", 200.0)
-        fx.switch("kdrv", "drain", "gnd")
-        drive = fo.Drive([0, 5e-3], end=10e-3, vsup=[24, 24], kdrv=[1, 0])
-        with pytest.raises(ZeroTimeError) as caught:
-            fx.respond(drive)
-        message = str(caught.value)
-        assert "segment 1" in message and "kdrv open" in message
-        assert "inductor 'coil'" in message
-        assert "(open: 'kdrv')" in message  # the switch that cuts the path, by name
-        assert "flyback" in message
-        assert "local codes and licensed practice" in message
-
-    def test_inductor_in_series_with_a_current_source(self):
-        # Found while writing these tests: this was reported as a "cut set of current
-        # sources" that listed the inductor among them, as a plain TopologyError.  The coil's
-        # current would be forced to the source's level in zero time: a zero-time configuration.
-        fx = fo.Fixture()
-        fx.current_source("itest", "gnd", "a")
-        fx.inductor("l", "a", "gnd", 1e-3)
-        fx.voltage_source("vaux", "x", "gnd")
-        fx.resistor("raux", "x", "gnd", 1e3)
-        with pytest.raises(ZeroTimeError) as caught:
-            fx.configuration(())
-        message = str(caught.value)
-        assert "inductor 'l'" in message and "'itest'" in message
-        assert "current sources 'itest' and 'l'" not in message
-        assert "local codes and licensed practice" in message
-
-    def test_island_pins_carry_no_current(self):
-        # A capacitor whose charging switch is open floats with its series resistor; the
-        # node between them must read the capacitor voltage (no current flows in the resistor).
-        fx = fo.Fixture()
-        fx.voltage_source("v", "x", "gnd")
-        fx.resistor("r", "x", "a", 1e3)
-        fx.switch("k", "a", "b")
-        fx.capacitor("c", "b", "m", 1e-6)
-        fx.resistor("rm", "m", "gnd", 1e3)
-        fx.probe("v_b", node="b")
-        res = fx.respond(fo.Drive([0, 1e-3], end=2e-3, v=[1.0, 1.0], k=[1, 0]))
-        after, before_end = res.probe_boundary("v_b")
-        # Ohm's law: with k open nothing flows through rm, so v(b) = v(m) + x = x.
-        assert after[1] == pytest.approx(res.boundary[1], rel=1e-12)
-        # With k closed at t=0: x = 0, divider 1k/1k gives v(b) = 0.5 V.
-        assert after[0] == pytest.approx(0.5, rel=1e-12)
 
 
 # ------------------------------------------------------------------------------------------
@@ -398,40 +350,6 @@ class TestCancellation:
         assert 0.0 <= res.boundary[-1] < 1e-100  # 60 mA after 260 time constants
 
 
-@st.composite
-def resistive_networks(draw):
-    """A random connected resistor network, a source from 's' to ground, and a capacitor."""
-    count = draw(st.integers(1, 5))
-    inner = [f"n{k}" for k in range(count)]
-    placed = ["gnd", "s"]
-    edges = []
-    for node in inner:  # a spanning tree: every node joins one placed before it
-        edges.append((draw(st.sampled_from(placed)), node))
-        placed.append(node)
-    for _ in range(draw(st.integers(0, 6))):
-        a, b = draw(st.sampled_from(placed)), draw(st.sampled_from(placed))
-        if a != b and {a, b} != {"gnd", "s"}:
-            edges.append((a, b))
-    values = [draw(st.floats(1.0, 1e6)) for _ in edges]
-    cap_a, cap_b = draw(st.sampled_from([("gnd", n) for n in inner] + [(a, b) for a in inner for b in inner if a < b]))
-    return inner, edges, values, (cap_a, cap_b)
-
-
-def _network_fixture(network) -> fo.Fixture:
-    """The fixture of a drawn network: its resistors, a source at 's', a 1 µF capacitor."""
-    _, edges, values, (cap_a, cap_b) = network
-    fx = fo.Fixture()
-    fx.voltage_source("v", "s", "gnd")
-    for k, ((a, b), r) in enumerate(zip(edges, values)):
-        fx.resistor(f"r{k}", a, b, r)
-    fx.capacitor("c", cap_a, cap_b, 1e-6)
-    try:
-        fx.check()
-    except TopologyError:
-        assume(False)  # a node on one part only: not these tests' subject
-    return fx
-
-
 class TestRandomResistiveNetworks:
     @settings(max_examples=60)
     @given(resistive_networks())
@@ -452,29 +370,6 @@ class TestRandomResistiveNetworks:
         # abs: a zero open-circuit voltage comes out as rounding (~1e-12 V/V) in both solutions.
         assert red.gain[0] == pytest.approx(v_th, rel=1e-8, abs=1e-10)
         assert red.tau == pytest.approx(r_th * 1e-6, rel=1e-8)
-
-
-def _exact_solve(matrix, rhs):
-    """Gauss-Jordan elimination in exact rational arithmetic (Python's fractions module)."""
-    n = len(matrix)
-    rows = [list(matrix[i]) + [rhs[i]] for i in range(n)]
-    for col in range(n):
-        pivot = next(r for r in range(col, n) if rows[r][col] != 0)
-        rows[col], rows[pivot] = rows[pivot], rows[col]
-        for r in range(n):
-            if r != col and rows[r][col] != 0:
-                factor = rows[r][col] / rows[col][col]
-                rows[r] = [x - factor * y for x, y in zip(rows[r], rows[col])]
-    return [rows[i][n] / rows[i][i] for i in range(n)]
-
-
-@st.composite
-def extreme_networks(draw):
-    """Like resistive_networks, with values from 0.1 Ω to 1 TΩ: a relay contact beside
-    board leakage, thirteen decades in one network."""
-    inner, edges, _, capacitor = draw(resistive_networks())
-    values = [10.0 ** draw(st.floats(-1.0, 12.0)) for _ in edges]
-    return inner, edges, values, capacitor
 
 
 class TestExtremeRatios:
@@ -550,17 +445,6 @@ class TestFloatingNodes:
         res = fx.respond(self.drive())
         # k1 leaks: no current flows once k2 is open too, so m sits at the source's 1 V.
         assert res.probe("v_m", 2.5e-3) == pytest.approx(1.0, rel=1e-15)
-
-
-@st.composite
-def switched_networks(draw):
-    """A random network as above where some branches are switches, plus a current source."""
-    inner, edges, values, cap = draw(resistive_networks())
-    kinds = [draw(st.sampled_from(["resistor", "switch"])) for _ in edges]
-    r_off = [draw(st.sampled_from([math.inf, 1e7, 1e9])) for _ in edges]
-    closed = [draw(st.booleans()) for _ in edges]
-    inject = draw(st.sampled_from(inner))
-    return inner, edges, values, cap, kinds, r_off, closed, inject
 
 
 class TestRandomSwitchedNetworks:

@@ -1,0 +1,90 @@
+"""Fixtures and drives that several test modules build: scenarios of our own invention.
+
+Imported by test modules as ``from builders import ...`` (pytest puts tests/ on
+the path for its conftest.py).
+"""
+
+from __future__ import annotations
+
+import json
+
+import firstorder as fo
+from firstorder.analysis import Analysis
+
+
+def switched_fixture() -> fo.Fixture:
+    """A DAC behind 1 kΩ, a relay with 10 Ω on, a 100 nF hold capacitor (scenario of our own).
+
+    With k1 closed tau = 1.01 kΩ x 100 nF; with k1 open the capacitor holds (tau = inf).
+    Probes: the node before the relay (jumps at changes) and the current in the 1 kΩ.
+    """
+    fx = fo.Fixture()
+    fx.voltage_source("vdac", "drv", "gnd")
+    fx.resistor("rs", "drv", "a", "1k")
+    fx.resistor("rload", "a", "gnd", "4k")
+    fx.switch("k1", "a", "b", r_on="10")
+    fx.capacitor("ch", "b", "gnd", "100n")
+    fx.probe("v_a", node="a")
+    fx.probe("i_rs", through="rs")
+    return fx
+
+
+def general_fixture() -> fo.Fixture:
+    """A fixture with two sources, a switch with leakage, a meter load and probes (invented)."""
+    fx = fo.Fixture()
+    fx.voltage_source("vdac", "drv", "gnd")
+    fx.current_source("ibias", "gnd", "b")
+    fx.resistor("rs", "drv", "a", "1k")
+    fx.switch("k1", "a", "b", r_on="0.1", r_off="1G")
+    fx.capacitor("ch", "b", "gnd", "100 nF")
+    fx.resistor("rm", "b", "gnd", 10e6)
+    fx.probe("v_b", node="b")
+    fx.probe("v_ab", node="a", reference="b")
+    fx.probe("i_rs", through="rs")
+    return fx
+
+
+def general_drive() -> fo.Drive:
+    return fo.Drive(
+        [0, "1m", "3m", "3.5m"], end="6m",
+        vdac=[0, 2.5, -1.2, -1.2], ibias=[0, 0, 1e-6, 0], k1=[1, 1, 0, 1],
+    )
+
+
+def general_analysis(**changes) -> Analysis:
+    arguments = dict(
+        fixture=general_fixture(), drive=general_drive(), initial="settled",
+        tolerance=fo.Tolerance.lsb(bits=16, span=5.0), sample_delay="0.4m",
+        title="Hold capacitor behind a relay (invented)", notes="line one\nline two",
+    )
+    arguments.update(changes)
+    return Analysis(**arguments)
+
+
+def valid_data() -> dict:
+    return json.loads(general_analysis().to_json())
+
+
+def write_json(path, data) -> str:
+    path.write_text(json.dumps(data), encoding="utf-8")
+    return str(path)
+
+
+def relay_analysis(**changes) -> Analysis:
+    """A DAC, a relay and a hold capacitor loaded by a meter (an invented scenario)."""
+    fx = fo.Fixture()
+    fx.voltage_source("vdac", "drv", "gnd")
+    fx.resistor("rs", "drv", "a", "1k")
+    fx.switch("k1", "a", "b", r_on="0.1", r_off="1G")
+    fx.capacitor("ch", "b", "gnd", "100n")
+    fx.resistor("rm", "b", "gnd", "10M")
+    fx.probe("v_b", node="b")
+    fx.probe("i_rs", through="rs")
+    arguments = dict(
+        fixture=fx,
+        drive=fo.Drive([0, "1m", "3m"], end="6m", vdac=[0, 2.5, -1.2], k1=[1, 1, 0]),
+        initial="settled", tolerance=fo.Tolerance.lsb(bits=16, span=5.0), sample_delay="0.9m",
+        title="Relay and hold capacitor", notes="First line.\nSecond line.",
+    )
+    arguments.update(changes)
+    return Analysis(**arguments)

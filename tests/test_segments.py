@@ -1,0 +1,152 @@
+"""Tests for firstorder.segments: a drive matched to a fixture, segment by segment.
+
+Rates and gains are checked against handbook formulas written here (tau = R C with series
+and parallel resistances, the divider ratio), never against the reduction itself.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import firstorder as fo
+from firstorder import segments as segments_module
+from firstorder.errors import InputError, TopologyError
+from firstorder.segments import Segments, rates
+
+
+def relay_filter() -> fo.Fixture:
+    """A DAC behind 1 kΩ, a relay (0.5 Ω on, 1 GΩ off) into 100 nF, 10 kΩ to ground (our own scenario)."""
+    fx = fo.Fixture()
+    fx.voltage_source("vdac", "drv", "gnd")
+    fx.resistor("rs", "drv", "a", "1k")
+    fx.switch("k1", "a", "b", r_on="0.5", r_off="1G")
+    fx.capacitor("c", "b", "gnd", "100n")
+    fx.resistor("rl", "b", "gnd", "10k")
+    fx.probe("v_a", node="a")
+    return fx
+
+
+def parallel(*resistances: float) -> float:
+    """Handbook: resistors in parallel, 1 / sum(1 / R)."""
+    return 1.0 / sum(1.0 / r for r in resistances)
+
+
+DRIVE = fo.Drive([0, "1m", "2m", "3m"], end="5m", vdac=[1.0, 2.0, 2.0, -1.0], k1=[1, 0, 1, 1])
+
+
+class TestOfDrive:
+    def test_configurations_and_which_segment_has_which(self):
+        segments = Segments.of_drive(relay_filter(), DRIVE)
+        assert segments.configurations == ((False,), (True,))
+        assert segments.configuration_of.tolist() == [1, 0, 1, 1]
+        assert segments.first_use.tolist() == [1, 0]
+
+    def test_rates_and_finals_are_the_handbook_ones(self):
+        segments = Segments.of_drive(relay_filter(), DRIVE)
+        closed = parallel(1e3 + 0.5, 10e3) * 100e-9   # Thevenin resistance seen by c, times c
+        opened = parallel(1e3 + 1e9, 10e3) * 100e-9
+        np.testing.assert_allclose(segments.tau, [closed, opened, closed, closed], rtol=1e-13)
+        np.testing.assert_allclose(rates(segments.tau), segments.rate, rtol=0)
+        divider = 10e3 / (10e3 + 1e3 + 0.5)            # handbook voltage divider
+        leaky = 10e3 / (10e3 + 1e3 + 1e9)
+        np.testing.assert_allclose(segments.final, [divider, 2 * leaky, 2 * divider, -divider], rtol=1e-13)
+        assert not segments.any_holds
+
+    def test_one_configuration_is_a_read_only_broadcast(self):
+        segments = Segments.of_drive(fo.Fixture.rc("1k", "1u"), fo.Drive.steps([(0, 1.0), ("1m", 0.0)], end="2m"))
+        assert segments.rate.strides == (0,) and not segments.rate.flags.writeable
+        assert segments.one_gain == 1.0 and segments.final is not None
+
+    def test_probe_rows_are_built_once_per_configuration(self, monkeypatch):
+        calls = []
+        original = segments_module.probe_row
+        monkeypatch.setattr(segments_module, "probe_row", lambda *a, **k: calls.append(a) or original(*a, **k))
+        segments = Segments.of_drive(relay_filter(), DRIVE)
+        first = segments.probe_rows("v_a")
+        assert segments.probe_rows("v_a") is first and len(calls) == len(segments.configurations) == 2
+        # Handbook two-source divider (Millman): with k1 open, node a sits between the DAC through
+        # 1 kΩ and the capacitor's voltage x through 1 GΩ: v_a = (vdac 1 GΩ + x 1 kΩ) / (1 kΩ + 1 GΩ).
+        assert first[1, 0] == pytest.approx(1e3 / (1e3 + 1e9), rel=1e-13)
+        assert first[1, 1] == pytest.approx(1e9 / (1e3 + 1e9), rel=1e-13)
+
+    def test_an_unknown_probe_names_the_probes(self):
+        with pytest.raises(InputError, match=r"probe: 'v_z' is not a probe of the fixture; probes are \['v_a'\]"):
+            Segments.of_drive(relay_filter(), DRIVE).probe_rows("v_z")
+
+    def test_no_text_is_made_unless_an_error_needs_it(self, monkeypatch):
+        # Engineering notation costs tens of microseconds a call: a response must not pay for
+        # labels nobody reads (the segment labels are made only for error messages).
+        def refuse(*args, **kwargs):
+            raise AssertionError("text was formatted on the quiet path")
+
+        monkeypatch.setattr(segments_module, "format_value", refuse)
+        fx = relay_filter()
+        response = fx.respond(DRIVE)
+        assert response.segments.probe_rows("v_a").shape == (4, 2)
+
+    def test_a_ramp_names_the_earliest_segment_and_its_configuration(self):
+        fx = fo.Fixture()
+        fx.current_source("ichg", "gnd", "a")
+        fx.switch("k", "a", "b", r_on="1")
+        fx.resistor("r", "b", "gnd", "1k")
+        fx.capacitor("c", "a", "gnd", "1u")
+        drive = fo.Drive([0, "1m", "2m"], end="3m", ichg=[0.0, 1e-3, 1e-3], k=[0, 0, 0])
+        with pytest.raises(TopologyError, match=r"^segment 1 \(from 1 ms; k open\): capacitor 'c' sees no resistance"):
+            Segments.of_drive(fx, drive)
+
+    def test_columns_are_matched_to_the_fixture(self):
+        with pytest.raises(InputError, match=r"drive columns \['vx'\] name no source or switch"):
+            Segments.of_drive(relay_filter(), DRIVE.replace(vx=[0, 0, 0, 0]))
+
+
+class TestOfColumns:
+    def test_steps_without_instants(self):
+        steps = Segments.of_columns(relay_filter(), {"vdac": [1.0, "2.5"], "k1": [1, 0]})
+        assert len(steps) == 2 and steps.columns["vdac"].tolist() == [1.0, 2.5]
+        assert steps.label(1) == "step 1 (k1 open)"
+
+    def test_errors_name_the_levels(self):
+        with pytest.raises(InputError, match=r"levels\.vdac\[1\]: 'x' is not a number"):
+            Segments.of_columns(relay_filter(), {"vdac": [1.0, "x"], "k1": [1, 1]})
+        with pytest.raises(InputError, match=r"levels\.k1: has 1 values but the longest column has 2"):
+            Segments.of_columns(relay_filter(), {"vdac": [1.0, 2.0], "k1": [1]})
+
+
+class TestOfModel:
+    def test_a_held_segment_has_no_final(self):
+        model = Segments.of_model([1e-3, np.inf], [2.0, 7.0], unit="A", name="coil")
+        assert model.final.tolist() == [2.0, 0.0] and model.holds.tolist() == [False, True]
+        assert (model.state_unit, model.storage_name, model.source_names) == ("A", "coil", ("fitted",))
+
+    @pytest.mark.parametrize("tau, final, match", [
+        ([0.0], [1.0], r"tau\[0\]: 0.0"), ([np.nan], [1.0], r"tau\[0\]"), ([1.0], [np.inf], r"final\[0\]"),
+        ([1.0, 1.0], [1.0], "final: has 1 values but tau has 2"),
+    ])
+    def test_bad_models_are_refused(self, tau, final, match):
+        with pytest.raises(InputError, match=match):
+            Segments.of_model(tau, final)
+
+
+class TestUnitAxis:
+    def test_stacked_units_keep_their_own_numbers(self):
+        lot = [Segments.of_drive(relay_filter().with_values(c=c), DRIVE) for c in ("90n", "100n", "110n")]
+        stacked = Segments.stack(lot)
+        assert stacked.units == 3 and stacked.rate.shape == (3, 4)
+        assert stacked.gain_by_configuration.shape == (3, 2, 1)
+        for k, unit in enumerate(lot):
+            assert stacked.unit(k) is unit
+            np.testing.assert_array_equal(stacked.rate[k], unit.rate)
+        # tau scales with C (handbook tau = R C): 110 nF over 90 nF
+        assert stacked.rate[0, 0] / stacked.rate[2, 0] == pytest.approx(110 / 90, rel=1e-13)
+
+    def test_a_single_fixture_has_no_unit_axis(self):
+        segments = Segments.of_drive(relay_filter(), DRIVE)
+        assert segments.units is None
+        with pytest.raises(InputError, match="no unit axis"):
+            segments.unit(0)
+
+    def test_units_of_another_structure_are_refused(self):
+        other = DRIVE.replace(k1=[1, 1, 1, 1])
+        with pytest.raises(InputError, match="differ in structure"):
+            Segments.stack([Segments.of_drive(relay_filter(), DRIVE), Segments.of_drive(relay_filter(), other)])
