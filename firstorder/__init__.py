@@ -1,7 +1,9 @@
 """firstorder: settling of first-order test fixtures under piecewise-constant drives.
 
-``import firstorder`` loads numpy, quantiphy and pandas only; sympy, ipywidgets
-and bokeh are imported when a derivation or the Bench is first asked for.
+``import firstorder`` loads numpy and quantiphy only; pandas, scipy, sympy,
+pydantic, numba, ipywidgets and bokeh are imported when a table, a fit, a
+derivation, a file, a long drive or the Bench first needs them
+(``tests/test_layers.py`` holds that, and the direction of every import).
 """
 
 from __future__ import annotations

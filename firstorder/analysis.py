@@ -337,6 +337,11 @@ class Analysis:
 
         The text goes to a temporary file in the same folder, which is then
         renamed over `path`: an interrupted save leaves the old file intact.
+
+        See Also
+        --------
+        load : read it back.
+        report : the same analysis as an HTML page that loads back too.
         """
         write_atomic(path, self.to_json())
         return Path(path)
@@ -347,6 +352,11 @@ class Analysis:
 
         Files over 50 MB are refused before they are parsed; everything else
         is validated (see :meth:`from_dict`).
+
+        See Also
+        --------
+        save, report : what it reads.
+        from_json : from text.
         """
         source = os.fspath(path)
         return cls.from_json(file_format.read_limited(source), source=source)
@@ -371,6 +381,11 @@ class Analysis:
         cautions, the package version and date, and the analysis itself, so
         that :meth:`load` can read the report back.  Needs bokeh
         (``pip install firstorder[widgets]``).
+
+        See Also
+        --------
+        to_html : the page as text.
+        markdown : for lab records.
         """
         write_atomic(path, self.to_html())
         return Path(path)

@@ -176,6 +176,10 @@ class Drive:
     def steps(cls, steps: Iterable[tuple[Any, Any]], end: Any, name: str = "vin") -> "Drive":
         """Drive one source from ``(time, level)`` pairs.
 
+        See Also
+        --------
+        pulses, staircase : other generators.
+
         Examples
         --------
         >>> Drive.steps([(0, 0.0), ("1m", 2.5)], end="4m").levels("vin")
@@ -201,6 +205,10 @@ class Drive:
         start: Any = 0.0,
     ) -> "Drive":
         """A train of `count` pulses: `high` for ``duty * period``, then `low`.
+
+        See Also
+        --------
+        steps, staircase : other generators.
 
         Examples
         --------
@@ -231,6 +239,10 @@ class Drive:
     @classmethod
     def staircase(cls, levels: Sequence[Any], dwell: Any, name: str = "vin", start: Any = 0.0) -> "Drive":
         """Step through `levels`, holding each for `dwell` seconds.
+
+        See Also
+        --------
+        steps, pulses : other generators.
 
         Examples
         --------

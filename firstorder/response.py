@@ -313,7 +313,12 @@ class Response:
         return locator
 
     def evaluate(self, t: Any, components: tuple[str, ...] = ("total",), probe: str | None = None) -> dict[str, np.ndarray]:
-        """Evaluate several components (of the state, or of `probe`) on one time array."""
+        """Evaluate several components (of the state, or of `probe`) on one time array.
+
+        See Also
+        --------
+        total, probe : one component.
+        """
         array = self._times(t)
         if probe is None and len(components) == 1 and components[0] not in ("forced", "natural"):
             # One state component: one compiled sweep if the grid is sorted and long.
@@ -366,7 +371,13 @@ class Response:
         return float(result) if result.ndim == 0 else result
 
     def total(self, t: Any):
-        """The state at times `t` (V across the capacitor or A through the inductor)."""
+        """The state at times `t` (V across the capacitor or A through the inductor).
+
+        See Also
+        --------
+        zero_input, zero_state, forced, natural, contribution : the other components.
+        evaluate : several at once on one time array.
+        """
         return self._single("total", t)
 
     def zero_input(self, t: Any):

@@ -157,13 +157,24 @@ class Segments:
     @classmethod
     def of_drive(cls, fixture: "Fixture", drive: "Drive") -> "Segments":
         """The segments of `drive` on `fixture` (its columns checked against the fixture's
-        sources and switches)."""
+        sources and switches).
+
+        See Also
+        --------
+        of_columns : steps without instants (plans).
+        of_model : a measured model, without a fixture.
+        """
         return cls._matched(fixture, drive.columns, len(drive), "drive", times=drive.times, word="segment")
 
     @classmethod
     def of_columns(cls, fixture: "Fixture", columns: Mapping[str, Any], field: str = "levels") -> "Segments":
         """The steps of a plan: level columns without instants (each read as
-        :func:`~firstorder.drive.level_columns` reads them, named `field` in errors)."""
+        :func:`~firstorder.drive.level_columns` reads them, named `field` in errors).
+
+        See Also
+        --------
+        of_drive : a drive's segments.
+        """
         parsed = level_columns(columns, None, field=field,
                                per="the longest column has {count}; give one level per step")
         count = len(next(iter(parsed.values())))
@@ -206,6 +217,10 @@ class Segments:
 
         The one pseudo-source, ``"fitted"``, carries every segment's final value.
 
+        See Also
+        --------
+        of_drive : a fixture's segments.
+
         Examples
         --------
         >>> Segments.of_model([1e-3, np.inf], [1.0, 5.0], unit="V").final
@@ -240,6 +255,10 @@ class Segments:
     def stack(cls, lot: Sequence["Segments"]) -> "Segments":
         """One Segments with a leading unit axis from segments of the same structure (the
         same drive on fixtures that differ only in part values).
+
+        See Also
+        --------
+        unit : one unit back.
 
         Examples
         --------

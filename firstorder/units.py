@@ -79,6 +79,10 @@ def parse_value(
     InputError
         Naming `field`, the value and what is allowed.
 
+    See Also
+    --------
+    format_value : the other way.
+
     Examples
     --------
     >>> parse_value("2.2 MΩ", field="r_leak", unit="Ω")
@@ -142,6 +146,11 @@ def format_value(value: float, unit: str = "", digits: int = 4) -> str:
     unit : str, optional
     digits : int, optional
         Significant digits kept (trailing zeros are dropped).
+
+    See Also
+    --------
+    parse_value : the other way.
+    firstorder.plotting.format.format_many : many values at once.
 
     Examples
     --------

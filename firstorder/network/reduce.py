@@ -51,7 +51,33 @@ _CANCELLED = 8 * np.finfo(float).eps
 
 
 def reduce(layout: Layout, netlist: Netlist) -> Reduced:
-    """Solve one configuration's nodal system with numpy; see the module docstring."""
+    """Solve one configuration's nodal system with numpy; see the module docstring.
+
+    Parameters
+    ----------
+    layout : Layout
+        The configuration's stamps (:func:`firstorder.network.topology.plan`).
+    netlist : Netlist
+        Supplies the part values.
+
+    Returns
+    -------
+    Reduced
+
+    See Also
+    --------
+    probe_row, node_row : any probe or node from the same solution.
+
+    Examples
+    --------
+    >>> from firstorder.netlist import Part
+    >>> from firstorder.network.topology import plan
+    >>> netlist = Netlist((Part("voltage_source", "vin", "in", "gnd"), Part("resistor", "r", "in", "out", value=1e3),
+    ...                    Part("capacitor", "c", "out", "gnd", value=1e-6)))
+    >>> reduced = reduce(plan(netlist, ()), netlist)
+    >>> reduced.tau, reduced.gain
+    (0.001, array([1.]))
+    """
     parts = netlist.part_map
     sources = len(netlist.sources)
 
@@ -104,7 +130,7 @@ def node_row(solution: np.ndarray, layout: Layout, node: str) -> np.ndarray:
 
 
 def probe_row(layout: Layout, netlist: Netlist, reduced: Reduced, probe: Probe, where=None) -> np.ndarray:
-    """A probe as an affine row over ``[x, u...]`` in one configuration.
+    """A probe as an affine row over ``[x, u...]`` in one configuration (see :func:`node_row`).
 
     Raises TopologyError (naming `where`) for a node voltage across a floating island,
     whose value the pin would otherwise set to an arbitrary 0 V.

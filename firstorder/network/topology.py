@@ -145,6 +145,11 @@ def plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], s
     TopologyError, ZeroTimeError
         Naming `where`, the parts and the nodes.
 
+    See Also
+    --------
+    firstorder.network.reduce.reduce : the numbers of a planned configuration.
+    firstorder.fixture.Fixture.configuration : both, cached per fixture.
+
     Examples
     --------
     >>> from firstorder.netlist import Part

@@ -149,6 +149,11 @@ def envelope(plan: SamplePlan, values: np.ndarray) -> tuple[np.ndarray, np.ndarr
     Every column holds at least its left edge, so none is empty; the right edge
     is shared with the next column and counted in both.
 
+    See Also
+    --------
+    step_envelope : the same for a piecewise-constant column.
+    plan_samples : where to evaluate first.
+
     Examples
     --------
     >>> plan = plan_samples(np.arange(100.0), 100.0, np.ones(100), 0.0, 100.0, 16)
@@ -170,6 +175,10 @@ def envelope(plan: SamplePlan, values: np.ndarray) -> tuple[np.ndarray, np.ndarr
 def step_envelope(plan: SamplePlan, starts: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """:func:`envelope` of a piecewise-constant column (a drive's levels, each segment's
     final value): ``values[k]`` holds from ``starts[k]`` to the next start.
+
+    See Also
+    --------
+    envelope : for any curve evaluated at the plan's times.
 
     Examples
     --------

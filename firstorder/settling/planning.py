@@ -226,6 +226,11 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
         a tolerance in the wrong unit, or a step whose dwell would be 0 s (give
         `min_dwell` > 0).
 
+    See Also
+    --------
+    plan_table : the same plan, one row per step.
+    firstorder.settling.table.settling_table : judge any drive, planned or not.
+
     Notes
     -----
     Greedy and closed form: step ``k`` starts from the state ``x_k`` that the
@@ -271,6 +276,10 @@ def plan_table(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 0
         ``tolerance`` (the limit used), ``error_at_sample`` and ``limited_by``
         (``"settling"`` or ``"min_dwell"``).  ``table.attrs["total_time"]`` is
         the length of the whole plan.
+
+    See Also
+    --------
+    plan_dwells : the planned drive itself.
 
     Examples
     --------

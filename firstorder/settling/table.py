@@ -195,6 +195,12 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
         An unknown probe, a tolerance in the wrong unit, or a sample delay that
         is negative, not finite or past its segment's end (naming the segment).
 
+    See Also
+    --------
+    settling_summary : the few numbers read first.
+    sample_delays : what a sample delay may be.
+    firstorder.settling.planning.plan_dwells : the fastest drive that passes.
+
     Notes
     -----
     Closed form: the error after a change is ``|start_value - final| *
@@ -336,6 +342,10 @@ def settling_summary(response: Any, tolerance: Tolerance, sample_delay: Any = No
 
     Without `sample_delay` each segment is judged at its end (the latest
     instant it could be sampled).
+
+    See Also
+    --------
+    settling_table : every segment.
 
     Examples
     --------

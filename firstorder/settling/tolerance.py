@@ -169,6 +169,11 @@ _HELP = "'1 mV' (absolute), '0.1 %' (of each step), '10 ppm of 5 V' or '0.5 LSB 
 def parse_tolerance(text: str, unit: str = "V") -> Tolerance | None:
     """A :class:`Tolerance` from text, or None for an empty field.
 
+    See Also
+    --------
+    tolerance_text : the other way.
+    Tolerance : the factories.
+
     Examples
     --------
     >>> parse_tolerance("0.5 LSB of 16 bits on 5 V")
@@ -202,6 +207,10 @@ def _fraction(text: str) -> float:
 
 def tolerance_text(tolerance: Tolerance | None) -> str:
     """Text that :func:`parse_tolerance` reads back to `tolerance`.
+
+    See Also
+    --------
+    parse_tolerance : the other way.
 
     Examples
     --------

@@ -383,6 +383,11 @@ def fit_trace(trace: Trace, drive: "Drive", fixture: "Fixture | None" = None, pr
     -------
     TraceFit
 
+    See Also
+    --------
+    TraceFit.compare : hold the fit against a fixture's model.
+    firstorder.response.Response.from_segments : the fitted model as a response.
+
     Notes
     -----
     ``noise`` is estimated from the samples alone, never from the fit: from

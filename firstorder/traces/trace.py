@@ -228,6 +228,11 @@ def read_trace(path: str | os.PathLike[str], time: Any = "time", value: Any = "v
         not a finite number, times that do not increase or no data; the message
         names the line and the column.
 
+    See Also
+    --------
+    Trace.from_arrays : a trace from arrays.
+    firstorder.traces.fitting.fit_trace : fit it.
+
     Examples
     --------
     >>> import tempfile, pathlib
