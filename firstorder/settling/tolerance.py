@@ -142,15 +142,28 @@ class Tolerance:
         return _described(self)
 
     def _describe(self) -> str:
-        unit = self.unit
         if self.kind == "absolute":
-            return f"±{format_value(self.value, unit)}"
+            return f"±{_phrase(self, digits=4)}"
         if self.kind == "relative":
-            return f"±{self.value * 100:g} % of each step"
-        if self.kind == "ppm":
-            return f"±{format_value(self.value * 1e-6 * self.span, unit)} ({self.value:g} ppm of {format_value(self.span, unit)})"
-        share = _FRACTION_WORDS.get(self.fraction, f"{self.fraction:g}")
-        return f"±{format_value(self.value, unit)} ({share} LSB of {self.bits} bits on {format_value(self.span, unit)})"
+            return f"±{_phrase(self, digits=4)} of each step"
+        limit = self.value * 1e-6 * self.span if self.kind == "ppm" else self.value
+        return f"±{format_value(limit, self.unit)} ({_phrase(self, digits=4, glyphs=True)})"
+
+
+def _phrase(tolerance: Tolerance, digits: int, glyphs: bool = False) -> str:
+    """The tolerance in the words :func:`parse_tolerance` reads: ``"1 mV"``, ``"0.1 %"``,
+    ``"10 ppm of 5 V"``, ``"0.5 LSB of 16 bits on 5 V"`` (``"½ LSB ..."`` with `glyphs`).
+    The one writing of a tolerance, shown (``str``) and editable (:func:`tolerance_text`)."""
+    unit = tolerance.unit
+    if tolerance.kind == "absolute":
+        return format_value(tolerance.value, unit, digits=digits)
+    if tolerance.kind == "relative":
+        return f"{tolerance.value * 100:g} %"
+    span = format_value(tolerance.span, unit, digits=digits)
+    if tolerance.kind == "ppm":
+        return f"{tolerance.value:g} ppm of {span}"
+    share = _FRACTION_WORDS.get(tolerance.fraction, f"{tolerance.fraction:g}") if glyphs else f"{tolerance.fraction:g}"
+    return f"{share} LSB of {tolerance.bits} bits on {span}"
 
 
 @lru_cache(maxsize=256)
@@ -182,8 +195,11 @@ def parse_tolerance(text: str, unit: str = "V") -> Tolerance | None:
     Tolerance.relative(fraction=0.001)
     >>> parse_tolerance("2m")
     Tolerance.absolute(value=0.002)
+    >>> tolerance = Tolerance.lsb(bits=16, span=5.0)
+    >>> parse_tolerance(str(tolerance)) == tolerance    # what str() shows reads back too
+    True
     """
-    stripped = str(text).strip()
+    stripped = _as_written(str(text).strip())
     if not stripped:
         return None
     try:
@@ -199,6 +215,17 @@ def parse_tolerance(text: str, unit: str = "V") -> Tolerance | None:
         return Tolerance.absolute(stripped, unit=unit)
     except InputError as error:
         raise InputError(f"tolerance: {text!r} is not understood ({error}); write {_HELP}") from None
+
+
+def _as_written(text: str) -> str:
+    """The words inside a tolerance as ``str()`` shows it: ``"±38.15 µV (½ LSB of 16 bits on 5 V)"``
+    reads as its parenthesis, ``"±0.1 % of each step"`` as ``"0.1 %"``, ``"±1 mV"`` as ``"1 mV"``."""
+    if not text.startswith("±"):
+        return text
+    text = text[1:].strip()
+    if text.endswith(")") and "(" in text:
+        return text[text.index("(") + 1:-1].strip()
+    return text.removesuffix("of each step").strip()
 
 
 def _fraction(text: str) -> float:
@@ -219,11 +246,4 @@ def tolerance_text(tolerance: Tolerance | None) -> str:
     """
     if tolerance is None:
         return ""
-    unit = tolerance.unit
-    if tolerance.kind == "absolute":
-        return format_value(tolerance.value, unit, digits=6)
-    if tolerance.kind == "relative":
-        return f"{tolerance.value * 100:g} %"
-    if tolerance.kind == "ppm":
-        return f"{tolerance.value:g} ppm of {format_value(tolerance.span, unit, digits=6)}"
-    return f"{tolerance.fraction:g} LSB of {tolerance.bits} bits on {format_value(tolerance.span, unit, digits=6)}"
+    return _phrase(tolerance, digits=6)

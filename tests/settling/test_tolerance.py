@@ -55,3 +55,21 @@ class TestTolerance:
 
 
 # -- settling_table / Response.settling ----------------------------------------------------------
+
+
+class TestOneWriting:
+    @pytest.mark.parametrize("tolerance", [
+        fo.Tolerance.absolute("1.5m"), fo.Tolerance.absolute("20u", unit="A"), fo.Tolerance.relative(0.001),
+        fo.Tolerance.ppm(10, 5.0), fo.Tolerance.lsb(bits=16, span=5.0), fo.Tolerance.lsb(bits=12, span=10.0, fraction=1.0),
+        fo.Tolerance.lsb(bits=24, span=2.5, fraction=0.25),
+    ])
+    def test_what_is_shown_and_what_is_edited_read_back(self, tolerance):
+        from firstorder.settling.tolerance import parse_tolerance, tolerance_text
+
+        assert parse_tolerance(tolerance_text(tolerance), unit=tolerance.unit) == tolerance
+        assert parse_tolerance(str(tolerance), unit=tolerance.unit) == tolerance
+
+    def test_the_shown_text_leads_with_the_limit(self):
+        assert str(fo.Tolerance.lsb(bits=16, span=5.0)) == "±38.15 µV (½ LSB of 16 bits on 5 V)"
+        assert str(fo.Tolerance.ppm(10, 5.0)) == "±50 µV (10 ppm of 5 V)"
+        assert str(fo.Tolerance.relative(0.001)) == "±0.1 % of each step"
