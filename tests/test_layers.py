@@ -44,7 +44,7 @@ LAYERS = [
     "response",
     "settling.tolerance", "settling.table", "settling.planning", "settling",
     "cautions",
-    "symbolic.names", "symbolic.nodal", "symbolic.derivation", "symbolic.steps", "symbolic",
+    "symbolic.names", "symbolic.nodal", "symbolic.steps", "symbolic.derivation", "symbolic",
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",
     "io.analysis_format", "io.schema", "io",
     "analysis",

@@ -1,6 +1,7 @@
 """The report as one standalone, offline HTML page.
 
-Styles inline, BokehJS inline (:mod:`.figure`), the derivations as MathML
+Styles inline, BokehJS inline (:mod:`.figure`), the derivations' steps
+(:func:`firstorder.symbolic.steps.derivation_steps`) as MathML
 (:mod:`.mathml`), the rows from :mod:`.tables`, and the analysis JSON in a
 ``<script type="application/json">`` block that :meth:`Analysis.load
 <firstorder.analysis.Analysis.load>` reads back.  Everything the user typed
@@ -13,7 +14,7 @@ from html import escape
 from typing import TYPE_CHECKING
 
 from ..units import format_value
-from .mathml import derivation_steps, mathml
+from .mathml import mathml
 from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, drive_rows, drive_summary_rows, part_rows,
                      probe_rows, settling_rows, states_text, summary_rows, timestamp, version)
 
@@ -99,6 +100,8 @@ def _cautions_html(analysis: "Analysis") -> str:
 
 
 def _derivations_html(analysis: "Analysis") -> str:
+    from ..symbolic.steps import derivation_steps  # the same steps as the LaTeX and Markdown
+
     shown = analysis.derivations(limit=MAX_DERIVATIONS)
     total = len(analysis.response.configurations)
     parts = [

@@ -3,17 +3,18 @@
 Browsers draw MathML without any script.  Everything the user typed (part and
 probe names) is escaped before it reaches the page: sympy's printer writes
 symbol names as they are, so every name is replaced by an escaped one first, and
-the printer's output is checked to hold presentation markup only.
+the printer's output is checked to hold presentation markup only.  The
+derivation's steps themselves are written once, in
+:func:`firstorder.symbolic.steps.derivation_steps`.
 """
 
 from __future__ import annotations
 
-import functools
 from html import escape
 from html.parser import HTMLParser
 from typing import Any
 
-__all__ = ["derivation_steps", "mathml"]
+__all__ = ["mathml"]
 
 _MATHML_TAGS = frozenset({
     "math", "mrow", "mi", "mn", "mo", "ms", "mtext", "mspace", "msub", "msup", "msubsup",
@@ -80,25 +81,9 @@ def _exponentials_as_powers(expression: Any) -> Any:
     """
     import sympy as sp
 
-    power = _power_of_e()
-    return expression.replace(sp.exp, lambda argument: power(argument))
+    from ..symbolic.steps import PowerOfE
 
-
-@functools.cache
-def _power_of_e():
-    """A sympy function printed as e to its argument (built on first use: sympy loads lazily)."""
-    import sympy as sp
-
-    class PowerOfE(sp.Function):
-        def _mathml_presentation(self, printer):
-            element = printer.dom.createElement("msup")
-            base = printer.dom.createElement("mi")
-            base.appendChild(printer.dom.createTextNode("e"))
-            element.appendChild(base)
-            element.appendChild(printer._print(self.args[0]))
-            return element
-
-    return PowerOfE
+    return expression.replace(sp.exp, lambda argument: PowerOfE(argument))
 
 
 def mathml(expression: Any) -> str:
@@ -129,64 +114,3 @@ def mathml(expression: Any) -> str:
     if not check.clean:
         return f"<code>{escape(sp.latex(expression))}</code>"
     return f'<math xmlns="http://www.w3.org/1998/Math/MathML" display="block">{body}</math>'
-
-
-def derivation_steps(derivation: Any) -> list[tuple[str, list[Any]]]:
-    """The derivation as (caption, [sympy equations]) steps, for MathML."""
-    import sympy as sp
-
-    d = derivation
-    x = d.state
-    t = d.symbols["t"]
-    equal = lambda left, right: sp.Eq(left, right, evaluate=False)  # noqa: E731 - keep both sides as written
-    steps: list[tuple[str, list[Any]]] = []
-    storage = d.symbols[d.storage]
-    if not d.holds:
-        if d.kind == "capacitor":
-            resistance, equivalent = sp.Symbol("R_th"), sp.Symbol("V_th")
-            law = equal(storage * sp.Derivative(x, t), (equivalent - x) / resistance)
-            law_caption = "Circuit law: KCL at the capacitor, with the Thevenin equivalent"
-        else:
-            resistance, equivalent = sp.Symbol("R_N"), sp.Symbol("I_N")
-            law = equal(storage * sp.Derivative(x, t), resistance * (equivalent - x))
-            law_caption = "Circuit law: KVL around the inductor, with the Norton equivalent"
-        steps.append((f"Equivalent seen by the {d.kind} ({d.configuration})",
-                      [equal(resistance, d.resistance), equal(equivalent, d.equivalent)]))
-        steps.append((law_caption, [law]))
-    else:
-        steps.append((f"No resistive path for the {d.kind} ({d.configuration}): the state holds", []))
-    tau = sp.Symbol("tau")
-    if d.holds:
-        steps.append(("The ODE", [d.ode]))
-        steps.append(("Time constant", [equal(tau, d.tau)]))
-        steps.append(("Final value", [equal(x.subs(t, sp.oo), d.final)]))
-        steps.append(("Zero-input + zero-state", [equal(x, sp.Add(d.zero_input, d.zero_state, evaluate=False))]))
-        steps.append(("Natural + forced", [equal(x, sp.Add(d.natural, d.forced, evaluate=False))]))
-    else:
-        # In the names of the first step, as Derivation.steps writes them (its attributes keep
-        # the full expressions, which nest fractions inside exponents for a real fixture).
-        # A power of e from the start (not exp, which the printing step would rebuild, and
-        # with it the sums below, in sympy's own order): the terms stay as written.
-        start, decay = d.symbols["initial"], _power_of_e()(-t / tau)
-        if d.kind == "capacitor":
-            ode = equal(sp.Derivative(x, t), (equivalent - x) / sp.Mul(storage, resistance, evaluate=False))
-            tau_rule = sp.Mul(storage, resistance, evaluate=False)
-        else:
-            ode = equal(sp.Derivative(x, t), resistance * (equivalent - x) / storage)
-            tau_rule = storage / resistance
-        steps.append(("The ODE", [ode]))
-        steps.append(("Time constant", [equal(tau, tau_rule), equal(tau, d.tau)]))
-        steps.append(("Final value", [equal(x.subs(t, sp.oo), equivalent)]))
-        steps.append(("Zero-input + zero-state",
-                      [equal(x, sp.Add(start * decay, equivalent * (1 - decay), evaluate=False))]))
-        steps.append(("Natural + forced",
-                      [equal(x, sp.Add(sp.Mul(sp.Add(start, -equivalent, evaluate=False), decay, evaluate=False),
-                                       equivalent, evaluate=False))]))
-    for probe, expression in d.probes.items():
-        steps.append((f"Probe {probe}", [equal(sp.Symbol(probe), expression)]))
-    if d.values:
-        numbers = [equal(symbol, sp.Float(value, 4)) for symbol, value in d.values.items()]
-        tau_value = sp.oo if d.holds else sp.Float(float(d.substitute(d.tau)), 4)
-        numbers.append(equal(sp.Symbol("tau"), tau_value))
-        steps.append(("With the part values (SI units)", numbers))
-    return steps

@@ -1,6 +1,6 @@
-"""symbolic: derivations against handbook formulas, sympy.dsolve and the numeric path.
+"""symbolic.derivation: derivations against handbook formulas, sympy.dsolve and the numeric path.
 
-Every network here is a scenario of our own invention.
+Every network here is a scenario of our own invention (the shared ones are in conftest.py).
 """
 
 import itertools
@@ -10,45 +10,13 @@ import pytest
 import sympy as sp
 
 import firstorder as fo
-from firstorder import symbolic
 from firstorder.network import probe_row
-
-
-def divider_fixture():
-    fx = fo.Fixture()
-    fx.voltage_source("vin", "in", "gnd")
-    fx.resistor("r1", "in", "a", "10k")
-    fx.resistor("r2", "a", "gnd", "4.7k")
-    fx.resistor("rm", "a", "gnd", "1M")
-    fx.resistor("rf", "a", "out", "1k")
-    fx.capacitor("c", "out", "gnd", "100n")
-    fx.probe("v_a", node="a")
-    return fx
-
-
-def relay_fixture():
-    fx = fo.Fixture()
-    fx.voltage_source("vdac", "dac", "gnd")
-    fx.current_source("ib", "gnd", "h")
-    fx.resistor("rs", "dac", "a", "1k")
-    fx.switch("k1", "a", "h", r_on="2", r_off="1G")
-    fx.capacitor("ch", "h", "gnd", "10n")
-    fx.resistor("r_leak", "h", "gnd", "100M")
-    fx.switch("k2", "h", "m")
-    fx.resistor("r_meter", "m", "gnd", "10M")
-    fx.probe("v_a", node="a")
-    fx.probe("i_k1", through="k1")
-    fx.probe("i_ch", through="ch")
-    fx.probe("i_dac", through="vdac")
-    fx.probe("v_m", node="m", reference="a")
-    fx.probe("i_ib", through="ib")
-    fx.probe("i_rs", through="rs")
-    return fx
+from firstorder.symbolic import derivation
 
 
 class TestDerive:
-    def test_loaded_divider_matches_the_handbook(self):
-        d = divider_fixture().derivation()
+    def test_loaded_divider_matches_the_handbook(self, divider):
+        d = divider.derivation()
         s = d.symbols
         lower = s["r2"] * s["rm"] / (s["r2"] + s["rm"])
         # Handbook series/parallel: R_th = rf + r1 || r2 || rm, V_th = vin (r2 || rm) / (r1 + r2 || rm).
@@ -71,8 +39,8 @@ class TestDerive:
         assert sp.simplify(d.equivalent - vx * (r2 / (r1 + r2) - r4 / (r3 + r4))) == 0
 
     @pytest.mark.parametrize("states", list(itertools.product([True, False], repeat=2)))
-    def test_solution_solves_its_ode_by_dsolve(self, states):
-        fx = relay_fixture()
+    def test_solution_solves_its_ode_by_dsolve(self, states, relay):
+        fx = relay
         d = fx.derivation(k1=states[0], k2=states[1])
         if d.holds:
             assert d.tau == sp.oo and d.zero_input == d.symbols["initial"]
@@ -83,16 +51,16 @@ class TestDerive:
         assert sp.simplify(solved.rhs - (d.zero_input + d.zero_state)) == 0
         assert sp.simplify(solved.rhs - (d.natural + d.forced)) == 0
 
-    def test_ode_is_kcl_at_the_capacitor_written_by_hand(self):
-        d = relay_fixture().derivation(k1=True, k2=True)
+    def test_ode_is_kcl_at_the_capacitor_written_by_hand(self, relay):
+        d = relay.derivation(k1=True, k2=True)
         s = d.symbols
         v = d.state
         # By hand: node a is rs -> k1 (r_on); ch sees (vdac - v)/(rs + k1_on) + ib - v/r_leak - v/r_meter.
         current = (s["vdac"] - v) / (s["rs"] + s["k1"]) + s["ib"] - v / s["r_leak"] - v / s["r_meter"]
         assert sp.simplify(d.ode.rhs - current / s["ch"]) == 0
 
-    def test_numbers_agree_with_the_numeric_path_in_every_configuration(self):
-        fx = relay_fixture()
+    def test_numbers_agree_with_the_numeric_path_in_every_configuration(self, relay):
+        fx = relay
         for states in itertools.product([True, False], repeat=2):
             d = fx.derivation(k1=states[0], k2=states[1])
             layout, reduced = fx.configuration(states)
@@ -120,7 +88,6 @@ class TestDerive:
         # Common practice: L / (R_coil + R_flyback), and the coil voltage is -i R_flyback.
         assert sp.simplify(d.tau - s["l"] / (s["r_coil"] + s["r_fly"])) == 0
         assert sp.simplify(d.probes["v_coil"] + sp.Symbol("i_l", real=True) * s["r_fly"]) == 0
-
 
     def test_floating_island_probe_and_tau(self):
         fx = fo.Fixture()
@@ -191,83 +158,15 @@ class TestRandomNetworks:
 
 
 class TestCache:
-    def test_derived_once_per_structure(self, monkeypatch):
-        fx = relay_fixture()
+    def test_derived_once_per_structure(self, monkeypatch, relay):
+        fx = relay
         first = fx.derivation(k1=True, k2=False)
         calls = []
-        original = symbolic._derive
-        monkeypatch.setattr(symbolic, "_derive", lambda *a: calls.append(a) or original(*a))
+        original = derivation._derive
+        monkeypatch.setattr(derivation, "_derive", lambda *a: calls.append(a) or original(*a))
         again = fx.derivation(k1=True, k2=False)
         other_values = fx.with_values(rs="2k").derivation(k1=True, k2=False)
         assert calls == []
         assert again.tau == first.tau
         assert float(other_values.substitute(other_values.tau)) == pytest.approx(
             fx.with_values(rs="2k").time_constant(k1=True, k2=False), rel=1e-12)
-
-
-class TestText:
-    def test_latex_steps(self):
-        d = relay_fixture().derivation(k1=True, k2=False)
-        text = d.latex()
-        assert r"v_{ch}{\left(\infty \right)} =" in text  # not v_ch(t)(∞)
-        assert r"{\left(t \right)}{\left(\infty" not in text
-        assert r"r_{leak}" in text and "i_{k1}" in text
-        for caption in ("Equivalent seen by capacitor ch", "The ODE", "Time constant", "Zero-input + zero-state",
-                        "Natural + forced", "Probe i", "With the part values"):
-            assert caption in text or caption.replace("_", r"}\_\text{") in text
-        assert d._repr_latex_().startswith("$$") and "**The ODE**" in d._repr_markdown_()
-
-    def test_names_are_not_read_as_latex_modifiers(self):
-        # sympy would print a symbol named "vcal" as a calligraphic v and "rbar" as r-bar.
-        fx = fo.Fixture()
-        fx.voltage_source("vcal", "src", "gnd")
-        fx.resistor("rbar", "src", "n", "1k")
-        fx.capacitor("c", "n", "gnd", "1u")
-        text = fx.derivation().latex()
-        assert r"\mathrm{vcal}" in text and r"\mathrm{rbar}" in text
-        assert r"\mathcal" not in text and r"\bar" not in text
-
-    def test_holding_configuration_says_so(self):
-        fx = fo.Fixture()
-        fx.voltage_source("vin", "in", "gnd")
-        fx.resistor("r", "in", "a", "1k")
-        fx.switch("k", "a", "b")
-        fx.capacitor("c_hold", "b", "gnd", "1n")
-        text = fx.derivation(k=False).latex()
-        assert "No resistive path" in text and "nan" not in text
-        assert r"v_{c\_hold}" in text
-
-
-class TestImport:
-    def test_import_loads_no_sympy(self):
-        import subprocess
-        import sys
-
-        code = "import sys, firstorder; print('sympy' in sys.modules)"
-        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-        assert out.stdout.strip() == "False"
-
-
-class TestDerivationNamesAsTyped:
-    def test_names_are_not_read_as_accents_or_fonts(self):
-        # sympy by itself writes a symbol "vcal" as a calligraphic v and "vbar" as v with a bar
-        # (its naming convention for accents, from sympy's printing docs); a source named
-        # vcal must stay vcal in the derivation.
-        fixture = fo.Fixture()
-        fixture.voltage_source("vcal", "src", "gnd")
-        fixture.resistor("r_filter", "src", "node", "4.99k")
-        fixture.capacitor("c_filter", "node", "gnd", "330n")
-        text = fixture.derivation().latex()
-        assert r"\mathcal" not in text
-        assert r"\mathrm{vcal}" in text
-        assert r"r_{filter}" in text
-
-    def test_switch_symbol_keeps_its_digit(self):
-        fixture = fo.Fixture()
-        fixture.voltage_source("vin", "a", "gnd")
-        fixture.switch("k1", "a", "b", r_on="1")
-        fixture.resistor("r", "b", "c", "1k")
-        fixture.capacitor("c", "c", "gnd", "1u")
-        text = fixture.derivation(k1=True).latex()
-        assert r"\mathrm{k1}_{on}" in text
-        assert "k_{1 on}" not in text
