@@ -1,6 +1,6 @@
 """symbolic.derivation: derivations against handbook formulas, sympy.dsolve and the numeric path.
 
-Every network here is a scenario of our own invention (the shared ones are in conftest.py).
+Every network here is a scenario of our own invention.
 """
 
 import itertools
@@ -8,6 +8,7 @@ import itertools
 import numpy as np
 import pytest
 import sympy as sp
+from builders import divider_fixture, relay_fixture
 
 import firstorder as fo
 from firstorder.network import probe_row
@@ -15,8 +16,8 @@ from firstorder.symbolic import derivation
 
 
 class TestDerive:
-    def test_loaded_divider_matches_the_handbook(self, divider):
-        d = divider.derivation()
+    def test_loaded_divider_matches_the_handbook(self):
+        d = divider_fixture().derivation()
         s = d.symbols
         lower = s["r2"] * s["rm"] / (s["r2"] + s["rm"])
         # Handbook series/parallel: R_th = rf + r1 || r2 || rm, V_th = vin (r2 || rm) / (r1 + r2 || rm).
@@ -39,8 +40,8 @@ class TestDerive:
         assert sp.simplify(d.equivalent - vx * (r2 / (r1 + r2) - r4 / (r3 + r4))) == 0
 
     @pytest.mark.parametrize("states", list(itertools.product([True, False], repeat=2)))
-    def test_solution_solves_its_ode_by_dsolve(self, states, relay):
-        fx = relay
+    def test_solution_solves_its_ode_by_dsolve(self, states):
+        fx = relay_fixture()
         d = fx.derivation(k1=states[0], k2=states[1])
         if d.holds:
             assert d.tau == sp.oo and d.zero_input == d.symbols["initial"]
@@ -51,16 +52,16 @@ class TestDerive:
         assert sp.simplify(solved.rhs - (d.zero_input + d.zero_state)) == 0
         assert sp.simplify(solved.rhs - (d.natural + d.forced)) == 0
 
-    def test_ode_is_kcl_at_the_capacitor_written_by_hand(self, relay):
-        d = relay.derivation(k1=True, k2=True)
+    def test_ode_is_kcl_at_the_capacitor_written_by_hand(self):
+        d = relay_fixture().derivation(k1=True, k2=True)
         s = d.symbols
         v = d.state
         # By hand: node a is rs -> k1 (r_on); ch sees (vdac - v)/(rs + k1_on) + ib - v/r_leak - v/r_meter.
         current = (s["vdac"] - v) / (s["rs"] + s["k1"]) + s["ib"] - v / s["r_leak"] - v / s["r_meter"]
         assert sp.simplify(d.ode.rhs - current / s["ch"]) == 0
 
-    def test_numbers_agree_with_the_numeric_path_in_every_configuration(self, relay):
-        fx = relay
+    def test_numbers_agree_with_the_numeric_path_in_every_configuration(self):
+        fx = relay_fixture()
         for states in itertools.product([True, False], repeat=2):
             d = fx.derivation(k1=states[0], k2=states[1])
             layout, reduced = fx.configuration(states)
@@ -158,8 +159,8 @@ class TestRandomNetworks:
 
 
 class TestCache:
-    def test_derived_once_per_structure(self, monkeypatch, relay):
-        fx = relay
+    def test_derived_once_per_structure(self, monkeypatch):
+        fx = relay_fixture()
         first = fx.derivation(k1=True, k2=False)
         calls = []
         original = derivation._derive

@@ -6,6 +6,7 @@ names must not fall into) are from sympy's printing documentation.
 
 import pytest
 import sympy as sp
+from builders import relay_fixture
 
 import firstorder as fo
 from firstorder.symbolic.names import derivation_names, latex_name, latex_text
@@ -76,7 +77,8 @@ class TestDerivationNamesAsTyped:
 
 
 class TestDerivationNames:
-    def test_every_symbol_of_a_configuration(self, relay):
+    def test_every_symbol_of_a_configuration(self):
+        relay = relay_fixture()
         names = derivation_names(relay.netlist, (True, False))
         s = names.symbols
         assert list(s) == ["vdac", "ib", "rs", "k1", "ch", "r_leak", "k2", "r_meter", "t", "initial"]
@@ -94,7 +96,8 @@ class TestDerivationNames:
         assert names.state == sp.Symbol("i_l", real=True) and names.start == sp.Symbol("i_0", real=True)
         assert (names.resistance, names.equivalent) == (sp.Symbol("R_N"), sp.Symbol("I_N"))
 
-    def test_the_derivation_carries_its_names(self, relay):
+    def test_the_derivation_carries_its_names(self):
+        relay = relay_fixture()
         d = relay.derivation(k1=False, k2=True)
         assert d.symbols is d.names.symbols and d.state == d.names.state_function
         assert d.names == derivation_names(relay.netlist, (False, True))
@@ -108,7 +111,8 @@ class TestDerivationNames:
         assert names.latex(names.time_constant) == r"\tau"
         assert names.latex(names.symbols["tau"]) == r"\mathrm{tau}"
 
-    def test_one_state_per_switch(self, relay):
+    def test_one_state_per_switch(self):
+        relay = relay_fixture()
         with pytest.raises(ValueError, match=r"1 given for 2 switches \['k1', 'k2'\]"):
             derivation_names(relay.netlist, (True,))
 

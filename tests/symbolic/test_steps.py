@@ -1,7 +1,7 @@
 """symbolic.steps: the steps written once, checked against sympy.dsolve and nodal equations by hand,
 and printed the same way everywhere (LaTeX, Markdown, the report's MathML).
 
-Every network here is a scenario of our own invention (the shared ones are in conftest.py).
+Every network here is a scenario of our own invention.
 """
 
 import html
@@ -10,6 +10,7 @@ import re
 
 import pytest
 import sympy as sp
+from builders import relay_fixture
 
 import firstorder as fo
 from firstorder.analysis import Analysis
@@ -29,8 +30,8 @@ def in_full(derivation, expression):
 
 
 class TestText:
-    def test_latex_steps(self, relay):
-        d = relay.derivation(k1=True, k2=False)
+    def test_latex_steps(self):
+        d = relay_fixture().derivation(k1=True, k2=False)
         text = d.latex()
         assert r"v_{ch}{\left(\infty \right)} =" in text  # not v_ch(t)(∞)
         assert r"{\left(t \right)}{\left(\infty" not in text
@@ -90,7 +91,8 @@ class TestStepLatex:
 
 class TestStepsAgainstTheOutside:
     @pytest.mark.parametrize("states", [(True, True), (True, False), (False, True)])
-    def test_written_solution_solves_the_ode_by_dsolve(self, relay, states):
+    def test_written_solution_solves_the_ode_by_dsolve(self, states):
+        relay = relay_fixture()
         d = relay.derivation(k1=states[0], k2=states[1])
         x = d.state.func
         # Reference: sympy.dsolve of the derivation's ODE with x(0) = initial.
@@ -101,7 +103,8 @@ class TestStepsAgainstTheOutside:
             assert equation.lhs == d.state
             assert sp.simplify(in_full(d, equation.rhs) - solved) == 0, caption
 
-    def test_law_and_ode_are_kcl_written_by_hand(self, relay):
+    def test_law_and_ode_are_kcl_written_by_hand(self):
+        relay = relay_fixture()
         d = relay.derivation(k1=True, k2=True)
         s, v = d.symbols, d.state
         # By hand: node a is rs -> k1 (r_on); ch sees (vdac - v)/(rs + k1_on) + ib - v/r_leak - v/r_meter.
@@ -122,7 +125,8 @@ class TestStepsAgainstTheOutside:
         assert [e.lhs for e in by_caption(d)["Equivalent seen by inductor l (no switches)"]] == [
             sp.Symbol("R_N"), sp.Symbol("I_N")]
 
-    def test_time_constant_step_and_numbers(self, relay):
+    def test_time_constant_step_and_numbers(self):
+        relay = relay_fixture()
         d = relay.derivation(k1=True, k2=False)
         rule, full = by_caption(d)["Time constant"]
         assert sp.simplify(in_full(d, rule.rhs) - full.rhs) == 0
@@ -148,7 +152,8 @@ class TestStepsAgainstTheOutside:
 
 
 class TestOneSourceForEveryForm:
-    def test_latex_markdown_and_steps_agree(self, relay):
+    def test_latex_markdown_and_steps_agree(self):
+        relay = relay_fixture()
         for states in itertools.product([True, False], repeat=2):
             d = relay.derivation(k1=states[0], k2=states[1])
             captions = [step.caption for step in derivation_steps(d)]
@@ -168,7 +173,8 @@ class TestOneSourceForEveryForm:
         latex_captions = [caption for _, d in analysis.derivations() for caption, _ in d.steps()]
         assert latex_captions == [step.caption for step in expected]
 
-    def test_the_report_writes_the_decay_as_a_power_of_e(self, relay):
+    def test_the_report_writes_the_decay_as_a_power_of_e(self):
+        relay = relay_fixture()
         analysis = Analysis(relay, fo.Drive([0], end="1m", vdac=[1.0], ib=[0.0], k1=[1], k2=[0]))
         section = analysis.to_html().split("<section id=derivations>")[1].split("</section>")[0]
         zero_input = section.split("Zero-input + zero-state")[1].split("</li>")[0]
