@@ -28,7 +28,7 @@ from ..units import format_value, parse_value
 from .tolerance import Tolerance
 
 __all__ = ["SAMPLE_COLUMNS", "TABLE_COLUMNS", "SettlingSummary", "check_tolerance", "check_unit", "sample_delays",
-           "Watched", "settling_summary", "settling_table", "watched"]
+           "Watched", "settling_summary", "settling_table", "table_summary", "watched"]
 
 
 #: Columns of :func:`settling_table`, in order; the sample columns follow with a delay.
@@ -103,6 +103,11 @@ def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sam
     if isinstance(sample_delay, (str, int, float, np.number)) and not isinstance(sample_delay, bool):
         delays = np.full(n, parse_value(sample_delay, field=field, unit="s", allow_infinite=True))
         typed: Any = None
+    elif isinstance(sample_delay, np.ndarray) and sample_delay.dtype.kind in "iuf" and sample_delay.shape == (n,):
+        # Numbers already, one per segment: a million delays need no Python loop (not even
+        # the check for booleans below, which a numeric dtype rules out).
+        delays = np.asarray(sample_delay, dtype=np.float64)
+        typed = sample_delay
     else:
         array = None if isinstance(sample_delay, (bool, str, bytes, dict)) else np.asarray(sample_delay, dtype=object)
         if array is None or array.ndim != 1 or any(isinstance(v, (bool, np.bool_)) for v in array.tolist()) \
@@ -114,14 +119,11 @@ def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sam
                 f"or one per {what}"
             )
         typed = array.tolist()
-        if isinstance(sample_delay, np.ndarray) and sample_delay.dtype.kind in "iuf":
-            delays = sample_delay.astype(np.float64).reshape(-1)  # a million delays need no Python loop
-        else:
-            delays = np.array([
-                float(item) if isinstance(item, (float, int, np.number))
-                else parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
-                for k, item in enumerate(typed)
-            ], dtype=np.float64)
+        delays = np.array([
+            float(item) if isinstance(item, (float, int, np.number))
+            else parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
+            for k, item in enumerate(typed)
+        ], dtype=np.float64)
     late = delays > durations
     if late.any():
         if past_end == "end":
@@ -364,17 +366,35 @@ def settling_summary(response: Any, tolerance: Tolerance, sample_delay: Any = No
     longest settle time: 9.011 ms (segment 2)
     total time: 22 ms
     """
-    table = settling_table(response, tolerance, sample_delay=sample_delay, probe=probe)
+    return table_summary(settling_table(response, tolerance, sample_delay=sample_delay, probe=probe))
+
+
+def table_summary(table) -> SettlingSummary:
+    """Summarise a table made by :func:`settling_table`, without making it again.
+
+    A table without sample columns (no sample delay) is judged at each
+    segment's end.
+
+    Examples
+    --------
+    >>> import firstorder as fo
+    >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0, "2m", "12m"], end="22m", vin=[5, 0, 5]))
+    >>> table = settling_table(res, fo.Tolerance.lsb(bits=12, span=5.0))
+    >>> table_summary(table) == settling_summary(res, fo.Tolerance.lsb(bits=12, span=5.0))
+    True
+    """
+    sampled_at_end = "error_at_sample" not in table.columns
     limit = table["tolerance"].to_numpy()
-    error = (table["error_at_sample"] if sample_delay is not None else table["residual_at_end"]).to_numpy()
+    error = table["residual_at_end" if sampled_at_end else "error_at_sample"].to_numpy()
     with np.errstate(divide="ignore", invalid="ignore"):
         # A zero limit with a zero error (a relative tolerance on no step) is exactly met.
         ratio = np.where(error == 0.0, 0.0, error / limit)
     settle = table["settle_time"].to_numpy()
     any_settles = bool(np.isfinite(settle).any())
     slowest = int(np.nanargmax(settle)) if any_settles else -1
+    start, end = table["start"].to_numpy(), table["end"].to_numpy()
     return SettlingSummary(
-        tolerance=str(tolerance),
+        tolerance=table.attrs["tolerance"],
         unit=table.attrs["unit"],
         segments=len(table),
         unsettled=int((~table["settled"]).sum()),
@@ -384,8 +404,8 @@ def settling_summary(response: Any, tolerance: Tolerance, sample_delay: Any = No
         smallest_margin=float(np.min(limit - error)),
         slowest_segment=slowest,
         longest_settle_time=float(settle[slowest]) if any_settles else math.nan,
-        total_time=float(response.drive.end - response.drive.start),
-        sampled_at_end=sample_delay is None,
+        total_time=float(end[-1] - start[0]),
+        sampled_at_end=sampled_at_end,
     )
 
 

@@ -12,6 +12,7 @@ from builders import switched_fixture
 import firstorder as fo
 from firstorder.errors import InputError
 from firstorder.settling import SAMPLE_COLUMNS, TABLE_COLUMNS, settling_table
+from firstorder.settling.table import sample_delays, table_summary
 
 GRID = 4001  # points per segment in the brute-force searches
 
@@ -310,6 +311,25 @@ class TestSummary:
         assert "total time: 40 ms" in str(summary)
         with pytest.raises(AttributeError):
             summary.segments = 3  # frozen
+
+    def test_a_table_made_once_gives_the_same_summary(self):
+        rng = np.random.default_rng(5)
+        res = fo.Fixture.rc(r="1k", c="100n").respond(random_rc_drive(rng, 12, 1e-4))
+        tolerance = fo.Tolerance.relative(0.01)
+        for delays in (None, res.drive.durations * 0.5):
+            table = res.settling(tolerance, sample_delay=delays)
+            assert table_summary(table) == res.summary(tolerance, sample_delay=delays)
+
+    def test_numeric_delays_read_as_the_same_list(self):
+        durations = np.array([1e-3, 2e-3, 5e-4])
+        given = np.array([2e-4, 2e-3, 1e-3])
+        # The array path and the list path are one rule: the same delays, the same refusal.
+        np.testing.assert_array_equal(sample_delays(given, durations, past_end="end"),
+                                      sample_delays(given.tolist(), durations, past_end="end"))
+        with pytest.raises(InputError, match=r"sample_delay\[2\]: 0.001 is past the end of segment 2"):
+            sample_delays(given, durations)
+        with pytest.raises(InputError, match="got 2 delays for 3 segments"):
+            sample_delays(given[:2], durations)
 
     def test_nothing_settles(self):
         res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0], end="1m", vin=[5.0]))
