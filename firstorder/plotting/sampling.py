@@ -13,6 +13,9 @@ plans cover every zoom level:
   component is ``a + b * exp(-t / tau)``, monotonic, so its extremes over an
   interval lie at the interval's ends: the values at the pixel edges, at every
   change and just before every change are all that is needed.
+
+Measured samples (a trace) follow no formula between them: :func:`point_envelope`
+takes the lowest and highest sample in each pixel column.
 """
 
 from __future__ import annotations
@@ -21,7 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["SamplePlan", "envelope", "plan_samples", "segments_in_view", "step_envelope"]
+__all__ = ["SamplePlan", "envelope", "plan_samples", "point_envelope", "segments_in_view", "step_envelope"]
 
 #: Offsets after each change, in time constants, where the curve bends most.
 DENSE_TAUS = np.array([1 / 64, 1 / 32, 1 / 16, 1 / 8, 1 / 4, 1 / 2, 3 / 4, 1, 1.5, 2, 3, 4, 6, 9, 14])
@@ -190,3 +193,42 @@ def step_envelope(plan: SamplePlan, starts: np.ndarray, values: np.ndarray) -> t
     """
     index = np.clip(np.searchsorted(starts, plan.times, side="right") - 1, 0, starts.size - 1)
     return envelope(plan, np.asarray(values, dtype=float)[index])
+
+
+def point_envelope(times: np.ndarray, values: np.ndarray, view_start: float, view_end: float,
+                   pixels: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per pixel column of ``[view_start, view_end]``, the lowest and highest of the samples in it.
+
+    For measured samples (a trace), which follow no formula between them.
+    Columns holding no sample are left out.
+
+    Parameters
+    ----------
+    times : ndarray, shape (n,)
+        Sample instants (s), increasing, all within the view.
+    values : ndarray, shape (n,)
+        The sample at each instant.
+    view_start, view_end : float
+        The time span shown.
+    pixels : int
+        Width of the plot in pixels.
+
+    Returns
+    -------
+    centres, low, high : ndarray
+        The middle of every column that holds a sample, and its lowest and highest sample.
+
+    Examples
+    --------
+    >>> centres, low, high = point_envelope(np.array([0.1, 0.2, 0.6, 0.7, 0.8]),
+    ...                                     np.array([3.0, 1.0, 5.0, 9.0, 7.0]), 0.0, 1.0, 2)
+    >>> centres.tolist(), low.tolist(), high.tolist()
+    ([0.25, 0.75], [1.0, 5.0], [3.0, 9.0])
+    """
+    edges = np.linspace(view_start, view_end, pixels + 1)
+    bins = np.clip(np.searchsorted(edges, times, side="right") - 1, 0, pixels - 1)
+    cuts = np.flatnonzero(np.diff(bins, prepend=-1))
+    low = np.minimum.reduceat(values, cuts)
+    high = np.maximum.reduceat(values, cuts)
+    centres = 0.5 * (edges[bins[cuts]] + edges[bins[cuts] + 1])
+    return centres, low, high
