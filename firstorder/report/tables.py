@@ -23,9 +23,9 @@ if TYPE_CHECKING:
     from ..drive import Drive
     from ..fixture import Fixture
 
-__all__ = ["FULL_DRIVE_ROWS", "FULL_SETTLING_ROWS", "HEAD_ROWS", "MAX_DERIVATIONS", "TAIL_ROWS", "drive_rows",
-           "drive_summary_rows", "part_rows", "probe_rows", "settling_cell", "settling_rows", "states_text",
-           "summary_rows", "timestamp", "version"]
+__all__ = ["FULL_DRIVE_ROWS", "FULL_SETTLING_ROWS", "HEAD_ROWS", "MARGIN_ROWS", "MAX_DERIVATIONS", "TAIL_ROWS",
+           "drive_rows", "drive_summary_rows", "margin_rows", "part_rows", "probe_rows", "settling_cell",
+           "settling_rows", "states_text", "summary_rows", "timestamp", "version"]
 
 #: A drive with at most this many changes is shown in full; longer ones are summarised.
 FULL_DRIVE_ROWS = 40
@@ -34,6 +34,8 @@ HEAD_ROWS, TAIL_ROWS = 10, 5
 FULL_SETTLING_ROWS = 200
 #: Derivations shown, in order of first use (each switch configuration has one).
 MAX_DERIVATIONS = 8
+#: Rows of the short settling table (the Bench's panel): the segments with the least margin.
+MARGIN_ROWS = 40
 
 def timestamp() -> str:
     """The time now, as a report writes it (UTC, to the minute)."""
@@ -177,3 +179,38 @@ def settling_rows(table: "pd.DataFrame", unit: str) -> tuple[list[str], list[tup
         cells = [settling_cell(c, v[k], unit) for c, v in zip(columns, values)]
         rows.append((k, cells, bool(bad[k])))
     return header, rows, len(table) - len(keep)
+
+
+def margin_rows(table: "pd.DataFrame", unit: str,
+                count: int = MARGIN_ROWS) -> tuple[list[str], list[tuple[int, list[str], bool]], str]:
+    """A short settling table: header, rows (segment, cells, bad) and which rows they are.
+
+    Every segment of a short table; of a long one the `count` segments with the
+    least margin (limit minus the error at the sample, or at the end without
+    sample columns), in segment order.  Cells as :func:`settling_cell` writes them.
+
+    Examples
+    --------
+    >>> import firstorder as fo
+    >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0, "1m"], end="3m", vin=[5, 0]))
+    >>> header, rows, caption = margin_rows(res.settling(fo.Tolerance.absolute("1m")), "V")
+    >>> header[-2:], rows[0], caption
+    (['error at end', 'ok'], (0, ['0 s', '5 V', '1 mV', 'ends first', '1.8394 V', 'NO'], True), 'every segment')
+    """
+    sampled = "error_at_sample" in table.columns
+    error_column, verdict_column = ("error_at_sample", "ok") if sampled else ("residual_at_end", "settled")
+    columns = ["start", "final", "tolerance", "settle_time", error_column, verdict_column]
+    header = ["segment", "from", "final", "limit", "settles after", "error at sample" if sampled else "error at end", "ok"]
+    if len(table) <= count:
+        keep = np.arange(len(table))
+        caption = "every segment"
+    else:
+        margin = table["tolerance"].to_numpy() - table[error_column].to_numpy()
+        keep = np.sort(np.argsort(margin, kind="stable")[:count])
+        caption = f"the {count} segments with the least margin, of {len(table)}"
+    values = [table[c].to_numpy() for c in columns]
+    rows = []
+    for k in keep.tolist():
+        cells = [settling_cell(c, v[k], unit) for c, v in zip(columns, values)]
+        rows.append((k, cells, not bool(values[-1][k])))
+    return header, rows, caption
