@@ -206,3 +206,36 @@ class DriveText:
             levels[column] = np.array(levels[column])
             levels[column][row] = level
         return self._rows_from_numbers(times, drive.end, levels)
+
+    def merged(self, made: Drive) -> "DriveText":
+        """`made`'s columns (a generated drive), every other column at the level it had at
+        each of `made`'s instants (the level at the first change before the first instant)."""
+        drive = self.to_drive()
+        index = np.clip(np.searchsorted(drive.times, made.times, side="right") - 1, 0, len(drive) - 1)
+        levels = {name: self.numbers[name][index] for name in self.names}
+        levels.update(made.columns)
+        return self._rows_from_numbers(np.asarray(made.times), float(made.end), levels)
+
+    def dragged(self, column: str, times: np.ndarray, levels: np.ndarray, time_span: float) -> "DriveText":
+        """The table after drag handles moved to (`times`, `levels`) of `column` (one per row).
+
+        Each moved handle moves its change's instant or its level, whichever it moved
+        more as a share of the view (`time_span` wide) and of the column's range, so a
+        level dragged by hand does not also shift its instant by a pixel.
+        """
+        if column not in self.names or column in self.switches:
+            raise InputError(f"drag: column {column!r} is not a source of the drive; sources are "
+                             f"{[n for n in self.names if n not in self.switches]}")
+        if times.size != len(self) or levels.size != len(self):
+            raise InputError(f"drag: {times.size} handles for {len(self)} rows")
+        old_times, old_levels = self.numbers["time"], self.numbers[column]
+        span_y = max(float(np.ptp(old_levels)), float(np.max(np.abs(old_levels))), 1e-300)
+        span_t = max(float(time_span), 1e-300)
+        table = self
+        for row in np.flatnonzero((times != old_times) | (levels != old_levels)).tolist():
+            sideways = abs(times[row] - old_times[row]) / span_t >= abs(levels[row] - old_levels[row]) / span_y
+            if sideways:
+                table = table.move(row, time=float(times[row]))
+            else:
+                table = table.move(row, column=column, level=float(levels[row]))
+        return table

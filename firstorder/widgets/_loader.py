@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 import uuid
 
-__all__ = ["publish_bokehjs", "loader_script"]
+__all__ = ["live_kernel_cell", "loader_script", "publish_bokehjs"]
 
 #: Mime type that jupyter_bokeh's JupyterLab extension runs as a script.
 LOAD_MIME_TYPE = "application/vnd.bokehjs_load.v0+json"
@@ -51,3 +51,15 @@ def publish_bokehjs() -> None:
         raw=True,
         display_id=display_id,
     )
+
+
+def live_kernel_cell() -> int | None:
+    """The execution count of the cell running now in a live notebook kernel, else None."""
+    try:
+        from IPython import get_ipython
+    except ImportError:  # pragma: no cover - ipywidgets brings IPython
+        return None
+    shell = get_ipython()
+    if shell is None or getattr(shell, "kernel", None) is None:
+        return None
+    return int(shell.execution_count)
