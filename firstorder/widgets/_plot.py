@@ -1,8 +1,10 @@
 """The Bench's two linked bokeh panels: the drive above, the response below.
 
-Data flow is one way: the Bench hands in a response and a view, this module
-chooses the samples (:mod:`firstorder.plotting.sampling`), evaluates every visible component on
-one shared time array, and assigns whole new dicts to the data sources.
+Data flow is one way: the Bench hands in a response, a settling table and a
+view; this module chooses the samples (:mod:`firstorder.plotting.sampling`),
+evaluates every visible component on one shared time array, reads the
+tolerance bands, sample instants and settle instants from the settling table,
+and assigns whole new dicts to the data sources.
 """
 
 from __future__ import annotations
@@ -20,7 +22,7 @@ from bokeh.plotting import figure
 from ..plotting.format import HOVER_CODE, TICK_CODE
 from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, SAMPLE_FAIL, SAMPLE_NEUTRAL, SAMPLE_PASS, SELECTION_COLOUR,
                                 TOLERANCE_COLOUR, component_label, source_colour, switch_colour)
-from ..plotting.sampling import envelope, plan_samples, segments_in_view, step_envelope
+from ..plotting.sampling import envelope, plan_samples, point_envelope, segments_in_view, step_envelope
 
 __all__ = ["MAX_HANDLES", "PIXELS", "Plots", "View"]
 
@@ -72,11 +74,14 @@ class Plots:
         self.level_names = level_names
         self.switch_names = switch_names
         self.x_range = Range1d(start, end)
+        self.range_shown = (start, end)  # the time span the browser shows (it reports pans and zooms)
         self.sources: dict[str, ColumnDataSource] = {}
         self.line_renderers = {}
         self.band_renderers = {}
         self.legend_items = {}
         self.value_formatters = []  # response-value tick and hover formatters (their unit follows the probe)
+        self.mode = "line"  # of the last sampling plan: "line" or "envelope"
+        self.shown: tuple[str, ...] = ()  # the curves drawn last, in curve order
         self._build_drive_figure(level_names, level_units, switch_names)
         self._build_response_figure(curve_names, contribution_names, state_unit, value_label, trace_name)
         figures = [self.drive_figure, self.response_figure]
@@ -225,10 +230,13 @@ class Plots:
         self.response_figure = fig
 
     # -- filling ------------------------------------------------------------------------------
-    def set_value_unit(self, unit: str) -> None:
-        """Axis ticks and hover text of the response panel in `unit` (V or A)."""
+    def set_value_unit(self, unit: str, label: str | None = None) -> None:
+        """Axis ticks and hover text of the response panel in `unit` (V or A); the axis
+        titled `label` when given."""
         for formatter in self.value_formatters:
             formatter.args = {"unit": unit}
+        if label is not None:
+            self.response_figure.yaxis[0].axis_label = label
 
     def update_response(self, response, probe, view: View, visible: set[str]) -> str:
         """Sample `response` for `view`; fill every visible curve; return the plan's mode."""
@@ -251,6 +259,7 @@ class Plots:
                 source.data = {"t": plan.centres, "y": 0.5 * (low + high), "low": low, "high": high}
             self.line_renderers[name].visible = plan.mode == "line"
             self.band_renderers[name].visible = plan.mode == "envelope"
+        self.mode, self.shown = plan.mode, shown
         return plan.mode
 
     def update_drive(self, drive, view: View) -> None:
@@ -289,56 +298,89 @@ class Plots:
         }
         return True
 
-    def update_marks(self, response, probe, view: View, tolerance, sample_delay) -> None:
-        """Tolerance bands and sample instants of the segments in view (when they fit the pixels)."""
-        first, last = segments_in_view(response.starts, response.drive.end, view.start, view.end)
-        if (last - first + 1) * 2 > PIXELS:
-            empty = np.zeros(0)
-            self.sources["tolerance"].data = {"left": empty, "right": empty, "bottom": empty, "top": empty}
-            self.sources["samples"].data = {"t": empty, "y": empty, "colour": [], "error": empty}
-            return
-        starts = response.starts[first:last + 1]
-        ends = response.ends[first:last + 1]
-        at_start = response.evaluate(starts, ("total", "forced"), probe)
-        final = at_start["forced"]
-        if tolerance is not None:
-            limit = tolerance.limit(final - at_start["total"])
-            self.sources["tolerance"].data = {"left": starts, "right": ends, "bottom": final - limit, "top": final + limit}
-        else:
-            empty = np.zeros(0)
-            self.sources["tolerance"].data = {"left": empty, "right": empty, "bottom": empty, "top": empty}
-        if sample_delay is None:
-            empty = np.zeros(0)
-            self.sources["samples"].data = {"t": empty, "y": empty, "colour": [], "error": empty}
-            return
-        instants = starts + sample_delay
-        inside = instants < ends
-        instants = instants[inside]
-        sampled = response.evaluate(instants, ("total",), probe)["total"]
-        error = sampled - final[inside]
-        if tolerance is not None:
-            ok = np.abs(error) <= tolerance.limit(final - at_start["total"])[inside]
-            colour = np.where(ok, SAMPLE_PASS, SAMPLE_FAIL).tolist()
-        else:
-            colour = [SAMPLE_NEUTRAL] * instants.size
-        self.sources["samples"].data = {"t": instants, "y": sampled, "colour": colour, "error": error}
+    def update_marks(self, response, probe, view: View, table, sample_delay: float | None) -> None:
+        """Tolerance bands, sample instants and settle instants of the segments in view
+        (when they fit the pixels).
 
-    def update_settle_marks(self, response, probe, table, view: View) -> None:
-        """Mark where each segment in view comes within tolerance (from the settling table)."""
-        empty = {"t": np.zeros(0), "y": np.zeros(0)}
-        if table is None:
-            self.sources["settle"].data = empty
-            return
+        With a settling table every mark is read from it.  Without one (no
+        tolerance) the sample instants are evaluated and drawn neutral.  A segment
+        shorter than the sample delay gets no sample mark (the table judges it at its end).
+        """
+        empty = np.zeros(0)
         first, last = segments_in_view(response.starts, response.drive.end, view.start, view.end)
-        if (last - first + 1) * 2 > PIXELS:
-            self.sources["settle"].data = empty
-            return
-        settle = table["settle_time"].to_numpy()[first:last + 1]
-        starts = response.starts[first:last + 1]
-        marked = np.isfinite(settle) & (settle > 0)
-        instants = starts[marked] + settle[marked]
-        values = response.evaluate(instants, ("total",), probe)["total"] if instants.size else np.zeros(0)
-        self.sources["settle"].data = {"t": instants, "y": values}
+        crowded = (last - first + 1) * 2 > PIXELS
+        rows = slice(first, last + 1)
+        starts, ends = response.starts[rows], response.ends[rows]
+        sampled = None if sample_delay is None or crowded else ~(sample_delay > response.drive.durations[rows])
+        band = {"left": empty, "right": empty, "bottom": empty, "top": empty}
+        samples = {"t": empty, "y": empty, "colour": [], "error": empty}
+        settle = {"t": empty, "y": empty}
+        if crowded:
+            pass
+        elif table is not None:
+            final = table["final"].to_numpy()[rows]
+            limit = table["tolerance"].to_numpy()[rows]
+            band = {"left": starts, "right": ends, "bottom": final - limit, "top": final + limit}
+            if sampled is not None and "sample_time" in table.columns:
+                value = table["value_at_sample"].to_numpy()[rows][sampled]
+                ok = table["ok"].to_numpy()[rows][sampled]
+                samples = {"t": table["sample_time"].to_numpy()[rows][sampled], "y": value,
+                           "colour": np.where(ok, SAMPLE_PASS, SAMPLE_FAIL).tolist(), "error": value - final[sampled]}
+            settle_time = table["settle_time"].to_numpy()[rows]
+            marked = np.isfinite(settle_time) & (settle_time > 0)
+            # At its settle time a segment's error has fallen to its limit, on the side it came from.
+            side = np.sign(table["start_value"].to_numpy()[rows][marked] - final[marked])
+            settle = {"t": starts[marked] + settle_time[marked], "y": final[marked] + side * limit[marked]}
+        elif sampled is not None:
+            instants = starts[sampled] + sample_delay
+            at = response.evaluate(instants, ("total", "forced"), probe)
+            samples = {"t": instants, "y": at["total"], "colour": [SAMPLE_NEUTRAL] * instants.size,
+                       "error": at["total"] - at["forced"]}
+        self.sources["tolerance"].data = band
+        self.sources["samples"].data = samples
+        self.sources["settle"].data = settle
+
+    def update_trace(self, times: np.ndarray, values: np.ndarray, residual_times: np.ndarray,
+                     residual: np.ndarray, view: View) -> None:
+        """The measured trace in view (min/max per pixel column when dense) and its residual."""
+        inside = (times >= view.start) & (times <= view.end)
+        shown_t, shown_v = times[inside], values[inside]
+        banded = shown_t.size > 4 * PIXELS
+        if banded:
+            centres, low, high = point_envelope(shown_t, shown_v, view.start, view.end, PIXELS)
+            self.sources["trace"].data = {"t": centres, "y": 0.5 * (low + high), "low": low, "high": high}
+        else:
+            self.sources["trace"].data = {"t": shown_t, "y": shown_v, "low": shown_v, "high": shown_v}
+        self.line_renderers["trace"].visible = not banded
+        self.band_renderers["trace"].visible = banded
+        keep = (residual_times >= view.start) & (residual_times <= view.end)
+        step = max(int(keep.sum()) // (4 * PIXELS), 1)
+        self.sources["residual"].data = {"t": residual_times[keep][::step], "y": residual[keep][::step]}
+
+    def show_span(self, view: View, start: float, end: float) -> None:
+        """Put the shared time axis on `view` (reset goes back to ``[start, end]``), unless
+        the browser shows it already: the span it reported is not sent back to it, so a
+        pan in progress is not pulled back by its own echo."""
+        if (view.start, view.end) != self.range_shown or (self.x_range.reset_start, self.x_range.reset_end) != (start, end):
+            self.x_range.update(start=view.start, end=view.end, reset_start=start, reset_end=end)
+        self.range_shown = (view.start, view.end)
+
+    def components_table(self, unit: str):
+        """The curves drawn last as a pandas DataFrame (time, then each curve; min and max
+        columns in envelope mode)."""
+        import pandas as pd
+
+        columns: dict[str, np.ndarray] = {}
+        for name in self.shown:
+            data = self.sources[name].data
+            if "time (s)" not in columns:
+                columns["time (s)"] = np.asarray(data["t"], dtype=float)
+            if self.mode == "line":
+                columns[f"{name} ({unit})"] = np.asarray(data["y"], dtype=float)
+            else:
+                columns[f"{name} min ({unit})"] = np.asarray(data["low"], dtype=float)
+                columns[f"{name} max ({unit})"] = np.asarray(data["high"], dtype=float)
+        return pd.DataFrame(columns)
 
     def update_selection(self, drive, segment: int | None) -> None:
         if segment is None:

@@ -1,0 +1,353 @@
+"""The Bench's panels: builders that return ipywidgets, and the HTML its text panels show.
+
+Each builder takes what it shows and the callbacks its controls call, and
+returns its widgets (in a small frozen record, so the Bench can reach the ones
+it fills later).  No maths and no state here beyond the widgets themselves;
+numbers are written by :mod:`firstorder.units` and the settling table's rows
+by :mod:`firstorder.report.tables`, as everywhere else.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from dataclasses import dataclass
+from typing import Any, Callable
+
+import ipywidgets as widgets
+import numpy as np
+from bokeh.models import ColumnDataSource, DataTable, SelectEditor, StringEditor, TableColumn
+from jupyter_bokeh import BokehModel
+
+from ..netlist import SOURCE_UNITS
+from ..plotting.palette import component_label
+from ..report.tables import margin_rows
+from ..units import format_value
+from ._drive_table import DriveText
+from ._plot import MAX_HANDLES
+from ._session import PartField
+
+__all__ = ["DriveEditor", "ExportPanel", "FieldsPanel", "GeneratorsPanel", "TAB_TITLES", "ViewPanel",
+           "cautions_html", "derivation_html", "drive_editor", "error_html", "export_panel", "generators_panel",
+           "header", "info_html", "parts_panel", "settling_html", "setup_panel", "status_html", "tab_panel",
+           "value_label", "view_panel"]
+
+#: Tabs under the plot, in order.
+TAB_TITLES = ("Drive table", "Generators", "Derivation", "Settling", "Export")
+_ERROR_STYLE = "color:#b03a2e;font-size:0.85em"
+_HINT_STYLE = "color:#566573;font-size:0.85em"
+
+
+def _label(text: str, width: str = "78px") -> widgets.HTML:
+    return widgets.HTML(f"<b>{html.escape(text)}</b>", layout=widgets.Layout(width=width))
+
+
+# -- fields ------------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class FieldsPanel:
+    """A column of text fields, each with an error line under it."""
+
+    box: widgets.VBox
+    fields: dict[str, widgets.Text]
+    errors: dict[str, widgets.HTML]
+
+
+def parts_panel(fields: list[PartField], on_edit: Callable[[str, str], None]) -> FieldsPanel:
+    """A text field per part value; `on_edit(key, text)` when one is typed (Enter or leaving it)."""
+    texts: dict[str, widgets.Text] = {}
+    errors: dict[str, widgets.HTML] = {}
+    rows: list[widgets.Widget] = [widgets.HTML("<b>Parts</b>")]
+    for spec in fields:
+        field = widgets.Text(value=spec.text, continuous_update=False, layout=widgets.Layout(width="120px"),
+                             description_allow_html=False)
+        field.tooltip = f"{spec.kind.replace('_', ' ')} {spec.part} ({spec.unit})"
+        # The part's key keeps its underscores in the class: tests and pages find fields by it.
+        field.add_class(f"fo-part-{spec.key.replace('.', '-')}")
+        field.observe(lambda change, key=spec.key: on_edit(key, change["new"]), names="value")
+        error = widgets.HTML(layout=widgets.Layout(width="auto"))
+        texts[spec.key], errors[spec.key] = field, error
+        unit = widgets.HTML(f"<span style='color:#566573'>{html.escape(spec.unit)}</span>")
+        rows.append(widgets.VBox([widgets.HBox([_label(spec.label), field, unit]), error]))
+    return FieldsPanel(widgets.VBox(rows), texts, errors)
+
+
+def setup_panel(texts: dict[str, str], state_unit: str, on_edit: Callable[[str, str], None]) -> FieldsPanel:
+    """The start, tolerance and sample-delay fields; `on_edit(key, text)` when one is typed."""
+    specs = [
+        ("initial", "start", f"starting state ({state_unit}), 'settled' or 'periodic'"),
+        ("tolerance", "tolerance", "e.g. 1 mV, 0.1 %, 10 ppm of 5 V, 0.5 LSB of 16 bits on 5 V"),
+        ("sample_delay", "sample at", "time after each change when the reading is taken"),
+    ]
+    fields: dict[str, widgets.Text] = {}
+    errors: dict[str, widgets.HTML] = {}
+    rows: list[widgets.Widget] = [widgets.HTML("<b>Setup</b>")]
+    for key, label, hint in specs:
+        field = widgets.Text(value=texts[key], placeholder=hint, continuous_update=False,
+                             layout=widgets.Layout(width="230px"))
+        field.tooltip = hint
+        field.add_class(f"fo-setup-{key.replace('_', '-')}")
+        field.observe(lambda change, key=key: on_edit(key, change["new"]), names="value")
+        fields[key], errors[key] = field, widgets.HTML()
+        rows.append(widgets.VBox([widgets.HBox([_label(label), field]), errors[key]]))
+    return FieldsPanel(widgets.VBox(rows), fields, errors)
+
+
+# -- what is shown -------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class ViewPanel:
+    box: widgets.VBox
+    probe_selector: widgets.Dropdown
+    overlays: dict[str, widgets.ToggleButton]
+    undo_button: widgets.Button
+
+
+def value_label(fixture, probe: str | None = None) -> str:
+    """What the response panel's value axis shows: the probe, or the storage element's state."""
+    if probe:
+        return probe
+    storage = fixture.storage
+    return f"v({storage.name})" if storage.kind == "capacitor" else f"i({storage.name})"
+
+
+def view_panel(fixture, curve_names: tuple[str, ...], shown: tuple[str, ...], probe: str | None,
+               on_probe: Callable[[str], None], on_overlay: Callable[[str, bool], None],
+               on_undo: Callable[[], None]) -> ViewPanel:
+    """The quantity watched (the state or a probe), a toggle per curve, and undo."""
+    storage = fixture.storage
+    options = [(f"state {value_label(fixture)}", "")] + [(f"{p.name}: {p.describe()}", p.name) for p in fixture.probes]
+    selector = widgets.Dropdown(options=options, value=probe or "", layout=widgets.Layout(width="300px"))
+    selector.observe(lambda change: on_probe(change["new"]), names="value")
+    overlays = {}
+    for name in curve_names:
+        label = component_label(name)
+        button = widgets.ToggleButton(value=name in shown, description=label, layout=widgets.Layout(width="146px"))
+        button.tooltip = f"show or hide the {label} curve"
+        button.observe(lambda change, name=name: on_overlay(name, change["new"]), names="value")
+        overlays[name] = button
+    grid = widgets.GridBox(list(overlays.values()), layout=widgets.Layout(grid_template_columns="repeat(2, 150px)"))
+    undo = widgets.Button(description="Undo last edit", icon="undo", layout=widgets.Layout(width="300px"))
+    undo.on_click(lambda _: on_undo())
+    title = widgets.HTML(f"<b>Show</b> ({html.escape(storage.kind)} '{html.escape(storage.name)}')")
+    return ViewPanel(widgets.VBox([title, selector, grid, undo]), selector, overlays, undo)
+
+
+# -- the drive ----------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class DriveEditor:
+    box: widgets.VBox
+    table_source: ColumnDataSource
+    drive_table: DataTable
+    table_view: BokehModel
+    end_field: widgets.Text
+    row_field: widgets.BoundedIntText
+    drag_column: widgets.Dropdown
+    error: widgets.HTML
+
+
+def drive_editor(table: DriveText, on_row: Callable[[str, int], None], on_end: Callable[[str], None],
+                 on_drag_column: Callable[[str], None]) -> DriveEditor:
+    """The editable drive table (bokeh), its end, row buttons and the column drag handles move.
+
+    `on_row(action, row)` for ``"add"``, ``"insert"``, ``"duplicate"`` and ``"delete"``;
+    the table's own edits arrive through ``table_source.on_change("data", ...)``.
+    """
+    sources = [name for name in table.names if name not in table.switches]
+    source = ColumnDataSource(table.as_columns())
+    columns = [TableColumn(field="row", title="#", width=50),
+               TableColumn(field="time", title="change at", editor=StringEditor())]
+    columns += [TableColumn(field=name, title=f"{name} ({table.units[name]})", editor=StringEditor())
+                for name in sources]
+    columns += [TableColumn(field=name, title=f"{name} (switch)", editor=SelectEditor(options=["closed", "open"]))
+                for name in table.names if name in table.switches]
+    grid = DataTable(source=source, columns=columns, editable=True, index_position=None, width=620,
+                     height=min(260, 34 + 26 * len(table)), selectable=True)
+    end = widgets.Text(value=table.end, description="end", continuous_update=False, layout=widgets.Layout(width="200px"))
+    end.observe(lambda change: on_end(change["new"]), names="value")
+    row = widgets.BoundedIntText(value=0, min=0, max=max(len(table) - 1, 0), description="row",
+                                 layout=widgets.Layout(width="150px"))
+    buttons = []
+    for label, action in [("Add at end", "add"), ("Insert before", "insert"), ("Duplicate", "duplicate"),
+                          ("Delete", "delete")]:
+        button = widgets.Button(description=label, layout=widgets.Layout(width="110px"))
+        button.on_click(lambda _, action=action: on_row(action, row.value))
+        buttons.append(button)
+    options = sources or [""]
+    drag = widgets.Dropdown(options=options, value=options[0], description="drag", layout=widgets.Layout(width="200px"))
+    drag.observe(lambda change: on_drag_column(change["new"]), names="value")
+    error = widgets.HTML()
+    hint = widgets.HTML(
+        f"<span style='{_HINT_STYLE}'>Double-click a cell to edit (times and levels in "
+        "engineering notation, switches closed/open). On the drive plot, drag a square handle: sideways "
+        f"moves the change, up or down sets the level (up to {MAX_HANDLES} changes).</span>")
+    view = BokehModel(grid, combine_events=True)
+    box = widgets.VBox([widgets.HBox([end, row, *buttons]), widgets.HBox([drag]), error, view, hint])
+    return DriveEditor(box, source, grid, view, end, row, drag, error)
+
+
+@dataclass(frozen=True)
+class GeneratorsPanel:
+    box: widgets.VBox
+    pulse_fields: dict[str, widgets.Widget]
+    stair_fields: dict[str, widgets.Widget]
+    error: widgets.HTML
+
+
+def generators_panel(source_names: tuple[str, ...], on_generate: Callable[[str], None]) -> GeneratorsPanel:
+    """Pulse-train and staircase fields; `on_generate("pulses" or "staircase")` on their buttons."""
+    names = list(source_names) or [""]
+
+    def text(value: str, label: str, width: str = "160px") -> widgets.Text:
+        return widgets.Text(value=value, description=label, layout=widgets.Layout(width=width))
+
+    def column() -> widgets.Dropdown:
+        return widgets.Dropdown(options=names, value=names[0], description="source", layout=widgets.Layout(width="180px"))
+
+    pulses = {"column": column(), "period": text("1m", "period"), "duty": text("0.5", "duty"),
+              "high": text("1", "high"), "low": text("0", "low"), "count": text("4", "count")}
+    stairs = {"column": column(), "levels": text("0, 1, 2, 3", "levels", "260px"), "dwell": text("1m", "dwell")}
+    pulse_button = widgets.Button(description="Make pulse train", layout=widgets.Layout(width="160px"))
+    pulse_button.on_click(lambda _: on_generate("pulses"))
+    stair_button = widgets.Button(description="Make staircase", layout=widgets.Layout(width="160px"))
+    stair_button.on_click(lambda _: on_generate("staircase"))
+    error = widgets.HTML()
+    note = widgets.HTML(f"<span style='{_HINT_STYLE}'>A generator replaces the drive; other "
+                        "columns keep the level they had at each new instant. Undo takes it back.</span>")
+    box = widgets.VBox([widgets.HTML("<b>Pulse train</b>"), widgets.HBox(list(pulses.values())), pulse_button,
+                        widgets.HTML("<b>Staircase</b>"), widgets.HBox(list(stairs.values())), stair_button,
+                        error, note])
+    return GeneratorsPanel(box, pulses, stairs, error)
+
+
+@dataclass(frozen=True)
+class ExportPanel:
+    box: widgets.VBox
+    name: widgets.Text
+    message: widgets.HTML
+
+
+def export_panel(actions: list[tuple[str, str, Callable[[str], str]]]) -> ExportPanel:
+    """A file stem and a button per `(label, suffix, write)`: ``write(stem + suffix)`` returns
+    the path written, shown under the buttons (or the error that stopped it)."""
+    name = widgets.Text(value="bench", description="file stem", layout=widgets.Layout(width="260px"))
+    message = widgets.HTML()
+
+    def run(suffix: str, write: Callable[[str], str]) -> None:
+        try:
+            written = write((name.value.strip() or "bench") + suffix)
+        except (OSError, ValueError) as error:
+            message.value = error_html(str(error))
+            return
+        message.value = f"written: <code>{html.escape(written)}</code>"
+
+    buttons = []
+    for label, suffix, write in actions:
+        button = widgets.Button(description=label, layout=widgets.Layout(width="190px"))
+        button.on_click(lambda _, suffix=suffix, write=write: run(suffix, write))
+        buttons.append(button)
+    return ExportPanel(widgets.VBox([name, widgets.HBox(buttons), message]), name, message)
+
+
+def tab_panel(children: list[widgets.Widget]) -> widgets.Tab:
+    """The tabs under the plot, titled :data:`TAB_TITLES`."""
+    tabs = widgets.Tab(children=children)
+    for index, title in enumerate(TAB_TITLES):
+        tabs.set_title(index, title)
+    return tabs
+
+
+def header(fixture, drive) -> widgets.HTML:
+    storage = fixture.storage
+    return widgets.HTML(
+        f"<div style='font-size:1.15em;font-weight:600'>Bench: {html.escape(storage.kind)} "
+        f"'{html.escape(storage.name)}' under a {len(drive)}-change drive</div>")
+
+
+# -- text panels -------------------------------------------------------------------------------------
+def error_html(message: str | None) -> str:
+    """One error line beside a field ("" for none)."""
+    return f"<span style='{_ERROR_STYLE}'>{html.escape(message)}</span>" if message else ""
+
+
+def status_html(errors: dict[str, str]) -> str:
+    """Every current error above the plot, which shows the last good result meanwhile."""
+    if not errors:
+        return ""
+    lines = "<br>".join(html.escape(m) for m in errors.values())
+    return (f"<div style='background:#fdedec;border-left:4px solid #b03a2e;padding:4px 8px'>"
+            f"{lines}<br><i>The plot shows the last good result.</i></div>")
+
+
+def cautions_html(cautions: list) -> str:
+    if not cautions:
+        return ""
+    items = "".join(f"<li>{html.escape(str(c))}</li>" for c in cautions)
+    return ("<div style='background:#fef5e7;border-left:4px solid #d68910;padding:4px 8px'>"
+            f"<b>⚠ Cautions</b><ul style='margin:2px 0'>{items}</ul></div>")
+
+
+def info_html(response, unit: str, mode: str, residual_rms: float | None, residual_unit: str) -> str:
+    """The line under the plot: time constants, segments, start and end, how the plot is drawn."""
+    tau = response.tau
+    finite = tau[np.isfinite(tau)]
+    tau_text = "held (no resistive path)" if finite.size == 0 else (
+        format_value(float(finite[0]), "s") if np.ptp(finite) == 0 else
+        f"{format_value(float(finite.min()), 's')} to {format_value(float(finite.max()), 's')}")
+    parts = [f"τ {tau_text}", f"{len(response.drive)} segments", f"start {format_value(response.initial, unit)}",
+             f"end {format_value(float(response.boundary[-1]), unit)}",
+             "plot: every segment drawn" if mode == "line" else "plot: min/max per pixel (zoom in for single segments)"]
+    if residual_rms is not None:
+        parts.append(f"residual rms {format_value(residual_rms, residual_unit)}")
+    return "<span style='color:#34495e'>" + " · ".join(html.escape(p) for p in parts) + "</span>"
+
+
+def settling_html(table, summary, unit: str, judged_at_end: bool) -> str:
+    """The summary, then the rows with the least margin (every row of a short drive);
+    `judged_at_end`: some segments are shorter than the sample delay."""
+    if table is None:
+        return ("<p>Give a tolerance (Setup) to see when each segment settles "
+                "and the error left at each sample.</p>")
+    header, rows, caption = margin_rows(table, unit)
+    head = "".join(f"<th style='padding:1px 8px;text-align:left'>{html.escape(h)}</th>" for h in header)
+    body = "".join(
+        "<tr>" + "".join(f"<td style='padding:1px 8px'>{html.escape(cell)}</td>" for cell in [str(k), *cells]) + "</tr>"
+        for k, cells, _ in rows)
+    note = ("<p style='color:#566573'>Segments shorter than the sample delay are judged at their end.</p>"
+            if judged_at_end else "")
+    return (summary._repr_html_() + note + f"<p><b>Settling, {html.escape(caption)}</b></p>"
+            f"<table style='font-size:0.9em'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
+
+
+def derivation_html(fixture, response, segment: int, probe: str | None) -> str:
+    """Symbols first (sympy, imported on first use), then this segment's numbers."""
+    # The one writing of names the derivation's own steps use.
+    from ..symbolic import _latex_name as latex_name
+
+    drive = response.drive
+    states = {p.name: bool(drive.levels(p.name)[segment]) for p in fixture.switches}
+    derivation = fixture.derivation(**states)
+    unit = fixture.state_unit
+    start, end = float(drive.times[segment]), float(drive.ends[segment])
+    levels = ", ".join(f"{p.name} = {format_value(float(drive.levels(p.name)[segment]), SOURCE_UNITS[p.kind])}"
+                       for p in fixture.sources)
+    out = [f"<h4 style='margin:4px 0'>Segment {segment}: {format_value(start, 's')} to {format_value(end, 's')}</h4>",
+           f"<p>Configuration: {html.escape(derivation.configuration)}; levels: {html.escape(levels) or 'none'}</p>"]
+    for caption, body in derivation.steps():
+        out.append(f"<p style='margin:2px 0'><b>{html.escape(caption)}</b></p><p>$$ {body} $$</p>")
+    x = latex_name(derivation.state.func.__name__)
+    tau, x0, final = float(response.tau[segment]), float(response.boundary[segment]), float(response.final[segment])
+
+    def number(value: float, unit_text: str) -> str:
+        # engineering notation, as on the axes: 1.55 ms rather than 0.00155
+        return r"\infty" if not math.isfinite(value) else r"\mathrm{" + format_value(value, unit_text).replace(" ", r"\ ") + "}"
+
+    out.append("<p style='margin:2px 0'><b>This segment in numbers</b></p>")
+    out.append(rf"<p>$$ \tau = {number(tau, 's')},\quad {x}(t_{{{segment}}}) = {number(x0, unit)},"
+               rf"\quad {x}(\infty) = {number(final, unit)} $$</p>")
+    if math.isfinite(tau):
+        out.append(rf"<p>$$ {x}(t) = {number(final, unit)} + \left({number(x0, unit)} - {number(final, unit)}\right)"
+                   rf"e^{{-(t - {number(start, 's')})/{number(tau, 's')}}} $$</p>")
+    else:
+        out.append(rf"<p>$$ {x}(t) = {number(x0, unit)} \quad\text{{(held: no resistive path)}} $$</p>")
+    if probe is not None:
+        out.append(f"<p>Shown on the plot: probe {html.escape(probe)}, from the probe expression above.</p>")
+    return "\n".join(out)

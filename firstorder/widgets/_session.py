@@ -1,0 +1,519 @@
+"""BenchSession: the one observable state of a Bench (traitlets, no UI).
+
+An edit (a part value, a setup field, the drive table, a generated drive, a
+drag) goes one way: read the text, build the new fixture or drive (the layers
+below validate it), compute the response once and the settling table once,
+and only then replace the last good state, one assignment per trait inside
+one held notification, so every observer fires once and sees the whole new
+state.  A refused edit records its error by field and changes nothing else.
+
+The results and the edited inputs are read-only traits: observe them, or
+``traitlets.dlink`` from them.  The view span, the selected segment, the probe
+watched and the curves shown are for anyone to set (or ``traitlets.link``): a
+second view or a dashboard can drive them.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Callable
+
+import numpy as np
+import traitlets
+
+from ..drive import Drive
+from ..errors import InputError
+from ..fixture import Fixture
+from ..netlist import PART_UNITS, SOURCE_UNITS
+from ..response import COMPONENTS, Response, read_initial
+from ..settling.table import SettlingSummary, sample_delays, table_summary
+from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
+from ..units import format_value, parse_value
+from ._drive_table import DriveText
+
+__all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS", "UNDO_DEPTH", "part_fields"]
+
+#: How many edits `undo` can take back.
+UNDO_DEPTH = 50
+#: The setup fields, by key.
+SETUP_KEYS = ("initial", "tolerance", "sample_delay")
+#: Curves shown when a session opens; the rest are one click away.
+DEFAULT_CURVES = ("total", "forced")
+
+
+@dataclass(frozen=True)
+class PartField:
+    """One text field of a part value: a switch has two (its on and off resistance)."""
+
+    key: str  # "r_filter", or "k1.r_on" / "k1.r_off"
+    label: str
+    part: str
+    kind: str
+    unit: str
+    text: str  # the value as the field first shows it
+
+
+def part_fields(fixture: Fixture) -> list[PartField]:
+    """The part-value fields of `fixture`, in building order (sources have none)."""
+    fields = []
+    for part in fixture.parts:
+        if part.kind == "switch":
+            entries = [(f"{part.name}.r_on", part.r_on, f"{part.name} on"),
+                       (f"{part.name}.r_off", part.r_off, f"{part.name} off")]
+        elif part.kind in PART_UNITS:
+            entries = [(part.name, part.value, part.name)]
+        else:
+            continue
+        unit = PART_UNITS[part.kind]
+        fields += [PartField(key, label, part.name, part.kind, unit, format_value(value, unit, digits=6))
+                   for key, value, label in entries]
+    return fields
+
+
+@dataclass(frozen=True)
+class MeasuredTrace:
+    """A measured waveform drawn over the model, checked once."""
+
+    times: np.ndarray
+    values: np.ndarray
+    name: str
+
+    @classmethod
+    def read(cls, trace: Any) -> "MeasuredTrace":
+        """Check an object with ``.times``, ``.values`` and ``.name`` (a :class:`~firstorder.Trace`, say)."""
+        for attribute in ("times", "values", "name"):
+            if not hasattr(trace, attribute):
+                raise InputError(f"Bench trace: {trace!r} has no .{attribute}; a trace needs .times, .values and .name")
+        times = np.asarray(trace.times, dtype=float).reshape(-1)
+        values = np.asarray(trace.values, dtype=float).reshape(-1)
+        if times.size != values.size or times.size == 0:
+            raise InputError(f"Bench trace: {times.size} times and {values.size} values; give one value per time")
+        if not (np.isfinite(times).all() and np.isfinite(values).all()):
+            raise InputError("Bench trace: times and values must be finite numbers")
+        if times.size > 1 and not (np.diff(times) > 0).all():
+            raise InputError("Bench trace: times must be strictly increasing")
+        return cls(times, values, str(trace.name))
+
+
+@dataclass(frozen=True)
+class Residual:
+    """Measured minus model (total) at the trace's instants within the drive."""
+
+    times: np.ndarray
+    values: np.ndarray
+    rms: float
+
+
+# eq=False: two snapshots are the same only if they are one object (comparing their
+# tables cell by cell would cost more than the edit they record).
+@dataclass(frozen=True, eq=False)
+class _Snapshot:
+    """Everything an edit can change, so undo can put it back."""
+
+    fixture: Fixture
+    table: DriveText
+    texts: dict[str, str]
+    initial: float | str
+    tolerance: Tolerance | None
+    sample_delay: float | None
+
+
+def _read_delay(value: Any) -> float | None:
+    """A sample delay as typed ("" or None: none)."""
+    if value is None or (isinstance(value, str) and not value.strip()):
+        return None
+    return parse_value(value, field="sample_delay", unit="s", positive=True)
+
+
+def _checked_view(start: Any, end: Any, drive: Drive) -> tuple[float, float]:
+    """The span ``[start, end]`` within the drive (the whole drive when none of it is)."""
+    low, high = float(start), float(end)
+    if not high > low:
+        raise InputError(f"view: end {end!r} must be later than start {start!r}")
+    low, high = max(low, float(drive.start)), min(high, float(drive.end))
+    return (low, high) if high > low else (float(drive.start), float(drive.end))
+
+
+def _checked_segment(segment: Any, drive: Drive) -> int | None:
+    if segment is None:
+        return None
+    if isinstance(segment, bool) or not isinstance(segment, (int, np.integer)) or not 0 <= segment < len(drive):
+        raise InputError(f"segment: {segment!r} is not a segment; segments are 0 to {len(drive) - 1}")
+    return int(segment)
+
+
+class BenchSession(traitlets.HasTraits):
+    """The state of one Bench: last good inputs and results, errors by field, undo.
+
+    Parameters
+    ----------
+    fixture : Fixture
+    drive : Drive
+    initial : float or str, optional
+        Starting state (V or A), ``"settled"`` or ``"periodic"``.
+    tolerance : Tolerance, optional
+    sample_delay : float or str, optional
+        Time after each change at which the reading is taken.
+    trace : object, optional
+        A measured waveform with ``.times``, ``.values`` and ``.name``.
+
+    Examples
+    --------
+    >>> import firstorder as fo
+    >>> session = BenchSession(fo.Fixture.rc(r="10k", c="100n"), fo.Drive.steps([(0, 0.0), ("1m", 5.0)], end="6m"))
+    >>> session.edit_part("r", "20k"), session.edit_part("r", "twenty")
+    (True, False)
+    >>> print(fo.format_value(session.response.tau[0], "s"), "|", session.texts["r"], "|", session.error)
+    2 ms | 20k | r (value): 'twenty' is not a number (use a float or engineering notation such as '4.7k' or '100nF')
+    >>> session.undo(), session.error, session.undo(), session.texts["r"]
+    (True, '', True, '10 kΩ')
+    """
+
+    fixture = traitlets.Instance(Fixture, read_only=True, help="The last good fixture")
+    table = traitlets.Instance(DriveText, read_only=True, help="The last good drive as table text")
+    drive = traitlets.Instance(Drive, read_only=True, help="The last good drive")
+    initial = traitlets.Union([traitlets.Float(), traitlets.Unicode()], read_only=True,
+                              help="Starting state: V or A, 'settled' or 'periodic'")
+    tolerance = traitlets.Instance(Tolerance, allow_none=True, read_only=True,
+                                   help="The tolerance, in the unit of the quantity watched (None: none)")
+    sample_delay = traitlets.Float(None, allow_none=True, read_only=True,
+                                   help="Time after each change at which the reading is taken (s; None: none)")
+    response = traitlets.Instance(Response, read_only=True, help="The response of the last good inputs")
+    settling = traitlets.Any(None, allow_none=True, read_only=True,
+                             help="The settling table (pandas DataFrame; None without a tolerance)")
+    summary = traitlets.Instance(SettlingSummary, allow_none=True, read_only=True, help="The settling summary")
+    residual = traitlets.Instance(Residual, allow_none=True, read_only=True,
+                                  help="Measured minus model at the trace's instants (None without a trace)")
+    errors = traitlets.Dict(read_only=True, help="Field key to the error its last entry raised")
+    texts = traitlets.Dict(read_only=True, help="Field key to its last good text")
+    history = traitlets.Tuple(read_only=True, help="Snapshots undo can go back to, oldest first")
+    view = traitlets.Tuple(traitlets.Float(), traitlets.Float(), default_value=(0.0, 1.0),
+                           help="The time span shown, (start, end) in s; kept within the drive")
+    segment = traitlets.Int(None, allow_none=True, help="The selected segment (None: none)")
+    probe = traitlets.Unicode(None, allow_none=True, help="The probe watched (None or '': the state)")
+    curves = traitlets.Tuple(help="The curves shown, in curve order")
+
+    def __init__(self, fixture: Fixture, drive: Drive, initial: Any = 0.0, tolerance: Tolerance | None = None,
+                 sample_delay: Any = None, trace: Any = None) -> None:
+        super().__init__()
+        if not isinstance(fixture, Fixture):
+            raise InputError(f"Bench fixture: {fixture!r} is not a firstorder Fixture")
+        if not isinstance(drive, Drive):
+            raise InputError(f"Bench drive: {drive!r} is not a firstorder Drive")
+        if tolerance is not None and not isinstance(tolerance, Tolerance):
+            raise InputError(f"Bench tolerance: {tolerance!r} is not a firstorder Tolerance (or None)")
+        unit = fixture.state_unit
+        start = read_initial(initial, unit)
+        delay = _read_delay(sample_delay)
+        self.trace = None if trace is None else MeasuredTrace.read(trace)
+        sources = tuple(p.name for p in fixture.sources)
+        switches = tuple(p.name for p in fixture.switches)
+        table = DriveText.from_drive(drive, sources + switches, frozenset(switches),
+                                     {p.name: SOURCE_UNITS[p.kind] for p in fixture.sources})
+        response = fixture.respond(drive, start)
+        texts = {field.key: field.text for field in part_fields(fixture)}
+        texts.update(initial=initial if isinstance(initial, str) else format_value(start, unit, digits=6),
+                     tolerance=tolerance_text(tolerance),
+                     sample_delay="" if delay is None else format_value(delay, "s", digits=6))
+        with self.hold_trait_notifications():
+            for name, value in dict(fixture=fixture, table=table, drive=drive, initial=start, tolerance=tolerance,
+                                    sample_delay=delay, response=response, texts=texts).items():
+                self.set_trait(name, value)
+            self.view = (float(drive.start), float(drive.end))
+            self.curves = DEFAULT_CURVES
+        if self.trace is not None and self.trace.name in {p.name for p in fixture.probes}:
+            self.probe = self.trace.name  # a trace of a probe is compared with that probe
+        else:
+            self._replace(self._results(response, tolerance, delay, None, residual=True, errors={}))
+
+    # -- reading ---------------------------------------------------------------------------------
+    @property
+    def error(self) -> str:
+        """Every current error, one per line (``""`` when all is well)."""
+        return "\n".join(self.errors.values())
+
+    @property
+    def value_unit(self) -> str:
+        """The unit of the quantity watched: the state's, or the probe's."""
+        if self.probe:
+            return next(p.unit for p in self.fixture.probes if p.name == self.probe)
+        return self.fixture.state_unit
+
+    @property
+    def curve_names(self) -> tuple[str, ...]:
+        """Every curve that can be shown: the components, then each source's contribution."""
+        return COMPONENTS + tuple(p.name for p in self.fixture.sources)
+
+    # -- edits (each returns True when accepted) -------------------------------------------------------
+    def edit_part(self, key: str, text: str) -> bool:
+        """A part value typed into field `key` (a switch's ``"k1.r_on"`` or ``"k1.r_off"``)."""
+        if key not in self.texts or key in SETUP_KEYS:
+            fields = [k for k in self.texts if k not in SETUP_KEYS]
+            raise InputError(f"edit_part: {key!r} is not a part field; fields are {fields}")
+        name, _, which = key.partition(".")
+        texts = {key: text}
+        if which:
+            texts = {f"{name}.r_on": self.texts[f"{name}.r_on"], f"{name}.r_off": self.texts[f"{name}.r_off"], **texts}
+            value: Any = (texts[f"{name}.r_on"], texts[f"{name}.r_off"])
+        else:
+            value = text
+        return self._edit(key, lambda: {"fixture": self.fixture.with_values(**{name: value})}, texts=texts)
+
+    def edit_setup(self, key: str, text: str) -> bool:
+        """A setup field typed: ``"initial"``, ``"tolerance"`` or ``"sample_delay"``."""
+        readers: dict[str, Callable[[], dict]] = {
+            "initial": lambda: {"initial": read_initial(text, self.fixture.state_unit)},
+            "tolerance": lambda: {"tolerance": parse_tolerance(text, unit=self.value_unit)},
+            "sample_delay": lambda: {"sample_delay": _read_delay(text)},
+        }
+        if key not in readers:
+            raise InputError(f"edit_setup: {key!r} is not a setup field; fields are {list(SETUP_KEYS)}")
+        return self._edit(key, readers[key], texts={key: text})
+
+    def edit_table(self, columns: dict[str, list], end: str | None = None) -> bool:
+        """The drive table's text as typed (only the cells that changed are read again)."""
+        return self._edit("drive", lambda: {"table": self.table.with_text(columns, end=end)})
+
+    def add_row(self) -> bool:
+        """Append a change at the end of the drive."""
+        return self._edit("drive", lambda: {"table": self.table.add_row()}, reset_view=True)
+
+    def insert_row(self, row: int) -> bool:
+        """Insert a change before `row`, halfway from the one before."""
+        return self._edit("drive", lambda: {"table": self.table.insert_row(row)}, reset_view=True)
+
+    def duplicate_row(self, row: int) -> bool:
+        """Repeat `row` halfway to the next change."""
+        return self._edit("drive", lambda: {"table": self.table.duplicate_row(row)}, reset_view=True)
+
+    def delete_row(self, row: int) -> bool:
+        """Remove the change in `row`."""
+        return self._edit("drive", lambda: {"table": self.table.delete_row(row)}, reset_view=True)
+
+    def set_drive(self, drive: Drive) -> bool:
+        """Replace the drive (undoable); it must have the same columns."""
+        table = self.table
+        if not isinstance(drive, Drive):
+            raise InputError(f"set_drive: {drive!r} is not a firstorder Drive")
+        if set(drive.names) != set(table.names):
+            raise InputError(f"set_drive: columns {list(drive.names)} differ from the fixture's {list(table.names)}")
+        return self._edit("drive", lambda: {"table": DriveText.from_drive(drive, table.names, table.switches,
+                                                                          table.units)}, reset_view=True)
+
+    def generate(self, kind: str, fields: dict[str, str]) -> bool:
+        """Replace the drive by a pulse train (``kind="pulses"``: column, period, duty, high,
+        low, count) or a staircase (``"staircase"``: column, levels, dwell), given as text."""
+        try:
+            if kind == "pulses":
+                count = fields["count"].strip()
+                if not count.isdigit():
+                    raise InputError(f"pulses.count: {count!r} must be a whole number >= 1")
+                made = Drive.pulses(period=fields["period"], duty=parse_value(fields["duty"], field="pulses.duty"),
+                                    high=fields["high"], low=fields["low"], count=int(count), name=fields["column"],
+                                    start=self.drive.start)
+            elif kind == "staircase":
+                levels = [item.strip() for item in fields["levels"].split(",") if item.strip()]
+                made = Drive.staircase(levels, dwell=fields["dwell"], name=fields["column"], start=self.drive.start)
+            else:
+                raise InputError(f"generate: kind {kind!r} is not 'pulses' or 'staircase'")
+            table = self.table.merged(made)
+        except ValueError as error:
+            self._set_error("generator", str(error))
+            return False
+        self._set_error("generator", None)
+        return self._edit("drive", lambda: {"table": table}, reset_view=True)
+
+    def drag(self, column: str, times: Any, levels: Any) -> bool:
+        """Drag handles moved to (`times`, `levels`) on `column`; False (and the drive as it
+        was) when they do not match the drive's rows or the move is refused."""
+        times, levels = np.asarray(times, dtype=float), np.asarray(levels, dtype=float)
+        if column not in self.table.names or times.size != len(self.drive) or levels.size != len(self.drive):
+            return False
+        if (times == self.drive.times).all() and (levels == self.drive.levels(column)).all():
+            return False
+        span = self.view[1] - self.view[0]
+        try:
+            table = self.table.dragged(column, times, levels, span)
+        except ValueError as error:
+            self._set_error("drive", f"drag: {error}")
+            return False
+        return self._edit("drive", lambda: {"table": table}, reset_view=True)
+
+    def set_view(self, start: Any, end: Any) -> None:
+        """Show the time span [start, end] (s); it is kept within the drive."""
+        self.view = _checked_view(start, end, self.drive)
+
+    def select_segment(self, segment: int | None) -> None:
+        """Select `segment` (None: no selection)."""
+        self.segment = _checked_segment(segment, self.drive)
+
+    def undo(self) -> bool:
+        """Take back the last edit; False when there is nothing to take back.
+
+        A refused entry (one showing an error) is the last edit: undo first
+        puts back the last good text; the edit before it needs another undo.
+        """
+        if self.errors:
+            self._restore(self._snapshot())
+            return True
+        if not self.history:
+            return False
+        snapshot = self.history[-1]
+        self._restore(snapshot, history=self.history[:-1])
+        return True
+
+    def analysis(self, title: str = "", notes: str = ""):
+        """The last good fixture, drive, start, tolerance and sample delay as an :class:`~firstorder.Analysis`.
+
+        A sample delay longer than some segments is kept per segment, cut to
+        each segment's length (as the settling table here judges them).
+        """
+        from ..analysis import Analysis
+
+        tolerance = parse_tolerance(self.texts["tolerance"], unit=self.fixture.state_unit)
+        delay: Any = self.sample_delay
+        durations = self.drive.durations
+        if delay is not None and bool((durations < delay).any()):
+            delay = sample_delays(delay, durations, ends=self.drive.ends, past_end="end").tolist()
+        return Analysis(self.fixture, self.drive, initial=self.initial, tolerance=tolerance,
+                        sample_delay=delay, title=title, notes=notes)
+
+    # -- the one path of an edit ----------------------------------------------------------------------
+    def _edit(self, key: str, make: Callable[[], dict[str, Any]], texts: dict[str, str] | None = None,
+              reset_view: bool = False) -> bool:
+        """Build the new inputs with `make`, compute their results, and replace the state;
+        on a ValueError from any layer record it under `key` and change nothing else."""
+        try:
+            inputs = make()
+            if "table" in inputs:
+                inputs["drive"] = inputs["table"].to_drive()
+            fixture = inputs.get("fixture", self.fixture)
+            drive, initial = inputs.get("drive", self.drive), inputs.get("initial", self.initial)
+            changed_response = bool({"fixture", "drive", "initial"} & inputs.keys())
+            response = fixture.respond(drive, initial) if changed_response else self.response
+        except ValueError as error:
+            self._set_error(key, str(error))
+            return False
+        changes = dict(inputs, response=response)
+        changes.update(self._results(response, inputs.get("tolerance", self.tolerance),
+                                     inputs.get("sample_delay", self.sample_delay), self.probe,
+                                     residual=changed_response, errors={k: v for k, v in self.errors.items() if k != key}))
+        changes["texts"] = {**self.texts, **(texts or {})}
+        changes["history"] = (*self.history, self._snapshot())[-UNDO_DEPTH:]
+        if "drive" in inputs:
+            changes.update(self._placed(drive, reset_view))
+        self._replace(changes)
+        return True
+
+    def _results(self, response: Response, tolerance: Tolerance | None, sample_delay: float | None,
+                 probe: str | None, residual: bool, errors: dict[str, str]) -> dict[str, Any]:
+        """The settling table and its summary (and, with `residual`, the trace's residual) for
+        these inputs, and `errors` with the settling's own error in place of the last one."""
+        table = summary = problem = None
+        if tolerance is not None:
+            try:
+                delays = None if sample_delay is None else sample_delays(
+                    sample_delay, response.drive.durations, ends=response.ends, past_end="end")
+                table = response.settling(tolerance, sample_delay=delays, probe=probe)
+                summary = table_summary(table)
+            except ValueError as error:
+                problem = str(error)
+        errors = {k: v for k, v in errors.items() if k != "settling"}
+        if problem:
+            errors["settling"] = problem
+        results = {"settling": table, "summary": summary, "errors": errors}
+        if residual:
+            results["residual"] = self._residual(response, probe)
+        return results
+
+    def _residual(self, response: Response, probe: str | None) -> Residual | None:
+        trace = self.trace
+        if trace is None:
+            return None
+        within = (trace.times >= response.drive.start) & (trace.times <= response.drive.end)
+        times = trace.times[within]
+        residual = trace.values[within] - response.evaluate(times, ("total",), probe)["total"]
+        rms = float(np.sqrt(np.mean(residual ** 2))) if residual.size else math.nan
+        return Residual(times, residual, rms)
+
+    def _placed(self, drive: Drive, reset_view: bool) -> dict[str, Any]:
+        """The view and selection for a new drive: the view kept within it (the whole drive
+        after a structural edit), a selection past its end dropped."""
+        view = (float(drive.start), float(drive.end)) if reset_view else _checked_view(*self.view, drive)
+        segment = self.segment if self.segment is not None and self.segment < len(drive) else None
+        return {"view": view, "segment": segment}
+
+    def _replace(self, changes: dict[str, Any]) -> None:
+        # Held: every trait takes its new value before any observer runs, so an observer of
+        # the response already sees the settling table that goes with it.
+        with self.hold_trait_notifications():
+            for name, value in changes.items():
+                self.set_trait(name, value)
+
+    def _set_error(self, key: str, message: str | None) -> None:
+        errors = {k: v for k, v in self.errors.items() if k != key or message}
+        if message:
+            errors[key] = message
+        self.set_trait("errors", errors)
+
+    def _snapshot(self) -> _Snapshot:
+        return _Snapshot(self.fixture, self.table, dict(self.texts), self.initial, self.tolerance, self.sample_delay)
+
+    def _restore(self, snapshot: _Snapshot, history: tuple | None = None) -> None:
+        tolerance = snapshot.tolerance
+        if tolerance is not None and tolerance.unit != self.value_unit:
+            tolerance = parse_tolerance(snapshot.texts["tolerance"], unit=self.value_unit)
+        drive = snapshot.table.to_drive()
+        response = snapshot.fixture.respond(drive, snapshot.initial)
+        changes = dict(fixture=snapshot.fixture, table=snapshot.table, drive=drive, initial=snapshot.initial,
+                       tolerance=tolerance, sample_delay=snapshot.sample_delay, response=response,
+                       texts=dict(snapshot.texts))
+        # Undo clears every refused entry: the fields go back to their last good text.
+        changes.update(self._results(response, tolerance, snapshot.sample_delay, self.probe, residual=True, errors={}))
+        if history is not None:
+            changes["history"] = history
+        changes.update(self._placed(drive, reset_view=True))
+        self._replace(changes)
+
+    # -- what anyone may set ---------------------------------------------------------------------------
+    @traitlets.validate("view")
+    def _validate_view(self, proposal):
+        try:
+            return _checked_view(*proposal.value, self.drive)
+        except InputError as error:
+            raise traitlets.TraitError(str(error)) from None
+
+    @traitlets.validate("segment")
+    def _validate_segment(self, proposal):
+        try:
+            return _checked_segment(proposal.value, self.drive)
+        except InputError as error:
+            raise traitlets.TraitError(str(error)) from None
+
+    @traitlets.validate("probe")
+    def _validate_probe(self, proposal):
+        name = proposal.value or None
+        probes = [p.name for p in self.fixture.probes]
+        if name is not None and name not in probes:
+            raise traitlets.TraitError(f"probe: {name!r} is not a probe of the fixture; probes are {probes}")
+        return name
+
+    @traitlets.validate("curves")
+    def _validate_curves(self, proposal):
+        names = self.curve_names
+        unknown = [name for name in proposal.value if name not in names]
+        if unknown:
+            raise traitlets.TraitError(f"curves: {unknown} are not curves; curves are {list(names)}")
+        return tuple(name for name in names if name in proposal.value)
+
+    @traitlets.observe("probe")
+    def _observe_probe(self, change) -> None:
+        # The same limit, read in the unit of what is now watched (V or A); then its table.
+        tolerance = self.tolerance
+        if tolerance is not None and tolerance.unit != self.value_unit:
+            tolerance = parse_tolerance(self.texts["tolerance"], unit=self.value_unit)
+        changes = {"tolerance": tolerance}
+        changes.update(self._results(self.response, tolerance, self.sample_delay, change["new"], residual=True,
+                                     errors=self.errors))
+        self._replace(changes)
