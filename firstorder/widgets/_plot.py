@@ -49,6 +49,14 @@ def _band_hover(band, name: str, value_hover) -> HoverTool:
                      formatters={"@low": value_hover, "@high": value_hover, "@t": _hover("s")})
 
 
+def _assign(source: ColumnDataSource, data: dict) -> None:
+    """Replace `source`'s data, unless it is empty and stays empty: every assignment is a
+    message to the browser, and most marks and hidden curves stay empty edit after edit."""
+    if all(len(column) == 0 for column in data.values()) and all(len(column) == 0 for column in source.data.values()):
+        return
+    source.data = data
+
+
 def _empty_curve() -> dict[str, np.ndarray]:
     empty = np.zeros(0)
     return {"t": empty, "y": empty, "low": empty, "high": empty}
@@ -247,7 +255,7 @@ class Plots:
             source = self.sources[name]
             self.legend_items[name].visible = name in values
             if name not in values:
-                source.data = _empty_curve()
+                _assign(source, _empty_curve())
                 self.line_renderers[name].visible = False
                 self.band_renderers[name].visible = False
                 continue
@@ -281,15 +289,15 @@ class Plots:
         for j, name in enumerate(self.switch_names):
             closed = np.asarray(drive.levels(name)) != 0
             left, right = _runs(drive.times, drive.ends, closed, plan, view)
-            self.sources[f"switch.{name}"].data = {
+            _assign(self.sources[f"switch.{name}"], {
                 "left": left, "right": right,
                 "bottom": np.full(left.size, j + 0.06), "top": np.full(left.size, j + 0.94),
-            }
+            })
 
     def update_handles(self, drive, column_name: str | None) -> bool:
         """Put a drag handle on every change of `column_name`; False when there are too many."""
         if column_name is None or len(drive) > MAX_HANDLES:
-            self.sources["handles"].data = {"t": [], "y": [], "row": []}
+            _assign(self.sources["handles"], {"t": [], "y": [], "row": []})
             return False
         self.sources["handles"].data = {
             "t": np.array(drive.times, dtype=float),
@@ -336,9 +344,9 @@ class Plots:
             at = response.evaluate(instants, ("total", "forced"), probe)
             samples = {"t": instants, "y": at["total"], "colour": [SAMPLE_NEUTRAL] * instants.size,
                        "error": at["total"] - at["forced"]}
-        self.sources["tolerance"].data = band
-        self.sources["samples"].data = samples
-        self.sources["settle"].data = settle
+        _assign(self.sources["tolerance"], band)
+        _assign(self.sources["samples"], samples)
+        _assign(self.sources["settle"], settle)
 
     def update_trace(self, times: np.ndarray, values: np.ndarray, residual_times: np.ndarray,
                      residual: np.ndarray, view: View) -> None:
@@ -384,7 +392,7 @@ class Plots:
 
     def update_selection(self, drive, segment: int | None) -> None:
         if segment is None:
-            self.sources["selection"].data = {"left": [], "right": []}
+            _assign(self.sources["selection"], {"left": [], "right": []})
         else:
             self.sources["selection"].data = {"left": [float(drive.times[segment])], "right": [float(drive.ends[segment])]}
 
