@@ -1,0 +1,326 @@
+"""The Bench, Python side (no browser): fields, drive table, undo, export; what the user types and reads.
+
+Numbers are checked against handbook formulas (common practice): tau = R C,
+and tau = L / R for a coil; series and parallel resistance.
+"""
+
+from __future__ import annotations
+
+import math
+import subprocess
+import sys
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import firstorder as fo
+from firstorder.widgets import Bench
+
+from benches import charging, rc_bench, switched_bench
+
+
+class TestLazyImport:
+    def test_bench_loads_bokeh_and_ipywidgets_when_first_asked_for(self):
+        # `import firstorder` loading none of them is tests/test_layers.py's check.
+        code = ("import sys, firstorder as fo\n"
+                "before = 'bokeh' in sys.modules or 'ipywidgets' in sys.modules\n"
+                "fo.Bench\n"
+                "print(before, 'bokeh' in sys.modules and 'ipywidgets' in sys.modules)\n")
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
+        assert out == ["False", "True"]
+
+    def test_unknown_attribute_still_raises(self):
+        with pytest.raises(AttributeError, match="no attribute 'Bnech'"):
+            fo.Bnech  # noqa: B018
+
+
+class TestBenchConstruction:
+    def test_attributes(self):
+        bench = rc_bench()
+        assert bench.error == ""
+        assert set(bench.fields) == {"r", "c"}
+        assert {"total", "zero_input", "zero_state", "forced", "natural", "vin"} <= set(bench.sources)
+        assert bench.response.drive is bench.drive
+        assert isinstance(bench.fixture, fo.Fixture)
+
+    def test_switch_gets_two_fields_and_probe_choice(self):
+        bench = switched_bench()
+        assert {"rs", "k1.r_on", "k1.r_off", "ch", "rin"} == set(bench.fields)
+        bench.probe_selector.value = "i_rs"
+        assert bench.probe == "i_rs"
+        assert bench.plots.response_figure.yaxis[0].formatter.args == {"unit": "A"}
+        # Just after the change at 1 ms the current through rs is (2.5 V - 0 V) / (1k + 0.2): Ohm's law.
+        t = np.asarray(bench.sources["total"].data["t"])
+        y = np.asarray(bench.sources["total"].data["y"])
+        assert y[t == 1e-3][0] == pytest.approx(2.5 / 1000.2, rel=1e-9)
+
+    def test_refuses_wrong_types(self):
+        with pytest.raises(ValueError, match="Fixture"):
+            Bench("rc", fo.Drive.steps([(0, 1.0)], end=1))
+        with pytest.raises(ValueError, match="Tolerance"):
+            rc_bench(tolerance="1 mV")
+
+
+class TestPartFields:
+    def test_new_value_recomputes(self):
+        bench = rc_bench()
+        bench.fields["r"].value = "20k"
+        assert bench.error == ""
+        assert bench.fixture.part_map["r"].value == 20e3
+        assert bench.response.tau[0] == pytest.approx(2e-3)  # tau = R C (common practice)
+        data = bench.sources["total"].data
+        t, y = np.asarray(data["t"]), np.asarray(data["y"])
+        window = (t >= 1e-3) & (t < 4e-3)
+        np.testing.assert_allclose(y[window], charging(t[window], 1e-3, 5.0, 2e-3), rtol=1e-12, atol=1e-12)
+
+    def test_bad_value_keeps_last_good(self):
+        bench = rc_bench()
+        before = np.array(bench.sources["total"].data["y"])
+        response = bench.response
+        bench.fields["r"].value = "twenty"
+        assert "r" in bench.error and "'twenty'" in bench.error
+        assert "twenty" in bench._field_errors["r"].value
+        assert bench.response is response
+        assert bench.fixture.part_map["r"].value == 10e3
+        np.testing.assert_array_equal(bench.sources["total"].data["y"], before)
+
+    def test_negative_and_wrong_unit_are_refused(self):
+        bench = rc_bench()
+        bench.fields["c"].value = "-1u"
+        assert "must be > 0" in bench.error
+        bench.fields["c"].value = "1uH"
+        assert "unit" in bench.error
+        assert bench.fixture.part_map["c"].value == 100e-9
+
+    def test_fixing_the_value_clears_the_error(self):
+        bench = rc_bench()
+        bench.fields["r"].value = "x"
+        bench.fields["r"].value = "1k"
+        assert bench.error == ""
+        assert bench.response.tau[0] == pytest.approx(1e-4)
+
+    def test_switch_on_resistance(self):
+        bench = switched_bench()
+        bench.fields["k1.r_on"].value = "1k"
+        # closed: tau = (rs + r_on) || rin times ch (handbook series/parallel, common practice)
+        expected = (2000.0 * 10e6 / (2000.0 + 10e6)) * 100e-9
+        assert bench.response.tau[0] == pytest.approx(expected, rel=1e-12)
+
+
+class TestSetupFields:
+    def test_initial_settled_and_number(self):
+        bench = rc_bench()
+        bench.setup_fields["initial"].value = "2.5"
+        assert bench.response.initial == 2.5
+        bench.setup_fields["initial"].value = "periodic"
+        periodic = bench.response
+        assert periodic.initial == pytest.approx(periodic.boundary[-1], rel=1e-12)
+        bench.setup_fields["initial"].value = "warm"
+        assert "initial" in bench.error and bench.response is periodic  # the last good one stays
+
+    def test_tolerance_text_field(self):
+        bench = rc_bench()
+        bench.setup_fields["tolerance"].value = "0.5 LSB of 16 bits on 5 V"
+        assert bench.tolerance == fo.Tolerance.lsb(16, 5.0)
+        bench.setup_fields["tolerance"].value = "loose"
+        assert "tolerance" in bench.error
+        assert bench.tolerance == fo.Tolerance.lsb(16, 5.0)
+
+
+class TestDriveTable:
+    def test_level_edit(self):
+        bench = rc_bench()
+        bench.edit_cell(1, "vin", "3")
+        assert bench.error == ""
+        np.testing.assert_array_equal(bench.drive.levels("vin"), [0.0, 3.0, 1.0])
+        assert bench.response.final[1] == 3.0
+
+    def test_time_edit_in_engineering_notation(self):
+        bench = rc_bench()
+        bench.edit_cell(1, "time", "1.5m")
+        np.testing.assert_array_equal(bench.drive.times, [0.0, 1.5e-3, 4e-3])
+
+    def test_out_of_order_time_keeps_last_good(self):
+        bench = rc_bench()
+        drive = bench.drive
+        bench.edit_cell(1, "time", "9m")
+        assert "strictly increasing" in bench.error
+        assert bench.drive is drive
+        assert bench.table_source.data["time"][1] == "9m"  # what was typed stays to be fixed
+
+    def test_messages_show_plain_numbers(self):
+        # numpy 2 writes a scalar's repr as np.float64(...); the engineer should read 0.004
+        bench = rc_bench()
+        bench.edit_cell(1, "time", "9m")
+        assert "np.float64" not in bench.error
+        assert "drive.times[2]: 0.004 does not come after drive.times[1] = 0.009" in bench.error
+
+    def test_unparsable_cell_names_row_and_column(self):
+        bench = rc_bench()
+        bench.edit_cell(2, "vin", "one volt")
+        assert "row 2" in bench.error and "vin" in bench.error
+        bench.edit_cell(1, "vin", "4")  # another edit: the bad cell is still reported
+        assert "row 2" in bench.error
+        np.testing.assert_array_equal(bench.drive.levels("vin"), [0.0, 5.0, 1.0])
+
+    def test_switch_column(self):
+        bench = switched_bench()
+        bench.edit_cell(2, "k1", "closed")
+        np.testing.assert_array_equal(bench.drive.levels("k1"), [1, 1, 1, 1])
+        bench.edit_cell(2, "k1", "half")
+        assert "switch state" in bench.error
+
+    def test_end_field(self):
+        bench = rc_bench()
+        bench.end_field.value = "10m"
+        assert bench.drive.end == 10e-3
+        bench.end_field.value = "3m"
+        assert "end" in bench.error and bench.drive.end == 10e-3
+
+    def test_row_operations(self):
+        bench = rc_bench()
+        bench.add_row()
+        np.testing.assert_allclose(bench.drive.times, [0, 1e-3, 4e-3, 8e-3])
+        assert bench.drive.end == pytest.approx(12e-3)
+        bench.insert_row(1)
+        np.testing.assert_allclose(bench.drive.times, [0, 0.5e-3, 1e-3, 4e-3, 8e-3])
+        assert bench.drive.levels("vin")[1] == 5.0
+        bench.duplicate_row(3)
+        np.testing.assert_allclose(bench.drive.times, [0, 0.5e-3, 1e-3, 4e-3, 6e-3, 8e-3])
+        bench.delete_row(0)
+        np.testing.assert_allclose(bench.drive.times, [0.5e-3, 1e-3, 4e-3, 6e-3, 8e-3])
+        assert len(bench.table_source.data["time"]) == 5
+        bench.delete_row(9)
+        assert "row 9" in bench.error
+
+    def test_generators(self):
+        bench = rc_bench()
+        bench.pulse_fields["period"].value = "2m"
+        bench.pulse_fields["duty"].value = "0.25"
+        bench.pulse_fields["high"].value = "5"
+        bench.pulse_fields["count"].value = "3"
+        bench._generate("pulses")
+        expected = fo.Drive.pulses(period="2m", duty=0.25, high=5, count=3)
+        assert bench.drive == expected
+        bench.stair_fields["levels"].value = "0, 1, 2"
+        bench.stair_fields["dwell"].value = "1m"
+        bench._generate("staircase")
+        assert bench.drive == fo.Drive.staircase([0, 1, 2], dwell="1m")
+        bench.pulse_fields["duty"].value = "2"
+        bench._generate("pulses")
+        assert "duty" in bench.error
+
+    def test_drag_a_handle(self):
+        bench = rc_bench()
+        handles = bench.sources["handles"]
+        np.testing.assert_array_equal(handles.data["t"], bench.drive.times)
+        t = np.array(handles.data["t"])
+        y = np.array(handles.data["y"])
+        t[1] = 2e-3  # sideways: the instant moves
+        handles.data = {"t": t, "y": y, "row": handles.data["row"]}
+        np.testing.assert_allclose(bench.drive.times, [0, 2e-3, 4e-3])
+        y[1] = 4.0  # up and down, with a sideways slip too small to count: the level moves
+        t[1] = 2e-3 + 1e-6
+        handles.data = {"t": t, "y": y, "row": handles.data["row"]}
+        np.testing.assert_allclose(bench.drive.times, [0, 2e-3, 4e-3])
+        np.testing.assert_allclose(bench.drive.levels("vin"), [0, 4.0, 1.0])
+        t, y = np.array(bench.sources["handles"].data["t"]), np.array(bench.sources["handles"].data["y"])
+        t[1] = 5e-3  # past the next change: refused, handles put back
+        handles.data = {"t": t, "y": y, "row": handles.data["row"]}
+        assert "drag" in bench.error
+        np.testing.assert_allclose(bench.sources["handles"].data["t"], [0, 2e-3, 4e-3])
+
+
+class TestUndo:
+    def test_undo_level_edit(self):
+        bench = rc_bench()
+        bench.edit_cell(1, "vin", "3")
+        assert bench.undo()
+        np.testing.assert_array_equal(bench.drive.levels("vin"), [0.0, 5.0, 1.0])
+        assert bench.table_source.data["vin"][1] == "5 V"
+
+    def test_undo_a_rejected_entry_first(self):
+        bench = rc_bench()
+        bench.edit_cell(1, "vin", "3")
+        bench.edit_cell(1, "time", "9m")
+        assert bench.undo()  # takes back the rejected time, keeps the accepted level
+        assert bench.error == ""
+        assert bench.table_source.data["time"][1] == "1 ms"
+        np.testing.assert_array_equal(bench.drive.levels("vin"), [0.0, 3.0, 1.0])
+        assert bench.undo()
+        np.testing.assert_array_equal(bench.drive.levels("vin"), [0.0, 5.0, 1.0])
+        assert not bench.undo()
+
+    def test_undo_part_value(self):
+        bench = rc_bench()
+        bench.fields["r"].value = "20k"
+        bench.undo()
+        assert bench.fields["r"].value == "10 kΩ"
+        assert bench.response.tau[0] == pytest.approx(1e-3)
+
+    def test_undo_row_delete(self):
+        bench = rc_bench()
+        bench.delete_row(1)
+        bench.undo()
+        np.testing.assert_allclose(bench.drive.times, [0, 1e-3, 4e-3])
+
+
+class TestSegmentSelection:
+    def test_plot_and_table_selection_follow_each_other(self):
+        bench = rc_bench()
+        bench.select_segment(2)
+        assert list(bench.table_source.selected.indices) == [2]
+        bench.table_source.selected.indices = [1]
+        np.testing.assert_allclose(bench.sources["selection"].data["left"], [1e-3])
+        assert "Segment 1" in bench.derivation.value
+        with pytest.raises(ValueError, match="segments are 0 to 2"):
+            bench.select_segment(3)
+
+
+class TestExport:
+    def test_components_and_drive(self, tmp_path):
+        bench = rc_bench()
+        path = bench.export_components(tmp_path / "c.csv")
+        frame = pd.read_csv(path)
+        np.testing.assert_array_equal(frame["total (V)"].to_numpy(), np.asarray(bench.sources["total"].data["y"]))
+        drive_path = bench.export_drive(tmp_path / "d.csv")
+        assert fo.Drive.from_csv(drive_path) == bench.drive
+
+
+class TestAnalysisExport:
+    def test_saved_analysis_reads_back(self, tmp_path):
+        bench = switched_bench(tolerance=fo.Tolerance.lsb(16, 5.0), sample_delay="0.8m")
+        bench.fields["rs"].value = "2.2k"
+        bench.edit_cell(3, "vdac", "-1.5")
+        path = bench.save_analysis(tmp_path / "a.json", title="hold capacitor")
+        again = fo.Analysis.load(path)
+        assert again.fixture.part_map["rs"].value == 2200.0
+        assert again.drive == bench.drive
+        assert again.tolerance == fo.Tolerance.lsb(16, 5.0)
+        assert again.sample_delay == 0.8e-3
+        np.testing.assert_allclose(again.response.boundary, bench.response.boundary, rtol=0, atol=0)
+
+    def test_long_delay_is_kept_per_segment(self, tmp_path):
+        bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"), sample_delay="2m")
+        analysis = bench.analysis()
+        np.testing.assert_allclose(analysis.sample_delay, [1e-3, 2e-3, 2e-3])
+
+    def test_report_is_written(self, tmp_path):
+        bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"))
+        path = bench.report(tmp_path / "r.html")
+        assert fo.Analysis.load(path).drive == bench.drive
+
+
+class TestInductorBench:
+    def test_rl_current_in_amps(self):
+        bench = Bench(fo.Fixture.rl(r="47", l="10m"), fo.Drive.steps([(0, 0.0), ("1m", 5.0)], end="3m"),
+                      tolerance=fo.Tolerance.relative(0.01))
+        # i(t) = V/R (1 - exp(-t R / L)) (handbook RL step, common practice)
+        t = np.asarray(bench.sources["total"].data["t"])
+        y = np.asarray(bench.sources["total"].data["y"])
+        after = t >= 1e-3
+        np.testing.assert_allclose(y[after], 5 / 47 * (1 - np.exp(-(t[after] - 1e-3) * 47 / 10e-3)), rtol=1e-12, atol=1e-15)
+        assert bench.plots.response_figure.yaxis[0].formatter.args == {"unit": "A"}
+        # within 1 % of the step after ln(100) time constants (common practice)
+        assert bench.settling.loc[1, "settle_time"] == pytest.approx(math.log(100) * 10e-3 / 47, rel=1e-12)

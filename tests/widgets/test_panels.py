@@ -1,0 +1,108 @@
+"""The Bench's panels: the field builders, the derivation, the settling table and summary, the cautions.
+
+Numbers are checked against handbook closed forms (common practice): tau = R C;
+a first-order step is within `tol` of its final value after tau ln(step / tol).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+import firstorder as fo
+from firstorder.widgets import Bench
+from firstorder.widgets import _panels as panels
+from firstorder.widgets._session import part_fields
+
+from benches import rc_bench, switched_bench, switched_fixture
+
+
+class TestBuilders:
+    def test_parts_panel_gives_a_field_per_value_and_calls_back(self):
+        typed = []
+        panel = panels.parts_panel(part_fields(switched_fixture()), lambda key, text: typed.append((key, text)))
+        assert list(panel.fields) == ["rs", "k1.r_on", "k1.r_off", "ch", "rin"]
+        assert panel.fields["k1.r_on"].value == "200 mΩ" and "fo-part-k1-r_on" in panel.fields["k1.r_on"]._dom_classes
+        panel.fields["rin"].value = "1M"
+        assert typed == [("rin", "1M")]
+
+    def test_view_panel_offers_the_state_and_every_probe(self):
+        panel = panels.view_panel(switched_fixture(), ("total", "forced"), ("total",), None, print, print, print)
+        assert [value for _, value in panel.probe_selector.options] == ["", "i_rs"]
+        assert panel.overlays["total"].value and not panel.overlays["forced"].value
+
+    def test_status_is_escaped_and_empty_when_all_is_well(self):
+        assert panels.status_html({}) == ""
+        text = panels.status_html({"r": "r: '<b>' is not a number"})
+        assert "&lt;b&gt;" in text and "last good result" in text
+
+
+class TestSettlingTable:
+    def test_a_long_table_shows_the_least_margin_rows(self):
+        # 60 steps alternately short (0.5 tau) and long (20 tau): only the short ones fail.
+        fixture = fo.Fixture.rc(r="1k", c="1u")
+        times = np.cumsum([0.0] + [0.5e-3 if k % 2 == 0 else 20e-3 for k in range(59)])
+        drive = fo.Drive(times, end=float(times[-1]) + 20e-3, vin=[5.0 * (k % 2) for k in range(60)])
+        bench = Bench(fixture, drive, tolerance=fo.Tolerance.absolute("1m"))
+        bench.tabs.selected_index = 3
+        text = bench.settling_panel.value
+        assert "the 40 segments with the least margin, of 60" in text
+        # Every short segment after a step (ends first: e^-0.5 of 5 V is left) is listed: 29, since
+        # segment 0 starts at its own level.
+        assert text.count("ends first") == 29 and text.count(">NO<") == 29
+        assert "3.0327 V" in text  # 5 V e^-0.5 (common practice)
+
+
+class TestDerivationPanel:
+    def test_segment_shows_symbols_then_numbers(self):
+        bench = switched_bench()
+        bench.select_segment(2)  # k1 open: the capacitor discharges into rin alone
+        text = bench.derivation.value
+        assert "Segment 2" in text and "k1 open" in text
+        assert text.index("Time constant") < text.index("This segment in numbers")
+        assert "ch" in text and "rin" in text
+        # tau = rin * ch = 1 s (handbook, common practice)
+        assert r"\tau = 1.0" in text
+        np.testing.assert_allclose(bench.sources["selection"].data["left"], [2e-3])
+
+
+class TestSettlingPanel:
+    def test_settle_mark_and_table(self):
+        fixture = fo.Fixture.rc(r="10k", c="100n")
+        drive = fo.Drive.steps([(0, 0.0), ("1m", 5.0)], end="15m")
+        bench = Bench(fixture, drive, tolerance=fo.Tolerance.absolute("10m"), sample_delay="9m")
+        # First order: within 10 mV of a 5 V step after tau ln(5 / 0.01) (handbook closed form, common practice)
+        expected = 1e-3 * math.log(5.0 / 0.01)
+        assert bench.settling.loc[1, "settle_time"] == pytest.approx(expected, rel=1e-12)
+        marks = bench.sources["settle"].data
+        np.testing.assert_allclose(marks["t"], [1e-3 + expected], rtol=1e-12)
+        np.testing.assert_allclose(marks["y"], [4.99], rtol=1e-12)
+        bench.tabs.selected_index = 3
+        assert "Settling summary" in bench.settling_panel.value
+        assert "6.215 ms" in bench.settling_panel.value
+
+    def test_no_tolerance_no_table(self):
+        bench = rc_bench()
+        assert bench.settling is None
+        bench.tabs.selected_index = 3
+        assert "Give a tolerance" in bench.settling_panel.value
+
+    def test_tolerance_in_wrong_unit_for_a_current_probe(self):
+        bench = switched_bench(tolerance=fo.Tolerance.absolute("1m"))
+        bench.probe_selector.value = "i_rs"
+        # The tolerance field is re-read in amps for a current probe.
+        assert bench.tolerance.unit == "A"
+        assert bench.error == ""
+
+
+class TestCautionsPanel:
+    def test_high_voltage_is_flagged(self):
+        fixture = fo.Fixture.rc(r="1k", c="10u")
+        bench = Bench(fixture, fo.Drive.steps([(0, 0.0), ("1m", 100.0)], end="100m"))
+        # 100 V is above the 60 V DC limit the cautions use (from memory of safety practice)
+        assert "Cautions" in bench.cautions_panel.value
+        assert "60 V" in bench.cautions_panel.value
+        bench.edit_cell(1, "vin", "5")
+        assert bench.cautions_panel.value == ""
