@@ -12,7 +12,7 @@ from __future__ import annotations
 import html
 import math
 from dataclasses import dataclass
-from typing import Any, Callable
+from typing import Callable
 
 import ipywidgets as widgets
 import numpy as np
