@@ -319,8 +319,7 @@ def settling_html(table, summary, unit: str, judged_at_end: bool) -> str:
 
 def derivation_html(fixture, response, segment: int, probe: str | None) -> str:
     """Symbols first (sympy, imported on first use), then this segment's numbers."""
-    # The one writing of names the derivation's own steps use.
-    from ..symbolic import _latex_name as latex_name
+    from ..symbolic.names import latex_name  # the one writing of names, as in the steps above
 
     drive = response.drive
     states = {p.name: bool(drive.levels(p.name)[segment]) for p in fixture.switches}
