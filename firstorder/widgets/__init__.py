@@ -1,13 +1,13 @@
-"""The notebook app and the report figure: the only package that imports ipywidgets or bokeh.
+"""The notebook app, the Bench: the only package that imports ipywidgets and jupyter_bokeh.
 
-The Bench (``fo.Bench``) needs ipywidgets and jupyter_bokeh; the report figure
-needs bokeh only.  Each is imported when first asked for, so importing one
-does not load what only the other needs.
+:class:`Bench` (``fo.Bench``) wires a :class:`BenchSession` (the state, as
+traitlets: observe it or link to it) to its panels and plots.  Both are
+imported when first asked for, so ``import firstorder`` loads no UI library.
 """
 
 from __future__ import annotations
 
-__all__ = ["Bench"]
+__all__ = ["Bench", "BenchSession"]
 
 
 def __getattr__(name: str):
@@ -15,4 +15,8 @@ def __getattr__(name: str):
         from ._bench import Bench
 
         return Bench
+    if name == "BenchSession":
+        from ._session import BenchSession
+
+        return BenchSession
     raise AttributeError(f"module 'firstorder.widgets' has no attribute {name!r}")

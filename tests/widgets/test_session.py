@@ -7,6 +7,8 @@ a first-order step is within `tol` of its final value after tau ln(step / tol).
 from __future__ import annotations
 
 import math
+import subprocess
+import sys
 
 import numpy as np
 import pytest
@@ -16,7 +18,8 @@ import firstorder as fo
 import firstorder.response
 import firstorder.segments
 import firstorder.settling.table
-from firstorder.widgets._session import UNDO_DEPTH, BenchSession
+from firstorder.widgets import BenchSession
+from firstorder.widgets._session import UNDO_DEPTH
 
 from benches import rc_drive, rc_fixture, switched_bench, switched_drive, switched_fixture
 
@@ -31,6 +34,15 @@ class Dashboard(traitlets.HasTraits):
     span = traitlets.Tuple(traitlets.Float(), traitlets.Float(), default_value=(0.0, 1.0))
     watched = traitlets.Unicode(None, allow_none=True)
     result = traitlets.Any()
+
+
+class TestImport:
+    def test_the_session_loads_no_ui_library(self):
+        # A dashboard may hold a session without the Bench: traitlets, not ipywidgets or bokeh.
+        code = ("import sys\nfrom firstorder.widgets import BenchSession\n"
+                "print(sorted(m for m in ('bokeh', 'ipywidgets', 'jupyter_bokeh') if m in sys.modules))")
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+        assert out.strip() == "[]"
 
 
 class TestValidation:
