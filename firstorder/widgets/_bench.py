@@ -121,6 +121,7 @@ class Bench(widgets.VBox):
             ("Plotted components (CSV)", "_components.csv", self.export_components),
             ("Drive (CSV)", "_drive.csv", self.export_drive), ("Analysis (JSON)", "_analysis.json", self.save_analysis),
             ("Report (HTML)", "_report.html", self.report)])
+        self._panels = (parts, setup, view, editor)
         self.fields, self.setup_fields = parts.fields, setup.fields
         self._field_errors = {**parts.errors, **setup.errors}
         self.probe_selector, self.overlays, self.undo_button = view.probe_selector, view.overlays, view.undo_button
@@ -294,16 +295,21 @@ class Bench(widgets.VBox):
         tab = self.tabs.selected_index
         shown_segment = self._drawn.get("derivation", (None, None, None))[2]
         view = View(*s.view)
+        parts, setup, shown, editor = self._panels
         self._redraw("errors", (s.errors,), self._show_errors)
-        self._redraw("texts", (s.texts,), self._show_texts)
-        self._redraw("table", (s.table,), self._show_table)
-        self._redraw("handles", (s.drive, self.drag_column.value), self._show_handles)
+        self._redraw("texts", (s.texts, s.errors), lambda: self._sync(lambda: [
+            parts.show(s.texts, s.errors), setup.show(s.texts, s.errors)]))
+        self._redraw("table", (s.table,), lambda: self._sync(lambda: editor.show(s.table, not self._typed,
+                                                                                   len(s.history))))
+        self._redraw("handles", (s.drive, self.drag_column.value), lambda: self._sync(
+            # The drag column offers the sources; with none it holds "" and there are no handles.
+            lambda: self.plots.update_handles(s.drive, self.drag_column.value or None)))
         self._redraw("span", (s.view, s.drive), lambda: self.plots.show_span(view, float(s.drive.start),
                                                                              float(s.drive.end)))
         self._redraw("drive", (s.drive, s.view), lambda: self.plots.update_drive(s.drive, view))
-        self._redraw("probe", (s.probe,), self._show_probe)
-        self._redraw("overlays", (s.curves,), lambda: self._sync(
-            lambda: [setattr(button, "value", name in s.curves) for name, button in self.overlays.items()]))
+        self._redraw("probe", (s.probe,), lambda: self.plots.set_value_unit(
+            s.value_unit, panels.value_label(s.fixture, s.probe)))
+        self._redraw("shown", (s.probe, s.curves), lambda: self._sync(lambda: shown.show(s.probe, s.curves)))
         self._redraw("curves", (s.response, s.probe, s.view, s.curves),
                      lambda: self.plots.update_response(s.response, s.probe, view, set(s.curves)))
         self._redraw("marks", (s.response, s.probe, s.view, s.settling, s.sample_delay),
@@ -311,22 +317,19 @@ class Bench(widgets.VBox):
         if s.trace is not None:
             self._redraw("trace", (s.residual, s.view), lambda: self.plots.update_trace(
                 s.trace.times, s.trace.values, s.residual.times, s.residual.values, view))
-        self._redraw("info", (s.response, self.plots.mode, s.residual), lambda: setattr(
-            self.info, "value", panels.info_html(s.response, s.fixture.state_unit, self.plots.mode,
-                                                 None if s.residual is None else s.residual.rms, s.value_unit)))
+        self._redraw("info", (s.response, self.plots.mode, s.residual),
+                     lambda: setattr(self.info, "value", panels.info_html(s, self.plots.mode)))
         self._redraw("cautions", (s.response,), lambda: setattr(
             self.cautions_panel, "value", panels.cautions_html(s.response.cautions)))
-        self._redraw("selection", (s.drive, s.segment), self._show_selection)
+        self._redraw("selection", (s.drive, s.segment), lambda: [
+            self.plots.update_selection(s.drive, s.segment), editor.select(s.segment)])
         # The text tabs are written only when someone looks (a derivation needs sympy);
         # a newly selected segment shows its derivation at once.
-        self._redraw("settling panel", (s.settling, s.summary), lambda: setattr(
-            self.settling_panel, "value", panels.settling_html(
-                s.settling, s.summary, s.value_unit,
-                s.sample_delay is not None and bool((s.drive.durations < s.sample_delay).any()))),
-            when=tab == _SETTLING_TAB)
-        self._redraw("derivation", (s.fixture, s.response, s.segment, s.probe), lambda: setattr(
-            self.derivation, "value", panels.derivation_html(s.fixture, s.response, s.segment or 0, s.probe)),
-            when=tab == _DERIVATION_TAB or s.segment != shown_segment)
+        self._redraw("settling panel", (s.settling, s.summary),
+                     lambda: setattr(self.settling_panel, "value", panels.settling_html(s)), when=tab == _SETTLING_TAB)
+        self._redraw("derivation", (s.fixture, s.response, s.segment, s.probe),
+                     lambda: setattr(self.derivation, "value", panels.derivation_html(s)),
+                     when=tab == _DERIVATION_TAB or s.segment != shown_segment)
 
     def _redraw(self, part: str, inputs: tuple, draw, when: bool = True) -> None:
         drawn = self._drawn.get(part)
@@ -344,50 +347,11 @@ class Bench(widgets.VBox):
     def _show_errors(self) -> None:
         errors = self.session.errors
         self.status.value = panels.status_html(errors)
-        for key, box in self._field_errors.items():
-            box.value = panels.error_html(errors.get(key))
         self.drive_error.value = panels.error_html(errors.get("drive"))
         self.generator_error.value = panels.error_html(errors.get("generator"))
-        # An error gone (fixed, or taken back by undo): its control shows the last good text again.
-        gone = set(self._drawn.get("errors", ({},))[0]) - set(errors)
-        if gone & set(self.fields) | gone & set(self.setup_fields):
-            self._drawn.pop("texts", None)
-        if "drive" in gone and not self._typed:
+        # A drive error gone (fixed, or taken back by undo): the table shows the last good text again.
+        if "drive" in self._drawn.get("errors", ({},))[0] and "drive" not in errors and not self._typed:
             self._drawn.pop("table", None)
-
-    def _show_texts(self) -> None:
-        texts = self.session.texts
-        self._sync(lambda: [setattr(field, "value", texts[key])
-                            for key, field in {**self.fields, **self.setup_fields}.items()])
-
-    def _show_table(self) -> None:
-        table = self.session.table
-
-        def set_controls() -> None:
-            if not self._typed:
-                self.table_source.data = table.as_columns()
-                # BokehJS redraws a table when its row indices change; with as many rows as
-                # before they do not, so a change to the table model itself asks for the redraw.
-                self.drive_table.tags = [len(self.session.history), id(table)]
-            self.end_field.value = table.end
-            self.row_field.max = max(len(table) - 1, 0)
-        self._sync(set_controls)
-
-    def _show_handles(self) -> None:
-        # The drag column offers the sources; with none it holds "" and there are no handles.
-        self._sync(lambda: self.plots.update_handles(self.session.drive, self.drag_column.value or None))
-
-    def _show_probe(self) -> None:
-        self.plots.set_value_unit(self.session.value_unit, panels.value_label(self.fixture, self.probe))
-        self._sync(lambda: setattr(self.probe_selector, "value", self.probe or ""))
-
-    def _show_selection(self) -> None:
-        segment = self.session.segment
-        self.plots.update_selection(self.drive, segment)
-        if segment is not None:
-            self.row_field.value = segment
-            if list(self.table_source.selected.indices) != [segment]:
-                self.table_source.selected.indices = [segment]  # the row lights up in the table too
 
     # -- export --------------------------------------------------------------------------------------------------
     def components_table(self):

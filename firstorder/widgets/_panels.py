@@ -25,7 +25,7 @@ from ..report.tables import margin_rows
 from ..units import format_value
 from ._drive_table import DriveText
 from ._plot import MAX_HANDLES
-from ._session import PartField
+from ._session import BenchSession, PartField
 
 __all__ = ["DriveEditor", "ExportPanel", "FieldsPanel", "GeneratorsPanel", "TAB_TITLES", "ViewPanel",
            "cautions_html", "derivation_html", "drive_editor", "error_html", "export_panel", "generators_panel",
@@ -50,6 +50,14 @@ class FieldsPanel:
     box: widgets.VBox
     fields: dict[str, widgets.Text]
     errors: dict[str, widgets.HTML]
+
+    def show(self, texts: dict[str, str], errors: dict[str, str]) -> None:
+        """Every field's error from `errors`, and its last good text from `texts` unless it
+        shows a refused entry (left as typed, to be fixed)."""
+        for key, field in self.fields.items():
+            if key not in errors:
+                field.value = texts[key]
+            self.errors[key].value = error_html(errors.get(key))
 
 
 def parts_panel(fields: list[PartField], on_edit: Callable[[str, str], None]) -> FieldsPanel:
@@ -100,6 +108,12 @@ class ViewPanel:
     overlays: dict[str, widgets.ToggleButton]
     undo_button: widgets.Button
 
+    def show(self, probe: str | None, curves: tuple[str, ...]) -> None:
+        """The probe watched and the curves shown."""
+        self.probe_selector.value = probe or ""
+        for name, button in self.overlays.items():
+            button.value = name in curves
+
 
 def value_label(fixture, probe: str | None = None) -> str:
     """What the response panel's value axis shows: the probe, or the storage element's state."""
@@ -142,6 +156,23 @@ class DriveEditor:
     row_field: widgets.BoundedIntText
     drag_column: widgets.Dropdown
     error: widgets.HTML
+
+    def show(self, table: DriveText, with_text: bool, revision: int) -> None:
+        """`table`'s end and rows; its cells too `with_text` (not when they are what was typed)."""
+        if with_text:
+            self.table_source.data = table.as_columns()
+            # BokehJS redraws a table when its row indices change; with as many rows as
+            # before they do not, so a change to the table model itself asks for the redraw.
+            self.drive_table.tags = [revision, id(table)]
+        self.end_field.value = table.end
+        self.row_field.max = max(len(table) - 1, 0)
+
+    def select(self, segment: int | None) -> None:
+        """Light up the row of `segment` (and put it in the row field)."""
+        if segment is not None:
+            self.row_field.value = segment
+            if list(self.table_source.selected.indices) != [segment]:
+                self.table_source.selected.indices = [segment]
 
 
 def drive_editor(table: DriveText, on_row: Callable[[str, int], None], on_end: Callable[[str], None],
@@ -285,8 +316,10 @@ def cautions_html(cautions: list) -> str:
             f"<b>⚠ Cautions</b><ul style='margin:2px 0'>{items}</ul></div>")
 
 
-def info_html(response, unit: str, mode: str, residual_rms: float | None, residual_unit: str) -> str:
-    """The line under the plot: time constants, segments, start and end, how the plot is drawn."""
+def info_html(session: BenchSession, mode: str) -> str:
+    """The line under the plot: time constants, segments, start and end, how the plot is
+    drawn (`mode`), and the residual of a trace."""
+    response, unit = session.response, session.fixture.state_unit
     tau = response.tau
     finite = tau[np.isfinite(tau)]
     tau_text = "held (no resistive path)" if finite.size == 0 else (
@@ -295,32 +328,35 @@ def info_html(response, unit: str, mode: str, residual_rms: float | None, residu
     parts = [f"τ {tau_text}", f"{len(response.drive)} segments", f"start {format_value(response.initial, unit)}",
              f"end {format_value(float(response.boundary[-1]), unit)}",
              "plot: every segment drawn" if mode == "line" else "plot: min/max per pixel (zoom in for single segments)"]
-    if residual_rms is not None:
-        parts.append(f"residual rms {format_value(residual_rms, residual_unit)}")
+    if session.residual is not None:
+        parts.append(f"residual rms {format_value(session.residual.rms, session.value_unit)}")
     return "<span style='color:#34495e'>" + " · ".join(html.escape(p) for p in parts) + "</span>"
 
 
-def settling_html(table, summary, unit: str, judged_at_end: bool) -> str:
-    """The summary, then the rows with the least margin (every row of a short drive);
-    `judged_at_end`: some segments are shorter than the sample delay."""
+def settling_html(session: BenchSession) -> str:
+    """The summary, then the rows with the least margin (every row of a short drive)."""
+    table = session.settling
     if table is None:
         return ("<p>Give a tolerance (Setup) to see when each segment settles "
                 "and the error left at each sample.</p>")
-    header, rows, caption = margin_rows(table, unit)
+    header, rows, caption = margin_rows(table, session.value_unit)
     head = "".join(f"<th style='padding:1px 8px;text-align:left'>{html.escape(h)}</th>" for h in header)
     body = "".join(
         "<tr>" + "".join(f"<td style='padding:1px 8px'>{html.escape(cell)}</td>" for cell in [str(k), *cells]) + "</tr>"
         for k, cells, _ in rows)
     note = ("<p style='color:#566573'>Segments shorter than the sample delay are judged at their end.</p>"
-            if judged_at_end else "")
-    return (summary._repr_html_() + note + f"<p><b>Settling, {html.escape(caption)}</b></p>"
+            if session.samples_at_end else "")
+    return (session.summary._repr_html_() + note + f"<p><b>Settling, {html.escape(caption)}</b></p>"
             f"<table style='font-size:0.9em'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
 
 
-def derivation_html(fixture, response, segment: int, probe: str | None) -> str:
-    """Symbols first (sympy, imported on first use), then this segment's numbers."""
+def derivation_html(session: BenchSession) -> str:
+    """The selected segment's (or the first one's) derivation: symbols first (sympy, imported
+    on first use), then its numbers."""
     from ..symbolic.names import latex_name  # the one writing of names, as in the steps above
 
+    fixture, response, probe = session.fixture, session.response, session.probe
+    segment = session.segment or 0
     drive = response.drive
     states = {p.name: bool(drive.levels(p.name)[segment]) for p in fixture.switches}
     derivation = fixture.derivation(**states)

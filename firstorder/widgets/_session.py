@@ -241,6 +241,11 @@ class BenchSession(traitlets.HasTraits):
         return self.fixture.state_unit
 
     @property
+    def samples_at_end(self) -> bool:
+        """True when some segments are shorter than the sample delay: those are judged at their end."""
+        return self.sample_delay is not None and bool((self.drive.durations < self.sample_delay).any())
+
+    @property
     def curve_names(self) -> tuple[str, ...]:
         """Every curve that can be shown: the components, then each source's contribution."""
         return COMPONENTS + tuple(p.name for p in self.fixture.sources)
@@ -373,9 +378,8 @@ class BenchSession(traitlets.HasTraits):
 
         tolerance = parse_tolerance(self.texts["tolerance"], unit=self.fixture.state_unit)
         delay: Any = self.sample_delay
-        durations = self.drive.durations
-        if delay is not None and bool((durations < delay).any()):
-            delay = sample_delays(delay, durations, ends=self.drive.ends, past_end="end").tolist()
+        if self.samples_at_end:
+            delay = sample_delays(delay, self.drive.durations, ends=self.drive.ends, past_end="end").tolist()
         return Analysis(self.fixture, self.drive, initial=self.initial, tolerance=tolerance,
                         sample_delay=delay, title=title, notes=notes)
 

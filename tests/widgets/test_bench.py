@@ -324,3 +324,15 @@ class TestInductorBench:
         assert bench.plots.response_figure.yaxis[0].formatter.args == {"unit": "A"}
         # within 1 % of the step after ln(100) time constants (common practice)
         assert bench.settling.loc[1, "settle_time"] == pytest.approx(math.log(100) * 10e-3 / 47, rel=1e-12)
+
+
+class TestRefusedEntries:
+    def test_a_refused_entry_stays_as_typed_until_fixed_or_undone(self):
+        bench = rc_bench()
+        bench.fields["r"].value = "twenty"
+        bench.fields["c"].value = "220n"  # another field accepted meanwhile
+        assert bench.fields["r"].value == "twenty" and "twenty" in bench._field_errors["r"].value
+        assert bench.response.tau[0] == pytest.approx(10e3 * 220e-9)  # tau = R C (common practice)
+        bench.undo()  # takes back the refused entry: the field shows its last good text
+        assert bench.fields["r"].value == "10 kΩ" and bench._field_errors["r"].value == ""
+        assert bench.fields["c"].value == "220n"
