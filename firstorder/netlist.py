@@ -103,8 +103,17 @@ class Probe:
         return "V" if self.node is not None else "A"
 
     def describe(self) -> str:
+        """What the probe watches, in plain words.
+
+        Examples
+        --------
+        >>> Probe("v_out", node="out").describe(), Probe("v_ab", node="a", reference="b").describe()
+        ('voltage at out (to gnd)', 'voltage at a (to b)')
+        >>> Probe("i_r", through="r").describe()
+        'current through r'
+        """
         if self.node is not None:
-            return f"v({self.node})" if self.reference == GROUND else f"v({self.node}) - v({self.reference})"
+            return f"voltage at {self.node} (to {self.reference})"
         return f"current through {self.through}"
 
 

@@ -14,9 +14,5 @@ from .derivation import Derivation, derive
 from .names import DerivationNames, derivation_names, latex_name, latex_text
 from .steps import PowerOfE, Step, derivation_steps, to_latex
 
-# Until widgets/_bench.py imports names.latex_name (its own change), the old private name
-# stays importable; it is the same function, not a copy.
-_latex_name = latex_name
-
 __all__ = ["Derivation", "DerivationNames", "PowerOfE", "Step", "derivation_names", "derivation_steps",
            "derive", "latex_name", "latex_text", "to_latex"]

@@ -120,7 +120,7 @@ def value_label(fixture, probe: str | None = None) -> str:
     if probe:
         return probe
     storage = fixture.storage
-    return f"v({storage.name})" if storage.kind == "capacitor" else f"i({storage.name})"
+    return f"voltage across {storage.name}" if storage.kind == "capacitor" else f"current through {storage.name}"
 
 
 def view_panel(fixture, curve_names: tuple[str, ...], shown: tuple[str, ...], probe: str | None,
