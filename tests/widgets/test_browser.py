@@ -213,7 +213,6 @@ def _notebook_page(lab, name: str, source: str):
 
 class TestBenchInBrowser:
     def test_renders_and_follows_a_part_edit(self, lab):
-        from playwright.sync_api import TimeoutError as PlaywrightTimeout
         from playwright.sync_api import sync_playwright
 
         with sync_playwright() as playwright:
