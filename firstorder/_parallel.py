@@ -21,6 +21,8 @@ from collections.abc import Callable, Sequence
 from concurrent.futures import ThreadPoolExecutor, wait
 from typing import TypeVar
 
+from .errors import InputError
+
 __all__ = ["MAX_THREADS", "MIN_PIECE", "pieces", "run", "threads"]
 
 #: Default cap on threads: more rarely pays on memory-bound passes.
@@ -34,6 +36,16 @@ _Result = TypeVar("_Result")
 _pool: ThreadPoolExecutor | None = None
 _pool_size = 0
 _pool_process = 0
+_pool_lock = threading.Lock()
+
+
+def _after_fork_in_child() -> None:
+    # The lock may have been held by a thread of the parent that the child does not have.
+    global _pool_lock
+    _pool_lock = threading.Lock()
+
+
+os.register_at_fork(after_in_child=_after_fork_in_child)
 
 
 def threads() -> int:
@@ -51,7 +63,9 @@ def threads() -> int:
         except ValueError:
             count = 0
         if count < 1:
-            raise ValueError(f"FIRSTORDER_THREADS: {text!r} is not allowed; expected a whole number >= 1")
+            raise InputError(
+                f"FIRSTORDER_THREADS: {text!r} is not allowed; expected a whole number >= 1 (the environment "
+                f"variable that sets how many threads long arrays use)")
         return count
     try:
         cores = len(os.sched_getaffinity(0))
@@ -114,13 +128,22 @@ def run(function: Callable[..., _Result], spans: Sequence[tuple]) -> list[_Resul
 
 
 def _shared_pool(workers: int) -> ThreadPoolExecutor:
-    """The pool, with at least `workers` threads.  A forked child process inherits the
-    pool object but not its threads, so it starts a pool of its own."""
+    """The pool, with at least `workers` threads.
+
+    Threads may ask at once, so the pool is looked up and replaced under a lock; a
+    pool that is replaced by a larger one is left running (its idle threads cost
+    nothing), because another thread may already hold it and be about to hand it
+    work.  A forked child process inherits the pool object but not its threads, so it
+    starts a pool of its own.
+    """
     global _pool, _pool_size, _pool_process
-    if _pool is None or _pool_size < workers or _pool_process != os.getpid():
-        if _pool is not None and _pool_process == os.getpid():
-            _pool.shutdown(wait=False)
-        _pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix=_THREAD_PREFIX)
-        _pool_size = workers
-        _pool_process = os.getpid()
-    return _pool
+    pool, process = _pool, os.getpid()
+    if pool is not None and _pool_size >= workers and _pool_process == process:
+        return pool  # the common case: no lock taken
+    with _pool_lock:
+        if _pool is None or _pool_size < workers or _pool_process != process:
+            size = max(workers, _pool_size if _pool_process == process else 0)
+            _pool = ThreadPoolExecutor(max_workers=size, thread_name_prefix=_THREAD_PREFIX)
+            _pool_size = size
+            _pool_process = process
+        return _pool

@@ -24,6 +24,8 @@ from typing import NoReturn
 
 import numpy as np
 
+from . import _parallel
+
 __all__ = ["main", "demo_analysis"]
 
 _PROGRAM = "firstorder"
@@ -252,6 +254,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         parser = _build_parser()
         arguments = parser.parse_args(argv)
+        # A bad FIRSTORDER_THREADS would otherwise surface only once an array is long enough
+        # to split: refuse it before any work, whatever the drive.
+        _parallel.threads()
         _COMMANDS[arguments.command](arguments)
     except _UsageError as error:
         print(_one_line(str(error)), file=sys.stderr)

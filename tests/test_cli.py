@@ -20,9 +20,9 @@ from firstorder.analysis import Analysis
 ROOT = Path(__file__).resolve().parents[1]
 
 
-def run(*arguments: str, cwd: Path | None = None) -> subprocess.CompletedProcess:
+def run(*arguments: str, cwd: Path | None = None, **variables: str) -> subprocess.CompletedProcess:
     """``python -m firstorder ...`` with this checkout on the path, as a user would run it."""
-    environment = dict(os.environ, PYTHONPATH=str(ROOT))
+    environment = dict(os.environ, PYTHONPATH=str(ROOT), **variables)
     return subprocess.run(
         [sys.executable, "-m", "firstorder", *arguments],
         capture_output=True, text=True, env=environment, cwd=cwd, timeout=300,
@@ -186,3 +186,10 @@ class TestHelp:
     def test_console_script_entry_point(self):
         text = (ROOT / "pyproject.toml").read_text()
         assert 'firstorder = "firstorder.cli:main"' in text
+
+
+class TestEnvironment:
+    def test_a_bad_thread_count_is_one_line_before_any_work(self, demo):
+        # It used to surface only on long drives, and then as "internal error".
+        result = run("settle", str(demo / "demo-analysis.json"), FIRSTORDER_THREADS="abc")
+        assert_one_line_error(result, "FIRSTORDER_THREADS: 'abc' is not allowed", "whole number >= 1")

@@ -3,6 +3,7 @@ depend on how many threads ran."""
 
 import multiprocessing
 import os
+import sys
 import threading
 import time
 
@@ -34,10 +35,10 @@ class TestPieces:
         monkeypatch.setenv("FIRSTORDER_THREADS", "1")
         assert _parallel.pieces(10_000_000) == [(0, 10_000_000)]
 
-    @pytest.mark.parametrize("text", ["0", "-2", "many", "1.5"])
+    @pytest.mark.parametrize("text", ["0", "-2", "many", "1.5", "abc"])
     def test_bad_setting_names_the_variable(self, monkeypatch, text):
         monkeypatch.setenv("FIRSTORDER_THREADS", text)
-        with pytest.raises(ValueError, match=f"FIRSTORDER_THREADS: '{text}' is not allowed"):
+        with pytest.raises(InputError, match=f"FIRSTORDER_THREADS: '{text}' is not allowed"):
             _parallel.threads()
 
 
@@ -80,6 +81,39 @@ class TestRun:
         with context.Pool(1) as children:
             result = children.apply_async(_run_two_pieces).get(timeout=60)
         assert result == [0, 1]
+
+
+class TestFirstCallsAtOnce:
+    def test_threads_that_start_together_share_the_pool_safely(self, monkeypatch):
+        # Threads whose first calls come at once each asked for a larger pool, and the pool
+        # one thread was about to use was shut down by another ("cannot schedule new futures
+        # after shutdown"). A tiny switch interval makes that interleaving likely every run.
+        monkeypatch.setenv("FIRSTORDER_THREADS", "8")
+        errors = []
+
+        def worker(count, barrier):
+            barrier.wait()
+            try:
+                for _ in range(20):
+                    assert _parallel.run(lambda a, b: b - a, [(i, i + 1) for i in range(count)]) == [1] * count
+            except Exception as error:  # noqa: BLE001 - every failure is counted
+                errors.append(repr(error))
+
+        interval = sys.getswitchinterval()
+        sys.setswitchinterval(1e-6)
+        try:
+            for _ in range(20):
+                monkeypatch.setattr(_parallel, "_pool", None)
+                monkeypatch.setattr(_parallel, "_pool_size", 0)
+                barrier = threading.Barrier(7)
+                workers = [threading.Thread(target=worker, args=(count, barrier)) for count in range(2, 9)]
+                for thread in workers:
+                    thread.start()
+                for thread in workers:
+                    thread.join(timeout=60)
+        finally:
+            sys.setswitchinterval(interval)
+        assert errors == []
 
 
 def _run_two_pieces():
