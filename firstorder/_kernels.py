@@ -31,6 +31,11 @@ LANES = 8
 #: :func:`firstorder.engine.decay_factors`).
 SMALL_EXPONENT = 1.0 / 16.0
 
+#: Exponents below this are "deep": numpy's ``exp`` leaves its vectorised path for them
+#: (results near or below the smallest normal double) and runs 7 to 60 times slower, so the
+#: engine exponentiates them apart (see :func:`firstorder.engine.exp_in_place`).
+DEEP_EXPONENT = -708.0
+
 _loaded: object = None  # None: not tried yet; False: unavailable; else the module
 
 
@@ -138,17 +143,20 @@ def _compile():
     @jit
     def segment_exponents(times, ends, rate, out, first, stop):
         """``-((end - start) * rate)`` of segments first:stop (numpy: the drive's durations,
-        multiply, negate); returns how many lie in ``(-SMALL_EXPONENT, 0)``."""
+        multiply, negate); returns how many lie in ``(-SMALL_EXPONENT, 0)`` and how many
+        below ``DEEP_EXPONENT``."""
         begins = times[first:stop]
         finishes = ends[first:stop]
         rates = rate[first:stop]
         target = out[first:stop]
         small = 0
+        deep = 0
         for k in range(target.size):
             e = -((finishes[k] - begins[k]) * rates[k])
             target[k] = e
             small += (e > -SMALL_EXPONENT) & (e < 0.0)
-        return small
+            deep += e < DEEP_EXPONENT
+        return small, deep
 
     @jit
     def copy_checked(source, target, first, stop):
@@ -176,19 +184,23 @@ def _compile():
         """Walk ``t[first:stop]`` (from segment `k`): ``(t - start) * -rate`` of each point's
         segment into `out` (numpy: repeat, subtract, multiply), and into `bounds` the first
         point of every segment met, then `stop` up to segment `k_stop` (``bounds[j]:bounds[j + 1]``
-        are segment j's points).  Returns the segment of the last point and whether the
-        points never decrease (``t[first - 1]`` included) and none is NaN; if they do,
-        `out` and `bounds` hold nothing useful."""
+        are segment j's points).  Returns the segment of the last point, whether the
+        points never decrease (``t[first - 1]`` included) and none is NaN (if they do,
+        `out` and `bounds` hold nothing useful), and how many exponents lie below
+        ``DEEP_EXPONENT``."""
         n = starts.size
         points = t[first:stop]
         target = out[first:stop]
         following = t[max(first, 1):stop]
         before = t[max(first, 1) - 1:stop - 1]
         out_of_order = 0
+        deep = 0
         for i in range(following.size):
             out_of_order |= not (following[i] >= before[i])  # also catches NaN
         if points.size and not points[0] == points[0]:
             out_of_order = 1
+        if out_of_order:  # the caller takes another path: the walk would be wasted
+            return k, False, deep
         upcoming = starts[k + 1] if k + 1 < n else np.inf
         begin = starts[k]
         factor = -rate[k]
@@ -201,10 +213,12 @@ def _compile():
                 upcoming = starts[k + 1] if k + 1 < n else np.inf
                 begin = starts[k]
                 factor = -rate[k]
-            target[i] = (value - begin) * factor
+            e = (value - begin) * factor
+            target[i] = e
+            deep += e < DEEP_EXPONENT
         for j in range(k + 1, k_stop + 1):
             bounds[j] = stop
-        return k, out_of_order == 0
+        return k, out_of_order == 0, deep
 
     @jit
     def combine(difference, final, bounds, decay, out, first, stop, k, k_last):

@@ -33,10 +33,14 @@ import numpy as np
 from . import _kernels, _parallel
 
 __all__ = ["decay_factors", "segment_factors", "affine_scan", "relaxation_scan", "SegmentLocator", "evaluate",
-           "evaluate_sorted", "settling_columns"]
+           "evaluate_sorted", "exp_in_place", "settling_columns"]
 
 #: Below this many maps a plain loop is quicker than the blocked scan.
 _LOOP_LIMIT = 64
+
+#: A sorted grid with fewer points than segments / this is located by a search per point
+#: rather than by run lengths over every segment.
+RUNS_PER_POINT = 16
 
 
 def decay_factors(durations: np.ndarray, rate: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -73,7 +77,7 @@ def _factors_in_place(exponent: np.ndarray, small: np.ndarray) -> tuple[np.ndarr
     """``(exp, 1 - exp)`` of `exponent`, whose storage becomes the first; `small`
     indexes the exponents whose ``1 - exp`` comes from ``expm1``."""
     small_growth = np.negative(np.expm1(exponent[small]))
-    decay = np.exp(exponent, out=exponent)
+    decay = exp_in_place(exponent)
     growth = np.subtract(1.0, decay)
     growth[small] = small_growth
     return decay, growth
@@ -99,7 +103,7 @@ def segment_factors(times: np.ndarray, ends: np.ndarray, rate: np.ndarray) -> tu
         exponent = _exponents(ends - times, rate)
         small = _small(exponent)
         if small.size == 0:
-            return _exp(exponent), None
+            return exp_in_place(exponent), None
         return _factors_in_place(exponent, small)
     exponent = np.empty(n)
 
@@ -107,12 +111,13 @@ def segment_factors(times: np.ndarray, ends: np.ndarray, rate: np.ndarray) -> tu
         # decay_factors' operations on segments first:stop; the expm1 of small exponents
         # is handed back, for the caller to place once it knows 1 - decay is needed.
         part = exponent[first:stop]
-        if not kernels.segment_exponents(times, ends, rate, exponent, first, stop):
-            _exp(part)
+        small_count, deep = kernels.segment_exponents(times, ends, rate, exponent, first, stop)
+        if not small_count:
+            exp_in_place(part, deep)
             return None
         small = _small(part)
         small_growth = np.negative(np.expm1(part[small]))
-        _exp(part)
+        exp_in_place(part, deep)
         return first + small, small_growth
 
     spans = _parallel.pieces(n)
@@ -297,10 +302,42 @@ def settling_columns(start: np.ndarray, final: np.ndarray, tau: np.ndarray, deca
     return limit, settle, settled, residual
 
 
-def _exp(exponent: np.ndarray) -> np.ndarray:
-    """``exp`` in place.  Inside the drive every exponent is <= 0; a time before the
-    first change overflows here, harmlessly, and is refused by the caller's range
-    check, which needs the locator's finding of whether the grid is sorted."""
+#: Below this ``exp`` is exactly 0 in double precision (it underflows below -745.13).
+_ZERO_BELOW = -745.2
+
+
+def exp_in_place(exponent: np.ndarray, deep: int | None = None) -> np.ndarray:
+    """``exp`` of every element, in place; the same numbers as ``np.exp``, bit for bit.
+
+    numpy's ``exp`` leaves its vectorised loop for exponents below about -708 (results
+    near or below the smallest normal double) and is then 7 to 60 times slower; a
+    segment of more than about 709 time constants has such an exponent.  Those few are
+    taken out first: below -745.2 the result is exactly 0, and between, numpy's own
+    ``exp`` of the subset gives the subnormals.  `deep` is how many exponents lie below
+    :data:`~firstorder._kernels.DEEP_EXPONENT` when a kernel has counted them already.
+
+    Inside the drive every exponent is <= 0; a time before the first change overflows
+    here, harmlessly, and is refused by the caller's range check, which needs the
+    locator's finding of whether the grid is sorted.
+
+    Examples
+    --------
+    >>> exponent = np.array([-1.0, -720.0, -800.0])
+    >>> np.array_equal(exp_in_place(exponent.copy()), np.exp(exponent))
+    True
+    """
+    if deep is None or deep > 0:
+        where = np.flatnonzero(exponent < _kernels.DEEP_EXPONENT)
+        if where.size:
+            values = exponent[where]
+            exponent[where] = 0.0
+            with np.errstate(over="ignore"):
+                np.exp(exponent, out=exponent)
+            result = np.zeros(values.size)
+            band = values >= _ZERO_BELOW
+            result[band] = np.exp(values[band])
+            exponent[where] = result
+            return exponent
     with np.errstate(over="ignore"):
         return np.exp(exponent, out=exponent)
 
@@ -359,8 +396,10 @@ class SegmentLocator:
         if is_sorted is None:
             is_sorted = t.size < 2 or not np.greater(t[:-1], t[1:]).any()
         self.is_sorted = bool(is_sorted)
-        if is_sorted and t.size > 1:
-            # Sorted times: a run-length per segment, then repeats instead of gathers.
+        if is_sorted and t.size > 1 and t.size * RUNS_PER_POINT >= starts.size:
+            # Sorted times: a run-length per segment, then repeats instead of gathers (for a
+            # few points on a long drive a search per point is cheaper than a pass over every
+            # segment, so those take the path below).
             counts = self._run_lengths()
             elapsed = np.repeat(starts, counts)
             np.subtract(t, elapsed, out=elapsed)
@@ -370,7 +409,7 @@ class SegmentLocator:
             np.clip(self._index, 0, starts.size - 1, out=self._index)
             elapsed = t - starts[self._index]
             elapsed *= -rate[self._index]
-        self.decay = _exp(elapsed)
+        self.decay = exp_in_place(elapsed)
 
     def _run_lengths(self) -> np.ndarray:
         """Points per segment of a sorted grid (computed on first use)."""
@@ -437,10 +476,15 @@ def evaluate_sorted(t: np.ndarray, starts: np.ndarray, rate: np.ndarray, final: 
     kernels = _kernels.available(t.size) if t.dtype == np.float64 and t.ndim == 1 else None
     if kernels is None or t.size < 2:
         return None
-    difference = np.ascontiguousarray(start_state - final, dtype=np.float64)
     final = np.ascontiguousarray(final, dtype=np.float64)
+    start_state = np.asarray(start_state, dtype=np.float64)
+    # Each piece forms the differences of its own segments once its points proved sorted, so
+    # an unsorted grid (refused by the walk) costs no pass over every segment.  Pieces that
+    # share a segment write the same number there.
+    difference = np.empty(final.size)
 
     def combine(first: int, stop: int, k: int, k_last: int, decay: np.ndarray, bounds: np.ndarray) -> None:
+        np.subtract(start_state[k:k_last + 1], final[k:k_last + 1], out=difference[k:k_last + 1])
         kernels.combine(difference, final, bounds, decay, decay, first, stop, k, k_last)
 
     walked = _compiled_walk(kernels, np.ascontiguousarray(t), np.ascontiguousarray(starts, dtype=np.float64),
@@ -460,9 +504,9 @@ def _compiled_walk(kernels, t: np.ndarray, starts: np.ndarray, rate: np.ndarray,
     bounds[0] = 0
 
     def piece(first: int, stop: int, k: int, k_stop: int) -> tuple[int, bool]:
-        k_last, in_order = kernels.walk(t, first, stop, starts, rate, k, k_stop, decay, bounds)
+        k_last, in_order, deep = kernels.walk(t, first, stop, starts, rate, k, k_stop, decay, bounds)
         if in_order:
-            _exp(decay[first:stop])
+            exp_in_place(decay[first:stop], deep)
             if then is not None:
                 then(first, stop, k, k_last, decay, bounds)
         return k_last, in_order

@@ -83,3 +83,70 @@ class TestSegmentLocator:
         values = engine.evaluate(t, starts, rate, np.array([4.0, 9.0]), np.array([1.0, -1.0]))
         expected = [1.0, 4 - 3 * np.exp(-0.5), 4 - 3 * np.exp(-0.9995), -1.0, -1.0]
         np.testing.assert_allclose(values, expected, rtol=1e-15)
+
+
+class TestDeepExponents:
+    """Segments of hundreds to thousands of time constants: exponents below -709, where
+    numpy's exp leaves its fast loop.  Results must stay numpy's own, to the last bit."""
+
+    @pytest.mark.parametrize("size", [50, 30_000])  # the numpy path and the compiled one
+    def test_exp_in_place_is_numpys_exp(self, size):
+        rng = np.random.default_rng(size)
+        exponent = np.concatenate([rng.uniform(-800, -700, size), rng.uniform(-50, 0, size),
+                                   [-745.13, -745.14, -745.2, -708.4, -708.3, -1e300, -np.inf, 0.0]])
+        rng.shuffle(exponent)
+        # Reference: numpy's exp itself, over the whole array (bit patterns compared).
+        expected = np.exp(exponent)
+        assert np.array_equal(engine.exp_in_place(exponent.copy()).view(np.int64), expected.view(np.int64))
+        counted = int((exponent < -708.0).sum())  # as a kernel counts them
+        assert np.array_equal(engine.exp_in_place(exponent.copy(), deep=counted), expected)
+
+    @pytest.mark.parametrize("count", [100, 40_000])
+    def test_long_segments_give_numpys_numbers(self, count):
+        rng = np.random.default_rng(count)
+        durations = 10 ** rng.uniform(-1, 4, count)  # rate 1: 0.1 to 10,000 time constants
+        times = np.concatenate([[0.0], np.cumsum(durations)[:-1]])
+        ends = times + durations
+        rate = np.ones(count)
+        decay, growth = engine.segment_factors(times, ends, rate)
+        reference = np.exp(-((ends - times) * rate))
+        assert np.array_equal(decay, reference)
+        grid = np.sort(rng.uniform(0.0, float(ends[-1]), 3 * count))
+        got = engine.evaluate(grid, times, rate, np.ones(count), np.zeros(count))
+        segment = np.searchsorted(times, grid, side="right") - 1
+        expected = np.ones(count)[segment] + (np.zeros(count) - np.ones(count))[segment] * np.exp(
+            (grid - times[segment]) * -rate[segment])
+        assert np.array_equal(got, expected)
+
+
+class TestUnsortedGrids:
+    def test_long_unsorted_grid_gives_the_sorted_numbers(self):
+        # A long unsorted grid is sorted, evaluated on the sorted path and scattered back;
+        # every point must get the number the unsorted path gives it (the same operations).
+        import firstorder as fo
+        from firstorder import response as response_module
+
+        rng = np.random.default_rng(5)
+        fixture = fo.Fixture()
+        fixture.voltage_source("vin", "in", "gnd").resistor("r", "in", "a", "1k").switch("k", "a", "b", r_on="5")
+        fixture.capacitor("c", "b", "gnd", "100n").probe("v_a", node="a")
+        count = 3_000
+        durations = 1e-4 * 10 ** rng.uniform(-1, 1, count)
+        times = np.concatenate([[0.0], np.cumsum(durations)[:-1]])
+        drive = fo.Drive(times, end=float(durations.sum()), vin=rng.uniform(-5, 5, count),
+                         k=rng.integers(0, 2, count).astype(float))
+        response = fixture.respond(drive, initial=0.3)
+        grid = rng.uniform(0.0, drive.end, 60_000)
+        components = ("total", "zero_input", "zero_state", "forced", "natural")
+        sorted_first = response.evaluate(grid, components, probe="v_a")
+        state = response.evaluate(grid, ("total",))["total"]
+        original = response_module.SORT_FIRST
+        response_module.SORT_FIRST = 10**12  # the unsorted path, point by point
+        try:
+            direct = response.evaluate(grid, components, probe="v_a")
+            direct_state = response.evaluate(grid, ("total",))["total"]
+        finally:
+            response_module.SORT_FIRST = original
+        for name in components:
+            assert np.array_equal(sorted_first[name], direct[name]), name
+        assert np.array_equal(state, direct_state)

@@ -106,7 +106,7 @@ class TestEvaluation:
         out = np.empty(t.size)
         bounds = np.empty(self.starts.size + 1, dtype=np.int64)
         bounds[0] = 0
-        last, in_order = kernels.walk(t, 0, t.size, self.starts, self.rate, 0, self.starts.size, out, bounds)
+        last, in_order, _ = kernels.walk(t, 0, t.size, self.starts, self.rate, 0, self.starts.size, out, bounds)
         assert in_order
         assert last == np.searchsorted(self.starts, t[-1], side="right") - 1
         expected = np.searchsorted(t, self.starts, side="left")

@@ -22,7 +22,7 @@ from typing import Any
 
 import numpy as np
 
-from ..engine import settling_columns
+from ..engine import exp_in_place, settling_columns
 from ..errors import InputError
 from ..units import format_value, parse_value
 from .tolerance import Tolerance
@@ -251,7 +251,7 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
     if sample_delay is not None:
         durations = response.drive.durations
         delays = sample_delays(sample_delay, durations, field="sample_delay", what="segment", ends=response.ends)
-        decay = np.exp(-delays * quantity.rate)
+        decay = exp_in_place(-delays * quantity.rate)
         error = quantity.step * decay
         columns["sample_time"] = response.starts + delays
         # final + (start - final) * decay, the left limit at a delay that reaches the next change.
