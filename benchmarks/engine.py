@@ -10,6 +10,12 @@ hardest reference to beat), and the runs alternate five times; the best call cou
 (c) Drive + respond + boundary for 1,000,000 changes / bare exp of 1,000,000     (target <= 10)
 (d) respond + settling table for a 1,000,000-segment drive / bare exp of 1,000,000
     (DESIGN.md's target, <= 10)
+(e) (a) and (c) again with segments of 100 to 10,000 time constants (exponents below -709,
+    where numpy's exp is slow), against the same figures with short segments (target <= 1.2);
+    and total(t) on the same 2,000,000 points unsorted, against argsort + total(t) on the
+    sorted points + the scatter back (target <= 1)
+(c') (c) against a 12-line hand-written numba loop of the same recurrence, its input check
+    included (target <= 1)
 
 (a), (c) and (d) are printed three ways: as installed (compiled kernels, every core), on one
 thread (FIRSTORDER_THREADS=1) and on numpy alone (FIRSTORDER_KERNELS=0).  Each figure is
@@ -59,20 +65,33 @@ def best_of(function, repeats):
 
 
 def workload(name: str):
-    """The function to time for figure `name` ("a", "c" or "d"), its reference, and its data."""
+    """The function to time for figure `name` ("a", "c", "d", "a_long", "c_long", "a_unsorted",
+    "c_numba"), its reference, and its data."""
     rng = np.random.default_rng(2026)
     fixture = fo.Fixture.rc("10k", "10n")  # tau = 100 µs
-    if name == "a":
+    spread = (2, 4) if name.endswith("_long") else (-1, 1)  # segment lengths, in decades of tau
+    if name in ("a", "a_long", "a_unsorted"):
         changes = 100_000
-        durations = fixture.tau * 10 ** rng.uniform(-1, 1, changes)
+        durations = fixture.tau * 10 ** rng.uniform(*spread, changes)
         times = np.concatenate([[0.0], np.cumsum(durations)[:-1]])
         end = float(durations.sum())
         drive = fo.Drive(times, end=end, vin=rng.uniform(-5, 5, changes))
         response = fixture.respond(drive, initial=0.0)
         grid = np.linspace(0.0, end, 2_000_000)
+        if name == "a_unsorted":
+            scattered = rng.permutation(grid)
+
+            def sort_then_sorted():
+                order = np.argsort(scattered)
+                values = response.total(scattered[order])
+                back = np.empty_like(values)
+                back[order] = values
+                return back
+
+            return (lambda: response.total(scattered)), sort_then_sorted, None
         return (lambda: response.total(grid)), (lambda: np.exp(grid)), (fixture, drive, grid)
     million = 1_000_000
-    long_times = np.cumsum(fixture.tau * 10 ** rng.uniform(-1, 1, million))
+    long_times = np.cumsum(fixture.tau * 10 ** rng.uniform(*spread, million))
     long_levels = rng.uniform(-5, 5, million)
     long_end = float(long_times[-1] + fixture.tau)
 
@@ -80,11 +99,34 @@ def workload(name: str):
         built = fo.Drive(long_times, end=long_end, vin=long_levels)
         return fixture.respond(built, initial=0.0).boundary
 
-    if name == "c":
+    if name in ("c", "c_long"):
         return build_and_respond, (lambda: np.exp(long_times)), None
+    if name == "c_numba":
+        return build_and_respond, _numba_loop(long_times, long_end, long_levels, fixture.tau), None
     drive = fo.Drive(long_times, end=long_end, vin=long_levels)
     tolerance = fo.Tolerance.lsb(bits=16, span=10.0)
     return (lambda: fixture.respond(drive, initial=0.0).settling(tolerance)), (lambda: np.exp(long_times)), None
+
+
+def _numba_loop(times, end, levels, tau):
+    """The same job as (c) written by hand in numba: check the instants, then the recurrence."""
+    import numba
+
+    @numba.njit(cache=True)
+    def states(times, end, levels, tau):
+        n = times.size
+        out = np.empty(n + 1)
+        out[0] = x = 0.0
+        for k in range(n):
+            following = times[k + 1] if k + 1 < n else end
+            if not following > times[k] or not np.isfinite(levels[k]):
+                raise ValueError("times must increase and levels be finite")
+            decay = np.exp(-(following - times[k]) / tau)
+            x = levels[k] + (x - levels[k]) * decay
+            out[k + 1] = x
+        return out
+
+    return lambda: states(times, end, levels, tau)
 
 
 def in_fresh_process(name: str, settings: dict[str, str]) -> tuple[float, float]:
@@ -93,6 +135,11 @@ def in_fresh_process(name: str, settings: dict[str, str]) -> tuple[float, float]
                             check=True, capture_output=True, text=True)
     ours, bare = json.loads(result.stdout.strip().splitlines()[-1])
     return ours, bare
+
+
+def _ratio(name: str, settings: dict[str, str]) -> float:
+    ours, bare = in_fresh_process(name, settings)
+    return ours / bare
 
 
 def main() -> None:
@@ -111,6 +158,17 @@ def main() -> None:
         ours, bare = in_fresh_process("d", settings)
         print(f"(d) [{label}] respond + settling table, 1e6 segments: {ours * 1e3:.1f} ms; "
               f"bare exp of 1e6 {bare * 1e3:.2f} ms; ratio {ours / bare:.1f} (target <= 10)")
+        for short, long in (("a", "a_long"), ("c", "c_long")):
+            ratio_short = _ratio(short, settings)
+            ratio_long = _ratio(long, settings)
+            print(f"(e) [{label}] ({short}) with segments of 100-10,000 tau: ratio {ratio_long:.1f} against "
+                  f"{ratio_short:.1f} with short ones: {ratio_long / ratio_short:.2f}x (target <= 1.2)")
+        ours, reference = in_fresh_process("a_unsorted", settings)
+        print(f"(e) [{label}] total(t) on the 2e6 points unsorted: {ours * 1e3:.1f} ms; argsort + sorted + "
+              f"scatter {reference * 1e3:.1f} ms; ratio {ours / reference:.2f} (target <= 1)")
+    ours, loop = in_fresh_process("c_numba", {})
+    print(f"(c') Drive + respond + boundary, 1e6 changes: {ours * 1e3:.1f} ms; a hand-written numba loop "
+          f"of the same recurrence (input check included) {loop * 1e3:.1f} ms; ratio {ours / loop:.2f} (target <= 1)")
 
     from scipy import signal
 
