@@ -16,6 +16,7 @@ from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
 from .response import Response, respond
 from .settling import SettlingSummary, Tolerance, plan_dwells, plan_table
+from .studies import Normal, Spread, Uniform
 from .traces import Trace, fit_trace, read_trace
 from .units import format_value, parse_value
 
@@ -26,11 +27,14 @@ __all__ = [
     "Drive",
     "Fixture",
     "InputError",
+    "Normal",
     "Response",
     "SettlingSummary",
+    "Spread",
     "Tolerance",
     "TopologyError",
     "Trace",
+    "Uniform",
     "ZeroTimeError",
     "fit_trace",
     "format_value",

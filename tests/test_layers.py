@@ -43,6 +43,7 @@ LAYERS = [
     "engine",
     "response",
     "settling.tolerance", "settling.table", "settling.planning", "settling",
+    "studies.spread", "studies",
     "cautions",
     "symbolic.names", "symbolic.nodal", "symbolic.steps", "symbolic.derivation", "symbolic",
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",
