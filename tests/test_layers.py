@@ -43,7 +43,7 @@ LAYERS = [
     "engine",
     "response",
     "settling.tolerance", "settling.table", "settling.planning", "settling",
-    "studies.spread", "studies",
+    "studies.spread", "studies.lot", "studies",
     "cautions",
     "symbolic.names", "symbolic.nodal", "symbolic.steps", "symbolic.derivation", "symbolic",
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",

@@ -172,3 +172,37 @@ def test_an_infinite_off_resistance_cannot_spread():
 def test_a_tempco_of_a_quantity_that_does_not_vary():
     with pytest.raises(InputError, match=r"tempco: \['c_filter'\] do not vary"):
         Spread({"r_filter": "1%"}, temperature=(0, 50), tempco={"c_filter": "1%"}).quantities(relay_filter())
+
+
+class TestLot:
+    def test_a_unit_is_the_fixture_built_by_hand_with_its_values(self):
+        from firstorder.studies.lot import Lot
+
+        lot = Lot(relay_filter(), Spread(**DESIGN_SPREAD), seed=4)
+        draw = lot.draw(10, 5)
+        again = lot.draw(12, 1)
+        np.testing.assert_array_equal(again.values[0], draw.values[2])
+        fixture = lot.unit_fixture(draw, 2)
+        values = dict(zip(lot.keys, draw.values[2]))
+        assert fixture.part_map["r_filter"].value == values["r_filter"]
+        assert fixture.part_map["c_filter"].value == values["c_filter"]
+        assert fixture.part_map["k1"].r_on == values["k1.r_on"] and fixture.part_map["k1"].r_off == 1e9
+        drive = fo.Drive([0, "1m"], end="2m", vdac=[1.0, -2.0], k1=[1, 1])
+        levels = lot.unit_drive(drive, draw, 2).levels("vdac")
+        np.testing.assert_allclose(levels, np.array([1.0, -2.0]) * (1 + values["vdac.gain"]) + values["vdac.offset"],
+                                   rtol=0, atol=0)
+        assert 0.0 <= draw.temperature.min() and draw.temperature.max() <= 50.0
+
+    def test_a_draw_at_or_below_zero_names_the_quantity_and_the_unit(self):
+        from firstorder.studies.lot import Lot
+
+        lot = Lot(relay_filter(), Spread({"c_filter": Normal("40%")}), seed=2)
+        with pytest.raises(InputError, match=r"spread c_filter: unit \d+ draws -.*must be > 0.*within="):
+            lot.draw(0, 20_000)
+
+    def test_a_bad_seed(self):
+        from firstorder.studies.lot import Lot
+
+        for seed in (-1, 1.5, True, "7"):
+            with pytest.raises(InputError, match="seed"):
+                Lot(relay_filter(), Spread({"r_filter": "1%"}), seed=seed)
