@@ -326,7 +326,8 @@ def exp_in_place(exponent: np.ndarray, deep: int | None = None) -> np.ndarray:
     >>> np.array_equal(exp_in_place(exponent.copy()), np.exp(exponent))
     True
     """
-    if deep is None or deep > 0:
+    # One reduction (vectorised, no temporary) tells most arrays they have none.
+    if deep if deep is not None else (exponent.size and not exponent.min() >= _kernels.DEEP_EXPONENT):
         where = np.flatnonzero(exponent < _kernels.DEEP_EXPONENT)
         if where.size:
             values = exponent[where]
