@@ -423,10 +423,14 @@ class SegmentLocator:
             np.subtract(t, elapsed, out=elapsed)
             elapsed *= np.repeat(-rate, counts)
         else:
-            self._index = starts.searchsorted(t, side="right") - 1
-            np.maximum(self._index, 0, out=self._index)  # at most n - 1 already: only times before the start
-            elapsed = t - starts[self._index]
-            elapsed *= -rate[self._index]
+            # Counting the later starts at or before each time gives its segment, with times
+            # before the first change in segment 0, in one search.
+            self._index = starts[1:].searchsorted(t, side="right")
+            # (s - t) * r is -((t - s) * r) exactly: rounding is symmetric in sign, so these
+            # are the exponents of the other paths, bit for bit.
+            elapsed = starts[self._index]
+            elapsed -= t
+            elapsed *= rate[self._index]
         self.decay = exp_in_place(elapsed, nonpositive=within)
 
     def _run_lengths(self) -> np.ndarray:
