@@ -36,6 +36,10 @@ __all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS
 
 #: How many edits `undo` can take back.
 UNDO_DEPTH = 50
+#: The most changes a generator may make in the Bench.  Every edit redraws the whole drive
+#: (benchmarks/bench.py: about 40 ms at 100,000 changes), so ten times that keeps an edit
+#: under about half a second; longer drives are built in code and shown whole.
+MAX_GENERATED_CHANGES = 1_000_000
 #: The setup fields, by key.
 SETUP_KEYS = ("initial", "tolerance", "sample_delay")
 #: Curves shown when a session opens; the rest are one click away.
@@ -312,8 +316,14 @@ class BenchSession(traitlets.HasTraits):
         try:
             if kind == "pulses":
                 count = fields["count"].strip()
-                if not count.isdigit():
+                # ASCII digits only: str.isdigit also accepts '²' and other digits int() refuses.
+                if not (count.isascii() and count.isdigit()) or int(count) < 1:
                     raise InputError(f"pulses.count: {count!r} must be a whole number >= 1")
+                if 2 * int(count) > MAX_GENERATED_CHANGES:
+                    raise InputError(
+                        f"pulses.count: {count} pulses make {2 * int(count):,} changes; the Bench takes at most "
+                        f"{MAX_GENERATED_CHANGES:,} ({MAX_GENERATED_CHANGES // 2:,} pulses); build longer drives "
+                        f"in code with Drive.pulses")
                 made = Drive.pulses(period=fields["period"], duty=parse_value(fields["duty"], field="pulses.duty"),
                                     high=fields["high"], low=fields["low"], count=int(count), name=fields["column"],
                                     start=self.drive.start)
