@@ -27,6 +27,7 @@ give neither NaN nor inf.
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 
@@ -138,32 +139,47 @@ def segment_factors(times: np.ndarray, ends: np.ndarray, rate: np.ndarray) -> tu
     return exponent, growth
 
 
-def affine_scan(a: np.ndarray, b: np.ndarray, x0: float) -> np.ndarray:
+def affine_scan(a: np.ndarray, b: np.ndarray, x0: Any) -> np.ndarray:
     """Return ``x`` with ``x[0] = x0`` and ``x[k+1] = a[k] * x[k] + b[k]``.
+
+    A leading unit axis is taken as it comes: each row is scanned with exactly the
+    operations a row alone would get (the blocking depends on the length only), so unit
+    ``u`` of a lot is bit for bit its own scan.
 
     Parameters
     ----------
-    a, b : ndarray, shape (n,)
-    x0 : float
+    a, b : ndarray, shape (n,) or (units, n)
+    x0 : float, or ndarray of shape (units,)
 
     Returns
     -------
-    ndarray, shape (n + 1,)
+    ndarray, shape (n + 1,) or (units, n + 1)
 
     Examples
     --------
     >>> affine_scan(np.array([0.5, 0.5]), np.array([1.0, 0.0]), 2.0)
     array([2., 2., 1.])
+    >>> affine_scan(np.array([[0.5, 0.5], [1.0, 1.0]]), np.array([[1.0, 0.0], [1.0, 1.0]]), np.array([2.0, 0.0]))
+    array([[2., 2., 1.],
+           [0., 1., 2.]])
     """
-    n = a.size
+    n = a.shape[-1]
+    lead = a.shape[:-1]
     if n <= _LOOP_LIMIT:
-        x = float(x0)
-        out = [x]
-        for ak, bk in zip(a.tolist(), b.tolist()):
-            x = ak * x + bk
-            out.append(x)
-        return np.array(out)
-    kernels = _kernels.available(n)
+        if not lead:
+            x = float(x0)
+            out = [x]
+            for ak, bk in zip(a.tolist(), b.tolist()):
+                x = ak * x + bk
+                out.append(x)
+            return np.array(out)
+        rows = np.empty(lead + (n + 1,))
+        rows[..., 0] = x = np.broadcast_to(np.asarray(x0, dtype=np.float64), lead)
+        for k in range(n):
+            x = a[..., k] * x + b[..., k]  # a multiply, then an add: a lone row's operations
+            rows[..., k + 1] = x
+        return rows
+    kernels = _kernels.available(n) if not lead else None
     if kernels is not None:
         # b[k] * (1.0 * 1.0) is b[k] exactly.
         return _compiled_scan(kernels, a, b, np.broadcast_to(1.0, (n,)), 1.0, x0)
@@ -173,33 +189,34 @@ def affine_scan(a: np.ndarray, b: np.ndarray, x0: float) -> np.ndarray:
     # Element k goes to row k % width, column k // width: row j then holds element j
     # of every block, so each step below is one contiguous vector operation across all
     # blocks.  The inputs are written through a transposed view, so no extra copy.
-    gain = np.empty((width, blocks))
-    shift = np.empty((width, blocks))
-    gain.T[:full] = a[: full * width].reshape(full, width)
-    shift.T[:full] = b[: full * width].reshape(full, width)
+    gain = np.empty(lead + (width, blocks))
+    shift = np.empty(lead + (width, blocks))
+    by_block, shift_by_block = np.swapaxes(gain, -1, -2), np.swapaxes(shift, -1, -2)
+    by_block[..., :full, :] = a[..., : full * width].reshape(lead + (full, width))
+    shift_by_block[..., :full, :] = b[..., : full * width].reshape(lead + (full, width))
     if full < blocks:
         rest = n - full * width
-        gain.T[full, :rest] = a[full * width:]
-        gain.T[full, rest:] = 1.0  # identity maps pad the last block
-        shift.T[full, :rest] = b[full * width:]
-        shift.T[full, rest:] = 0.0
+        by_block[..., full, :rest] = a[..., full * width:]
+        by_block[..., full, rest:] = 1.0  # identity maps pad the last block
+        shift_by_block[..., full, :rest] = b[..., full * width:]
+        shift_by_block[..., full, rest:] = 0.0
     # First pass: compose each block's maps, (a_j, b_j) after (A, B) being (a_j A, a_j B + b_j).
-    block_gain = gain[0].copy()
-    block_shift = shift[0].copy()
+    block_gain = gain[..., 0, :].copy()
+    block_shift = shift[..., 0, :].copy()
     for j in range(1, width):
-        block_shift *= gain[j]
-        block_shift += shift[j]
-        block_gain *= gain[j]
+        block_shift *= gain[..., j, :]
+        block_shift += shift[..., j, :]
+        block_gain *= gain[..., j, :]
     # Second pass: from each block's start, the recurrence itself, all blocks at once.
-    x = affine_scan(block_gain, block_shift, x0)[:-1]
-    out = np.empty(blocks * width + 1)
-    out[0] = x0
-    states = out[1:].reshape(blocks, width).T
+    x = affine_scan(block_gain, block_shift, x0)[..., :-1]
+    out = np.empty(lead + (blocks * width + 1,))
+    out[..., 0] = x0
+    states = np.swapaxes(out[..., 1:].reshape(lead + (blocks, width)), -1, -2)
     for j in range(width):
-        x *= gain[j]
-        x += shift[j]
-        states[j] = x
-    return out[: n + 1]
+        x *= gain[..., j, :]
+        x += shift[..., j, :]
+        states[..., j, :] = x
+    return out[..., : n + 1]
 
 
 def relaxation_scan(decay: np.ndarray, growth: np.ndarray | None, target: np.ndarray, x0: float,
@@ -215,9 +232,11 @@ def relaxation_scan(decay: np.ndarray, growth: np.ndarray | None, target: np.nda
     --------
     >>> relaxation_scan(np.array([0.5, 0.5]), None, np.array([1.0, 0.0]), 2.0, scale=2.0)
     array([2., 2., 1.])
+
+    Every argument may carry a leading unit axis (`x0` then one start per unit).
     """
-    n = decay.size
-    kernels = _kernels.available(n)
+    # A lot (a leading unit axis) takes the numpy path, whose numbers the kernels repeat.
+    kernels = _kernels.available(decay.size) if decay.ndim == 1 else None
     if kernels is None:
         if growth is None:
             growth = np.subtract(1.0, decay)

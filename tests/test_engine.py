@@ -176,3 +176,30 @@ class TestShortGrids:
     def test_a_scan_of_a_few_maps_equals_the_sequential_recurrence(self):
         a, b = np.array([0.25, 0.5, 1.0]), np.array([1.0, -2.0, 0.5])
         assert engine.affine_scan(a, b, 3.0).tolist() == sequential(a, b, 3.0).tolist()
+
+
+class TestUnitAxis:
+    """A lot scanned at once: each unit's row must be that unit's own scan, bit for bit
+    (the blocking depends on the number of segments only, never on the number of units)."""
+
+    @pytest.mark.parametrize("n", [1, 7, 64, 65, 1000, 20_001, 50_000])
+    def test_every_row_is_its_own_scan(self, n):
+        rng = np.random.default_rng(n)
+        units = 5
+        decay = rng.uniform(0.0, 1.0, (units, n))
+        decay[:, ::11] = 1.0  # held segments
+        target = rng.normal(size=(units, n))
+        x0 = rng.normal(size=units)
+        lot = engine.relaxation_scan(decay, None, target, x0, 1.5)
+        assert lot.shape == (units, n + 1)
+        for u in range(units):
+            alone = engine.relaxation_scan(decay[u].copy(), None, target[u].copy(), float(x0[u]), 1.5)
+            assert np.array_equal(lot[u], alone), u
+
+    def test_a_lot_follows_the_recurrence(self):
+        # The plain sequential recurrence as the outside reference (to rounding).
+        rng = np.random.default_rng(3)
+        a, b = rng.uniform(0.5, 1.0, (3, 300)), rng.normal(size=(3, 300))
+        lot = engine.affine_scan(a, b, np.array([0.0, 1.0, -1.0]))
+        for u, x0 in enumerate([0.0, 1.0, -1.0]):
+            np.testing.assert_allclose(lot[u], sequential(a[u], b[u], x0), rtol=1e-12, atol=1e-12)
