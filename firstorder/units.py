@@ -49,7 +49,7 @@ from quantiphy import InvalidNumber, Quantity
 
 from .errors import InputError
 
-__all__ = ["parse_value", "parse_array", "format_value", "shown", "UNIT_ALIASES", "LETTER_CODES"]
+__all__ = ["parse_value", "parse_with_unit", "parse_array", "format_value", "shown", "UNIT_ALIASES", "LETTER_CODES"]
 
 #: Accepted spellings of each unit, mapped to the symbol we display.
 UNIT_ALIASES: dict[str, frozenset[str]] = {
@@ -106,14 +106,8 @@ def shown(value: object, limit: int = _SHOWN_LIMIT) -> str:
     return f"{text[:25]}…{text[-10:]} ({len(text)} characters)"
 
 
-def parse_value(
-    value: object,
-    *,
-    field: str,
-    unit: str | tuple[str, ...] = "",
-    positive: bool = False,
-    allow_infinite: bool = False,
-) -> float:
+def parse_value(value: object, *, field: str, unit: str | tuple[str, ...] = "", positive: bool = False,
+                allow_infinite: bool = False) -> float:
     """Return ``value`` as a float in SI base units.
 
     Parameters
@@ -141,6 +135,7 @@ def parse_value(
 
     See Also
     --------
+    parse_with_unit : the same, and the unit the text gave.
     format_value : the other way.
 
     Examples
@@ -154,9 +149,34 @@ def parse_value(
     ...
     firstorder.errors.InputError: r: 'abc' is not a number (use a float or engineering notation such as '4.7k' or '100nF')
     """
+    return parse_with_unit(value, field=field, unit=unit, positive=positive, allow_infinite=allow_infinite)[0]
+
+
+def parse_with_unit(
+    value: object,
+    *,
+    field: str,
+    unit: str | tuple[str, ...] = "",
+    positive: bool = False,
+    allow_infinite: bool = False,
+) -> tuple[float, str]:
+    """Return ``value`` as a float in SI base units, and the unit its text gave (or ``""``).
+
+    The one reading of a number; :func:`parse_value` keeps only the float.
+
+    Parameters are those of :func:`parse_value`.
+
+    Examples
+    --------
+    >>> parse_with_unit("1 mA", field="tolerance", unit=("V", "A"))
+    (0.001, 'A')
+    >>> parse_with_unit(0.5, field="tolerance", unit=("V", "A"))
+    (0.5, '')
+    """
     if isinstance(value, (bool, np.bool_)):
         raise InputError(f"{field}: {bool(value)!r} is not a number; write 1 or 0 (True and False are switch "
                          f"states)")
+    found = ""
     if isinstance(value, np.timedelta64):  # before Integral: numpy registers it as one
         if "s" not in _units(unit):
             raise InputError(f"{field}: {shown(value)} is a duration; give a number ({_NOT_A_NUMBER})")
@@ -166,7 +186,7 @@ def parse_value(
     elif isinstance(value, Real):
         number = float(value)
     elif isinstance(value, str):
-        number = _parse_text(value, field=field, unit=unit)
+        number, found = _parse_text(value, field=field, unit=unit)
     else:
         raise InputError(f"{field}: {shown(value)} is not a number ({_NOT_A_NUMBER})")
     if math.isnan(number) or (math.isinf(number) and not allow_infinite):
@@ -174,7 +194,7 @@ def parse_value(
         raise InputError(f"{field}: {shown(value)} is not allowed; expected {allowed}")
     if positive and not number > 0:
         raise InputError(f"{field}: {shown(value)} must be > 0")
-    return number
+    return number, found
 
 
 def _units(unit: str | tuple[str, ...]) -> tuple[str, ...]:
@@ -190,7 +210,7 @@ def _integer(value: Integral, field: str) -> float:
         ) from None
 
 
-def _parse_text(text: str, *, field: str, unit: str | tuple[str, ...]) -> float:
+def _parse_text(text: str, *, field: str, unit: str | tuple[str, ...]) -> tuple[float, str]:
     stripped = text.strip()
     if "," in stripped:
         example = repr(stripped.replace(",", ".")) if stripped.count(",") == 1 else "1.5k, not 1,5k"
@@ -199,9 +219,9 @@ def _parse_text(text: str, *, field: str, unit: str | tuple[str, ...]) -> float:
             f"write {example}"
         )
     if stripped.lower() in {"inf", "+inf", "infinity"}:
-        return math.inf
+        return math.inf, ""
     if stripped.lower() in {"-inf", "-infinity"}:
-        return -math.inf
+        return -math.inf, ""
     allowed = _units(unit)
     coded = _letter_code(stripped, allowed, field)
     if coded is not None:
@@ -213,13 +233,15 @@ def _parse_text(text: str, *, field: str, unit: str | tuple[str, ...]) -> float:
         raise InputError(f"{field}: {shown(text)} is not a number ({_NOT_A_NUMBER})") from error
     found = quantity.units or ""
     if found:
-        if not any(found in UNIT_ALIASES.get(u, frozenset({u})) for u in allowed):
+        symbol = next((u for u in allowed if found in UNIT_ALIASES.get(u, frozenset({u}))), None)
+        if symbol is None:
             expected = " or ".join(f"'{u}'" for u in allowed) + " or no unit" if allowed else "no unit"
             raise InputError(f"{field}: {shown(text)} has unit {found!r}; expected {expected}")
+        found = symbol
     number = float(quantity.real)
     if math.isinf(number):  # the words inf and infinity were read above
         raise InputError(f"{field}: {shown(text)} is too large for a number (a float reaches about 1.8e308)")
-    return number
+    return number, found
 
 
 def _letter_code(text: str, allowed: tuple[str, ...], field: str) -> str | None:
