@@ -41,9 +41,17 @@ def _check_budget(given: Any, changes: int, columns: int, field: str) -> None:
     needed = changes * per_change
     if needed > MEMORY_BUDGET:
         raise InputError(
-            f"{field}: {shown(given)} would make {changes:,} changes needing about {needed / 2**30:,.3g} GiB of "
+            f"{field}: {shown(given)} would make {_big(changes)} changes needing about {_big(needed, 2**30)} GiB of "
             f"memory; the budget is {MEMORY_BUDGET / 2**30:g} GiB (at most {MEMORY_BUDGET // per_change:,} changes)"
         )
+
+
+def _big(count: int, unit: int = 1) -> str:
+    """``count / unit`` for a message: ``"59.6"``, ``"2,000,000,000"``, or ``"1e+400"`` past a float."""
+    if count < 10**15 * unit:
+        return f"{count / unit:,.3g}" if unit != 1 else f"{count:,}"
+    digits = len(str(count // unit)) - 1
+    return f"1e+{digits}" if str(count // unit).startswith("1") else f"{str(count // unit)[0]}e+{digits}"
 
 
 def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = False, room: int = 0,

@@ -163,3 +163,76 @@ class TestFormatValue:
 
     def test_micro_sign(self):
         assert format_value(4.7e-6, "F") == "4.7 µF"
+
+
+# -- every public reader answers with an InputError ---------------------------------------
+# Each reproducer raised a TypeError, AttributeError or OverflowError (a traceback) before;
+# each must now be an InputError whose message names the field, shows the value (shortened
+# when long) and says what is allowed.
+def _reproducers():
+    import numpy as np
+
+    import firstorder as fo
+    from firstorder.settling.table import sample_delays
+
+    def response():
+        return fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 1.0)], end="5m"))
+
+    huge = 10**400
+    short = r"1000000000000000000000000…0000000000 \(401 characters\)"
+    return [
+        ("Drive(0, ...)", lambda: fo.Drive(0, 1, vin=[1]), r"^drive\.times: 0 is not a list; give a 1-D list"),
+        ("Drive(None, ...)", lambda: fo.Drive(None, 1, vin=[1]), r"^drive\.times: None is not a list"),
+        ("level column None", lambda: fo.Drive([0], 1, vin=None), r"^drive\.vin: None is not a list; give .* levels"),
+        ("Drive.steps([0, 1])", lambda: fo.Drive.steps([0, 1], end=2), r"^steps\[0\]: expected a \(time, level\) pair, got 0"),
+        ("Drive.steps(None)", lambda: fo.Drive.steps(None, end=2), r"^steps: None is not a list of \(time, level\) pairs"),
+        ("respond(None)", lambda: fo.Fixture.rc(r="1k", c="1u").respond(None), r"^drive: None is not a Drive; build one"),
+        ("respond(dict)", lambda: fo.Fixture.rc(r="1k", c="1u").respond({"vin": [1]}), r"^drive: \{'vin': \[1\]\} is not a Drive"),
+        ("total(dict)", lambda: response().total({1: 2}), r"^t: \{1: 2\} is not a number \(use a float"),
+        ("total(complex)", lambda: response().total(1e-3 + 0j), r"^t: \(0\.001\+0j\) is not a number"),
+        ("total(None)", lambda: response().total(None), r"^t: None is not a number"),
+        ("strings in total's times", lambda: response().total(["1m", "x"]), r"^t\[1\]: 'x' is not a number"),
+        ("strings in a numpy time array", lambda: response().total(np.array(["1m", "x"])), r"^t\[1\]: 'x' is not a number"),
+        ("strings in drive times", lambda: fo.Drive(np.array(["0", "x"]), 1, vin=[0, 1]), r"^drive\.times\[1\]: 'x' is not"),
+        ("Tolerance.from_dict(None)", lambda: fo.Tolerance.from_dict(None), r"^tolerance: None is not a mapping"),
+        ("read_trace(None)", lambda: fo.read_trace(None), r"^path: None is not a file path"),
+        ("huge part value", lambda: fo.Fixture.rc(r=huge, c="1u"), rf"^r \(value\): {short} is too large for a number"),
+        ("huge level", lambda: fo.Drive([0], 1, vin=[huge]), rf"^drive\.vin\[0\]: {short} is too large"),
+        ("huge constant level", lambda: fo.Drive([0], 1, vin=huge), rf"^drive\.vin\[0\]: {short} is too large"),
+        ("huge time", lambda: fo.Drive([0, huge], huge, vin=[0, 1]), rf"^drive\.times\[1\]: {short} is too large"),
+        ("huge end", lambda: fo.Drive([0], huge, vin=[1]), rf"^drive\.end: {short} is too large"),
+        ("huge start", lambda: fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0], 1, vin=[1]), initial=huge),
+         rf"^initial: {short} is too large"),
+        ("huge total time", lambda: response().total(huge), rf"^t: {short} is too large"),
+        ("huge tolerance", lambda: fo.Tolerance.absolute(huge), rf"^tolerance\.value: {short} is too large"),
+        ("huge sample delay", lambda: sample_delays([huge], np.array([1.0])), rf"^sample_delay\[0\]: {short} is too"),
+        ("huge pulse count", lambda: fo.Drive.pulses(period=1, duty=0.5, high=1, count=huge),
+         rf"^pulses\.count: {short} would make .* changes needing about .* GiB of memory; the budget is 2 GiB"),
+        ("huge trace value", lambda: fo.Trace.from_arrays([0, 1], [0, huge]), rf"^trace\.values\[1\]: {short} is too"),
+    ]
+
+
+@pytest.mark.parametrize(("call", "match"), [pytest.param(c, m, id=i) for i, c, m in _reproducers()])
+def test_every_reproducer_is_an_input_error_naming_field_value_and_rule(call, match):
+    with pytest.raises(InputError, match=match):
+        call()
+
+
+@pytest.mark.parametrize("where", ["drive level", "drive time", "tolerance", "percent", "sample delay", "part"])
+def test_comma_refused_wherever_a_number_is_read(where):
+    import numpy as np
+
+    import firstorder as fo
+    from firstorder.settling.table import sample_delays
+    from firstorder.settling.tolerance import parse_tolerance
+
+    calls = {
+        "drive level": lambda: fo.Drive([0], 1, vin=["1,5"]),
+        "drive time": lambda: fo.Drive([0, "0,5"], 1, vin=[0, 1]),
+        "tolerance": lambda: fo.Tolerance.absolute("1,5m"),
+        "percent": lambda: parse_tolerance("1,5 %"),
+        "sample delay": lambda: sample_delays("0,5m", np.array([1e-3])),
+        "part": lambda: fo.Fixture.rc(r="4,7k", c="1u"),
+    }
+    with pytest.raises(InputError, match="has a comma; a comma is never a decimal or thousands mark"):
+        calls[where]()
