@@ -182,3 +182,16 @@ class TestMemoryBudget:
     def test_staircase_over_a_huge_range_refused(self):
         with pytest.raises(InputError, match=r"^staircase\.levels: range\(0, 1000000000\) would make"):
             fo.Drive.staircase(range(10**9), dwell=1)
+
+
+class TestBooleansAreNotNumbers:
+    @pytest.mark.parametrize("call", [
+        lambda: fo.Drive([0, True], 2, vin=[0, 1]),
+        lambda: fo.Drive([0], True, vin=[1]),
+        lambda: fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0], 1, vin=[1]), initial=True),
+        lambda: fo.Tolerance.absolute(True),
+        lambda: fo.Drive.pulses(period=True, duty=0.5, high=1),
+    ], ids=["time", "end", "start", "tolerance", "period"])
+    def test_true_is_refused_where_a_number_is_read(self, call):
+        with pytest.raises(InputError, match="True is not a number; write 1 or 0"):
+            call()
