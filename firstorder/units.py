@@ -83,6 +83,7 @@ _CAPITAL_KILO = re.compile(r"^(?P<number>[0-9]*\.?[0-9]+(?:[eE][-+]?[0-9]+)?)\s*
 _TIMEDELTA_SECONDS = {"W": (604800, 1), "D": (86400, 1), "h": (3600, 1), "m": (60, 1), "s": (1, 1),
                       "ms": (1, 10**3), "us": (1, 10**6), "ns": (1, 10**9), "ps": (1, 10**12),
                       "fs": (1, 10**15)}
+_INFINITY = re.compile(r"^[-+]?inf(inity)?(\s|$)", re.IGNORECASE)
 _SHOWN_LIMIT = 60
 _NOT_A_NUMBER = "use a float or engineering notation such as '4.7k' or '100nF'"
 
@@ -239,7 +240,7 @@ def _parse_text(text: str, *, field: str, unit: str | tuple[str, ...]) -> tuple[
             raise InputError(f"{field}: {shown(text)} has unit {found!r}; expected {expected}")
         found = symbol
     number = float(quantity.real)
-    if math.isinf(number):  # the words inf and infinity were read above
+    if math.isinf(number) and not _INFINITY.match(stripped):  # inf written out is read as such
         raise InputError(f"{field}: {shown(text)} is too large for a number (a float reaches about 1.8e308)")
     return number, found
 

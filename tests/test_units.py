@@ -236,3 +236,9 @@ def test_comma_refused_wherever_a_number_is_read(where):
     }
     with pytest.raises(InputError, match="has a comma; a comma is never a decimal or thousands mark"):
         calls[where]()
+
+
+def test_infinity_with_a_unit_is_still_infinity():
+    assert parse_value("inf Ω", field="r_off", unit="Ω", allow_infinite=True) == math.inf
+    with pytest.raises(InputError, match=r"^r: 'inf Ω' is not allowed; expected a finite number"):
+        parse_value("inf Ω", field="r", unit="Ω")
