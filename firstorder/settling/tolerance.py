@@ -110,6 +110,17 @@ class Tolerance:
             raise InputError(f"tolerance.fraction: {shown(fraction)} must be in (0, 1]")
         return cls("lsb", part * full / 2.0 ** int(bits), span=full, bits=int(bits), fraction=part, unit=unit)
 
+    def in_unit(self, unit: str) -> "Tolerance":
+        """The same numbers for a quantity in `unit` (V or A): the Bench keeps a limit while
+        what it watches changes from a voltage to a current.
+
+        Examples
+        --------
+        >>> Tolerance.absolute("1m").in_unit("A")
+        Tolerance.absolute(value=0.001, unit='A')
+        """
+        return self if unit == self.unit else Tolerance(self.kind, self.value, self.span, self.bits, self.fraction, unit)
+
     # -- use -----------------------------------------------------------------------------
     def limit(self, step: np.ndarray) -> np.ndarray:
         """The absolute limit for segments whose steps are `step` (``|final - start|``)."""
