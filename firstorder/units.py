@@ -85,6 +85,8 @@ _TIMEDELTA_SECONDS = {"W": (604800, 1), "D": (86400, 1), "h": (3600, 1), "m": (6
                       "fs": (1, 10**15)}
 _INFINITY = re.compile(r"^[-+]?inf(inity)?(\s|$)", re.IGNORECASE)
 _SHOWN_LIMIT = 60
+_PLAIN_NUMBERS = frozenset({float, int, np.float64, np.float32, np.int64, np.int32})
+_FLAGS = frozenset({bool, np.bool_})
 _NOT_A_NUMBER = "use a float or engineering notation such as '4.7k' or '100nF'"
 
 
@@ -316,8 +318,12 @@ def parse_array(values: Any, *, field: str, unit: str | tuple[str, ...] = "", al
         raise InputError(f"{field}: {shown(values)} is not a list; give a 1-D list or array of {what}")
     else:
         items = list(values)
-        if all(type(item) is float for item in items):  # the common case, with no check per item
-            return np.array(items, dtype=np.float64)
+        types = set(map(type, items))
+        if types <= (_PLAIN_NUMBERS | _FLAGS if allow_bool else _PLAIN_NUMBERS):  # converted at once
+            try:
+                return np.array(items, dtype=np.float64)
+            except OverflowError:
+                pass  # an integer past a float: read one by one below, to name it
         array = np.array(items, dtype=object)
         if array.ndim == 1 and array.size == len(items) and not any(
                 isinstance(item, (list, tuple, np.ndarray)) for item in items):
