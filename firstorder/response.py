@@ -83,7 +83,10 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
     Response.from_segments : a response of a measured model, without a fixture.
     """
     from .drive import Drive
+    from .fixture import Fixture
 
+    if not isinstance(fixture, Fixture):
+        raise InputError(f"fixture: {shown(fixture)} is not a Fixture; build one with Fixture.rc(r, c) or Fixture()")
     if not isinstance(drive, Drive):
         raise InputError(f"drive: {shown(drive)} is not a Drive; build one with Drive(times, end, vin=[...]) "
                          f"or Drive.steps([(time, level), ...], end)")

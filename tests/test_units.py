@@ -188,6 +188,7 @@ def _reproducers():
         ("Drive.steps(None)", lambda: fo.Drive.steps(None, end=2), r"^steps: None is not a list of \(time, level\) pairs"),
         ("respond(None)", lambda: fo.Fixture.rc(r="1k", c="1u").respond(None), r"^drive: None is not a Drive; build one"),
         ("respond(dict)", lambda: fo.Fixture.rc(r="1k", c="1u").respond({"vin": [1]}), r"^drive: \{'vin': \[1\]\} is not a Drive"),
+        ("respond(None, drive)", lambda: fo.respond(None, fo.Drive([0], 1, vin=[1])), r"^fixture: None is not a Fixture"),
         ("total(dict)", lambda: response().total({1: 2}), r"^t: \{1: 2\} is not a number \(use a float"),
         ("total(complex)", lambda: response().total(1e-3 + 0j), r"^t: \(0\.001\+0j\) is not a number"),
         ("total(None)", lambda: response().total(None), r"^t: None is not a number"),
