@@ -24,7 +24,16 @@ __all__ = ["Drive", "level_columns", "MEMORY_BUDGET"]
 
 _CSV_MAGIC = "# firstorder drive v1"
 _PREVIEW_ROWS = 8
-_MISSING = object()
+
+
+class _Required:
+    """Marks `times` or `end` not given by position (then taken from the keywords)."""
+
+    def __repr__(self) -> str:
+        return "<required>"
+
+
+_MISSING = _Required()
 
 #: The most memory a drive generator (:meth:`Drive.pulses`, :meth:`Drive.staircase`) may
 #: allocate, in bytes: 2 GiB.  A change costs its instant and one level per column, 8 bytes
