@@ -243,3 +243,33 @@ def test_infinity_with_a_unit_is_still_infinity():
     assert parse_value("inf Ω", field="r_off", unit="Ω", allow_infinite=True) == math.inf
     with pytest.raises(InputError, match=r"^r: 'inf Ω' is not allowed; expected a finite number"):
         parse_value("inf Ω", field="r", unit="Ω")
+
+
+class TestTimedeltaEverywhere:
+    # numpy timedelta64 counts were read as seconds (1 ms as 1 s, 1 ns as 1 s): each reader of
+    # times converts them exactly (the correctly rounded float of count/1000, count/1e9).
+    def test_response_times(self):
+        import numpy as np
+
+        import firstorder as fo
+
+        response = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 1.0)], end="5m"))
+        grid = np.array([[0, 1], [2, 3]], dtype="timedelta64[ms]")
+        expected = response.total(np.array([[0.0, 1 / 1000], [2 / 1000, 3 / 1000]]))
+        assert np.array_equal(response.total(grid), expected)
+
+    def test_sample_delays(self):
+        import numpy as np
+
+        from firstorder.settling.table import sample_delays
+
+        delays = sample_delays(np.array([1, 250], dtype="timedelta64[ns]"), np.array([1e-3, 1e-3]))
+        assert delays.tolist() == [1 / 10**9, 250 / 10**9]
+
+    def test_sample_delays_of_two_dimensions_name_the_shape(self):
+        import numpy as np
+
+        from firstorder.settling.table import sample_delays
+
+        with pytest.raises(InputError, match=r"^sample_delay: got a 2-D array of shape \(1, 2\)"):
+            sample_delays(np.zeros((1, 2)), np.array([1e-3, 1e-3]))
