@@ -37,6 +37,7 @@ test: install-test
 
 bench: install-test
 	$(BIN)/python benchmarks/engine.py
+	$(BIN)/python benchmarks/small.py
 	$(BIN)/python benchmarks/derive.py
 	$(BIN)/python benchmarks/bench.py
 

@@ -42,6 +42,11 @@ _LOOP_LIMIT = 64
 #: rather than by run lengths over every segment.
 RUNS_PER_POINT = 16
 
+#: Grids up to this many points are located by a search per point whatever their order:
+#: on arrays this short the gathers cost less than finding out whether the grid is sorted
+#: and forming run lengths (the numbers are the same either way).
+SMALL_GRID = 1024
+
 
 def decay_factors(durations: np.ndarray, rate: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Return ``(a, 1 - a)`` with ``a = exp(-durations * rate)``, both accurate.
@@ -70,14 +75,16 @@ def _exponents(durations: np.ndarray, rate: np.ndarray) -> np.ndarray:
 def _small(exponent: np.ndarray) -> np.ndarray:
     """Where ``1 - exp`` would cancel: negative exponents above ``-SMALL_EXPONENT``
     (at zero, 1 - exp is exactly 0 anyway)."""
-    return np.flatnonzero((exponent > -_kernels.SMALL_EXPONENT) & (exponent < 0.0))
+    within = np.greater(exponent, -_kernels.SMALL_EXPONENT)
+    within &= exponent < 0.0
+    return within.nonzero()[0]  # flat already (flatnonzero's wrappers cost more than the work here)
 
 
 def _factors_in_place(exponent: np.ndarray, small: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``(exp, 1 - exp)`` of `exponent`, whose storage becomes the first; `small`
     indexes the exponents whose ``1 - exp`` comes from ``expm1``."""
     small_growth = np.negative(np.expm1(exponent[small]))
-    decay = exp_in_place(exponent)
+    decay = exp_in_place(exponent, nonpositive=True)
     growth = np.subtract(1.0, decay)
     growth[small] = small_growth
     return decay, growth
@@ -103,7 +110,7 @@ def segment_factors(times: np.ndarray, ends: np.ndarray, rate: np.ndarray) -> tu
         exponent = _exponents(ends - times, rate)
         small = _small(exponent)
         if small.size == 0:
-            return exp_in_place(exponent), None
+            return exp_in_place(exponent, nonpositive=True), None
         return _factors_in_place(exponent, small)
     exponent = np.empty(n)
 
@@ -150,12 +157,12 @@ def affine_scan(a: np.ndarray, b: np.ndarray, x0: float) -> np.ndarray:
     """
     n = a.size
     if n <= _LOOP_LIMIT:
-        out = np.empty(n + 1)
-        out[0] = x = x0
-        for k, (ak, bk) in enumerate(zip(a.tolist(), b.tolist())):
+        x = float(x0)
+        out = [x]
+        for ak, bk in zip(a.tolist(), b.tolist()):
             x = ak * x + bk
-            out[k + 1] = x
-        return out
+            out.append(x)
+        return np.array(out)
     kernels = _kernels.available(n)
     if kernels is not None:
         # b[k] * (1.0 * 1.0) is b[k] exactly.
@@ -306,7 +313,7 @@ def settling_columns(start: np.ndarray, final: np.ndarray, tau: np.ndarray, deca
 _ZERO_BELOW = -745.2
 
 
-def exp_in_place(exponent: np.ndarray, deep: int | None = None) -> np.ndarray:
+def exp_in_place(exponent: np.ndarray, deep: int | None = None, nonpositive: bool = False) -> np.ndarray:
     """``exp`` of every element, in place; the same numbers as ``np.exp``, bit for bit.
 
     numpy's ``exp`` leaves its vectorised loop for exponents below about -708 (results
@@ -318,7 +325,9 @@ def exp_in_place(exponent: np.ndarray, deep: int | None = None) -> np.ndarray:
 
     Inside the drive every exponent is <= 0; a time before the first change overflows
     here, harmlessly, and is refused by the caller's range check, which needs the
-    locator's finding of whether the grid is sorted.
+    locator's finding of whether the grid is sorted.  With `nonpositive` the caller
+    vouches that no exponent is above 0 (a segment's duration times its rate), which
+    spares the floating-point state's context (a few microseconds on a short array).
 
     Examples
     --------
@@ -339,6 +348,8 @@ def exp_in_place(exponent: np.ndarray, deep: int | None = None) -> np.ndarray:
             result[band] = np.exp(values[band])
             exponent[where] = result
             return exponent
+    if nonpositive:
+        return np.exp(exponent, out=exponent)
     with np.errstate(over="ignore"):
         return np.exp(exponent, out=exponent)
 
@@ -359,7 +370,11 @@ class SegmentLocator:
         ``1 / tau`` per segment (zero where the state is held).
     is_sorted : bool, optional
         Whether `t` is non-decreasing, when the caller knows already; found out
-        otherwise and kept in the attribute of the same name.
+        otherwise (except for grids of up to :data:`SMALL_GRID` points, which are not
+        looked at) and kept in the attribute of the same name, True only when known.
+    within : bool, optional
+        True when the caller checked already that no time comes before ``starts[0]``
+        (so no exponent is positive).
 
     Attributes
     ----------
@@ -371,7 +386,7 @@ class SegmentLocator:
                  "is_sorted", "size")
 
     def __init__(self, t: np.ndarray, starts: np.ndarray, rate: np.ndarray,
-                 is_sorted: bool | None = None) -> None:
+                 is_sorted: bool | None = None, within: bool = False) -> None:
         self.size = t.size
         self._kernels = None
         self._counts = None
@@ -381,7 +396,7 @@ class SegmentLocator:
         self._t = t
         self._starts = starts
         self.compiled = False
-        if is_sorted is not False and t.size > 1 and t.dtype == np.float64:
+        if is_sorted is not False and t.size > SMALL_GRID and t.dtype == np.float64:
             kernels = _kernels.available(t.size)
             if kernels is not None:
                 self._t = t = np.ascontiguousarray(t)
@@ -394,10 +409,12 @@ class SegmentLocator:
                     self.is_sorted = self.compiled = True
                     return
                 is_sorted = False
-        if is_sorted is None:
+        if t.size <= SMALL_GRID and is_sorted is None:
+            is_sorted = t.size < 2  # not looked at: the search below needs no order
+        elif is_sorted is None:
             is_sorted = t.size < 2 or not np.greater(t[:-1], t[1:]).any()
         self.is_sorted = bool(is_sorted)
-        if is_sorted and t.size > 1 and t.size * RUNS_PER_POINT >= starts.size:
+        if is_sorted and t.size > SMALL_GRID and t.size * RUNS_PER_POINT >= starts.size:
             # Sorted times: a run-length per segment, then repeats instead of gathers (for a
             # few points on a long drive a search per point is cheaper than a pass over every
             # segment, so those take the path below).
@@ -406,17 +423,23 @@ class SegmentLocator:
             np.subtract(t, elapsed, out=elapsed)
             elapsed *= np.repeat(-rate, counts)
         else:
-            self._index = np.searchsorted(starts, t, side="right") - 1
-            np.clip(self._index, 0, starts.size - 1, out=self._index)
-            elapsed = t - starts[self._index]
-            elapsed *= -rate[self._index]
-        self.decay = exp_in_place(elapsed)
+            # Counting the later starts at or before each time gives its segment, with times
+            # before the first change in segment 0, in one search.
+            self._index = starts[1:].searchsorted(t, side="right")
+            # (s - t) * r is -((t - s) * r) exactly: rounding is symmetric in sign, so these
+            # are the exponents of the other paths, bit for bit.
+            elapsed = starts[self._index]
+            elapsed -= t
+            elapsed *= rate[self._index]
+        self.decay = exp_in_place(elapsed, nonpositive=within)
 
     def _run_lengths(self) -> np.ndarray:
         """Points per segment of a sorted grid (computed on first use)."""
         if self._counts is None:
             first = np.searchsorted(self._t, self._starts, side="left")
-            counts = np.diff(first, append=self._t.size)
+            counts = np.empty_like(first)
+            np.subtract(first[1:], first[:-1], out=counts[:-1])
+            counts[-1] = self._t.size - first[-1]
             counts[0] += first[0]  # points at the very start belong to segment 0
             self._counts = counts
         return self._counts

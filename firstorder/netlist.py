@@ -229,6 +229,9 @@ class Netlist:
     @property
     def storage(self) -> Part:
         """The capacitor or inductor."""
+        return self._cached("storage", self._find_storage)
+
+    def _find_storage(self) -> Part:
         for part in self.parts:
             if part.is_storage:
                 return part

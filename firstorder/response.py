@@ -313,13 +313,13 @@ class Response:
         (and, with `no_nan`, proven free of NaN) is checked at its ends only."""
         if not flat.size:
             return
-        if not no_nan and not np.isfinite(flat.sum()):  # one cheap pass: NaN or inf shows in the sum
-            if not np.isfinite(flat).all():
-                raise InputError("t: contains NaN or inf; times must be finite seconds")
         if is_sorted:
+            if not no_nan and not np.isfinite(flat.sum()):  # one cheap pass: NaN or inf shows in the sum
+                if not np.isfinite(flat).all():
+                    raise InputError("t: contains NaN or inf; times must be finite seconds")
             low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
         else:
-            low, high = float(flat.min()), float(flat.max())
+            low, high = float(flat.min()), float(flat.max())  # NaN shows in both, inf in one
         if not (np.isfinite(low) and np.isfinite(high)):
             raise InputError("t: contains NaN or inf; times must be finite seconds")
         if low < self._starts[0] or high > self.drive.end:
@@ -330,8 +330,12 @@ class Response:
             )
 
     def _locator(self, array: np.ndarray) -> engine.SegmentLocator:
-        """Where the times fall, after checking them."""
+        """Where the times fall, with the times checked (a short grid before, as its
+        order is not looked at, and a long one after the locator found its order)."""
         flat = array.reshape(-1)
+        if flat.size <= engine.SMALL_GRID:
+            self._check_times(flat, is_sorted=False, no_nan=False)
+            return engine.SegmentLocator(flat, self._starts, self._rate, within=True)
         locator = engine.SegmentLocator(flat, self._starts, self._rate)
         self._check_times(flat, locator.is_sorted, no_nan=locator.compiled)
         return locator
@@ -344,6 +348,22 @@ class Response:
         total, probe : one component.
         """
         array = self._times(t)
+        if array.size > engine.SMALL_GRID:
+            ordered = self._evaluate_long(array, components, probe)
+            if ordered is not None:
+                return ordered
+        locator = self._locator(array)
+        rows = self.segments.probe_rows(probe) if probe is not None else None
+        out = {}
+        consume = len(components) == 1 and rows is None
+        for component in components:
+            out[component] = self._component(component, locator, rows, consume).reshape(array.shape)
+        return out
+
+    def _evaluate_long(self, array: np.ndarray, components: tuple[str, ...],
+                       probe: str | None) -> dict[str, np.ndarray] | None:
+        """:meth:`evaluate` of a long grid by the compiled sweep or after sorting it; None
+        when neither applies."""
         if probe is None and len(components) == 1 and components[0] not in ("forced", "natural"):
             # One state component: one compiled sweep if the grid is sorted and long.
             key = self._component_key(components[0])
@@ -364,13 +384,7 @@ class Response:
                 scattered[order] = values
                 ordered[name] = scattered.reshape(array.shape)
             return ordered
-        locator = self._locator(array)
-        rows = self.segments.probe_rows(probe) if probe is not None else None
-        out = {}
-        consume = len(components) == 1 and rows is None
-        for component in components:
-            out[component] = self._component(component, locator, rows, consume).reshape(array.shape)
-        return out
+        return None
 
     def _component(self, component: str, locator: engine.SegmentLocator, rows, consume: bool = False) -> np.ndarray:
         if component in ("forced", "natural"):

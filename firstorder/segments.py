@@ -26,7 +26,6 @@ Examples
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from functools import cached_property
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -45,16 +44,51 @@ if TYPE_CHECKING:
 __all__ = ["Segments", "match_columns", "rates"]
 
 
+class _lazy:
+    """A property computed on first use and kept in the instance (what
+    ``functools.cached_property`` does, without the lock it takes on every first use
+    before Python 3.12, which costs more than most of these take to compute)."""
+
+    def __init__(self, compute) -> None:
+        self._compute = compute
+        self.__doc__ = compute.__doc__
+        self._name = compute.__name__
+
+    def __set_name__(self, owner: type, name: str) -> None:
+        self._name = name
+
+    def __get__(self, instance: Any, owner: type | None = None) -> Any:
+        if instance is None:
+            return self
+        value = instance.__dict__[self._name] = self._compute(instance)
+        return value
+
+
 def rates(tau: np.ndarray) -> np.ndarray:
-    """``1 / tau``, and 0 where tau is infinite (the state is held).
+    """``1 / tau``, and 0 where tau is infinite (the state is held): IEEE division gives
+    exactly 0 there (every tau is > 0).
 
     Examples
     --------
     >>> rates(np.array([1e-3, np.inf]))
     array([1000.,    0.])
     """
-    holding = np.isinf(tau)
-    return np.where(holding, 0.0, 1.0 / np.where(holding, 1.0, tau))
+    return np.divide(1.0, tau)
+
+
+def repeated(value: Any, count: int, dtype: Any = np.float64) -> np.ndarray:
+    """A read-only array of `count` copies of `value` that stores one (stride 0), as
+    ``np.broadcast_to`` makes but at a third of its cost on short arrays.
+
+    Examples
+    --------
+    >>> a = repeated(2.5, 3)
+    >>> a.tolist(), a.strides, a.flags.writeable
+    ([2.5, 2.5, 2.5], (0,), False)
+    """
+    array = np.ndarray((count,), dtype=dtype, buffer=np.array([value], dtype=dtype), strides=(0,))
+    array.flags.writeable = False
+    return array
 
 
 def match_columns(netlist: Netlist, columns: Mapping[str, np.ndarray], count: int,
@@ -77,7 +111,9 @@ def match_columns(netlist: Netlist, columns: Mapping[str, np.ndarray], count: in
         levels = columns[sources[0]].reshape(count, 1)  # a view of the read-only column
     else:
         levels = np.column_stack([columns[s] for s in sources]) if sources else np.zeros((count, 0))
-    states = np.column_stack([columns[s] for s in switches]) if switches else np.zeros((count, 0))
+    if not switches:
+        return levels, np.zeros((count, 0), dtype=bool)
+    states = np.column_stack([columns[s] for s in switches])
     bad = (states != 0) & (states != 1)
     if bad.any():
         k, j = np.argwhere(bad)[0]
@@ -94,7 +130,7 @@ def _distinct(states: np.ndarray) -> tuple[list[tuple[bool, ...]], np.ndarray, n
     n, count = states.shape
     if count == 0:
         # read-only: nothing to fill
-        return [()], np.broadcast_to(np.intp(0), (n,)), np.zeros(1, dtype=np.intp)
+        return [()], repeated(0, n, np.intp), np.zeros(1, dtype=np.intp)
     codes = states.astype(np.int64) @ (np.int64(1) << np.arange(count, dtype=np.int64))
     unique, first, inverse = np.unique(codes, return_index=True, return_inverse=True)
     configs = [tuple(bool((code >> j) & 1) for j in range(count)) for code in unique.tolist()]
@@ -205,7 +241,7 @@ class Segments:
         _refuse_ramps(provisional, taus, drifts, levels, inverse, netlist)
         rate_by_config = rates(taus)
         # One rate for every segment: a read-only broadcast, not an array to fill.
-        rate = np.broadcast_to(rate_by_config[0], (count,)) if len(configs) == 1 else rate_by_config[inverse]
+        rate = repeated(rate_by_config[0], count) if len(configs) == 1 else rate_by_config[inverse]
         provisional.rate = rate
         provisional.gain_by_configuration = gains
         return provisional
@@ -314,35 +350,37 @@ class Segments:
         """The first segment of every configuration."""
         return self._first_use
 
-    @cached_property
+    @_lazy
     def holds(self) -> np.ndarray:
         """True for segments whose configuration holds the state (read-only)."""
         if _one_value(self.rate):  # one rate for all: a broadcast answer
-            return np.broadcast_to(bool(self.rate[0] == 0.0), self.rate.shape)
+            return repeated(bool(self.rate[0] == 0.0), self.rate.size, bool)
         holds = self.rate == 0.0
         holds.setflags(write=False)
         return holds
 
-    @cached_property
+    @_lazy
     def any_holds(self) -> bool:
-        return bool(self.holds[0]) if _one_value(self.holds) else bool(self.holds.any())
+        if _one_value(self.rate):
+            return bool(self.rate[0] == 0.0)
+        return bool(self.holds.any())
 
-    @cached_property
+    @_lazy
     def tau(self) -> np.ndarray:
         """Time constant of every segment (s); ``inf`` where the state is held (read-only)."""
         if _one_value(self.rate):  # one rate for all: a broadcast answer
             rate = float(self.rate[0])
-            return np.broadcast_to(1.0 / rate if rate > 0 else np.inf, self.rate.shape)
+            return repeated(1.0 / rate if rate > 0 else np.inf, self.rate.size)
         tau = np.where(self.rate > 0, 1.0 / np.where(self.rate > 0, self.rate, 1.0), np.inf)
         tau.setflags(write=False)
         return tau
 
-    @cached_property
+    @_lazy
     def source_finals(self) -> np.ndarray:
         """(n, m): each source's share of each segment's final value (0 where held)."""
         return self.gain_by_configuration[self.configuration_of] * self.levels
 
-    @cached_property
+    @_lazy
     def one_gain(self) -> float | None:
         """With one source and one configuration, the gain from its level to the final
         value (the final values are that gain times the level column); else None."""
@@ -350,7 +388,7 @@ class Segments:
             return float(self.gain_by_configuration[0, 0])
         return None
 
-    @cached_property
+    @_lazy
     def final(self) -> np.ndarray:
         """Every segment's final value from the sources alone (0 where the state is held)."""
         if self.one_gain is not None:

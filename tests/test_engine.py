@@ -150,3 +150,29 @@ class TestUnsortedGrids:
         for name in components:
             assert np.array_equal(sorted_first[name], direct[name]), name
         assert np.array_equal(state, direct_state)
+
+
+class TestShortGrids:
+    """Grids of up to SMALL_GRID points are located by a search per point, longer ones by
+    run lengths: every point must come out the same, bit for bit, either way."""
+
+    def test_a_short_grid_equals_its_points_in_a_long_one(self):
+        rng = np.random.default_rng(7)
+        starts = np.cumsum(rng.uniform(1e-4, 1e-3, 40)) - 1e-4
+        starts[0] = 0.0
+        rate = rng.uniform(1e2, 1e4, 40)
+        rate[5] = 0.0  # a held segment
+        final, start = rng.normal(size=40), rng.normal(size=40)
+        long = np.sort(rng.uniform(0.0, starts[-1] * 1.01, 5 * engine.SMALL_GRID))
+        locator = engine.SegmentLocator(long, starts, rate)
+        assert locator.is_sorted and locator._index is None  # the run-length path
+        whole = locator.combine(final, start)
+        for piece in (long[:engine.SMALL_GRID], long[1000:1100], long[-3:]):
+            short = engine.SegmentLocator(piece, starts, rate)
+            assert short._index is not None  # the search path
+            where = np.searchsorted(long, piece)
+            assert np.array_equal(short.combine(final, start), whole[where])
+
+    def test_a_scan_of_a_few_maps_equals_the_sequential_recurrence(self):
+        a, b = np.array([0.25, 0.5, 1.0]), np.array([1.0, -2.0, 0.5])
+        assert engine.affine_scan(a, b, 3.0).tolist() == sequential(a, b, 3.0).tolist()
