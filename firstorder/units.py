@@ -312,7 +312,7 @@ def parse_array(values: Any, *, field: str, unit: str | tuple[str, ...] = "", al
     ...
     firstorder.errors.InputError: times: a 2-D array of shape (2, 3); give a 1-D list or array of values
     """
-    if isinstance(values, np.ndarray):
+    if isinstance(values, np.ndarray) and not (values.dtype.kind == "O" and values.ndim == 1):
         array = values
     elif isinstance(values, (str, bytes, dict, set, frozenset)) or not hasattr(values, "__iter__"):
         raise InputError(f"{field}: {shown(values)} is not a list; give a 1-D list or array of {what}")
