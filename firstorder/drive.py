@@ -18,41 +18,67 @@ import numpy as np
 
 from . import _kernels, _parallel
 from .errors import InputError
-from .units import format_value, parse_value
+from .units import format_value, parse_array, parse_value, shown
 
-__all__ = ["Drive", "level_columns"]
+__all__ = ["Drive", "level_columns", "MEMORY_BUDGET"]
 
 _CSV_MAGIC = "# firstorder drive v1"
 _PREVIEW_ROWS = 8
 
 
-def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = False, room: int = 0) -> np.ndarray:
+class _Required:
+    """Marks `times` or `end` not given by position (then taken from the keywords)."""
+
+    def __repr__(self) -> str:
+        return "<required>"
+
+
+_MISSING = _Required()
+
+#: The most memory a drive generator (:meth:`Drive.pulses`, :meth:`Drive.staircase`) may
+#: allocate, in bytes: 2 GiB.  A change costs its instant and one level per column, 8 bytes
+#: each, and about as much again in temporaries, so one column allows about 67 million
+#: changes; a larger count is refused before anything is allocated.
+MEMORY_BUDGET = 2 * 1024**3
+_BYTES_PER_VALUE = 16  # the float64 stored and one temporary of the same size
+
+
+def _check_budget(given: Any, changes: int, columns: int, field: str) -> None:
+    """Refuse a generator whose `changes` (over `columns` level columns, from the `given`
+    count) would need more than :data:`MEMORY_BUDGET`, before anything is allocated."""
+    per_change = (1 + columns) * _BYTES_PER_VALUE
+    needed = changes * per_change
+    if needed > MEMORY_BUDGET:
+        raise InputError(
+            f"{field}: {shown(given)} would make {_big(changes)} changes needing about {_big(needed, 2**30)} GiB of "
+            f"memory; the budget is {MEMORY_BUDGET / 2**30:g} GiB (at most {MEMORY_BUDGET // per_change:,} changes)"
+        )
+
+
+def _big(count: int, unit: int = 1) -> str:
+    """``count / unit`` for a message: ``"59.6"``, ``"2,000,000,000"``, or ``"1e+400"`` past a float."""
+    if count < 10**15 * unit:
+        return f"{count / unit:,.3g}" if unit != 1 else f"{count:,}"
+    digits = len(str(count // unit)) - 1
+    return f"1e+{digits}" if str(count // unit).startswith("1") else f"{str(count // unit)[0]}e+{digits}"
+
+
+def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = False, room: int = 0,
+                    allow_bool: bool = False, what: str = "values") -> np.ndarray:
     """Return `values` as a new 1-D float64 array, parsing text only where needed.
 
     Every value must be finite and, with `increasing`, each must come after the
     one before; a float array is copied and checked in one compiled pass when it
-    is long (:func:`_copy_checked`).  With `room`, the array has that many more
-    (unset) elements after the values, for the caller to fill.
+    is long (:func:`_copy_checked`); anything else is read by
+    :func:`~firstorder.units.parse_array` (1-D only, text parsed, timedelta64 in seconds).
+    With `room`, the array has that many more (unset) elements after the values, for
+    the caller to fill.
     """
-    if isinstance(values, np.ndarray) and values.dtype == np.float64 and values.size:
-        buffer, finite, in_order = _copy_checked(values.reshape(-1), increasing, room)
+    if isinstance(values, np.ndarray) and values.dtype == np.float64 and values.ndim == 1 and values.size:
+        buffer, finite, in_order = _copy_checked(values, increasing, room)
         array = buffer[:buffer.size - room]
     else:
-        if isinstance(values, np.ndarray) and values.dtype.kind in "biuf":
-            array = values.astype(np.float64, copy=True).reshape(-1)
-        else:
-            items = list(values) if not isinstance(values, (str, bytes)) else None
-            if items is None:
-                raise InputError(f"{field}: expected a list or array of values, got {values!r}")
-            if all(isinstance(item, (int, float, np.integer, np.floating)) for item in items):
-                array = np.asarray(items, dtype=np.float64).reshape(-1)
-            else:
-                array = np.array(
-                    [parse_value(item, field=f"{field}[{i}]", unit=unit) for i, item in enumerate(items)],
-                    dtype=np.float64,
-                )
-        if array.ndim != 1:
-            raise InputError(f"{field}: expected a 1-D list of values, got shape {array.shape}")
+        array = parse_array(values, field=field, unit=unit, allow_bool=allow_bool, what=what)
         finite = bool(np.isfinite(array.sum()))  # one cheap pass: NaN or inf anywhere shows in the sum
         in_order = not increasing or _first_not_increasing(array) < 0
         buffer = np.concatenate([array, np.empty(room)]) if room else array
@@ -86,7 +112,8 @@ def level_columns(columns: Mapping[str, Any], count: int | None, field: str = "d
     if not columns:
         raise InputError(f"{field}: no columns; give at least one source or switch column")
     if count is None:
-        lengths = [len(v) for v in columns.values() if not isinstance(v, (int, float, str, bool, np.number))]
+        lengths = [len(v) for v in columns.values()
+                   if not isinstance(v, (int, float, str, bool, np.number)) and hasattr(v, "__len__")]
         if not lengths or max(lengths) == 0:
             raise InputError(f"{field}: give at least one column as a list with one level per step")
         count = max(lengths)
@@ -94,7 +121,7 @@ def level_columns(columns: Mapping[str, Any], count: int | None, field: str = "d
     for name, values in columns.items():
         if isinstance(values, (int, float, str, bool, np.number)):
             values = [values] * count  # a constant column
-        array = _as_float_array(values, field=f"{field}.{name}", unit="")
+        array = _as_float_array(values, field=f"{field}.{name}", unit="", allow_bool=True, what="levels")
         if array.size != count:
             raise InputError(f"{field}.{name}: has {array.size} values but {per.format(count=count)}")
         array.setflags(write=False)
@@ -134,7 +161,9 @@ class Drive:
         Change instants in seconds, strictly increasing; engineering notation
         such as ``"1m"`` is accepted.  A float array takes a fast path.
     end : float or str
-        End of the last segment; must be later than the last change.
+        End of the last segment; must be later than the last change.  `times`
+        and `end` may be given by position or by keyword; given by position, they
+        leave the keywords ``times`` and ``end`` free to name columns.
     **columns : sequence of float, bool or str
         One column per source (volts or amps) or switch (1/True closed,
         0/False open), each as long as `times`.
@@ -152,8 +181,18 @@ class Drive:
     # both views of it (no copy for either).
     __slots__ = ("_instants", "_times", "_end", "_columns")
 
-    def __init__(self, times: Any, end: Any, **columns: Any) -> None:
-        instants = _as_float_array(times, field="drive.times", unit="s", increasing=True, room=1)
+    def __init__(self, times: Any = _MISSING, end: Any = _MISSING, /, **columns: Any) -> None:
+        # Positional-only, so that a column may be named "times" or "end" (given by
+        # position, times and end leave those keywords to the columns).
+        if times is _MISSING:
+            times = columns.pop("times", _MISSING)
+        if end is _MISSING:
+            end = columns.pop("end", _MISSING)
+        if times is _MISSING or end is _MISSING:
+            missing = "drive.times" if times is _MISSING else "drive.end"
+            raise InputError(f"{missing}: not given; a drive needs its change instants (times) and its end")
+        instants = _as_float_array(times, field="drive.times", unit="s", increasing=True, room=1,
+                                   what="change instants in seconds")
         time_array = instants[:-1]
         if time_array.size == 0:
             raise InputError("drive.times: at least one change instant is needed, got none")
@@ -185,12 +224,14 @@ class Drive:
         >>> Drive.steps([(0, 0.0), ("1m", 2.5)], end="4m").levels("vin")
         array([0. , 2.5])
         """
+        if isinstance(steps, (str, bytes, dict)) or not hasattr(steps, "__iter__"):
+            raise InputError(f"steps: {shown(steps)} is not a list of (time, level) pairs")
         pairs = list(steps)
         if not pairs:
             raise InputError("steps: at least one (time, level) pair is needed")
         for i, pair in enumerate(pairs):
-            if len(pair) != 2:
-                raise InputError(f"steps[{i}]: expected a (time, level) pair, got {pair!r}")
+            if not isinstance(pair, (tuple, list, np.ndarray)) or len(pair) != 2:
+                raise InputError(f"steps[{i}]: expected a (time, level) pair, got {shown(pair)}")
         return cls([p[0] for p in pairs], end, **{name: [p[1] for p in pairs]})
 
     @classmethod
@@ -223,7 +264,9 @@ class Drive:
         if not 0.0 < duty_value < 1.0:
             raise InputError(f"pulses.duty: {duty!r} must be between 0 and 1 (exclusive)")
         if isinstance(count, bool) or not isinstance(count, (int, np.integer)) or count < 1:
-            raise InputError(f"pulses.count: {count!r} must be a whole number >= 1")
+            raise InputError(f"pulses.count: {shown(count)} must be a whole number >= 1")
+        count = int(count)
+        _check_budget(count, 2 * count, 1, "pulses.count")
         high_value = parse_value(high, field="pulses.high")
         low_value = parse_value(low, field="pulses.low")
         start_value = parse_value(start, field="pulses.start", unit="s")
@@ -251,7 +294,9 @@ class Drive:
         """
         dwell_value = parse_value(dwell, field="staircase.dwell", unit="s", positive=True)
         start_value = parse_value(start, field="staircase.start", unit="s")
-        level_array = _as_float_array(levels, field="staircase.levels", unit="")
+        if isinstance(levels, range):
+            _check_budget(levels, len(levels), 1, "staircase.levels")
+        level_array = _as_float_array(levels, field="staircase.levels", unit="", what="levels")
         if level_array.size == 0:
             raise InputError("staircase.levels: at least one level is needed")
         times = start_value + dwell_value * np.arange(level_array.size, dtype=np.float64)
@@ -361,9 +406,11 @@ class Drive:
     @classmethod
     def from_csv(cls, source: str | os.PathLike[str]) -> "Drive":
         """Read a drive written by :meth:`to_csv` (a path, or the CSV text itself)."""
-        text = str(source)
+        if not isinstance(source, (str, os.PathLike)):
+            raise InputError(f"drive CSV: {shown(source)} is neither a path nor CSV text")
+        text = str(source).removeprefix("\ufeff")
         if not text.startswith(_CSV_MAGIC):
-            with open(source, encoding="utf-8") as handle:
+            with open(source, encoding="utf-8-sig") as handle:  # -sig: a byte order mark is not text
                 text = handle.read()
         lines = text.splitlines()
         if not lines or lines[0].strip() != _CSV_MAGIC:
@@ -375,6 +422,9 @@ class Drive:
         header = rows[0]
         if not header or header[0] != "time" or len(header) < 2:
             raise InputError("drive CSV line 3: expected a header 'time,<column>,...'")
+        repeated = sorted({name for name in header if header.count(name) > 1})
+        if repeated:
+            raise InputError(f"drive CSV line 3: column {repeated[0]!r} appears more than once; names must be unique")
         body = rows[1:]
         if not body:
             raise InputError("drive CSV: no change rows after the header")

@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from .errors import InputError, TopologyError
-from .units import format_value
+from .units import format_value, shown
 
 __all__ = ["GROUND", "PART_UNITS", "SOURCE_UNITS", "STATE_UNITS", "Netlist", "Part", "Probe", "check_name",
            "check_node"]
@@ -37,7 +37,8 @@ GROUND = "gnd"
 PART_UNITS = {"resistor": "Ω", "capacitor": "F", "inductor": "H", "switch": "Ω"}
 SOURCE_UNITS = {"voltage_source": "V", "current_source": "A"}
 STATE_UNITS = {"capacitor": "V", "inductor": "A"}
-# "times" and "end" are Drive's own arguments, so no drive column could carry those names.
+# "times" and "end" name a drive's own arguments (and "time" its CSV column); a Drive takes
+# columns so named, but a fixture's parts and probes do not, so that no file is ambiguous.
 RESERVED_NAMES = frozenset({"t", "initial", "time", "times", "end", GROUND})
 
 
@@ -119,6 +120,11 @@ class Probe:
 
 def check_name(name: Any, what: str) -> str:
     """`name` if it can name a part or probe of kind `what`; else an InputError saying why.
+
+    A name is any non-empty text other than the reserved words (``t``, ``initial``,
+    ``time``, ``times``, ``end`` and ``gnd``): ``"c_5%"``, ``"c%s"`` or text with
+    markup are names like any other.  Whatever shows or prints a name escapes it
+    (derivation printers, HTML, Markdown); nothing formats text with it.
 
     Examples
     --------
@@ -282,8 +288,12 @@ class Netlist:
         result = []
         for name in names:
             value = states[name]
-            if value not in (0, 1, True, False):
-                raise InputError(f"switch state {name}: {value!r}; use True/1 (closed) or False/0 (open)")
+            try:
+                valid = not isinstance(value, (str, bytes)) and value in (0, 1)
+            except (TypeError, ValueError):  # an array, say: its comparison has no single truth
+                valid = False
+            if not valid:
+                raise InputError(f"switch state {name}: {shown(value)}; use True/1 (closed) or False/0 (open)")
             result.append(bool(value))
         return tuple(result)
 

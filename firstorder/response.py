@@ -21,7 +21,7 @@ import numpy as np
 from . import engine
 from .errors import InputError
 from .segments import Segments
-from .units import format_value, parse_value
+from .units import format_value, parse_array, parse_value, shown
 
 if TYPE_CHECKING:
     from .drive import Drive
@@ -82,6 +82,14 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
     Fixture.respond : the same, as a method.
     Response.from_segments : a response of a measured model, without a fixture.
     """
+    from .drive import Drive
+    from .fixture import Fixture
+
+    if not isinstance(fixture, Fixture):
+        raise InputError(f"fixture: {shown(fixture)} is not a Fixture; build one with Fixture.rc(r, c) or Fixture()")
+    if not isinstance(drive, Drive):
+        raise InputError(f"drive: {shown(drive)} is not a Drive; build one with Drive(times, end, vin=[...]) "
+                         f"or Drive.steps([(time, level), ...], end)")
     return Response(Segments.of_drive(fixture, drive), drive, initial, fixture=fixture)
 
 
@@ -292,11 +300,13 @@ class Response:
     # -- evaluation -------------------------------------------------------------------------
     def _times(self, t: Any) -> np.ndarray:
         """`t` as a float array (:meth:`_check_times` checks the values)."""
-        if isinstance(t, str):
-            return np.asarray(parse_value(t, field="t", unit="s"))
-        if isinstance(t, (list, tuple)) and any(isinstance(v, str) for v in t):
-            return np.array([parse_value(v, field=f"t[{i}]", unit="s") for i, v in enumerate(t)])
-        return np.asarray(t, dtype=np.float64)
+        if type(t) is float or (isinstance(t, np.ndarray) and t.dtype.kind in "fiu"):
+            return np.asarray(t, dtype=np.float64)
+        if not isinstance(t, (np.ndarray, list, tuple)):
+            return np.asarray(parse_value(t, field="t", unit="s", allow_infinite=True))
+        array = t if isinstance(t, np.ndarray) else np.array(t, dtype=object)
+        # Any shape is evaluated (the result has it); each item is read as a number is.
+        return parse_array(array.reshape(-1), field="t", unit="s", what="times in seconds").reshape(array.shape)
 
     def _check_times(self, flat: np.ndarray, is_sorted: bool, no_nan: bool) -> None:
         """Refuse NaN, inf and times outside the drive.  A grid known to be sorted

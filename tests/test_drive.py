@@ -117,3 +117,81 @@ def test_messages_show_plain_numbers(build, text):
     with pytest.raises(fo.InputError) as caught:
         build()
     assert text in str(caught.value) and "np.float64" not in str(caught.value)
+
+
+class TestNumbersRead:
+    @pytest.mark.parametrize("text", ["1,5", "0,5m"])
+    def test_comma_in_a_level_or_time_is_refused(self, text):
+        with pytest.raises(InputError, match=r"^drive\.vin\[1\]: .* has a comma"):
+            fo.Drive([0, 1], end=2, vin=[0, text])
+        with pytest.raises(InputError, match=r"^drive\.times\[1\]: .* has a comma"):
+            fo.Drive([0, text], end=2, vin=[0, 1])
+
+    def test_timedelta_times_converted_exactly_to_seconds(self):
+        drive = fo.Drive(np.array([0, 5, 1500], dtype="timedelta64[ms]"), end=np.timedelta64(2, "s"), vin=[0, 1, 0])
+        # 5 ms and 1.5 s as the correctly rounded floats of the rationals 5/1000 and 1500/1000.
+        assert drive.times.tolist() == [0.0, 5 / 1000, 1.5]
+        assert drive.end == 2.0
+
+    @pytest.mark.parametrize("field", ["times", "vin"])
+    def test_two_d_arrays_are_refused_with_their_shape(self, field):
+        grid = np.array([[0.0, 1.0], [2.0, 3.0]])
+        kwargs = {"times": [0, 1, 2, 3], "vin": [0, 1, 0, 1]}
+        kwargs[field] = grid
+        with pytest.raises(InputError, match=rf"^drive\.{field}: a 2-D array of shape \(2, 2\)"):
+            fo.Drive(kwargs.pop("times"), 5, **kwargs)
+
+    def test_huge_integer_level_refused(self):
+        with pytest.raises(InputError, match=r"^drive\.vin\[0\]: 1000000000000000000000000…0000000000 \(401 characters\) is too large"):
+            fo.Drive([0], end=1, vin=[10**400])
+
+    def test_switch_columns_still_take_booleans(self):
+        assert fo.Drive([0, 1], end=2, k1=[True, False]).levels("k1").tolist() == [1.0, 0.0]
+
+
+class TestColumnNames:
+    @pytest.mark.parametrize("name", ["end", "times"])
+    def test_a_column_named_like_an_argument(self, name):
+        drive = fo.Drive([0, 1], 2, **{name: [0.0, 3.0]})
+        assert drive.levels(name).tolist() == [0.0, 3.0] and drive.end == 2.0
+        assert fo.Drive.steps([(0, 1.0)], end=1, name=name).levels(name).tolist() == [1.0]
+
+    def test_keywords_still_name_times_and_end(self):
+        assert fo.Drive(times=[0], end=1, vin=[1]).end == 1.0
+
+    def test_csv_with_a_repeated_column_is_refused(self):
+        text = "# firstorder drive v1\n# end,2.0\ntime,vin,vin\n0.0,1.0,2.0\n"
+        with pytest.raises(InputError, match="column 'vin' appears more than once"):
+            fo.Drive.from_csv(text)
+
+    def test_csv_with_a_byte_order_mark(self, tmp_path):
+        path = tmp_path / "d.csv"
+        path.write_text(fo.Drive([0], end=1, vin=[1]).to_csv(), encoding="utf-8-sig")
+        assert fo.Drive.from_csv(path) == fo.Drive([0], end=1, vin=[1])
+
+
+class TestMemoryBudget:
+    def test_pulse_count_over_the_budget_refused_up_front(self):
+        from firstorder.drive import MEMORY_BUDGET
+
+        assert MEMORY_BUDGET == 2 * 1024**3
+        with pytest.raises(InputError, match=r"^pulses\.count: 1000000000 would make 2,000,000,000 changes needing "
+                                             r"about 59\.6 GiB of memory; the budget is 2 GiB"):
+            fo.Drive.pulses(period=1, duty=0.5, high=1, count=10**9)
+
+    def test_staircase_over_a_huge_range_refused(self):
+        with pytest.raises(InputError, match=r"^staircase\.levels: range\(0, 1000000000\) would make"):
+            fo.Drive.staircase(range(10**9), dwell=1)
+
+
+class TestBooleansAreNotNumbers:
+    @pytest.mark.parametrize("call", [
+        lambda: fo.Drive([0, True], 2, vin=[0, 1]),
+        lambda: fo.Drive([0], True, vin=[1]),
+        lambda: fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0], 1, vin=[1]), initial=True),
+        lambda: fo.Tolerance.absolute(True),
+        lambda: fo.Drive.pulses(period=True, duty=0.5, high=1),
+    ], ids=["time", "end", "start", "tolerance", "period"])
+    def test_true_is_refused_where_a_number_is_read(self, call):
+        with pytest.raises(InputError, match="True is not a number; write 1 or 0"):
+            call()

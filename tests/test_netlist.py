@@ -101,3 +101,52 @@ class TestCheck:
         netlist = divider().with_probe(Probe("v_x", node="nowhere"))
         with pytest.raises(TopologyError, match="probe 'v_x': node 'nowhere' does not exist"):
             netlist.check()
+
+
+class TestPartValuesAsTyped:
+    # Part values go through the units layer: every rule of a number holds for them too.
+    @pytest.mark.parametrize("value", ["1,5k", "4,7k", ",5", "1,5 kΩ"])
+    def test_comma_in_a_part_value_is_refused(self, value):
+        with pytest.raises(InputError, match=r"^r \(value\): .* has a comma; a comma is never a decimal"):
+            fo.Fixture.rc(r=value, c="1u")
+
+    # Expected values written out by hand from IEC 60062's letter-code rule.
+    @pytest.mark.parametrize(("r", "c", "r_ohms", "c_farads"), [
+        ("4k7", "1n5", 4700.0, 1.5e-9), ("4R7", "4u7", 4.7, 4.7e-6), ("2M2", "p68", 2.2e6, 0.68e-12),
+        ("R47", "2µ2", 0.47, 2.2e-6), ("2.2K", "100n", 2200.0, 100e-9),
+    ])
+    def test_iec_60062_codes_as_part_values(self, r, c, r_ohms, c_farads):
+        fixture = fo.Fixture.rc(r=r, c=c)
+        assert fixture.part_map["r"].value == r_ohms and fixture.part_map["c"].value == c_farads
+
+    def test_iec_code_for_a_switch_resistance(self):
+        fixture = fo.Fixture().voltage_source("v", "a", GROUND).switch("k", "a", "b", r_on="0R5", r_off="10M")
+        fixture = fixture.resistor("r", "b", "o", "1k").capacitor("c", "o", GROUND, "1u")
+        assert fixture.part_map["k"].r_on == 0.5 and fixture.part_map["k"].r_off == 1e7
+
+    @pytest.mark.parametrize("value", [True, False, 10**400])
+    def test_booleans_and_huge_integers_are_not_part_values(self, value):
+        with pytest.raises(InputError, match=r"^r \(value\): "):
+            fo.Fixture.rc(r=value, c="1u")
+
+    @pytest.mark.parametrize("state", [np_array for np_array in ([1, 0], "1", 2)])
+    def test_switch_state_of_another_kind_is_refused(self, state):
+        fixture = fo.Fixture().voltage_source("v", "a", GROUND).switch("k", "a", "b").resistor("r", "b", "o", "1k")
+        fixture = fixture.capacitor("c", "o", GROUND, "1u")
+        with pytest.raises(InputError, match="^switch state k: "):
+            fixture.netlist.switch_states(k=__import__("numpy").array(state) if isinstance(state, list) else state)
+
+
+class TestNamesWithPercent:
+    # Names are free text (check_name); a percent sign is no format directive anywhere numbers are made.
+    @pytest.mark.parametrize("name", ["c_5%", "c%s", "%d", "r_%(x)s"])
+    def test_percent_names_respond_settle_and_probe(self, name):
+        fixture = (fo.Fixture().voltage_source("v%s", "in", GROUND).resistor(f"r{name}", "in", "out", "1k")
+                   .capacitor(name, "out", GROUND, "1u").probe(f"i{name}", through=f"r{name}"))
+        response = fixture.respond(fo.Drive([0], end="5m", **{"v%s": [1.0]}))
+        # The RC step 1 - exp(-t/tau) at t = tau (handbook first-order step response).
+        assert float(response.total(1e-3)) == pytest.approx(1 - 0.36787944117144233, rel=1e-12)
+        assert "%" in repr(fixture.part_map[name].name)
+        table = response.settling(fo.Tolerance.relative(0.01))
+        assert len(table) == 1
+        assert float(response.probe(f"i{name}", 0.0)) == pytest.approx(1e-3, rel=1e-12)

@@ -24,7 +24,7 @@ import numpy as np
 
 from ..engine import exp_in_place, settling_columns
 from ..errors import InputError
-from ..units import format_value, parse_value
+from ..units import format_value, parse_array, parse_value, shown
 from .tolerance import Tolerance
 
 __all__ = ["SAMPLE_COLUMNS", "TABLE_COLUMNS", "SettlingSummary", "check_tolerance", "check_unit", "sample_delays",
@@ -103,24 +103,25 @@ def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sam
     if isinstance(sample_delay, (str, int, float, np.number)) and not isinstance(sample_delay, bool):
         delays = np.full(n, parse_value(sample_delay, field=field, unit="s", allow_infinite=True))
         typed: Any = None
-    elif isinstance(sample_delay, np.ndarray) and sample_delay.dtype.kind in "iuf" and sample_delay.shape == (n,):
+    elif isinstance(sample_delay, np.ndarray) and sample_delay.dtype.kind in "iufm" and sample_delay.shape == (n,):
         # Numbers already, one per segment: a million delays need no Python loop (not even
-        # the check for booleans below, which a numeric dtype rules out).
-        delays = np.asarray(sample_delay, dtype=np.float64)
+        # the check for booleans below, which a numeric dtype rules out); timedelta64 in seconds.
+        delays = parse_array(sample_delay, field=field, unit="s")
         typed = sample_delay
     else:
         array = None if isinstance(sample_delay, (bool, str, bytes, dict)) else np.asarray(sample_delay, dtype=object)
         if array is None or array.ndim != 1 or any(isinstance(v, (bool, np.bool_)) for v in array.tolist()) \
                 or array.size != n:
             count = (f"{array.size} delays" if array is not None and array.ndim == 1 and array.size != n
-                     else repr(sample_delay))
+                     else f"a {array.ndim}-D array of shape {array.shape}" if array is not None and array.ndim > 1
+                     else shown(sample_delay))
             raise InputError(
                 f"{field}: got {count} for {n} {what}s; give one delay in seconds for every {what}, "
                 f"or one per {what}"
             )
         typed = array.tolist()
         delays = np.array([
-            float(item) if isinstance(item, (float, int, np.number))
+            float(item) if isinstance(item, (float, np.floating))
             else parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
             for k, item in enumerate(typed)
         ], dtype=np.float64)

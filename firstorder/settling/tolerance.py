@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from ..units import format_value, parse_value
+from ..units import format_value, parse_value, parse_with_unit, shown
 
 __all__ = ["Tolerance", "parse_tolerance", "tolerance_text"]
 
@@ -54,42 +54,72 @@ class Tolerance:
 
     def __post_init__(self) -> None:
         if self.kind not in _KINDS:
-            raise InputError(f"tolerance kind: {self.kind!r} is not one of {list(_KINDS)}")
+            raise InputError(f"tolerance kind: {shown(self.kind)} is not one of {list(_KINDS)}")
         if self.unit not in ("V", "A"):
-            raise InputError(f"tolerance.unit: {self.unit!r} must be 'V' or 'A'")
+            raise InputError(f"tolerance.unit: {shown(self.unit)} must be 'V' or 'A'")
+        # Built directly or by a factory, a tolerance holds only numbers that make sense:
+        # a NaN or negative limit would pass or fail every sample without a word.
+        for name, number in (("value", self.value), ("span", self.span), ("fraction", self.fraction)):
+            if name == "span" and self.kind in ("absolute", "relative"):
+                continue
+            if isinstance(number, bool) or not isinstance(number, (int, float)) or not 0 < number < math.inf:
+                raise InputError(f"tolerance.{name}: {shown(number)} is not allowed; expected a finite number > 0")
+        if self.kind == "relative" and not self.value < 1.0:
+            raise InputError(f"tolerance.fraction: {self.value!r} must be < 1 (0.01 is 1 %)")
 
     # -- factories ------------------------------------------------------------------
+    # A tolerance carries its unit: the one its text gives ("1 mA" is in A), else `unit`
+    # (V by default); a text in one unit with `unit` naming the other is refused.  Where it
+    # meets the watched quantity (settling.table.check_unit) a unit mismatch is refused too.
     @classmethod
-    def absolute(cls, value: Any, unit: str = "V") -> "Tolerance":
-        """A fixed limit, in the unit of the watched quantity (V or A)."""
-        limit = parse_value(value, field="tolerance.value", unit=("V", "A"), positive=True)
-        return cls("absolute", limit, unit=unit)
+    def absolute(cls, value: Any, unit: str | None = None) -> "Tolerance":
+        """A fixed limit, in the unit of the watched quantity (V or A).
+
+        Examples
+        --------
+        >>> Tolerance.absolute("1 mA").unit, Tolerance.absolute(1e-3).unit
+        ('A', 'V')
+        """
+        limit, found = parse_with_unit(value, field="tolerance.value", unit=("V", "A"), positive=True)
+        return cls("absolute", limit, unit=_unit(value, found, unit, "tolerance.value"))
 
     @classmethod
-    def relative(cls, fraction: Any, unit: str = "V") -> "Tolerance":
+    def relative(cls, fraction: Any, unit: str | None = None) -> "Tolerance":
         """A fraction of each segment's step ``|final - start value|`` (0 < fraction < 1)."""
         number = parse_value(fraction, field="tolerance.fraction", positive=True)
         if not number < 1.0:
-            raise InputError(f"tolerance.fraction: {fraction!r} must be < 1 (0.01 is 1 %)")
-        return cls("relative", number, unit=unit)
+            raise InputError(f"tolerance.fraction: {shown(fraction)} must be < 1 (0.01 is 1 %)")
+        return cls("relative", number, unit=_unit(fraction, "", unit, "tolerance.fraction"))
 
     @classmethod
-    def ppm(cls, ppm: Any, span: Any, unit: str = "V") -> "Tolerance":
+    def ppm(cls, ppm: Any, span: Any, unit: str | None = None) -> "Tolerance":
         """`ppm` parts per million of `span` (the full scale, V or A)."""
         parts = parse_value(ppm, field="tolerance.ppm", positive=True)
-        full = parse_value(span, field="tolerance.span", unit=("V", "A"), positive=True)
-        return cls("ppm", parts, span=full, unit=unit)
+        full, found = parse_with_unit(span, field="tolerance.span", unit=("V", "A"), positive=True)
+        return cls("ppm", parts, span=full, unit=_unit(span, found, unit, "tolerance.span"))
 
     @classmethod
-    def lsb(cls, bits: Any, span: Any, fraction: Any = 0.5, unit: str = "V") -> "Tolerance":
+    def lsb(cls, bits: Any, span: Any, fraction: Any = 0.5, unit: str | None = None) -> "Tolerance":
         """`fraction` of one LSB of a `bits`-bit converter over `span` (V or A)."""
         if isinstance(bits, bool) or not isinstance(bits, Integral) or not 1 <= bits <= 32:
-            raise InputError(f"tolerance.bits: {bits!r} must be a whole number from 1 to 32")
-        full = parse_value(span, field="tolerance.span", unit=("V", "A"), positive=True)
+            raise InputError(f"tolerance.bits: {shown(bits)} must be a whole number from 1 to 32")
+        full, found = parse_with_unit(span, field="tolerance.span", unit=("V", "A"), positive=True)
+        unit = _unit(span, found, unit, "tolerance.span")
         part = parse_value(fraction, field="tolerance.fraction", positive=True)
         if not part <= 1.0:
-            raise InputError(f"tolerance.fraction: {fraction!r} must be in (0, 1]")
+            raise InputError(f"tolerance.fraction: {shown(fraction)} must be in (0, 1]")
         return cls("lsb", part * full / 2.0 ** int(bits), span=full, bits=int(bits), fraction=part, unit=unit)
+
+    def in_unit(self, unit: str) -> "Tolerance":
+        """The same numbers for a quantity in `unit` (V or A): the Bench keeps a limit while
+        what it watches changes from a voltage to a current.
+
+        Examples
+        --------
+        >>> Tolerance.absolute("1m").in_unit("A")
+        Tolerance.absolute(value=0.001, unit='A')
+        """
+        return self if unit == self.unit else Tolerance(self.kind, self.value, self.span, self.bits, self.fraction, unit)
 
     # -- use -----------------------------------------------------------------------------
     def limit(self, step: np.ndarray) -> np.ndarray:
@@ -124,11 +154,14 @@ class Tolerance:
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> "Tolerance":
         """Rebuild a tolerance saved by :meth:`to_dict`."""
+        if not isinstance(data, dict):
+            raise InputError(f"tolerance: {shown(data)} is not a mapping; expected one such as "
+                             f"{{'kind': 'absolute', 'value': 0.001}} (kind one of {list(_KINDS)})")
         kind = data.get("kind")
         arguments = {k: v for k, v in data.items() if k != "kind"}
         factory = {"absolute": cls.absolute, "relative": cls.relative, "ppm": cls.ppm, "lsb": cls.lsb}.get(kind)
         if factory is None:
-            raise InputError(f"tolerance.kind: {kind!r} is not one of {list(_KINDS)}")
+            raise InputError(f"tolerance.kind: {shown(kind)} is not one of {list(_KINDS)}")
         try:
             return factory(**arguments)
         except TypeError as error:
@@ -148,6 +181,16 @@ class Tolerance:
             return f"±{_phrase(self, digits=4)} of each step"
         limit = self.value * 1e-6 * self.span if self.kind == "ppm" else self.value
         return f"±{format_value(limit, self.unit)} ({_phrase(self, digits=4, glyphs=True)})"
+
+
+def _unit(given: Any, found: str, unit: str | None, field: str) -> str:
+    """The unit of a tolerance: the one its text gave (`found`), else `unit`, else V."""
+    if unit is not None and unit not in ("V", "A"):
+        raise InputError(f"tolerance.unit: {shown(unit)} must be 'V' or 'A'")
+    if found and unit is not None and found != unit:
+        raise InputError(f"{field}: {shown(given)} is in {found}, but the tolerance is for a quantity in {unit}; "
+                         f"give it in {unit}")
+    return found or unit or "V"
 
 
 def _phrase(tolerance: Tolerance, digits: int, glyphs: bool = False) -> str:

@@ -17,18 +17,19 @@ from typing import Any
 import numpy as np
 
 from ..errors import InputError
-from ..units import format_value, parse_value
+from ..units import format_value, parse_array, parse_value, shown
 
 __all__ = ["Trace", "read_trace"]
 
 
-def _finite_array(values: Any, field_name: str) -> np.ndarray:
-    try:
-        array = np.array(values, dtype=np.float64).reshape(-1) if not isinstance(values, str) else None
-    except (TypeError, ValueError):
-        array = None
-    if array is None:
-        raise InputError(f"{field_name}: expected a list or array of numbers, got {type(values).__name__}")
+def _finite_array(values: Any, field_name: str, unit: str = "") -> np.ndarray:
+    """`values` as a 1-D float array, read as every array of numbers is
+    (:func:`~firstorder.units.parse_array`: 2-D refused with its shape, booleans
+    refused, timedelta64 times in seconds), each value finite."""
+    if isinstance(values, np.ndarray) and values.dtype == np.float64 and values.ndim == 1:
+        array = values.copy()
+    else:
+        array = parse_array(values, field=field_name, unit=unit, what="numbers")
     bad = ~np.isfinite(array)
     if bad.any():
         i = int(np.argmax(bad))
@@ -75,8 +76,8 @@ class Trace:
             raise InputError(f"trace.name: {self.name!r} must be a non-empty string")
         if not isinstance(self.units, str):
             raise InputError(f"trace.units: {self.units!r} must be a string such as 'V', 'A' or ''")
-        times = _finite_array(self.times, "trace.times")
-        values = _finite_array(self.values, "trace.values")
+        times = _finite_array(self.times, "trace.times", unit="s")
+        values = _finite_array(self.values, "trace.values", unit=("V", "A"))
         if times.size != values.size:
             raise InputError(
                 f"trace.values: has {values.size} values but trace.times has {times.size}; give one value per time"
@@ -105,8 +106,8 @@ class Trace:
         and `value_scale` multiplies the values (a 10:1 probe's factor, say).
         """
         time_factor, value_factor = _scales(time_scale, value_scale)
-        return cls(_finite_array(times, "trace.times") * time_factor,
-                   _finite_array(values, "trace.values") * value_factor, name, units)
+        return cls(_finite_array(times, "trace.times", unit="s") * time_factor,
+                   _finite_array(values, "trace.values", unit=("V", "A")) * value_factor, name, units)
 
     def __len__(self) -> int:
         return int(self.times.size)
@@ -207,7 +208,7 @@ def read_trace(path: str | os.PathLike[str], time: Any = "time", value: Any = "v
     Parameters
     ----------
     path : str or path-like
-        The file (UTF-8 text).
+        The file (UTF-8 text; a leading byte order mark is skipped).
     time, value : str or int
         The time column and the value column, by header name (case ignored, with
         or without the bracketed unit) or by 0-based index.
@@ -248,10 +249,13 @@ def read_trace(path: str | os.PathLike[str], time: Any = "time", value: Any = "v
     ...
     firstorder.errors.InputError: bad.csv line 3, column 'v': 'oops' is not a number
     """
+    if not isinstance(path, (str, bytes, os.PathLike)):
+        raise InputError(f"path: {shown(path)} is not a file path; give the CSV file's path as text or a Path")
     time_factor, value_factor = _scales(time_scale, value_scale)
-    label = os.path.basename(os.fspath(path))
+    label = os.path.basename(os.fsdecode(path))
     try:
-        with open(path, encoding="utf-8", newline="") as handle:
+        # utf-8-sig: a spreadsheet's byte order mark is not part of the first header cell.
+        with open(path, encoding="utf-8-sig", newline="") as handle:
             text = handle.read()
     except UnicodeDecodeError as error:
         raise InputError(f"{label}: not UTF-8 text ({error.reason} at byte {error.start})") from None
@@ -271,6 +275,15 @@ def read_trace(path: str | os.PathLike[str], time: Any = "time", value: Any = "v
             f"{label} line {header_line}: expected a header row naming the columns (such as 'time,value'), "
             f"found numbers; add a header line"
         )
+    names_seen: dict[str, int] = {}
+    for index, cell in enumerate(header):
+        name = _split_header_cell(cell)[0].casefold()
+        if name and name in names_seen:
+            raise InputError(
+                f"{label} line {header_line}: column {cell.strip()!r} (index {index}) repeats the name of column "
+                f"{names_seen[name]}; each column needs its own name"
+            )
+        names_seen.setdefault(name, index)
     time_index = _pick_column(time, "time", header, header_line)
     value_index = _pick_column(value, "value", header, header_line)
     if time_index == value_index:

@@ -386,7 +386,7 @@ class BenchSession(traitlets.HasTraits):
         """
         from ..analysis import Analysis
 
-        tolerance = parse_tolerance(self.texts["tolerance"], unit=self.fixture.state_unit)
+        tolerance = self.tolerance and self.tolerance.in_unit(self.fixture.state_unit)
         delay: Any = self.sample_delay
         if self.samples_at_end:
             delay = sample_delays(delay, self.drive.durations, ends=self.drive.ends, past_end="end").tolist()
@@ -477,7 +477,7 @@ class BenchSession(traitlets.HasTraits):
     def _restore(self, snapshot: _Snapshot, history: tuple | None = None) -> None:
         tolerance = snapshot.tolerance
         if tolerance is not None and tolerance.unit != self.value_unit:
-            tolerance = parse_tolerance(snapshot.texts["tolerance"], unit=self.value_unit)
+            tolerance = tolerance.in_unit(self.value_unit)
         drive = snapshot.table.to_drive()
         response = snapshot.fixture.respond(drive, snapshot.initial)
         changes = dict(fixture=snapshot.fixture, table=snapshot.table, drive=drive, initial=snapshot.initial,
@@ -526,7 +526,7 @@ class BenchSession(traitlets.HasTraits):
         # The same limit, read in the unit of what is now watched (V or A); then its table.
         tolerance = self.tolerance
         if tolerance is not None and tolerance.unit != self.value_unit:
-            tolerance = parse_tolerance(self.texts["tolerance"], unit=self.value_unit)
+            tolerance = tolerance.in_unit(self.value_unit)
         changes = {"tolerance": tolerance}
         changes.update(self._results(self.response, tolerance, self.sample_delay, change["new"], residual=True,
                                      errors=self.errors))

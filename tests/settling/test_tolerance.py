@@ -73,3 +73,51 @@ class TestOneWriting:
         assert str(fo.Tolerance.lsb(bits=16, span=5.0)) == "±38.15 µV (½ LSB of 16 bits on 5 V)"
         assert str(fo.Tolerance.ppm(10, 5.0)) == "±50 µV (10 ppm of 5 V)"
         assert str(fo.Tolerance.relative(0.001)) == "±0.1 % of each step"
+
+
+def _rc_response():
+    return fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 1.0)], end="5m"))
+
+
+class TestToleranceCarriesItsUnit:
+    @pytest.mark.parametrize("tolerance", [
+        lambda: fo.Tolerance.absolute("1 mA"),
+        lambda: fo.Tolerance.ppm(10, "5 A"),
+        lambda: fo.Tolerance.lsb(bits=12, span="5 A"),
+    ])
+    def test_a_current_tolerance_on_a_voltage_is_refused(self, tolerance):
+        built = tolerance()
+        assert built.unit == "A"
+        with pytest.raises(fo.errors.InputError, match=r"^tolerance: .* is in A, but the state of capacitor 'c' is in V"):
+            _rc_response().settling(built)
+
+    def test_text_against_the_unit_given_is_refused(self):
+        with pytest.raises(fo.errors.InputError, match=r"^tolerance\.value: '1 mA' is in A, but .* in V"):
+            fo.Tolerance.absolute("1 mA", unit="V")
+        with pytest.raises(fo.errors.InputError, match=r"^tolerance\.span: '5 V' is in V, but .* in A"):
+            fo.Tolerance.ppm(10, "5 V", unit="A")
+
+    def test_unit_round_trips_through_a_dict(self):
+        tolerance = fo.Tolerance.absolute("2 mA")
+        assert fo.Tolerance.from_dict(tolerance.to_dict()) == tolerance
+
+
+class TestToleranceRefusesNonsense:
+    @pytest.mark.parametrize(("kind", "value", "span", "field"), [
+        ("absolute", float("nan"), float("nan"), "value"), ("absolute", -1e-3, float("nan"), "value"),
+        ("absolute", 0.0, float("nan"), "value"), ("relative", 1.5, float("nan"), "fraction"),
+        ("ppm", 10.0, float("nan"), "span"), ("ppm", 10.0, -5.0, "span"), ("lsb", float("inf"), 5.0, "value"),
+        ("absolute", True, float("nan"), "value"),
+    ])
+    def test_nan_negative_or_zero_refused_when_built_directly(self, kind, value, span, field):
+        with pytest.raises(fo.errors.InputError, match=rf"^tolerance\.{field}: "):
+            fo.Tolerance(kind, value, span=span)
+
+    @pytest.mark.parametrize("data", [None, [], "1 mV", 3])
+    def test_from_dict_of_something_else(self, data):
+        with pytest.raises(fo.errors.InputError, match=r"^tolerance: .* is not a mapping"):
+            fo.Tolerance.from_dict(data)
+
+    def test_comma_in_a_tolerance_value_is_refused(self):
+        with pytest.raises(fo.errors.InputError, match="has a comma"):
+            fo.Tolerance.absolute("1,5m")

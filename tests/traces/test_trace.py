@@ -6,6 +6,8 @@ import numpy as np
 import pytest
 
 import firstorder as fo
+from firstorder.errors import InputError
+from firstorder.traces.trace import Trace, read_trace
 
 
 # ---------------------------------------------------------------------------------------
@@ -32,7 +34,7 @@ class TestTrace:
             ([0, float("inf")], [0, 1], "v", r"trace\.times\[1\]: inf"),
             ([0], [0], "v", r"trace\.times: 1 point"),
             ([0, 1], [0, 1], "", r"trace\.name"),
-            ("0,1", [0, 1], "v", r"trace\.times: expected a list or array"),
+            ("0,1", [0, 1], "v", r"trace\.times: '0,1' is not a list"),
         ],
     )
     def test_bad_arrays_name_the_field(self, times, values, name, match):
@@ -101,7 +103,7 @@ class TestReadTrace:
             ("time,value\n0,1\n", r"one sample after the header"),
             ("time,volts\n0,1\n1,2\n", r"value: no column named 'value' in the header on line 1"),
             ("time (ms),value\n0,1\n1,2\n", r"time_scale: column 'time \(ms\)' is in 'ms'"),
-            ("time,value,value\n0,1,2\n1,2,3\n", r"value: 'value' names columns \[1, 2\]"),
+            ("time,value,value\n0,1,2\n1,2,3\n", r"line 1: column 'value' \(index 2\) repeats the name of column 1"),
         ],
     )
     def test_bad_files_name_line_and_column(self, tmp_path, text, match):
@@ -131,3 +133,41 @@ class TestReadTrace:
         path = self.write(tmp_path, "time,value\n0,1\n1,2\n")
         with pytest.raises(fo.InputError, match=match):
             fo.read_trace(path, **arguments)
+
+
+class TestTraceArrays:
+    @pytest.mark.parametrize("field", ["times", "values"])
+    def test_two_d_arrays_are_refused_with_their_shape(self, field):
+        arrays = {"times": [0.0, 1.0, 2.0, 3.0], "values": [0.0, 1.0, 2.0, 3.0]}
+        arrays[field] = np.array([[0.0, 1.0], [2.0, 3.0]])
+        with pytest.raises(InputError, match=rf"^trace\.{field}: a 2-D array of shape \(2, 2\)"):
+            Trace.from_arrays(arrays["times"], arrays["values"])
+
+    def test_timedelta_times_are_seconds(self):
+        trace = Trace.from_arrays(np.array([0, 1, 2], dtype="timedelta64[ms]"), [0.0, 0.5, 0.75])
+        # 1 ms and 2 ms: the correctly rounded floats of 1/1000 and 2/1000.
+        assert trace.times.tolist() == [0.0, 1 / 1000, 2 / 1000]
+
+    def test_booleans_are_not_values(self):
+        with pytest.raises(InputError, match=r"^trace\.values"):
+            Trace.from_arrays([0.0, 1.0], [True, False])
+
+
+class TestReadTraceFiles:
+    def test_a_byte_order_mark_is_skipped(self, tmp_path):
+        path = tmp_path / "bom.csv"
+        path.write_text("time (s),v (V)\n0,0\n1e-3,0.5\n", encoding="utf-8-sig")
+        trace = read_trace(path, value="v")
+        assert trace.values.tolist() == [0.0, 0.5] and trace.units == "V"
+
+    @pytest.mark.parametrize("header", ["time,v,v", "time,v (V),V [V]", "time,v,time"])
+    def test_a_repeated_column_name_is_refused(self, tmp_path, header):
+        path = tmp_path / "dup.csv"
+        path.write_text(f"{header}\n0,1,2\n1,3,4\n")
+        with pytest.raises(InputError, match=r"^dup\.csv line 1: column .* repeats the name of column"):
+            read_trace(path, value=1)
+
+    @pytest.mark.parametrize("path", [None, 3, ["a.csv"]])
+    def test_what_is_not_a_path_is_refused(self, path):
+        with pytest.raises(InputError, match=r"^path: .* is not a file path"):
+            read_trace(path)
