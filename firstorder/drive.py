@@ -146,10 +146,11 @@ def _copy_checked(values: np.ndarray, increasing: bool, room: int = 0) -> tuple[
 
 def _first_not_increasing(times: np.ndarray) -> int:
     """Index of the first time not after its predecessor, or -1."""
-    steps = np.diff(times)
-    if steps.size and not (steps > 0).all():
-        return int(np.argmax(~(steps > 0))) + 1
-    return -1
+    # For finite times b - a > 0 exactly when b > a: one comparison, no array of steps.
+    later = np.greater(times[1:], times[:-1])
+    if later.all():
+        return -1
+    return int(np.argmin(later)) + 1
 
 
 class Drive:
