@@ -26,6 +26,7 @@ if TYPE_CHECKING:
     from .drive import Drive
     from .response import Response
     from .symbolic import Derivation
+    from .studies import Study
 
 __all__ = ["Fixture"]
 
@@ -308,6 +309,17 @@ class Fixture:
         from .symbolic import derive
 
         return derive(self, self.switch_states(**switch_states))
+
+    def study(self, drive: "Drive", spread: Any, *, units: Any, seed: Any, initial: Any = 0.0) -> "Study":
+        """A tolerance study: `units` units drawn from `spread` (seeded by `seed`) under `drive`.
+
+        See Also
+        --------
+        firstorder.studies.Study : what this builds.
+        """
+        from .studies import Study
+
+        return Study(self, drive, spread, units=units, seed=seed, initial=initial)
 
     # -- display ------------------------------------------------------------------------
     def __repr__(self) -> str:

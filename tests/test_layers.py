@@ -43,7 +43,7 @@ LAYERS = [
     "engine",
     "response",
     "settling.tolerance", "settling.table", "settling.planning", "settling",
-    "studies.spread", "studies.lot", "studies",
+    "studies.spread", "studies.lot", "studies.study", "studies",
     "cautions",
     "symbolic.names", "symbolic.nodal", "symbolic.steps", "symbolic.derivation", "symbolic",
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",
@@ -61,6 +61,7 @@ LAYERS = [
 SHORTCUTS = {
     ("fixture", "Fixture.respond"): {"response"},
     ("fixture", "Fixture.derivation"): {"symbolic", "symbolic.derivation"},
+    ("fixture", "Fixture.study"): {"studies", "studies.study"},
     ("response", "Response.settling"): {"settling.table"},
     ("response", "Response.summary"): {"settling.table"},
     ("response", "Response.cautions"): {"cautions"},

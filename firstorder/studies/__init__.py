@@ -1,10 +1,13 @@
 """Tolerance studies: the units of a lot, drawn from a spread, and what they do.
 
-:mod:`.spread` (:class:`Spread`, :class:`Uniform`, :class:`Normal`, and drawing units).
+:mod:`.spread` (:class:`Spread`, :class:`Uniform`, :class:`Normal`, and drawing units),
+:mod:`.lot` (a lot drawn, and each unit built by hand) and :mod:`.study` (:class:`Study`:
+the lot at once, per-segment answers as exact order statistics of the units).
 """
 
 from __future__ import annotations
 
 from .spread import Normal, Spread, Uniform
+from .study import Passing, Study
 
-__all__ = ["Normal", "Spread", "Uniform"]
+__all__ = ["Normal", "Passing", "Spread", "Study", "Uniform"]

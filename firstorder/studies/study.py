@@ -1,0 +1,377 @@
+"""Tolerance studies: every unit of a lot at once, and the per-segment answers for the lot.
+
+A :class:`Study` draws units of a fixture from a spread (:class:`~.lot.Lot`), reduces
+each unit's network, and runs the engine over (units, segments) at once: the decay
+factors, the scan for the state at every change, and the settling columns.  Each unit's
+row is bit for bit what that unit alone gives (:meth:`Study.unit` builds it by hand), as
+the engine's operations work element by element and its scan blocks by the number of
+segments only.
+
+Fractions of units are exact order statistics of the drawn units: the settle time "met
+by 99.9 % of units" is the ``ceil(0.999 * units)``-th smallest, never an interpolation.
+A unit whose segment ends before it settles counts as not meeting any time there.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from .. import engine
+from ..drive import MEMORY_BUDGET
+from ..errors import InputError
+from ..response import read_initial
+from ..segments import Segments
+from ..settling.table import check_tolerance, check_unit, sample_delays
+from ..units import format_value, shown
+from .lot import Lot
+from .spread import Spread
+
+if TYPE_CHECKING:
+    from ..drive import Drive
+    from ..fixture import Fixture
+    from ..response import Response
+    from ..settling.tolerance import Tolerance
+
+__all__ = ["LotSettling", "Passing", "Study", "order_statistic"]
+
+#: Bytes a study holds per unit and segment (rates, factors, finals, the scan, a probe's
+#: values and the settling columns), for the memory check before anything is drawn.
+BYTES_PER_UNIT_SEGMENT = 12 * 8
+
+
+def order_statistic(values: np.ndarray, fraction: float, axis: int = 0) -> np.ndarray:
+    """The smallest value that `fraction` of the entries along `axis` do not exceed: the
+    ``ceil(fraction * count)``-th smallest (NaN counts as larger than every number).
+
+    Examples
+    --------
+    >>> order_statistic(np.array([[3.0], [1.0], [2.0], [np.nan]]), 0.5)
+    array([2.])
+    >>> order_statistic(np.array([[3.0], [1.0], [2.0], [np.nan]]), 1.0)
+    array([nan])
+    """
+    count = values.shape[axis]
+    rank = max(1, math.ceil(fraction * count - 1e-9 * count))  # 0.999 * 1000 is 999, not 999.0000000000001
+    return np.take(np.sort(values, axis=axis), rank - 1, axis=axis)
+
+
+@dataclass(frozen=True)
+class Passing:
+    """The fraction of units whose every sample is inside tolerance, with its interval.
+
+    Attributes
+    ----------
+    fraction : float
+    low, high : float
+        The Clopper-Pearson (exact binomial) interval at `confidence`.
+    passing, units : int
+    confidence : float
+    """
+
+    fraction: float
+    low: float
+    high: float
+    passing: int
+    units: int
+    confidence: float
+
+    def __str__(self) -> str:
+        return (f"{self.passing} of {self.units} units pass ({self.fraction:.4%}); "
+                f"{self.confidence:.0%} interval {self.low:.4%} to {self.high:.4%} (Clopper-Pearson)")
+
+
+@dataclass(frozen=True)
+class LotSettling:
+    """Per unit and segment: the settling columns of a study (each row is one unit's table).
+
+    Attributes
+    ----------
+    settle_time, error_at_sample, limit : ndarray, shape (units, n)
+        NaN settle time where the segment ends first.
+    ok : ndarray of bool, shape (units, n)
+        ``error_at_sample <= limit``.
+    sample_time : ndarray, shape (n,)
+        The sampling instants (each segment's end when no sample delay is given).
+    unit, label : str
+        The watched quantity's unit and name.
+    """
+
+    settle_time: np.ndarray
+    error_at_sample: np.ndarray
+    limit: np.ndarray
+    ok: np.ndarray
+    sample_time: np.ndarray
+    unit: str
+    label: str
+
+
+class Study:
+    """A lot of units of `fixture` under `drive`, drawn from `spread`; see the module docstring.
+
+    Build with :meth:`firstorder.fixture.Fixture.study`.
+
+    Parameters
+    ----------
+    fixture : Fixture
+    drive : Drive
+    spread : Spread
+    units : int
+        How many units to draw (1 or more).
+    seed : int
+        Unit k's values depend only on (seed, k).
+    initial : float, str
+        The starting state of every unit, ``"settled"`` (each unit settled to its own first
+        final value) or ``"periodic"`` (each unit's own periodic start).
+
+    Examples
+    --------
+    >>> import firstorder as fo
+    >>> fx = fo.Fixture.rc("10k", "100n")
+    >>> drive = fo.Drive([0, "20m"], end="40m", vin=[5.0, 0.0])
+    >>> study = fx.study(drive, fo.Spread({"r": "1%", "c": "10%"}), units=2000, seed=7)
+    >>> half_lsb = fo.Tolerance.lsb(bits=16, span=5.0)
+    >>> table = study.settling(half_lsb)
+    >>> print(fo.format_value(table.loc[0, "nominal_settle_time"], "s"), "|",
+    ...       fo.format_value(table.loc[0, "settle_time_99.9%"], "s"))
+    11.78 ms | 13.05 ms
+    >>> print(study.passing(half_lsb, sample_delay="12m"))
+    1183 of 2000 units pass (59.1500%); 95% interval 56.9586% to 61.3146% (Clopper-Pearson)
+    """
+
+    def __init__(self, fixture: "Fixture", drive: "Drive", spread: Spread, *, units: Any, seed: Any,
+                 initial: Any = 0.0) -> None:
+        from ..drive import Drive
+
+        if not isinstance(drive, Drive):
+            raise InputError(f"drive: {shown(drive)} is not a firstorder Drive")
+        count = _count(units, len(drive))
+        self.fixture = fixture
+        self.drive = drive
+        self.spread = spread
+        self.units = count
+        self.seed = seed
+        self.nominal: "Response" = fixture.respond(drive, initial)
+        self._initial = initial
+        self._lot = Lot(fixture, spread, seed)
+        self._draw = self._lot.draw(0, count)
+        self._segments = [Segments.of_drive(self._lot.unit_fixture(self._draw, u),
+                                            self._lot.unit_drive(drive, self._draw, u)) for u in range(count)]
+        # Everything below runs over (units, segments) at once.
+        self._rate = np.stack([np.asarray(s.rate) for s in self._segments])
+        self._holds = self._rate == 0.0
+        source_final = np.stack([np.asarray(s.final) for s in self._segments])
+        durations = np.broadcast_to(drive.durations, self._rate.shape)
+        self._decay, self._growth = engine.decay_factors(durations.ravel(), self._rate.ravel())
+        self._decay = self._decay.reshape(self._rate.shape)
+        self._growth = self._growth.reshape(self._rate.shape)
+        start = self._starts(initial, source_final)
+        self._boundary = engine.relaxation_scan(self._decay, self._growth, source_final, start)
+        self._final = np.where(self._holds, self._boundary[:, :-1], source_final)
+        self._probes: dict[str, tuple[np.ndarray, np.ndarray, str]] = {}
+
+    # -- the units --------------------------------------------------------------------------
+    @property
+    def values(self):
+        """A pandas DataFrame: a row per unit (index ``unit``), a column per varied quantity
+        (SI units; a gain as a fraction) and the temperature (°C) when the spread has a range."""
+        import pandas as pd
+
+        columns = {key: self._draw.values[:, j] for j, key in enumerate(self._lot.keys)}
+        if self._draw.temperature is not None:
+            columns["temperature"] = self._draw.temperature
+        return pd.DataFrame(columns, index=pd.RangeIndex(self.units, name="unit"))
+
+    def unit(self, k: Any) -> "Response":
+        """Unit `k`'s response, built by hand: its fixture with its values, its drive with its
+        sources' gain and offset, and ``respond``."""
+        if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or not 0 <= k < self.units:
+            raise InputError(f"unit: {shown(k)} is not a unit of this study; units are 0 to {self.units - 1}")
+        fixture = self._lot.unit_fixture(self._draw, int(k))
+        return fixture.respond(self._lot.unit_drive(self.drive, self._draw, int(k)), self._initial)
+
+    @property
+    def boundary(self) -> np.ndarray:
+        """(units, n + 1): every unit's state at every change and at the end."""
+        return self._boundary
+
+    # -- settling ---------------------------------------------------------------------------
+    def columns(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None) -> LotSettling:
+        """Every unit's settling columns (its settling table's ``settle_time``,
+        ``error_at_sample``, ``tolerance`` and ``ok``), as (units, n) arrays."""
+        check_tolerance(tolerance)
+        unit, label, start, final = self._watched(probe)
+        check_unit(tolerance, unit, label)
+        value, relative = tolerance._scale()
+        shape = self._rate.shape
+        times = np.broadcast_to(self.drive.times, shape).ravel()
+        ends = np.broadcast_to(self.drive.ends, shape).ravel()
+        tau = np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
+        limit, settle, _, residual = engine.settling_columns(
+            start.ravel(), final.ravel(), tau.ravel(), self._decay.ravel(), times, ends, value, relative)
+        limit = np.broadcast_to(limit, (shape[0] * shape[1],)).reshape(shape)
+        if sample_delay is None:
+            error, sample_time = residual.reshape(shape), self.drive.ends
+        else:
+            delays = sample_delays(sample_delay, self.drive.durations, field="sample_delay", what="segment",
+                                   ends=self.drive.ends)
+            decay = engine.exp_in_place(-delays * self._rate)
+            error = np.abs(final - start) * decay
+            sample_time = self.drive.times + delays
+        return LotSettling(settle.reshape(shape), error, limit, error <= limit, sample_time, unit, label)
+
+    def settling(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
+                 fractions: Any = (0.5, 0.99, 0.999)):
+        """Per segment, for the lot: the nominal settle time, the settle time met by each
+        fraction of units and the longest, the error at the sample at each fraction and the
+        largest, the fraction of units inside tolerance at the sample (``yield``) and the
+        worst unit (the largest error relative to its limit).  A pandas DataFrame.
+
+        The sample is at `sample_delay` after each change, or at each segment's end.
+        """
+        import pandas as pd
+
+        chosen = _fractions(fractions)
+        lot = self.columns(tolerance, sample_delay, probe)
+        nominal = self.nominal.settling(tolerance, sample_delay=sample_delay, probe=probe)
+        settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
+        data: dict[str, Any] = {"start": self.drive.times, "sample_time": lot.sample_time,
+                                "nominal_settle_time": nominal["settle_time"].to_numpy()}
+        for fraction in chosen:
+            data[f"settle_time_{_percent(fraction)}"] = _never_as_nan(order_statistic(settle, fraction))
+        data["settle_time_max"] = _never_as_nan(settle.max(axis=0))
+        for fraction in chosen:
+            data[f"error_{_percent(fraction)}"] = order_statistic(lot.error_at_sample, fraction)
+        data["error_max"] = lot.error_at_sample.max(axis=0)
+        data["yield"] = lot.ok.mean(axis=0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(lot.limit > 0, lot.error_at_sample / lot.limit, np.inf)
+        data["worst_unit"] = np.argmax(ratio, axis=0)
+        table = pd.DataFrame(data, index=pd.RangeIndex(len(self.drive), name="segment"))
+        table.attrs.update(tolerance=str(tolerance), unit=lot.unit, watched=lot.label, units=self.units,
+                           seed=self.seed, spread=str(self.spread))
+        return table
+
+    def passing(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
+                confidence: Any = 0.95) -> Passing:
+        """The fraction of units whose every sample is inside tolerance, with its
+        Clopper-Pearson interval at `confidence`."""
+        level = _fraction(confidence, "confidence", open_top=True)
+        lot = self.columns(tolerance, sample_delay, probe)
+        passing = int(lot.ok.all(axis=1).sum())
+        low, high = clopper_pearson(passing, self.units, level)
+        return Passing(passing / self.units, low, high, passing, self.units, level)
+
+    def delay_for(self, tolerance: "Tolerance", fraction: Any = 0.999, probe: str | None = None) -> np.ndarray:
+        """Per segment, the sample delay that `fraction` of units needs: the exact order
+        statistic of each unit's own settle time (NaN where that many units do not settle
+        within the segment)."""
+        chosen = _fraction(fraction, "fraction")
+        lot = self.columns(tolerance, None, probe)
+        settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
+        return _never_as_nan(order_statistic(settle, chosen))
+
+    # -- display ----------------------------------------------------------------------------
+    def __repr__(self) -> str:
+        return (f"<Study: {self.units} units, seed {self.seed}, {len(self.drive)} segments; "
+                f"spread {self.spread}>")
+
+    def _repr_html_(self) -> str:
+        from html import escape
+
+        rows = [("units", str(self.units)), ("seed", str(self.seed)), ("spread", str(self.spread)),
+                ("segments", str(len(self.drive))),
+                ("nominal time constant", format_value(float(np.min(self.nominal.tau)), "s"))]
+        body = "".join(f"<tr><th style='text-align:left'>{escape(k)}</th><td>{escape(v)}</td></tr>" for k, v in rows)
+        return f"<table><caption>Tolerance study</caption>{body}</table>"
+
+    # -- inside -----------------------------------------------------------------------------
+    def _starts(self, initial: Any, source_final: np.ndarray) -> np.ndarray:
+        """Every unit's starting state, read as :meth:`Response` reads it, one per unit."""
+        start = read_initial(initial, self.nominal.state_unit)
+        if start == "settled":
+            if (self._rate[:, 0] == 0.0).any():
+                raise InputError("initial: 'settled' needs a first segment that settles, but segment 0 holds its "
+                                 "state (no resistive path); give the starting state as a number")
+            return source_final[:, 0].copy()
+        if start == "periodic":
+            # Each unit's own periodic start, from its own response (the one reading of it).
+            return np.array([self.unit(u).initial for u in range(self.units)])
+        return np.full(self.units, float(start))
+
+    def _watched(self, probe: str | None) -> tuple[str, str, np.ndarray, np.ndarray]:
+        """The watched quantity of every unit: unit, label, start and final (units, n)."""
+        state_start = self._boundary[:, :-1]
+        if probe is None:
+            segments = self.nominal.segments
+            return (segments.state_unit, f"the state of {segments.storage_kind} '{segments.storage_name}'",
+                    state_start, self._final)
+        if probe not in self._probes:
+            the_probe = self.nominal.segments.probe(probe)  # an InputError naming the probes
+            gains, offsets = [], []
+            for segments in self._segments:
+                rows = segments.probe_rows(probe)
+                gains.append(rows[:, 0])
+                offsets.append(np.einsum("ij,ij->i", rows[:, 1:], segments.levels))  # as Response does
+            self._probes[probe] = (np.stack(gains), np.stack(offsets), the_probe.unit)
+        gain, offset, unit = self._probes[probe]
+        start = gain * state_start + offset
+        # A probe is c*x + offset within a segment: it moves by c times the state's step.
+        final = start + gain * (self._final - state_start)
+        return unit, f"probe '{probe}'", start, final
+
+
+def clopper_pearson(passing: int, units: int, confidence: float) -> tuple[float, float]:
+    """The exact (Clopper-Pearson) binomial interval for `passing` of `units`.
+
+    Examples
+    --------
+    >>> low, high = clopper_pearson(0, 100, 0.95)
+    >>> low, round(high, 4)
+    (0.0, 0.0362)
+    """
+    from scipy.stats import beta
+
+    tail = (1.0 - confidence) / 2.0
+    low = 0.0 if passing == 0 else float(beta.ppf(tail, passing, units - passing + 1))
+    high = 1.0 if passing == units else float(beta.ppf(1.0 - tail, passing + 1, units - passing))
+    return low, high
+
+
+def _count(units: Any, segments: int) -> int:
+    if isinstance(units, bool) or not isinstance(units, (int, np.integer)) or units < 1:
+        raise InputError(f"units: {shown(units)} is not allowed; give a whole number of units >= 1")
+    need = int(units) * segments * BYTES_PER_UNIT_SEGMENT
+    if need > MEMORY_BUDGET:
+        raise InputError(
+            f"units: {int(units):,} units of {segments:,} segments would need about {need / 2**30:.1f} GiB; the "
+            f"budget is {MEMORY_BUDGET / 2**30:.0f} GiB: study fewer units or a shorter drive")
+    return int(units)
+
+
+def _fraction(value: Any, field: str, open_top: bool = False) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float, np.number)) or not (
+            0.0 < float(value) < 1.0 or (not open_top and float(value) == 1.0)):
+        allowed = "between 0 and 1 (both excluded)" if open_top else "in (0, 1]"
+        raise InputError(f"{field}: {shown(value)} is not allowed; give a fraction of units {allowed}")
+    return float(value)
+
+
+def _fractions(fractions: Any) -> tuple[float, ...]:
+    if isinstance(fractions, (int, float, np.number)) and not isinstance(fractions, bool):
+        fractions = (fractions,)
+    if not isinstance(fractions, (tuple, list)) or not fractions:
+        raise InputError(f"fractions: {shown(fractions)} is not allowed; give fractions of units such as (0.5, 0.99)")
+    return tuple(_fraction(f, f"fractions[{i}]") for i, f in enumerate(fractions))
+
+
+def _percent(fraction: float) -> str:
+    return f"{fraction * 100:g}%"
+
+
+def _never_as_nan(times: np.ndarray) -> np.ndarray:
+    """Settle times with 'never within the segment' (inf in the order statistics) as NaN."""
+    return np.where(np.isinf(times), np.nan, times)

@@ -1,0 +1,221 @@
+"""Tests for firstorder.studies.study: the lot at once against each unit built by hand, the
+lot's fractions against exact distributions (scipy.stats), intervals against scipy's
+binomial test, reproducibility, and bad arguments."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+import firstorder as fo
+from firstorder.errors import InputError
+from firstorder.studies import Normal, Spread, Uniform
+from firstorder.studies.study import clopper_pearson, order_statistic
+
+from builders import general_drive, general_fixture
+
+HALF_LSB_16 = fo.Tolerance.lsb(bits=16, span=5.0)
+
+
+def rc_study(spread, units, seed=1, initial="settled", end="40m"):
+    """A 1 ms RC (10 kΩ, 100 nF) stepped 0 -> 5 V -> 0 from rest, 20 ms a step."""
+    fx = fo.Fixture.rc("10k", "100n")
+    drive = fo.Drive([0, "20m"], end=end, vin=[5.0, 0.0])
+    return fx.study(drive, spread, units=units, seed=seed, initial=0.0 if initial == "settled" else initial)
+
+
+def general_spread() -> Spread:
+    return Spread({"rs": "1%", "ch": Normal("3%", within="9%"), "k1.r_on": Uniform("50m", "300m"),
+                   "rm": Uniform("-20%", "+5%"), "vdac.gain": "0.05%", "vdac.offset": "1m", "ibias.gain": "2%"},
+                  temperature=(0, 50), tempco={"rs": "25ppm", "ch": "-750ppm"})
+
+
+@pytest.fixture(scope="module")
+def study():
+    return general_fixture().study(general_drive(), general_spread(), units=300, seed=11, initial=0.25)
+
+
+class TestEveryUnitIsItsOwnResponse:
+    """study.unit(k) is built by hand (its fixture with its values, its drive with its gain
+    and offset); the lot's arrays must hold exactly that unit's numbers."""
+
+    def test_the_state_at_every_change(self, study):
+        for k in np.random.default_rng(0).choice(study.units, 60, replace=False):
+            assert np.array_equal(study.boundary[k], study.unit(int(k)).boundary), k
+
+    @pytest.mark.parametrize("probe", [None, "v_b", "v_ab", "i_rs"])
+    def test_the_settling_columns_state_and_probes(self, study, probe):
+        tolerance = fo.Tolerance.relative(1e-3) if probe == "i_rs" else fo.Tolerance.absolute("1m")
+        delays = 0.6 * general_drive().durations
+        lot = study.columns(tolerance, sample_delay=delays, probe=probe)
+        for k in np.random.default_rng(1).choice(study.units, 40, replace=False):
+            table = study.unit(int(k)).settling(tolerance, sample_delay=delays, probe=probe)
+            assert np.array_equal(lot.settle_time[k], table["settle_time"].to_numpy(), equal_nan=True), k
+            assert np.array_equal(lot.error_at_sample[k], table["error_at_sample"].to_numpy()), k
+            assert np.array_equal(lot.ok[k], table["ok"].to_numpy()), k
+
+    def test_the_drawn_values_are_the_units_values(self, study):
+        values = study.values
+        assert list(values.columns) == ["rs", "ch", "k1.r_on", "rm", "vdac.gain", "vdac.offset", "ibias.gain",
+                                        "temperature"]
+        unit = study.unit(7).fixture.part_map
+        assert unit["rs"].value == values.loc[7, "rs"] and unit["ch"].value == values.loc[7, "ch"]
+
+    @pytest.mark.parametrize("initial", ["settled", "periodic"])
+    def test_named_starts_per_unit(self, initial):
+        fx = fo.Fixture.rc("10k", "100n")
+        drive = fo.Drive([0, "1m", "3m"], end="4m", vin=[1.0, 4.0, -2.0])
+        study = fx.study(drive, Spread({"r": "5%", "c": "10%"}), units=50, seed=3, initial=initial)
+        for k in range(0, 50, 7):
+            assert np.array_equal(study.boundary[k], study.unit(k).boundary), k
+
+
+class TestAgainstExactDistributions:
+    """With only C varied, tau = R C has C's distribution scaled, and the settle time after a
+    full step is tau * ln(step / limit) (common practice: (N + 1) ln 2 time constants to half an
+    LSB of N bits after a full-span step).  Reference quantiles from scipy.stats; each order
+    statistic of U draws may miss its quantile by about sqrt(p (1 - p) / U) / density, and the
+    bound here is five times that."""
+
+    UNITS = 20_000
+    SETTLE_PER_TAU = 17 * math.log(2)  # (16 + 1) ln 2
+
+    def check(self, table, distribution, fractions):
+        for p in fractions:
+            expected = distribution.ppf(p) * self.SETTLE_PER_TAU
+            density = distribution.pdf(distribution.ppf(p)) / self.SETTLE_PER_TAU
+            bound = 5 * math.sqrt(p * (1 - p) / self.UNITS) / density
+            got = table.loc[0, f"settle_time_{p * 100:g}%"]
+            assert abs(got - expected) < bound, (p, got, expected, bound)
+
+    def test_uniform_capacitor_gives_uniform_settle_times(self):
+        from scipy.stats import uniform
+
+        study = rc_study(Spread({"c": "10%"}), self.UNITS, seed=5)
+        table = study.settling(HALF_LSB_16, fractions=(0.1, 0.5, 0.9, 0.99))
+        self.check(table, uniform(loc=0.9e-3, scale=0.2e-3), (0.1, 0.5, 0.9, 0.99))
+
+    def test_normal_capacitor_gives_normal_settle_times(self):
+        from scipy.stats import norm
+
+        study = rc_study(Spread({"c": Normal("3%")}), self.UNITS, seed=6)
+        table = study.settling(HALF_LSB_16, fractions=(0.05, 0.5, 0.95, 0.999))
+        self.check(table, norm(loc=1e-3, scale=0.03e-3), (0.05, 0.5, 0.95, 0.999))
+
+    def test_the_yield_at_a_sample_is_the_uniform_cdf(self):
+        # Inside at a delay d exactly when tau <= d / (17 ln 2): scipy.stats.uniform's CDF there.
+        from scipy.stats import uniform
+
+        delay = 12e-3
+        study = rc_study(Spread({"c": "10%"}), self.UNITS, seed=8)
+        table = study.settling(HALF_LSB_16, sample_delay=delay)
+        expected = uniform(loc=0.9e-3, scale=0.2e-3).cdf(delay / self.SETTLE_PER_TAU)
+        bound = 5 * math.sqrt(expected * (1 - expected) / self.UNITS)
+        assert abs(table.loc[0, "yield"] - expected) < bound
+        assert table.loc[0, "nominal_settle_time"] == pytest.approx(self.SETTLE_PER_TAU * 1e-3, rel=1e-12)
+
+    def test_the_delay_for_a_fraction_is_its_settle_time_column(self):
+        study = rc_study(Spread({"c": "10%", "r": "1%"}), 3000, seed=9)
+        table = study.settling(HALF_LSB_16, fractions=(0.999,))
+        assert np.array_equal(study.delay_for(HALF_LSB_16, 0.999), table["settle_time_99.9%"].to_numpy(),
+                              equal_nan=True)
+
+
+class TestPassing:
+    def test_the_interval_is_scipys_exact_binomial_interval(self):
+        from scipy.stats import binomtest
+
+        study = rc_study(Spread({"c": "10%"}), 2000, seed=2)
+        passing = study.passing(HALF_LSB_16, sample_delay="12m")
+        reference = binomtest(passing.passing, passing.units).proportion_ci(0.95, method="exact")
+        assert passing.low == pytest.approx(reference.low, rel=1e-9)
+        assert passing.high == pytest.approx(reference.high, rel=1e-9)
+        lot = study.columns(HALF_LSB_16, sample_delay="12m")
+        assert passing.passing == int(lot.ok.all(axis=1).sum())
+
+    @pytest.mark.parametrize("passing, units", [(0, 10), (10, 10), (3, 1000), (997, 1000)])
+    def test_clopper_pearson_at_the_edges(self, passing, units):
+        from scipy.stats import binomtest
+
+        reference = binomtest(passing, units).proportion_ci(0.95, method="exact")
+        low, high = clopper_pearson(passing, units, 0.95)
+        assert low == pytest.approx(reference.low, abs=1e-12) and high == pytest.approx(reference.high, abs=1e-12)
+
+
+class TestOrderStatistics:
+    def test_against_sorting_every_unit(self):
+        rng = np.random.default_rng(4)
+        values = rng.normal(size=(1000, 3))
+        ordered = np.sort(values, axis=0)
+        assert np.array_equal(order_statistic(values, 0.999), ordered[998])
+        assert np.array_equal(order_statistic(values, 0.5), ordered[499])
+        assert np.array_equal(order_statistic(values, 1.0), ordered[-1])
+        assert np.array_equal(order_statistic(values, 0.0001), ordered[0])
+
+    def test_units_that_never_settle_count_as_slowest(self):
+        study = rc_study(Spread({"c": "10%"}), 1000, seed=3, end="32m")  # the last step gets 12 ms
+        table = study.settling(HALF_LSB_16, fractions=(0.5, 0.999))
+        lot = study.columns(HALF_LSB_16)
+        never = np.isnan(lot.settle_time[:, 1]).mean()
+        assert 0.01 < never < 0.99
+        assert math.isnan(table.loc[1, "settle_time_99.9%"]) and math.isnan(table.loc[1, "settle_time_max"])
+
+
+class TestReproducible:
+    def test_unit_k_depends_only_on_seed_and_k(self):
+        small = rc_study(Spread({"c": "10%", "r": "1%"}), 100, seed=12)
+        large = rc_study(Spread({"c": "10%", "r": "1%"}), 5000, seed=12)
+        assert np.array_equal(small.values.to_numpy(), large.values.to_numpy()[:100])
+        assert np.array_equal(small.boundary, large.boundary[:100])
+
+    def test_the_same_seed_repeats_and_another_differs(self):
+        spread = Spread({"c": "10%"})
+        one, again, other = (rc_study(spread, 200, seed=s).settling(HALF_LSB_16) for s in (1, 1, 2))
+        assert one.equals(again)
+        assert not one.equals(other)
+
+
+class TestBadArguments:
+    @pytest.mark.parametrize("units, message", [
+        (0, "units: 0"), (-5, "units: -5"), (2.5, "units: 2.5"), (True, "units: True"), ("100", "units: '100'"),
+        (None, "units: None"), (10**9, "GiB"),
+    ])
+    def test_units(self, units, message):
+        with pytest.raises(InputError, match=message.replace("(", r"\(")):
+            rc_study(Spread({"c": "10%"}), units)
+
+    @pytest.mark.parametrize("fractions", [0.0, 1.5, -0.1, "0.5", (), (0.5, 2.0), True, [None], float("nan")])
+    def test_fractions(self, fractions):
+        study = rc_study(Spread({"c": "10%"}), 10)
+        with pytest.raises(InputError, match="fraction"):
+            study.settling(HALF_LSB_16, fractions=fractions)
+
+    @pytest.mark.parametrize("confidence", [0.0, 1.0, 95, "95%", None])
+    def test_confidence(self, confidence):
+        with pytest.raises(InputError, match="confidence"):
+            rc_study(Spread({"c": "10%"}), 10).passing(HALF_LSB_16, confidence=confidence)
+
+    @pytest.mark.parametrize("k", [-1, 10, 2.0, "3", True, None])
+    def test_unit_index(self, k):
+        with pytest.raises(InputError, match="unit: .* units are 0 to 9"):
+            rc_study(Spread({"c": "10%"}), 10).unit(k)
+
+    def test_probe_tolerance_drive_spread_and_seed(self):
+        study = rc_study(Spread({"c": "10%"}), 10)
+        with pytest.raises(InputError, match="probe: 'v_x'"):
+            study.settling(HALF_LSB_16, probe="v_x")
+        with pytest.raises(InputError, match="in A"):
+            study.settling(fo.Tolerance.absolute("1 mA"))
+        with pytest.raises(InputError, match="sample_delay"):
+            study.settling(HALF_LSB_16, sample_delay="30m")
+        fx = fo.Fixture.rc("10k", "100n")
+        with pytest.raises(InputError, match="drive: "):
+            fx.study([0, 1], Spread({"c": "1%"}), units=5, seed=1)
+        with pytest.raises(InputError, match="spread: "):
+            fx.study(fo.Drive([0], end="1m", vin=[1.0]), {"c": "1%"}, units=5, seed=1)
+        with pytest.raises(InputError, match="seed: -1"):
+            fx.study(fo.Drive([0], end="1m", vin=[1.0]), Spread({"c": "1%"}), units=5, seed=-1)
+        with pytest.raises(InputError, match="spread q"):
+            fx.study(fo.Drive([0], end="1m", vin=[1.0]), Spread({"q": "1%"}), units=5, seed=1)
