@@ -36,27 +36,52 @@ if TYPE_CHECKING:
     from ..response import Response
     from ..settling.tolerance import Tolerance
 
-__all__ = ["LotSettling", "Passing", "Study", "order_statistic"]
+__all__ = ["LotSettling", "Passing", "Study", "order_statistic", "order_statistics", "rank"]
 
 #: Bytes a study holds per unit and segment (rates, factors, finals, the scan, a probe's
 #: values and the settling columns), for the memory check before anything is drawn.
 BYTES_PER_UNIT_SEGMENT = 12 * 8
 
 
-def order_statistic(values: np.ndarray, fraction: float, axis: int = 0) -> np.ndarray:
-    """The smallest value that `fraction` of the entries along `axis` do not exceed: the
-    ``ceil(fraction * count)``-th smallest (NaN counts as larger than every number).
+def rank(fraction: float, count: int) -> int:
+    """The 0-based rank of the smallest value that `fraction` of `count` values do not
+    exceed: ``ceil(fraction * count) - 1`` (0.999 of 1,000 is rank 998, the 999th smallest).
+
+    Examples
+    --------
+    >>> rank(0.999, 1000), rank(0.5, 3), rank(1.0, 7), rank(1e-9, 7)
+    (998, 1, 6, 0)
+    """
+    # fraction * count is rounded: 0.999 * 1000 is 999.0000000000001, which means 999 here.
+    return max(1, math.ceil(fraction * count - 1e-9 * count)) - 1
+
+
+def order_statistics(values: np.ndarray, fractions: tuple[float, ...]) -> tuple[list[np.ndarray], np.ndarray]:
+    """For (units, n) `values`: per column, the value at each fraction's :func:`rank` and the
+    largest, from one partial sort (NaN counts as larger than every number).
+
+    Examples
+    --------
+    >>> at, largest = order_statistics(np.array([[3.0], [1.0], [2.0], [np.nan]]), (0.5, 0.75))
+    >>> at, largest
+    ([array([2.]), array([3.])], array([nan]))
+    """
+    count = values.shape[0]
+    ranks = sorted({rank(f, count) for f in fractions} | {count - 1})
+    by_column = np.ascontiguousarray(values.T)  # each column's units side by side for the partition
+    by_column.partition(ranks, axis=1)
+    return [by_column[:, rank(f, count)] for f in fractions], by_column[:, count - 1]
+
+
+def order_statistic(values: np.ndarray, fraction: float) -> np.ndarray:
+    """:func:`order_statistics` of one fraction.
 
     Examples
     --------
     >>> order_statistic(np.array([[3.0], [1.0], [2.0], [np.nan]]), 0.5)
     array([2.])
-    >>> order_statistic(np.array([[3.0], [1.0], [2.0], [np.nan]]), 1.0)
-    array([nan])
     """
-    count = values.shape[axis]
-    rank = max(1, math.ceil(fraction * count - 1e-9 * count))  # 0.999 * 1000 is 999, not 999.0000000000001
-    return np.take(np.sort(values, axis=axis), rank - 1, axis=axis)
+    return order_statistics(values, (fraction,))[0][0]
 
 
 @dataclass(frozen=True)
@@ -240,12 +265,14 @@ class Study:
         settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
         data: dict[str, Any] = {"start": self.drive.times, "sample_time": lot.sample_time,
                                 "nominal_settle_time": nominal["settle_time"].to_numpy()}
-        for fraction in chosen:
-            data[f"settle_time_{_percent(fraction)}"] = _never_as_nan(order_statistic(settle, fraction))
-        data["settle_time_max"] = _never_as_nan(settle.max(axis=0))
-        for fraction in chosen:
-            data[f"error_{_percent(fraction)}"] = order_statistic(lot.error_at_sample, fraction)
-        data["error_max"] = lot.error_at_sample.max(axis=0)
+        at, largest = order_statistics(settle, chosen)
+        for fraction, values in zip(chosen, at):
+            data[f"settle_time_{_percent(fraction)}"] = _never_as_nan(values)
+        data["settle_time_max"] = _never_as_nan(largest)
+        at, largest = order_statistics(lot.error_at_sample, chosen)
+        for fraction, values in zip(chosen, at):
+            data[f"error_{_percent(fraction)}"] = values
+        data["error_max"] = largest
         data["yield"] = lot.ok.mean(axis=0)
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.where(lot.limit > 0, lot.error_at_sample / lot.limit, np.inf)
