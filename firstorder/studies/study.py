@@ -301,6 +301,52 @@ class Study:
         settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
         return _never_as_nan(order_statistic(settle, chosen))
 
+    # -- curves -----------------------------------------------------------------------------
+    def evaluate(self, t: Any, component: str = "total", probe: str | None = None) -> np.ndarray:
+        """(units, len(t)): every unit's `component` (of the state, or of `probe`) at times
+        `t`, each row what ``study.unit(k).evaluate(t, (component,), probe)`` gives."""
+        times = np.asarray(self.nominal.evaluate(t, (component,), probe)[component] * 0.0 + _as_times(t))
+        flat = times.reshape(-1)  # checked by the nominal unit's evaluation just above
+        need = self.units * flat.size * 4 * 8
+        if need > MEMORY_BUDGET:
+            raise InputError(f"t: {flat.size:,} times for {self.units:,} units would need about "
+                             f"{need / 2**30:.1f} GiB; the budget is {MEMORY_BUDGET / 2**30:.0f} GiB")
+        segment = engine.SegmentLocator(flat, self.drive.times, self.nominal.segments.rate, within=True).segment
+        decay = self.drive.times[segment] - flat
+        decay = decay * self._rate[:, segment]  # (s - t) * r, the exponents of every path
+        engine.exp_in_place(decay, nonpositive=True)
+        key = "total" if component in ("forced", "natural") else component
+        start, final = self._component_scan(key)
+        forced = final[:, segment]
+        if component == "forced":
+            values = forced.copy()
+        else:
+            values = (start - final)[:, segment]
+            values *= decay
+            values += forced
+            if component == "natural":
+                values -= forced
+        if probe is not None:
+            gain, offset, _ = self._probe_rows(probe)
+            values *= gain[:, segment]
+            if component in ("total", "zero_state", "forced"):
+                values += offset[:, segment]
+        return values.reshape((self.units,) + times.shape)
+
+    def envelope(self, t: Any, fraction: Any = 0.998, component: str = "total",
+                 probe: str | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """``(low, high)`` at times `t`: the band holding the central `fraction` of units
+        (at least that many units lie within it at every time; each edge an exact order
+        statistic of the units)."""
+        chosen = _fraction(fraction, "fraction")
+        values = self.evaluate(t, component, probe)
+        flat = values.reshape(self.units, -1)
+        tail = math.floor((1.0 - chosen) / 2.0 * self.units + 1e-9 * self.units)
+        by_time = np.ascontiguousarray(flat.T)
+        by_time.partition(sorted({tail, self.units - 1 - tail}), axis=1)
+        shape = values.shape[1:]
+        return by_time[:, tail].reshape(shape), by_time[:, self.units - 1 - tail].reshape(shape)
+
     # -- display ----------------------------------------------------------------------------
     def __repr__(self) -> str:
         return (f"<Study: {self.units} units, seed {self.seed}, {len(self.drive)} segments; "
