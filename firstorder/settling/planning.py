@@ -62,7 +62,8 @@ def _periodic(greedy, guess: float, coefficient: np.ndarray, rate: np.ndarray):
     """
     if (rate == 0.0).all():
         raise InputError(
-            "initial: 'periodic' has no solution; every step holds the state, so no start repeats at the end"
+            "initial: 'periodic' names no one start here; every step holds the state, so any start "
+            "repeats at the end; give the starting state as a number"
         )
     start, previous = guess, None
     for _ in range(_PERIODIC_ROUNDS):
