@@ -54,8 +54,9 @@ class Derivation:
     names : DerivationNames
         Every symbol of the derivation, and how each is written (:mod:`.names`).
     symbols : dict
-        Part and source name, ``"t"`` and ``"initial"`` to their sympy symbols
-        (``names.symbols``).
+        Part and source name, ``"t"``, ``"initial"`` and ``"state"`` to their
+        sympy symbols (``names.symbols``); no two are the same symbol, whatever
+        the parts are named (see :mod:`.names`).
     state : sympy.Expr
         The state as a function of ``t`` (``names.state_function``).
     values : dict
