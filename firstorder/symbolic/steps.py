@@ -336,4 +336,30 @@ def markdown_steps(derivation: "Derivation") -> str:
     --------
     aligned_latex : the same steps as one LaTeX block.
     """
-    return "\n\n".join(f"**{caption}**\n\n$$ {body} $$" for caption, body in latex_steps(derivation))
+    return "\n\n".join(f"**{_markdown_text(caption)}**\n\n$$ {_markdown_math(body)} $$"
+                       for caption, body in latex_steps(derivation))
+
+
+def _markdown_math(latex: str) -> str:
+    r"""LaTeX for display math in Markdown, with no ``<`` or ``>`` for an HTML parser to take as
+    a tag (a part named ``<img ...>``): MathJax and KaTeX, which draw Markdown's math, read
+    ``\lt`` and ``\gt`` as the same signs.
+
+    >>> _markdown_math(r"\mathrm{<b>} = 1")
+    '\\mathrm{\\lt b\\gt } = 1'
+    """
+    return latex.replace("<", r"\lt ").replace(">", r"\gt ")
+
+
+# A caption holds part names, which may hold markup ("<img ...>") or Markdown's own marks.
+_MARKDOWN_SPECIALS = {c: "\\" + c for c in "\\`*_[]|~#"}
+_MARKDOWN_SPECIALS.update({"<": "&lt;", ">": "&gt;", "&": "&amp;"})
+
+
+def _markdown_text(text: str) -> str:
+    r"""`text` as Markdown that shows it as typed: no markup, no emphasis, no links.
+
+    >>> _markdown_text("Probe i_<b>*k1*")
+    'Probe i\\_&lt;b&gt;\\*k1\\*'
+    """
+    return "".join(_MARKDOWN_SPECIALS.get(c, c) for c in text)
