@@ -21,7 +21,7 @@ from ..errors import InputError
 from ..response import read_initial
 from ..segments import Segments
 from ..units import format_value, parse_value
-from .table import check_tolerance, check_unit, sample_delays
+from .table import check_tolerance, check_unit, constant_probe, sample_delays
 from .tolerance import Tolerance
 
 __all__ = ["plan_dwells", "plan_table"]
@@ -145,6 +145,10 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
         # The probe is c*x + offset in each step: it settles with the state, |c| times its error.
         by_step = steps.probe_rows(probe)
         coefficient, offset = by_step[:, 0], np.einsum("ij,ij->i", by_step[:, 1:], steps.levels)
+        if tolerance.kind == "relative":
+            # Not rounding noise where the structure holds the probe still: a limit relative to
+            # that noise would be waited for (see settling.table.constant_probe).
+            coefficient = np.where(constant_probe(steps, fixture.netlist, probe), 0.0, coefficient)
     else:
         coefficient, offset = np.ones(count), np.zeros(count)
     finals = steps.final
