@@ -34,7 +34,7 @@ from .names import DerivationNames, latex_name, latex_text
 if TYPE_CHECKING:
     from .derivation import Derivation
 
-__all__ = ["PowerOfE", "Step", "aligned_latex", "derivation_steps", "latex_steps", "markdown_steps",
+__all__ = ["PowerOfE", "Step", "aligned_latex", "derivation_steps", "latex_steps", "markdown_steps", "markdown_text",
            "step_latex", "to_latex"]
 
 
@@ -336,7 +336,7 @@ def markdown_steps(derivation: "Derivation") -> str:
     --------
     aligned_latex : the same steps as one LaTeX block.
     """
-    return "\n\n".join(f"**{_markdown_text(caption)}**\n\n$$ {_markdown_math(body)} $$"
+    return "\n\n".join(f"**{markdown_text(caption)}**\n\n$$ {_markdown_math(body)} $$"
                        for caption, body in latex_steps(derivation))
 
 
@@ -356,10 +356,19 @@ _MARKDOWN_SPECIALS = {c: "\\" + c for c in "\\`*_[]|~#"}
 _MARKDOWN_SPECIALS.update({"<": "&lt;", ">": "&gt;", "&": "&amp;"})
 
 
-def _markdown_text(text: str) -> str:
+def markdown_text(text: str) -> str:
     r"""`text` as Markdown that shows it as typed: no markup, no emphasis, no links.
 
-    >>> _markdown_text("Probe i_<b>*k1*")
-    'Probe i\\_&lt;b&gt;\\*k1\\*'
+    An underscore inside a word (``c_hold``) stays as it is: Markdown never reads one
+    there as emphasis.
+
+    Examples
+    --------
+    >>> markdown_text("Probe c_hold <b>*k1* _x")
+    'Probe c_hold &lt;b&gt;\\*k1\\* \\_x'
     """
-    return "".join(_MARKDOWN_SPECIALS.get(c, c) for c in text)
+    return "".join(
+        "_" if c == "_" and 0 < k < len(text) - 1 and text[k - 1].isalnum() and text[k + 1].isalnum()
+        else _MARKDOWN_SPECIALS.get(c, c)
+        for k, c in enumerate(text)
+    )
