@@ -84,6 +84,8 @@ def _build_parser() -> argparse.ArgumentParser:
     derive.add_argument("analysis", help="analysis file (.json, or a report .html)")
     derive.add_argument("--format", choices=("markdown", "latex"), default="markdown",
                         help="markdown with display math (the default) or one LaTeX block per configuration")
+    derive.add_argument("--segment", type=int, default=None, metavar="K",
+                        help="derive only the configuration that segment K (from 0) of the drive uses")
 
     demo = commands.add_parser(
         "demo", help="write a demo analysis and its report",
@@ -169,17 +171,40 @@ def _text_table(table, unit: str) -> str:
     return "\n".join(lines)
 
 
+#: From this many configurations on, `derive` says on stderr which one it is deriving.
+_DERIVE_PROGRESS_FROM = 4
+
+
 def _derive(arguments: argparse.Namespace) -> None:
     from .analysis import Analysis
+    from .symbolic.steps import markdown_text
 
     analysis = Analysis.load(arguments.analysis)
+    response = analysis.response
+    used = response.segment_configuration
+    if arguments.segment is not None:
+        if not 0 <= arguments.segment < used.size:
+            raise _UsageError(
+                f"{_PROGRAM} derive: --segment {arguments.segment} is not a segment of the drive; "
+                f"segments are 0 to {used.size - 1}"
+            )
+        order = [int(used[arguments.segment])]
+    else:
+        order = list(dict.fromkeys(used.tolist()))  # only what the drive uses, in order of first use
+    fixture = analysis.fixture
+    names = [p.name for p in fixture.switches]
     blocks = []
-    for states, derivation in analysis.derivations():
-        heading = analysis.fixture.describe_states(states) or "no switches"
+    for count, index in enumerate(order, start=1):
+        states = response.configurations[index]
+        heading = fixture.describe_states(states) or "no switches"
+        if len(order) >= _DERIVE_PROGRESS_FROM:
+            print(f"{_PROGRAM} derive: configuration {count} of {len(order)} ({heading})", file=sys.stderr, flush=True)
+        derivation = fixture.derivation(**dict(zip(names, states)))
         if arguments.format == "latex":
-            blocks.append(f"% {heading}\n\\[\n{derivation.latex()}\n\\]")
+            comment = " ".join(heading.splitlines())  # a name with a line break must not end the comment
+            blocks.append(f"% {comment}\n\\[\n{derivation.latex()}\n\\]")
         else:
-            blocks.append(f"## {heading}\n\n{derivation.markdown()}")
+            blocks.append(f"## {markdown_text(heading)}\n\n{derivation.markdown()}")
     print("\n\n".join(blocks))
 
 

@@ -246,7 +246,12 @@ class Response:
                         "initial: 'periodic' has no solution; every segment holds the state, so "
                         "no start repeats at the end"
                     )
-                return 0.0
+                # x_end = x0 for every x0: picking one (0) would be a silent guess.
+                raise InputError(
+                    "initial: 'periodic' names no one start here; every segment holds the state and "
+                    f"nothing drifts, so any start repeats at the end; give the starting state as a "
+                    f"number (in {self.state_unit})"
+                )
             return drift / -np.expm1(exponent)
         return start
 

@@ -135,6 +135,39 @@ class TestDerive:
         assert "c}\\_\\text{hold" in result.stdout  # underscores in captions, escaped for LaTeX
 
 
+class TestDeriveOnlyWhatIsAsked:
+    def test_one_segment(self, demo, capsys):
+        # The demo's drive: four segments with k_hold closed, then one open.
+        assert cli.main(["derive", str(demo / "demo-analysis.json"), "--segment", "4"]) == 0
+        out = capsys.readouterr()
+        assert "## k_hold open" in out.out and "## k_hold closed" not in out.out and out.err == ""
+
+    def test_a_segment_that_is_not_there(self, demo, capsys):
+        assert cli.main(["derive", str(demo / "demo-analysis.json"), "--segment", "5"]) == 2
+        assert "--segment 5 is not a segment of the drive; segments are 0 to 4" in capsys.readouterr().err
+
+    def test_progress_for_many_configurations(self, tmp_path, capsys):
+        fx = fo.Fixture().voltage_source("vin", "in", "gnd")
+        for k in range(3):
+            fx.switch(f"k{k}", "in", f"n{k}", r_on="1").resistor(f"r{k}", f"n{k}", "out", f"{k + 1}k")
+        fx.capacitor("c", "out", "gnd", "1n").resistor("r_leak", "out", "gnd", "1M")
+        drive = fo.Drive([0, "1m", "2m", "3m", "4m"], end="5m", vin=[1.0] * 5,
+                         k0=[1, 0, 0, 1, 0], k1=[0, 1, 0, 1, 1], k2=[0, 0, 1, 1, 1])
+        path = Analysis(fx, drive).save(tmp_path / "many.json")
+        assert cli.main(["derive", str(path)]) == 0
+        out = capsys.readouterr()
+        lines = out.err.splitlines()
+        assert len(lines) == 5 and lines[0].startswith("firstorder derive: configuration 1 of 5 (k0 closed")
+        assert out.out.count("\n## ") + out.out.startswith("## ") == 5
+
+    def test_headings_are_text(self, tmp_path, capsys):
+        fx = (fo.Fixture().voltage_source("vin", "in", "gnd").switch("<b>k*", "in", "out", r_on="1")
+              .resistor("r", "in", "out", "1k").capacitor("c", "out", "gnd", "1n"))
+        path = Analysis(fx, fo.Drive([0], end="1m", vin=[1.0], **{"<b>k*": [1]})).save(tmp_path / "h.json")
+        assert cli.main(["derive", str(path)]) == 0
+        assert capsys.readouterr().out.startswith("## &lt;b&gt;k\\* closed")
+
+
 class TestErrors:
     def test_bad_file_gives_one_line(self, tmp_path):
         path = tmp_path / "bad.json"

@@ -274,6 +274,20 @@ def test_missing_switch_column():
         fixture.respond(drive)
 
 
+def test_periodic_when_every_segment_holds_asks_for_a_number():
+    # Every segment holds and nothing drifts: the end equals the start for any start, so
+    # "periodic" names no one start; it used to pick 0 V silently.
+    fixture = fo.Fixture()
+    fixture.voltage_source("vin", "in", "gnd")
+    fixture.switch("k", "in", "out")
+    fixture.capacitor("c", "out", "gnd", "1n")
+    drive = fo.Drive([0, "1m"], end="2m", vin=[1.0, 2.0], k=[0, 0])
+    with pytest.raises(InputError, match=r"initial: 'periodic' .* any start repeats.* give the starting state "
+                                         r"as a number \(in V\)"):
+        fixture.respond(drive, initial="periodic")
+    assert fixture.respond(drive, initial="0.5").boundary.tolist() == [0.5, 0.5, 0.5]
+
+
 def test_ramp_without_resistance_refused():
     fixture = fo.Fixture()
     fixture.current_source("ichg", "gnd", "a")

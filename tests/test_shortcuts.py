@@ -45,7 +45,7 @@ class TestDerivationAgainstDsolve:
 
     def test_symbols_cover_every_part(self):
         derivation = fo.Fixture.rc("10k", "100n").derivation()
-        assert set(derivation.symbols) == {"vin", "r", "c", "t", "initial"}
+        assert set(derivation.symbols) == {"vin", "r", "c", "t", "initial", "state"}
 
     def test_numbers_match_the_engine(self):
         fixture = fo.Fixture.rc("4.7k", "220n")

@@ -21,7 +21,7 @@ from ..errors import InputError
 from ..response import read_initial
 from ..segments import Segments
 from ..units import format_value, parse_value
-from .table import check_tolerance, check_unit, sample_delays
+from .table import check_tolerance, check_unit, constant_probe, sample_delays
 from .tolerance import Tolerance
 
 __all__ = ["plan_dwells", "plan_table"]
@@ -62,7 +62,8 @@ def _periodic(greedy, guess: float, coefficient: np.ndarray, rate: np.ndarray):
     """
     if (rate == 0.0).all():
         raise InputError(
-            "initial: 'periodic' has no solution; every step holds the state, so no start repeats at the end"
+            "initial: 'periodic' names no one start here; every step holds the state, so any start "
+            "repeats at the end; give the starting state as a number"
         )
     start, previous = guess, None
     for _ in range(_PERIODIC_ROUNDS):
@@ -71,7 +72,7 @@ def _periodic(greedy, guess: float, coefficient: np.ndarray, rate: np.ndarray):
         # The samples aim _AIM_INSIDE of their limit inside it: a start off by far less moves no sample out.
         allowed = 0.25 * _AIM_INSIDE * float(np.min(rows["tolerance"] / np.maximum(np.abs(coefficient), 1e-300)))
         if abs(gap) <= allowed:
-            return rows, limited_by, end, time
+            return start, (rows, limited_by, end, time)
         if previous is not None and gap != previous[1]:
             following = start - gap * (start - previous[0]) / (gap - previous[1])
         else:
@@ -82,6 +83,48 @@ def _periodic(greedy, guess: float, coefficient: np.ndarray, rate: np.ndarray):
         f"initial: 'periodic' found no repeating start in {_PERIODIC_ROUNDS} rounds (last gap "
         f"{format_value(abs(gap), '')}); give the starting state as a number"
     )
+
+
+#: How much longer than planned a dwell may come out when the plan is moved to its start
+#: instant (floats far from 0 are coarse); beyond it the start is refused.
+_SHIFT_STRETCH = 1e-4
+
+
+def _shifted(greedy, state: float, rows: dict, limited_by: list, length: float, start_time: float, start: Any):
+    """The plan made from 0, moved to start at `start_time`.
+
+    Each instant ``start_time + t`` is the float at or just after it such that no dwell
+    comes out shorter than planned (the drive keeps instants, not dwells); the samples
+    are judged again at the dwells the drive will really have.  Far from 0 the floats
+    are too coarse for short dwells (0.125 s apart at 1e15 s): a dwell that would grow
+    by more than ``_SHIFT_STRETCH`` of itself is refused, not silently planned longer.
+    """
+    planned = rows["dwell"]
+    relative = np.append(rows["start"], length)
+    instants = np.empty(relative.size)
+    instants[0] = start_time
+    for k in range(planned.size):
+        following = start_time + float(relative[k + 1])
+        while following - instants[k] < planned[k]:
+            following = math.nextafter(following, math.inf)
+        instants[k + 1] = following
+    dwells = np.diff(instants)
+    moved = rows
+    if not np.array_equal(dwells, planned):
+        if (dwells <= planned * (1.0 + _SHIFT_STRETCH)).all():
+            moved, _, _, _ = greedy(state, dwells)
+        if moved is rows or (moved["error_at_sample"] > moved["tolerance"]).any():
+            worst = int(np.argmax(dwells / planned))
+            raise InputError(
+                f"start: {start!r} is too far from 0 s for this plan: floats there are "
+                f"{format_value(float(np.spacing(abs(instants).max())), 's')} apart, so step {worst}'s "
+                f"dwell of {format_value(float(planned[worst]), 's')} would grow by "
+                f"{float(dwells[worst] / planned[worst] - 1.0):.2g} of itself (at most {_SHIFT_STRETCH:g} "
+                f"is kept); give a start nearer 0 s (the plan's dwells do not depend on it)"
+            )
+    moved["start"] = instants[:-1]
+    moved["sample_time"] = moved["start"] + moved["sample_delay"]
+    return moved, limited_by, float(instants[-1])
 
 
 def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: Any, start: Any,
@@ -102,6 +145,10 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
         # The probe is c*x + offset in each step: it settles with the state, |c| times its error.
         by_step = steps.probe_rows(probe)
         coefficient, offset = by_step[:, 0], np.einsum("ij,ij->i", by_step[:, 1:], steps.levels)
+        if tolerance.kind == "relative":
+            # Not rounding noise where the structure holds the probe still: a limit relative to
+            # that noise would be waited for (see settling.table.constant_probe).
+            coefficient = np.where(constant_probe(steps, fixture.netlist, probe), 0.0, coefficient)
     else:
         coefficient, offset = np.ones(count), np.zeros(count)
     finals = steps.final
@@ -112,14 +159,17 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
 
     eps = np.finfo(float).eps
 
-    def greedy(state: float):
-        """Each step as fast as its sample allows, from `state`: the rows, what limited
-        each dwell, the state left at the end and the end instant."""
+    def greedy(state: float, dwells: np.ndarray | None = None):
+        """Each step as fast as its sample allows, from `state` (or for the given `dwells`):
+        the rows, what limited each dwell, the state left at the end and the end instant.
+
+        Times run from 0 at the first change, not from `start`: far from 0 the spacing of
+        floats (0.125 s at 1e15 s) would otherwise round every dwell up to it."""
         rows = {name: np.empty(count) for name in
                 ("start", "dwell", "settle_time", "sample_delay", "sample_time", "start_value", "final",
                  "tolerance", "error_at_sample")}
         limited_by = []
-        time = start_time
+        time = 0.0
         for k in range(count):
             r, c = float(rate[k]), abs(float(coefficient[k]))
             final = state if r == 0.0 else float(finals[k])
@@ -131,7 +181,7 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
             # Already within the limit: no wait (aiming inside matters only for steps that move).
             settle = math.log(step / aim) / r if (r > 0.0 and step > limit) else 0.0
             need = settle + float(hold_after[k])
-            dwell = max(shortest, need)
+            dwell = max(shortest, need) if dwells is None else float(dwells[k])
             if not dwell > 0.0:
                 raise InputError(
                     f"step {k}: needs no settling (its start is already within {tolerance}) and min_dwell "
@@ -139,7 +189,7 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
                     f"give min_dwell > 0 (for example the time one sample takes)"
                 )
             following = time + dwell
-            while following - time < dwell:  # the drive keeps instants, not dwells: never round short
+            while dwells is None and following - time < dwell:  # instants, not dwells: never round short
                 following = math.nextafter(following, math.inf)
             dwell = following - time
             delay = dwell - float(hold_after[k])
@@ -160,13 +210,15 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
 
     start_state = read_initial(initial, steps.state_unit)
     if start_state == "periodic":
-        rows, limited_by, _, time = _periodic(greedy, float(finals[-1]), coefficient, rate)
+        start_state, (rows, limited_by, _, time) = _periodic(greedy, float(finals[-1]), coefficient, rate)
     else:
         if start_state == "settled":
             if rate[0] == 0.0:
                 raise InputError("initial: 'settled' needs a first step that settles, but step 0 holds its state")
             start_state = float(finals[0])
         rows, limited_by, _, time = greedy(start_state)
+    if start_time != 0.0:
+        rows, limited_by, time = _shifted(greedy, start_state, rows, limited_by, time, start_time, start)
     drive = Drive(rows["start"].copy(), time, **steps.columns)
     table = pd.DataFrame(rows, index=pd.RangeIndex(count, name="step"))
     table["limited_by"] = limited_by
@@ -197,7 +249,9 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
         No step is shorter than this (s): the time a sample takes, or the
         fastest the scanner or relay may switch.
     start : float or str, optional
-        The first change instant (s).
+        The first change instant (s).  The plan is made in times from it, so
+        the dwells do not depend on it; a start so far from 0 that the floats
+        there cannot keep the dwells (0.125 s apart at 1e15 s) is refused.
     sample_delay : float, str or sequence, optional
         How long before the next change each sample is taken (s), one value or
         one per step: a converter's conversion or aperture time, or the
@@ -223,8 +277,8 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
     ------
     InputError
         Bad columns, a negative `min_dwell` or `sample_delay`, an unknown probe,
-        a tolerance in the wrong unit, or a step whose dwell would be 0 s (give
-        `min_dwell` > 0).
+        a tolerance in the wrong unit, a step whose dwell would be 0 s (give
+        `min_dwell` > 0), or a `start` too far from 0 for the dwells.
 
     See Also
     --------

@@ -54,8 +54,9 @@ class Derivation:
     names : DerivationNames
         Every symbol of the derivation, and how each is written (:mod:`.names`).
     symbols : dict
-        Part and source name, ``"t"`` and ``"initial"`` to their sympy symbols
-        (``names.symbols``).
+        Part and source name, ``"t"``, ``"initial"`` and ``"state"`` to their
+        sympy symbols (``names.symbols``); no two are the same symbol, whatever
+        the parts are named (see :mod:`.names`).
     state : sympy.Expr
         The state as a function of ``t`` (``names.state_function``).
     values : dict
@@ -96,8 +97,22 @@ class Derivation:
                 f"final = {self.final})")
 
     def substitute(self, expression: sp.Expr) -> sp.Expr:
-        """`expression` with the fixture's part values put in."""
-        return expression.subs(self.values)
+        """`expression` with the fixture's part values put in.
+
+        Each symbol is replaced where it stands (``xreplace``): ``subs`` would ask sympy's
+        assumptions about every subexpression, seconds on a 12-switch fixture's tau.  The
+        values go in as the exact rationals of their doubles, so terms that cancel cancel
+        exactly, and the numbers come out as floats.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> d = fo.Fixture.rc(r="10k", c="100n").derivation()
+        >>> d.substitute(d.tau), d.substitute(d.zero_state)
+        (0.00100000000000000, vin*(1 - exp(-1000.0*t)))
+        """
+        exact = expression.xreplace({symbol: sp.Rational(value) for symbol, value in self.values.items()})
+        return exact.xreplace({number: sp.Float(number) for number in exact.atoms(sp.Rational) if not number.is_Integer})
 
     def steps(self) -> list[tuple[str, str]]:
         """The derivation as (caption, LaTeX) pairs (see :func:`.steps.latex_steps`)."""

@@ -1,13 +1,18 @@
 """One symbol namespace per derivation, and how every name is written in LaTeX.
 
 Every sympy symbol a derivation uses is made here, once, by
-:func:`derivation_names`: a symbol per part and source (a switch by its
+:func:`derivation_names`: a symbol per part and source, per switch (its
 resistance in the configuration, ``k1_on`` or ``k1_off``), per probe, the state
 (a value ``v_ch`` and a function ``v_ch(t)``), the start ``v_0``, the time ``t``,
 and the quantities the steps name: ``tau`` and the Thevenin (``R_th``, ``V_th``)
-or Norton (``R_N``, ``I_N``) equivalent.  Keeping them in one place is what lets
-a name that would clash with another (a source named ``v_0``) be told apart in
-one place too.
+or Norton (``R_N``, ``I_N``) equivalent.
+
+Parts keep their names as typed.  Every other symbol is named apart from every
+part, every probe and each other: a name already taken gets a prime (``v_0'``).
+sympy symbols with the same name are the same symbol, so this is what keeps a
+source named ``v_0`` from being the start, a source ``v_c`` from being the
+state and a resistor ``k1_on`` from being switch k1's resistance, whatever the
+names; and every printed form (text, LaTeX, MathML) tells them apart too.
 
 :func:`latex_name` writes a name as the user typed it, never as sympy's name
 conventions would read it (``vcal`` is not a calligraphic v); :func:`latex_text`
@@ -29,6 +34,7 @@ if TYPE_CHECKING:
 __all__ = ["DerivationNames", "derivation_names", "latex_name", "latex_text"]
 
 
+
 @dataclass(frozen=True)
 class DerivationNames:
     """Every symbol of one derivation (make it with :func:`derivation_names`).
@@ -37,8 +43,11 @@ class DerivationNames:
     ----------
     symbols : dict of str to sympy.Symbol
         Part and source name to its symbol (a switch: its on or off resistance in
-        this configuration), then ``"t"`` and ``"initial"``; this is
+        this configuration), then ``"t"`` (the time), ``"initial"`` (the start)
+        and ``"state"`` (the state as a value); this is
         :attr:`Derivation.symbols <firstorder.symbolic.Derivation.symbols>`.
+        ``t`` and ``initial`` cannot name a part; a part named ``state`` keeps
+        that key, and the state is then under ``"state'"``.
     probes : dict of str to sympy.Symbol
         Probe name to the symbol its step is written for.
     state : sympy.Symbol
@@ -99,6 +108,9 @@ def derivation_names(netlist: "Netlist", states: tuple[bool, ...]) -> Derivation
     Returns
     -------
     DerivationNames
+        Parts and sources named as typed, then probes (a prime added where a
+        part has the name); every symbol made here is named apart from all of
+        those and from each other in the same way.
 
     Raises
     ------
@@ -115,9 +127,16 @@ def derivation_names(netlist: "Netlist", states: tuple[bool, ...]) -> Derivation
     >>> _ = fx.resistor("r_leak", "h", "gnd", "100M")
     >>> names = derivation_names(fx.netlist, (True,))
     >>> names.symbols
-    {'vdac': vdac, 'k1': k1_on, 'ch': ch, 'r_leak': r_leak, 't': t, 'initial': v_0}
+    {'vdac': vdac, 'k1': k1_on, 'ch': ch, 'r_leak': r_leak, 't': t, 'initial': v_0, 'state': v_ch}
     >>> names.state_function, names.resistance, names.equivalent
     (v_ch(t), R_th, V_th)
+
+    A source named like the start is another symbol, and the start is named apart:
+
+    >>> _ = fx.voltage_source("v_0", "ref", "gnd").resistor("r_ref", "ref", "h", "1M")
+    >>> names = derivation_names(fx.netlist, (True,))
+    >>> names.symbols["v_0"], names.start, names.symbols["v_0"] == names.start
+    (v_0, v_0', False)
 
     See Also
     --------
@@ -128,28 +147,44 @@ def derivation_names(netlist: "Netlist", states: tuple[bool, ...]) -> Derivation
         raise InputError(f"switch states: {len(states)} given for {len(switches)} switches "
                          f"{[p.name for p in switches]}; give one state per switch")
     closed = dict(zip((p.name for p in switches), states))
+    # What the user typed is written as typed; every name made here yields to it.
+    taken = {part.name for part in netlist.parts}
+
+    def reserved(preferred: str, **assumptions: bool) -> sp.Symbol:
+        name = preferred
+        while name in taken:
+            name += "'"
+        taken.add(name)
+        return sp.Symbol(name, **assumptions)
+
+    probes = {probe.name: reserved(probe.name) for probe in netlist.probes}
     symbols: dict[str, sp.Symbol] = {}
     for part in netlist.parts:
         if part.kind == "switch":
-            symbols[part.name] = sp.Symbol(f"{part.name}_{'on' if closed[part.name] else 'off'}", positive=True)
+            symbols[part.name] = reserved(f"{part.name}_{'on' if closed[part.name] else 'off'}", positive=True)
         elif part.is_source:
             symbols[part.name] = sp.Symbol(part.name, real=True)  # a level may be negative
         else:
             symbols[part.name] = sp.Symbol(part.name, positive=True)
     storage = netlist.storage
     letter = "v" if storage.kind == "capacitor" else "i"
-    t = sp.Symbol("t", nonnegative=True)
-    symbols["t"] = t
-    symbols["initial"] = sp.Symbol(f"{letter}_0", real=True)
+    t = reserved("t", nonnegative=True)
+    start = reserved(f"{letter}_0", real=True)
+    state = reserved(f"{letter}_{storage.name}", real=True)
+    # Keys beside the part names: "t" and "initial" cannot name a part (netlist.RESERVED_NAMES).
+    for key, symbol in (("t", t), ("initial", start), ("state", state)):
+        while key in symbols:
+            key += "'"
+        symbols[key] = symbol
     resistance, equivalent = ("R_th", "V_th") if storage.kind == "capacitor" else ("R_N", "I_N")
     return DerivationNames(
         symbols=symbols,
-        probes={probe.name: sp.Symbol(probe.name) for probe in netlist.probes},
-        state=sp.Symbol(f"{letter}_{storage.name}", real=True),
-        state_function=sp.Function(f"{letter}_{storage.name}")(t),
-        time_constant=sp.Symbol("tau"),
-        resistance=sp.Symbol(resistance),
-        equivalent=sp.Symbol(equivalent),
+        probes=probes,
+        state=state,
+        state_function=sp.Function(state.name)(t),
+        time_constant=reserved("tau", positive=True),
+        resistance=reserved(resistance),
+        equivalent=reserved(equivalent),
     )
 
 
@@ -191,15 +226,24 @@ def latex_name(name: str) -> str:
     '\\mathrm{vcal}'
     >>> latex_name("c")
     'c'
+    >>> latex_name("v_0'")
+    "v_{0}'"
 
     See Also
     --------
     latex_text : text (a caption) for ``\text{}``.
     DerivationNames.latex : a derivation's symbol, with ``\tau`` for its time constant.
     """
-    head, _, tail = name.partition("_")
+    # Trailing primes (a derivation's own names yield to part names with one: v_0') are set
+    # after the subscript, as primes are written by hand.
+    body = name.rstrip("'") or name
+    primes = "'" * (len(name) - len(body))
+    head, underscore, tail = body.partition("_")
     head = _escape_name(head) if len(head) == 1 else rf"\mathrm{{{_escape_name(head)}}}"
-    return f"{head}_{{{_escape_name(tail)}}}" if tail else head
+    if tail:
+        return f"{head}_{{{_escape_name(tail)}}}{primes}"
+    # A name ending in its only underscore ("a_") is not the name without it ("a").
+    return (head if not underscore else rf"\mathrm{{{_escape_name(body)}}}") + primes
 
 
 def latex_text(text: str) -> str:

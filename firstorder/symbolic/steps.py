@@ -34,7 +34,7 @@ from .names import DerivationNames, latex_name, latex_text
 if TYPE_CHECKING:
     from .derivation import Derivation
 
-__all__ = ["PowerOfE", "Step", "aligned_latex", "derivation_steps", "latex_steps", "markdown_steps",
+__all__ = ["PowerOfE", "Step", "aligned_latex", "derivation_steps", "latex_steps", "markdown_steps", "markdown_text",
            "step_latex", "to_latex"]
 
 
@@ -336,4 +336,39 @@ def markdown_steps(derivation: "Derivation") -> str:
     --------
     aligned_latex : the same steps as one LaTeX block.
     """
-    return "\n\n".join(f"**{caption}**\n\n$$ {body} $$" for caption, body in latex_steps(derivation))
+    return "\n\n".join(f"**{markdown_text(caption)}**\n\n$$ {_markdown_math(body)} $$"
+                       for caption, body in latex_steps(derivation))
+
+
+def _markdown_math(latex: str) -> str:
+    r"""LaTeX for display math in Markdown, with no ``<`` or ``>`` for an HTML parser to take as
+    a tag (a part named ``<img ...>``): MathJax and KaTeX, which draw Markdown's math, read
+    ``\lt`` and ``\gt`` as the same signs.
+
+    >>> _markdown_math(r"\mathrm{<b>} = 1")
+    '\\mathrm{\\lt b\\gt } = 1'
+    """
+    return latex.replace("<", r"\lt ").replace(">", r"\gt ")
+
+
+# A caption holds part names, which may hold markup ("<img ...>") or Markdown's own marks.
+_MARKDOWN_SPECIALS = {c: "\\" + c for c in "\\`*_[]|~#"}
+_MARKDOWN_SPECIALS.update({"<": "&lt;", ">": "&gt;", "&": "&amp;"})
+
+
+def markdown_text(text: str) -> str:
+    r"""`text` as Markdown that shows it as typed: no markup, no emphasis, no links.
+
+    An underscore inside a word (``c_hold``) stays as it is: Markdown never reads one
+    there as emphasis.
+
+    Examples
+    --------
+    >>> markdown_text("Probe c_hold <b>*k1* _x")
+    'Probe c_hold &lt;b&gt;\\*k1\\* \\_x'
+    """
+    return "".join(
+        "_" if c == "_" and 0 < k < len(text) - 1 and text[k - 1].isalnum() and text[k + 1].isalnum()
+        else _MARKDOWN_SPECIALS.get(c, c)
+        for k, c in enumerate(text)
+    )

@@ -15,7 +15,7 @@ in a buffer, leakage).  scipy is imported inside the functions that use it.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -86,6 +86,25 @@ class _SegmentResult:
     @property
     def has_tau(self) -> bool:
         return self.status == "fitted"
+
+    def scaled(self, scale: float) -> "_SegmentResult":
+        """The result for values `scale` times those fitted (tau is unchanged)."""
+        return replace(
+            self, start_value=self.start_value * scale, final=self.final * scale,
+            final_stderr=self.final_stderr * scale, rms_residual=self.rms_residual * scale,
+            noise=self.noise * scale, curve=None if self.curve is None else self.curve * scale,
+        )
+
+
+def _scale_of(values: np.ndarray) -> float:
+    """The power of two at or above the largest finite ``|values|`` (1 if there is none).
+
+    Fits run on ``values / scale``: sums of squares of values near 1e-160 underflow
+    to 0 and near 1e155 overflow, and a power of two scales every value exactly.
+    """
+    finite = np.abs(values[np.isfinite(values)])
+    largest = float(finite.max()) if finite.size else 0.0
+    return math.ldexp(1.0, math.frexp(largest)[1]) if largest > 0.0 else 1.0
 
 
 def _fit_exponential(x: np.ndarray, y: np.ndarray, tau_guess: float):
@@ -159,7 +178,14 @@ def _two_exponential_ssr(x: np.ndarray, y: np.ndarray, tau: float, longest: floa
 
 
 def _fit_segment(x: np.ndarray, y: np.ndarray, duration: float, spacing: float) -> _SegmentResult:
-    """Fit one segment; `x` is the time since the change (s)."""
+    """Fit one segment; `x` is the time since the change (s).  Scale-free: the fit runs on
+    the values divided by their scale (:func:`_scale_of`), and its levels are scaled back."""
+    scale = _scale_of(y)
+    return _fit_normalised(x, y / scale, duration, spacing).scaled(scale)
+
+
+def _fit_normalised(x: np.ndarray, y: np.ndarray, duration: float, spacing: float) -> _SegmentResult:
+    """Fit one segment whose values are at most 1 in size."""
     n = x.size
     if n < MIN_POINTS:
         return _SegmentResult(f"not fitted: too few points ({n}; at least {MIN_POINTS} needed)", n)
@@ -298,6 +324,9 @@ def _fit_offset(trace: Trace, drive: "Drive", taus: np.ndarray, finals: np.ndarr
         inside &= ~skip[np.clip(segment, 0, used - 1)]
         free_tau, free_final = free_tau & ~skip, free_final & ~skip
     t, y = trace.times[inside], trace.values[inside]
+    # Levels in units of the values' scale, as in _fit_segment: the delay does not depend on it.
+    scale = _scale_of(y)
+    y, initial, finals = y / scale, initial / scale, finals / scale
     reach = 0.5 * float(drive.durations.min())
     tau_index, final_index = np.flatnonzero(free_tau), np.flatnonzero(free_final)
     if tau_index.size == 0:

@@ -223,9 +223,41 @@ class TestPlanDwells:
     def test_periodic_with_every_step_holding_is_refused(self):
         fx = (fo.Fixture().voltage_source("vin", "in", "gnd").switch("k", "in", "out")
               .capacitor("ch", "out", "gnd", "1n"))
-        with pytest.raises(InputError, match="initial: 'periodic' has no solution"):
+        # Every step holds: any start repeats, so "periodic" names no one start (not "no solution").
+        with pytest.raises(InputError, match="initial: 'periodic' names no one start.*any start repeats"):
             fo.plan_dwells(fx, {"vin": [1.0, 2.0], "k": [0, 0]}, fo.Tolerance.absolute("1m"), initial="periodic",
                            min_dwell="1u")
+
+    @pytest.mark.parametrize("start", [1e3, -1e4, 1e5])
+    @pytest.mark.parametrize("initial", [0.0, "periodic"])
+    def test_dwells_do_not_depend_on_the_start(self, start, initial):
+        # Planned in times from the first change: a later start moves the instants and
+        # nothing else, so each dwell is the start-0 dwell to the spacing of floats there.
+        fx = self.scanner()
+        levels = {"v0": [1.0, 1.0, 1.0, 1.0], "v1": [4.0] * 4, "v2": [-2.0] * 4,
+                  "k0": [1, 0, 0, 1], "k1": [0, 1, 0, 0], "k2": [0, 0, 1, 0]}
+        tolerance = fo.Tolerance.lsb(bits=14, span=5.0)
+        options = dict(initial=initial, min_dwell="1u", sample_delay="200n")
+        at_zero = fo.plan_table(fx, levels, tolerance, **options)
+        moved = fo.plan_table(fx, levels, tolerance, start=start, **options)
+        drive = fo.plan_dwells(fx, levels, tolerance, start=start, **options)
+        spacing = np.spacing(abs(start) + 1.0)
+        assert np.abs(moved["dwell"] - at_zero["dwell"]).max() <= 4 * spacing
+        assert np.abs(drive.durations - at_zero["dwell"].to_numpy()).max() <= 4 * spacing
+        assert drive.start == start and (drive.durations >= at_zero["dwell"].to_numpy()).all()
+        assert moved.attrs["total_time"] == pytest.approx(at_zero.attrs["total_time"], abs=8 * spacing)
+        checked = fx.respond(drive, initial=options["initial"]).settling(
+            tolerance, sample_delay=moved["sample_delay"].to_numpy())
+        assert checked["ok"].all()
+
+    @pytest.mark.parametrize("start", [1e12, 1e15])
+    def test_a_start_where_floats_are_coarser_than_the_dwells_is_refused(self, start):
+        # At 1e15 s floats are 0.125 s apart: the 8.5 ms dwells cannot be kept, and a plan
+        # of 0.125 s dwells would be silently 15 times slower than the one asked for.
+        fx = fo.Fixture.rc(r="1k", c="1u")
+        with pytest.raises(InputError, match=r"start: .* too far from 0 s .* apart"):
+            fo.plan_dwells(fx, {"vin": [5.0, 5.0, 0.0]}, fo.Tolerance.absolute("1m"), min_dwell="2m",
+                           start=start)
 
     @pytest.mark.parametrize("arguments, message", [
         (dict(levels={"vin": [1.0, 1.0]}), "step 1"),

@@ -12,7 +12,7 @@ from builders import switched_fixture
 import firstorder as fo
 from firstorder.errors import InputError
 from firstorder.settling import SAMPLE_COLUMNS, TABLE_COLUMNS, settling_table
-from firstorder.settling.table import sample_delays, table_summary
+from firstorder.settling.table import constant_probe, sample_delays, table_summary
 
 GRID = 4001  # points per segment in the brute-force searches
 
@@ -275,6 +275,52 @@ class TestSettlingTable:
 
 
 # -- Response.summary ---------------------------------------------------------------------------------
+
+def relay_cut_fixture() -> fo.Fixture:
+    """A source, a capacitor behind 52 GΩ, and a relay k1 that cuts off a far side (n5, n6) whose
+    parts span 22 mΩ to 490 GΩ (values drawn at random once; an invented scenario)."""
+    fx = fo.Fixture()
+    fx.voltage_source("v1", "n1", "gnd")
+    for name, a, b, value in [
+        ("r0", "n1", "n2", 52223527736.692444), ("r1", "n2", "n3", 1.052350427728936),
+        ("r2", "n3", "n4", 491606330515.90155), ("r3", "n5", "n6", 96.36915496854003),
+        ("r4", "n6", "gnd", 202607154906.23093), ("r5", "n1", "n6", 0.022097368480340544),
+        ("r6", "n5", "n6", 18923026048.598892), ("r7", "n4", "n1", 119817.01431467895),
+    ]:
+        fx.resistor(name, a, b, value)
+    fx.switch("k1", "n4", "n5")
+    fx.capacitor("c", "n2", "gnd", 1e-6)
+    # With k1 open, n5 hangs on n6 through r3 and r6 and nothing else: exactly 0 V between them.
+    fx.probe("v_far", node="n6", reference="n5")
+    return fx
+
+
+class TestStructurallyConstant:
+    def test_a_probe_the_structure_holds_still_settles_at_once(self):
+        # The numeric rows leave 1e-60 of the state where the structure says 0; a relative
+        # tolerance of that noise was never met ("never settles" in a 1000 s segment).
+        fx = relay_cut_fixture()
+        res = fx.respond(fo.Drive([0, 1e-3], end=1e3, v1=[1, 2], k1=[1, 0]))
+        table = res.settling(fo.Tolerance.relative(1e-3), probe="v_far")
+        assert table.loc[1, "settled"] and table.loc[1, "settle_time"] == 0.0
+        assert table.loc[1, "final"] == table.loc[1, "start_value"] and table.loc[1, "tolerance"] == 0.0
+        # The closed relay's segment is judged as before: it does move with the state.
+        assert table.loc[0, "final"] != table.loc[0, "start_value"]
+
+    def test_constant_probe_is_read_from_the_structure(self):
+        fx = relay_cut_fixture()
+        res = fx.respond(fo.Drive([0, 1e-3, 2e-3], end=3e-3, v1=[1, 2, 3], k1=[1, 0, 1]))
+        assert constant_probe(res.segments, fx.netlist, "v_far").tolist() == [False, True, False]
+        # Any values of the same structure give the same answer (it never reads them).
+        other = fx.with_values(r3="1", r6="1")
+        assert constant_probe(other.respond(res.drive).segments, other.netlist, "v_far").tolist() == [False, True, False]
+
+    def test_a_plan_for_such_a_probe_does_not_wait_for_noise(self):
+        fx = relay_cut_fixture()
+        table = fo.plan_table(fx, {"v1": [1.0, 2.0], "k1": [0, 0]}, fo.Tolerance.relative(1e-3), probe="v_far",
+                              min_dwell="1u", initial=0.0)
+        assert (table["dwell"] == 1e-6).all() and (table["limited_by"] == "min_dwell").all()
+
 
 class TestSummary:
     def test_summary_agrees_with_the_table(self):

@@ -158,6 +158,78 @@ class TestRandomNetworks:
         assert checked  # every seed here builds at least one solvable configuration
 
 
+#: Names a derivation makes for itself, and near misses of them: parts and probes named so.
+ADVERSARIAL = ["v_0", "v_c", "i_0", "i_l", "x_0", "k1_on", "k1_off", "tau", "R_th", "V_th", "R_N", "I_N",
+               "state", "v_0'", "t'", "tau'", "c_5%", "c%s", "r_{x}"]
+
+
+class TestAdversarialNames:
+    """Random networks whose parts and probes are named like the derivation's own symbols,
+    derived, given numbers and held against the numeric path (network.reduce, respond)."""
+
+    @pytest.mark.parametrize("seed", range(12))
+    def test_symbolic_matches_numeric_whatever_the_names(self, seed):
+        rng = np.random.default_rng(100 + seed)
+        names = iter(rng.permutation(ADVERSARIAL).tolist())
+        inductor = bool(seed % 3 == 2)
+        # A capacitor "0" has the state v_0, the start's name; "on" the state v_on beside a switch "v".
+        storage = str(rng.choice(["0", "c", "l", "th", "on"]))
+        nodes = ["gnd", "n1", "n2", "n3", "n4"]
+        fx = fo.Fixture()
+        sources = [next(names), next(names)]
+        fx.voltage_source(sources[0], "n1", "gnd")
+        fx.current_source(sources[1], str(rng.choice(nodes[2:])), "gnd")
+        pairs = [("n1", "n2"), ("n2", "n3"), *(rng.choice(nodes, size=2, replace=False) for _ in range(3))]
+        for a, b in pairs:  # a chain through every node, then three resistors anywhere
+            fx.resistor(next(names), str(a), str(b), float(10 ** rng.uniform(1, 5)))
+        fx.switch("k1", "n2", "n4", r_on=float(rng.choice([1.0, 20.0])), r_off=float(rng.choice([np.inf, 1e7])))
+        fx.resistor(next(names), "n4", "n3", 150.0)
+        if inductor:
+            fx.inductor(storage, "n4", "gnd", 1e-3)
+        else:
+            fx.capacitor(storage, "n4", "gnd", 1e-6)
+        fx.probe(next(names), node="n2", reference="n3")
+        fx.probe(next(names), through="k1")
+        checked = 0
+        for closed in (True, False):
+            try:
+                layout, reduced = fx.configuration((closed,))
+            except (fo.TopologyError, np.linalg.LinAlgError):
+                continue
+            d = fx.derivation(k1=closed)
+            n = d.names
+            symbols = [*d.symbols.values(), *n.probes.values(), n.time_constant, n.resistance, n.equivalent]
+            assert len(set(symbols)) == len({x.name for x in symbols}) == len(symbols)
+            # Reference: the numeric path (modified nodal analysis in numpy), which names nothing.
+            tau = d.substitute(d.tau)
+            if reduced.tau == np.inf:
+                assert tau == sp.oo
+                continue
+            assert float(tau) == pytest.approx(reduced.tau, rel=1e-9)
+            levels = {d.symbols[p.name]: float(v) for p, v in zip(fx.sources, rng.uniform(-2, 2, 2))}
+            start = float(rng.uniform(-1, 1))
+            numbers = {**levels, n.start: start}
+            final = float(d.substitute(d.final).subs(numbers))
+            assert final == pytest.approx(float(np.dot(reduced.gain, list(levels.values()))), rel=1e-9, abs=1e-12)
+            excitation = [n.state, *(d.symbols[p.name] for p in fx.sources)]
+            for probe in fx.probes:
+                expression = d.substitute(d.probes[probe.name])
+                got = [float(expression.diff(e)) for e in excitation]
+                np.testing.assert_allclose(got, probe_row(layout, fx.netlist, reduced, probe), rtol=1e-9, atol=1e-12,
+                                           err_msg=f"seed {seed}, k1 {closed}, {probe.name}")
+            # The response with numbers put in, against respond on a one-segment drive.
+            drive = fo.Drive([0.0], end=3 * reduced.tau, k1=[int(closed)],
+                             **{p.name: [levels[d.symbols[p.name]]] for p in fx.sources})
+            response = fx.respond(drive, initial=start)
+            when = 0.7 * reduced.tau
+            for part, expected in (("total", response.total), ("natural", response.natural)):
+                expression = d.zero_input + d.zero_state if part == "total" else d.natural
+                value = float(d.substitute(expression).subs({**numbers, n.t: when}))
+                assert value == pytest.approx(float(expected(when)), rel=1e-9, abs=1e-12), part
+            checked += 1
+        assert checked
+
+
 class TestCache:
     def test_derived_once_per_structure(self, monkeypatch):
         fx = relay_fixture()

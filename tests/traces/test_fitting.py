@@ -95,6 +95,36 @@ class TestFitTrace:
                                        np.sqrt(np.diag(covariance))[1:], rtol=1e-4)
             assert row["points"] == x.size
 
+    @pytest.mark.parametrize("scale", [1e-160, 1e-30, 1e30, 1e155])
+    def test_fit_is_scale_free(self, scale):
+        # The same capture in other units (values times `scale`): the same tau and the
+        # levels times `scale`.  At 1e-160 the sums of squares underflowed (ZeroDivisionError),
+        # at 1e155 they overflowed ("no step").
+        drive = fo.Drive.steps([(0, 0.5), ("2m", 3.0), ("5m", -1.0), ("7m", 0.2)], end="10m")
+        model = fo.Fixture.rc(r="470", c="2.2u").respond(drive, initial=0.5)
+        t = np.arange(0.0, 10e-3, 10e-6)
+        values = model.total(t) + np.random.default_rng(5).normal(0.0, 2e-3, t.size)
+        unit = fo.fit_trace(fo.Trace.from_arrays(t, values), drive).table
+        scaled = fo.fit_trace(fo.Trace.from_arrays(t, values * scale), drive).table
+        assert np.isfinite(unit["tau"][1:]).all()  # segment 0 is flat: no tau (NaN in both)
+        np.testing.assert_allclose(scaled["tau"], unit["tau"], rtol=1e-9)  # NaN matches NaN
+        np.testing.assert_allclose(scaled["tau_stderr"], unit["tau_stderr"], rtol=1e-6)
+        for column in ("start_value", "final", "final_stderr", "rms_residual", "noise"):
+            np.testing.assert_allclose(scaled[column] / scale, unit[column], rtol=1e-9, err_msg=column)
+        assert list(scaled["first_order"]) == list(unit["first_order"])
+
+    def test_trigger_delay_is_scale_free(self):
+        period = 10e-6
+        drive = fo.Drive.steps([(0, 0.0), ("1m", 1.0), ("4m", 0.3)], end="8m")
+        model = fo.Fixture.rc(r="1k", c="1u").respond(drive)
+        t = np.arange(0.0, 8e-3, period)
+        values = model.total(np.clip(t - 3.37 * period, 0.0, None)) + np.random.default_rng(8).normal(0, 1e-3, t.size)
+        unit = fo.fit_trace(fo.Trace.from_arrays(t, values), drive, offset="fit")
+        for scale in (1e-160, 1e155):
+            scaled = fo.fit_trace(fo.Trace.from_arrays(t, values * scale), drive, offset="fit")
+            assert scaled.offset == pytest.approx(unit.offset, rel=1e-6)
+            assert scaled.tau == pytest.approx(unit.tau, rel=1e-6)
+
     def test_two_exponential_tail_is_flagged(self):
         # tau 1 ms with 5 % of the step in a 50 ms tail (the case), 60 dB.
         drive = fo.Drive.steps([(0, 0.0), ("1m", 1.0)], end="151m")
