@@ -303,6 +303,21 @@ class Response:
         return self._boundary("total")
 
     # -- evaluation -------------------------------------------------------------------------
+    def read_times(self, t: Any) -> np.ndarray:
+        """`t` read as times in seconds (any shape; text in engineering notation and
+        timedelta64 too), each checked to lie within the drive.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> res = fo.Fixture.rc("1k", "1u").respond(fo.Drive([0], end="2m", vin=[1.0]))
+        >>> res.read_times(["1m", 0.002])
+        array([0.001, 0.002])
+        """
+        array = self._times(t)
+        self._check_times(array.reshape(-1), is_sorted=False, no_nan=False)
+        return array
+
     def _times(self, t: Any) -> np.ndarray:
         """`t` as a float array (:meth:`_check_times` checks the values)."""
         if type(t) is float or (isinstance(t, np.ndarray) and t.dtype.kind in "fiu"):

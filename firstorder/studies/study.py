@@ -23,7 +23,7 @@ import numpy as np
 from .. import engine
 from ..drive import MEMORY_BUDGET
 from ..errors import InputError
-from ..response import read_initial
+from ..response import COMPONENTS, read_initial
 from ..segments import Segments
 from ..settling.table import check_tolerance, check_unit, sample_delays
 from ..units import format_value, shown
@@ -193,10 +193,12 @@ class Study:
         self._decay, self._growth = engine.decay_factors(durations.ravel(), self._rate.ravel())
         self._decay = self._decay.reshape(self._rate.shape)
         self._growth = self._growth.reshape(self._rate.shape)
-        start = self._starts(initial, source_final)
-        self._boundary = engine.relaxation_scan(self._decay, self._growth, source_final, start)
+        self._source_final = source_final
+        self._start = self._starts(initial, source_final)
+        self._boundary = engine.relaxation_scan(self._decay, self._growth, source_final, self._start)
         self._final = np.where(self._holds, self._boundary[:, :-1], source_final)
         self._probes: dict[str, tuple[np.ndarray, np.ndarray, str]] = {}
+        self._scans: dict[str, tuple[np.ndarray, np.ndarray]] = {"total": (self._boundary[:, :-1], self._final)}
 
     # -- the units --------------------------------------------------------------------------
     @property
@@ -305,8 +307,10 @@ class Study:
     def evaluate(self, t: Any, component: str = "total", probe: str | None = None) -> np.ndarray:
         """(units, len(t)): every unit's `component` (of the state, or of `probe`) at times
         `t`, each row what ``study.unit(k).evaluate(t, (component,), probe)`` gives."""
-        times = np.asarray(self.nominal.evaluate(t, (component,), probe)[component] * 0.0 + _as_times(t))
-        flat = times.reshape(-1)  # checked by the nominal unit's evaluation just above
+        if component not in COMPONENTS:
+            raise InputError(f"component: {shown(component)} is not one of {list(COMPONENTS)}")
+        times = self.nominal.read_times(t)
+        flat = times.reshape(-1)
         need = self.units * flat.size * 4 * 8
         if need > MEMORY_BUDGET:
             raise InputError(f"t: {flat.size:,} times for {self.units:,} units would need about "
@@ -382,6 +386,16 @@ class Study:
             segments = self.nominal.segments
             return (segments.state_unit, f"the state of {segments.storage_kind} '{segments.storage_name}'",
                     state_start, self._final)
+        gain, offset, unit = self._probe_rows(probe)
+        start = gain * state_start + offset
+        # A probe is c*x + offset within a segment: it moves by c times the state's step.
+        final = start + gain * (self._final - state_start)
+        return unit, f"probe '{probe}'", start, final
+
+
+    def _probe_rows(self, probe: str) -> tuple[np.ndarray, np.ndarray, str]:
+        """(units, n) each: the probe's state coefficient and its offset from the sources,
+        and its unit (the probe is ``gain * x + offset`` within a segment)."""
         if probe not in self._probes:
             the_probe = self.nominal.segments.probe(probe)  # an InputError naming the probes
             gains, offsets = [], []
@@ -390,11 +404,19 @@ class Study:
                 gains.append(rows[:, 0])
                 offsets.append(np.einsum("ij,ij->i", rows[:, 1:], segments.levels))  # as Response does
             self._probes[probe] = (np.stack(gains), np.stack(offsets), the_probe.unit)
-        gain, offset, unit = self._probes[probe]
-        start = gain * state_start + offset
-        # A probe is c*x + offset within a segment: it moves by c times the state's step.
-        final = start + gain * (self._final - state_start)
-        return unit, f"probe '{probe}'", start, final
+        return self._probes[probe]
+
+    def _component_scan(self, key: str) -> tuple[np.ndarray, np.ndarray]:
+        """(units, n) each: the state component `key` just after each change, and the value
+        it heads for in each segment (its held value where the segment holds)."""
+        if key not in self._scans:
+            if key == "zero_input":  # from the start, every source at zero
+                target, start = np.zeros_like(self._source_final), self._start
+            else:  # zero_state: from rest, the sources as scheduled
+                target, start = self._source_final, np.zeros(self.units)
+            boundary = engine.relaxation_scan(self._decay, self._growth, target, start)
+            self._scans[key] = (boundary[:, :-1], np.where(self._holds, boundary[:, :-1], target))
+        return self._scans[key]
 
 
 def clopper_pearson(passing: int, units: int, confidence: float) -> tuple[float, float]:

@@ -219,3 +219,42 @@ class TestBadArguments:
             fx.study(fo.Drive([0], end="1m", vin=[1.0]), Spread({"c": "1%"}), units=5, seed=-1)
         with pytest.raises(InputError, match="spread q"):
             fx.study(fo.Drive([0], end="1m", vin=[1.0]), Spread({"q": "1%"}), units=5, seed=1)
+
+
+class TestCurves:
+    """Every unit's curve is the hand-built unit's, bit for bit; the envelope's edges are
+    order statistics of them (checked against sorting every unit)."""
+
+    @pytest.mark.parametrize("component", ["total", "zero_input", "zero_state", "forced", "natural"])
+    @pytest.mark.parametrize("probe", [None, "v_b", "i_rs"])
+    def test_each_row_is_the_units_own_curve(self, study, component, probe):
+        drive = general_drive()
+        t = np.linspace(drive.start, drive.end, 333)
+        lot = study.evaluate(t, component, probe)
+        for k in (0, 17, 299):
+            alone = study.unit(k).evaluate(t, (component,), probe)[component]
+            assert np.array_equal(lot[k], alone), (k, component, probe)
+
+    def test_a_long_grid_too(self, study):
+        drive = general_drive()
+        t = np.linspace(drive.start, drive.end, 3000)  # past the short-grid search: run lengths alone
+        lot = study.evaluate(t)
+        assert np.array_equal(lot[5], study.unit(5).total(t))
+
+    def test_the_envelope_holds_the_central_fraction(self, study):
+        drive = general_drive()
+        t = np.linspace(drive.start, drive.end, 50)
+        low, high = study.envelope(t, fraction=0.9)
+        ordered = np.sort(study.evaluate(t), axis=0)
+        tail = math.floor(0.05 * study.units)  # 15 units below, 15 above
+        assert np.array_equal(low, ordered[tail]) and np.array_equal(high, ordered[-1 - tail])
+        inside = ((study.evaluate(t) >= low) & (study.evaluate(t) <= high)).mean(axis=0)
+        assert (inside >= 0.9).all()
+
+    def test_bad_component_fraction_and_times(self, study):
+        with pytest.raises(InputError, match="component: 'ripple'"):
+            study.evaluate([0.0], "ripple")
+        with pytest.raises(InputError, match="fraction"):
+            study.envelope([0.0], fraction=1.5)
+        with pytest.raises(InputError, match="outside the drive"):
+            study.evaluate([-1.0])
