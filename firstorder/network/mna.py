@@ -98,8 +98,9 @@ def solve(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]], roun
 
 
 def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
-               rounds: int = 40) -> tuple[np.ndarray, np.ndarray]:
-    """The solution of the exact system as ``high + low`` (double-double), see :func:`solve`.
+               rounds: int = 40) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The solution of the exact system as ``high + low`` (double-double), see :func:`solve`,
+    and a bound on the error of each entry of the pair (entries below it are set to 0).
 
     A node can join a 1 mΩ path and a 1 TΩ leakage: rounding the diagonal sum
     1000 + 1e-12 S, and elimination in double precision, leave the result a few
@@ -116,7 +117,7 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
     Examples
     --------
     >>> third = ExactSum((3.0,))
-    >>> high, low = solve_pair([[third]], [[ExactSum((1.0,))]])
+    >>> high, low, bound = solve_pair([[third]], [[ExactSum((1.0,))]])
     >>> float(high[0, 0]), abs(float(low[0, 0])) < 1e-16
     (0.3333333333333333, True)
     """
@@ -132,6 +133,14 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
     ends = np.cumsum(counts).tolist()
     starts = [e - c for e, c in zip(ends, counts)]
     rhs = [[B_terms[i][j].terms for j in range(B.shape[1])] for i in range(B.shape[0])]
+    # What an entry of the pair can be trusted to: the residual of a converged pair is a
+    # rounding of the terms that form it, |r| <~ 2**-104 (|A| |z| + |B|), and the error it
+    # leaves is |A^-1| times that (a componentwise bound).  An entry below it cannot be told
+    # from zero: a coefficient that is 0 exactly (a source that cannot reach a node) would
+    # otherwise stay as 1e-50 noise and become a gain where there is none.
+    magnitude = np.abs(np.linalg.inv(A))
+    abs_A = np.array([[math.fsum(abs(t) for t in entry.terms) for entry in row] for row in A_terms])
+    abs_B = np.array([[math.fsum(abs(t) for t in entry.terms) for entry in row] for row in B_terms])
     a = values[:, None]
     a_high, a_low = _split(a)
     for _ in range(rounds):
@@ -154,9 +163,19 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
         virtual = new_high - high
         low = (high - (new_high - virtual)) + (total - virtual)
         high = new_high
-        if np.all(np.abs(correction) <= 2.0 ** -100 * np.abs(high)):
+        bound = _TRUSTED * (magnitude @ (abs_A @ np.abs(high) + abs_B))
+        if np.all(np.abs(correction) <= np.maximum(2.0 ** -100 * np.abs(high), bound)):
             break
-    return high, low
+    else:
+        bound = _TRUSTED * (magnitude @ (abs_A @ np.abs(high) + abs_B))
+    noise = np.abs(high) <= bound
+    high[noise] = 0.0
+    low[noise] = 0.0
+    return high, low, bound
+
+
+#: Relative rounding a converged pair keeps (2**-104), with a margin of 16 for the bound.
+_TRUSTED = 2.0 ** -100
 
 
 def _factor(A: np.ndarray):
