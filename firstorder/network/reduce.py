@@ -16,7 +16,7 @@ import numpy as np
 
 from ..errors import InputError, TopologyError
 from ..netlist import GROUND, Netlist, Probe
-from .mna import ExactSum, solve_pair, stamp
+from .mna import ExactSum, generic_solution, solve_pair, stamp
 from .topology import Layout
 
 __all__ = ["Reduced", "across_row", "node_row", "probe_row", "reduce"]
@@ -47,13 +47,10 @@ class Reduced:
     #: What rounding `solution` to floats dropped (``solution + low`` is the solution to
     #: about 32 digits): differences of unknowns are formed from both (:func:`across_row`).
     low: np.ndarray | None = field(default=None, compare=False, repr=False)
-    #: A bound on the error of each entry of ``solution + low``.
-    bound: np.ndarray | None = field(default=None, compare=False, repr=False)
+    #: The solution for generic conductances modulo two primes (:func:`~.mna.generic_solution`):
+    #: which coefficients and differences are zero by structure.
+    generic: np.ndarray | None = field(default=None, compare=False, repr=False)
 
-
-#: Relative size below which a difference of two (double-double) MNA coefficients is
-#: rounding, not a value: the pair carries about 32 digits.
-_CANCELLED = 2.0 ** -100
 
 #: Conductances whose exact products (Veltkamp splitting scales by 2**27 + 1) stay finite
 #: and normal: 1/R outside this range cannot be carried exactly.
@@ -104,16 +101,25 @@ def reduce(layout: Layout, netlist: Netlist) -> Reduced:
 
     A, B = stamp(layout, conductance_of, ExactSum(), ExactSum((1.0,)), 1 + sources)
     if layout.size:
-        solution, low, bound = solve_pair(A, B)
+        solution, low = solve_pair(A, B)
+        generic = layout.memo.get("generic", False)
+        if generic is False:
+            generic = layout.memo["generic"] = generic_solution(layout, 1 + sources)
+        if generic is not None:
+            # Coefficients zero whatever the values are zero, not the solve's 1e-50 noise.
+            structural = (generic == 0).all(axis=0)
+            solution[structural] = 0.0
+            low[structural] = 0.0
     else:
-        solution = low = bound = np.zeros((0, 1 + sources))
+        solution = low = np.zeros((0, 1 + sources))
+        generic = None
     storage = netlist.storage
     if layout.holds:
         # Which sources move a held state is structural (Layout.held_by): exact small integers,
         # never a rounding residue of the solve mistaken for a drive.
         drift = np.asarray(layout.held_by[1:], dtype=float) / storage.value
         return _checked(Reduced(tau=np.inf, gain=np.zeros(sources), drift=drift, solution=solution,
-                                resistance=np.inf if layout.storage_kind == "capacitor" else 0.0, low=low, bound=bound), netlist)
+                                resistance=np.inf if layout.storage_kind == "capacitor" else 0.0, low=low, generic=generic), netlist)
     if layout.storage_kind == "capacitor":
         # Current through the capacitor, a -> b, as a function of [x, u].
         row = layout.branch_row(storage.name)
@@ -122,12 +128,12 @@ def reduce(layout: Layout, netlist: Netlist) -> Reduced:
         # Voltage across the inductor, v(a) - v(b), from the double-double solution (a
         # coefficient that cancels within the pair's error is zero: a supply that cannot
         # drive the coil once its switch opens would otherwise leave a final current).
-        flow = _across(solution, low, bound, layout, storage.a, storage.b)
+        flow = _across(solution, low, generic, layout, storage.a, storage.b)
     rate_state, rate_sources = float(flow[0]), flow[1:]
     if rate_state == 0.0:
         return _checked(Reduced(tau=np.inf, gain=np.zeros(sources), drift=rate_sources / storage.value,
                                 solution=solution,
-                                resistance=np.inf if layout.storage_kind == "capacitor" else 0.0, low=low, bound=bound), netlist)
+                                resistance=np.inf if layout.storage_kind == "capacitor" else 0.0, low=low, generic=generic), netlist)
     resistance = -1.0 / rate_state if layout.storage_kind == "capacitor" else -rate_state
     # C * R_th and L / R_N round the way a hand calculation does (10k * 100n is 1 ms exactly).
     tau = storage.value * resistance if layout.storage_kind == "capacitor" else storage.value / resistance
@@ -138,7 +144,7 @@ def reduce(layout: Layout, netlist: Netlist) -> Reduced:
         solution=solution,
         resistance=float(resistance),
         low=low,
-        bound=bound,
+        generic=generic,
     ), netlist)
 
 
@@ -161,15 +167,18 @@ def _checked(reduced: Reduced, netlist: Netlist) -> Reduced:
         f"and ratios stay within 1e-300 to 1e300")
 
 
-def _across(high: np.ndarray, low: np.ndarray, bound: np.ndarray, layout: Layout, a: str, b: str) -> np.ndarray:
+def _across(high: np.ndarray, low: np.ndarray, generic: np.ndarray | None, layout: Layout, a: str,
+            b: str) -> np.ndarray:
     """v(a) - v(b) over ``[x, u...]`` from the pair ``high + low``: the high parts cancel
     exactly where they are close (Sterbenz), so the difference keeps its own digits; a
-    difference within the error of the pair is zero."""
-    high_a, high_b = node_row(high, layout, a), node_row(high, layout, b)
-    difference = (high_a - high_b) + (node_row(low, layout, a) - node_row(low, layout, b))
-    noise = (node_row(bound, layout, a) + node_row(bound, layout, b)
-             + _CANCELLED * np.maximum(np.abs(high_a), np.abs(high_b)))
-    difference[np.abs(difference) <= noise] = 0.0
+    difference that is zero by structure (`generic`) is 0."""
+    difference = ((node_row(high, layout, a) - node_row(high, layout, b))
+                  + (node_row(low, layout, a) - node_row(low, layout, b)))
+    if generic is not None:
+        same = np.ones(difference.shape, dtype=bool)
+        for g in generic:
+            same &= node_row(g, layout, a) == node_row(g, layout, b)
+        difference[same] = 0.0
     return difference
 
 
@@ -188,10 +197,8 @@ def across_row(layout: Layout, reduced: Reduced, a: str, b: str) -> np.ndarray:
     >>> across_row(layout, reduce(layout, netlist), "in", "out")  # 1 mΩ of 1 TΩ: 1e-15 of the source
     array([-1.e+00,  1.e+00])
     """
-    zeros = np.zeros_like(reduced.solution)
-    low = reduced.low if reduced.low is not None else zeros
-    bound = reduced.bound if reduced.bound is not None else zeros
-    return _across(reduced.solution, low, bound, layout, a, b)
+    low = reduced.low if reduced.low is not None else np.zeros_like(reduced.solution)
+    return _across(reduced.solution, low, reduced.generic, layout, a, b)
 
 
 def node_row(solution: np.ndarray, layout: Layout, node: str) -> np.ndarray:

@@ -126,6 +126,8 @@ class Layout:
     islands: dict[str, str] = field(default_factory=dict, compare=False)
     held_by: tuple[int, ...] = ()
     undefined_currents: frozenset = frozenset()
+    #: Value-independent results worked out once per layout (the generic solution, say).
+    memo: dict = field(default_factory=dict, compare=False, repr=False)
 
     @property
     def size(self) -> int:
