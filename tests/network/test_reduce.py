@@ -497,3 +497,22 @@ class TestRandomSwitchedNetworks:
         assert red.resistance == pytest.approx(r_th, rel=1e-7)
         assert red.gain[0] == pytest.approx(float(d @ np.linalg.solve(G, by_volt)), rel=1e-7, abs=1e-10)
         assert red.gain[1] == pytest.approx(float(d @ np.linalg.solve(G, by_amp)), rel=1e-7, abs=1e-10 * r_th)
+
+
+class TestUnrepresentableValues:
+    """Values whose products or ratios leave double precision are refused, naming the part."""
+
+    @pytest.mark.parametrize("r, c", [(1e-300, 1e-300), (1e300, 1e300), (1e-200, 1e-200)])
+    def test_tau_that_underflows_or_overflows_is_refused_naming_the_parts(self, r, c):
+        # Handbook tau = R C: 1e-600 s or 1e600 s has no double (IEEE 754 range 1e-308..1e308).
+        with pytest.raises(InputError, match=r"\b(r|c)\b.*cannot be"):
+            fo.Fixture.rc(r, c).tau
+
+    @pytest.mark.parametrize("r", [5e-324, 1e-310])
+    def test_resistance_whose_conductance_overflows_is_refused_naming_the_resistor(self, r):
+        with pytest.raises(InputError, match=r"^r: .* Ω cannot be computed with"):
+            fo.Fixture.rc(r, 1e-6).tau
+
+    def test_wide_but_representable_values_still_reduce(self):
+        # tau = R C exactly as a hand calculation rounds it (handbook).
+        assert fo.Fixture.rc(1e-100, 1e-100).tau == 1e-100 * 1e-100
