@@ -98,8 +98,9 @@ def solve(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]], roun
 
 
 def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
-               rounds: int = 40) -> tuple[np.ndarray, np.ndarray]:
-    """The solution of the exact system as ``high + low`` (double-double), see :func:`solve`.
+               rounds: int = 40, zeros: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """The solution of the exact system as ``high + low`` (double-double), see :func:`solve`;
+    `zeros` marks entries known to be zero (by structure, :func:`generic_solution`).
 
     A node can join a 1 mΩ path and a 1 TΩ leakage: rounding the diagonal sum
     1000 + 1e-12 S, and elimination in double precision, leave the result a few
@@ -124,6 +125,8 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
     B = np.array([[math.fsum(entry.terms) for entry in row] for row in B_terms])
     factors = _factor(A)
     high = factors(B)
+    if zeros is not None:
+        high[zeros] = 0.0
     low = np.zeros_like(high)
     # Every term of every entry, row by row, with the column of X it multiplies.
     values = np.array([t for row in A_terms for entry in row for t in entry.terms])
@@ -143,12 +146,16 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
             parts.append(_product_errors(a, x, products, a_high, a_low))
         # Negated, row-major per row and column: every term of -A (high + low) for entry (i, j).
         terms = -np.concatenate(parts, axis=0).reshape(len(parts), -1, B.shape[1])
-        residual = np.array([[math.fsum((*rhs[i][j], *terms[:, first:last, j].ravel().tolist()))
+        # Per column, the terms in row order (four per stamp term): one list, sliced per row.
+        flat = [terms[:, :, j].T.ravel().tolist() for j in range(B.shape[1])]
+        residual = np.array([[math.fsum((*rhs[i][j], *flat[j][4 * first:4 * last]))
                               for j in range(B.shape[1])]
                              for i, (first, last) in enumerate(zip(starts, ends))])
         if not residual.any():
             break
         correction = factors(residual)
+        if zeros is not None:
+            correction[zeros] = 0.0
         total = low + correction
         new_high = high + total
         # Two-sum: what rounding new_high dropped, kept in the low part.
@@ -158,7 +165,7 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
         size = np.abs(correction)
         # Done when every entry is converged to the pair's precision or has stopped
         # gaining (a coefficient that is zero exactly keeps a correction of its own noise).
-        if np.all((size <= _PAIR * np.abs(high)) | (size >= 0.5 * previous)):
+        if np.all((size <= _PAIR * np.abs(high)) | (size >= 0.5 * previous) | (size == 0.0)):
             break
         previous = size
     return high, low
@@ -212,8 +219,8 @@ def generic_solution(layout: Layout, excitations: int) -> np.ndarray | None:
     rng = np.random.default_rng(20261202)  # fixed: the same layout gives the same pattern
     draws = {}
 
-    def conductance(name: str, key: str) -> int:
-        return draws.setdefault((name, key), int(rng.integers(1, _PRIMES[1])))
+    def conductance(name: str, key: str) -> int:  # one draw per branch, whichever value it carries
+        return draws.setdefault(name, int(rng.integers(1, _PRIMES[1])))
 
     A, B = stamp(layout, conductance, 0, 1, excitations)
     solutions = []

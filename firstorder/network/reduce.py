@@ -10,6 +10,7 @@ a row.
 
 from __future__ import annotations
 
+from collections import OrderedDict
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -101,15 +102,9 @@ def reduce(layout: Layout, netlist: Netlist) -> Reduced:
 
     A, B = stamp(layout, conductance_of, ExactSum(), ExactSum((1.0,)), 1 + sources)
     if layout.size:
-        solution, low = solve_pair(A, B)
-        generic = layout.memo.get("generic", False)
-        if generic is False:
-            generic = layout.memo["generic"] = generic_solution(layout, 1 + sources)
-        if generic is not None:
-            # Coefficients zero whatever the values are zero, not the solve's 1e-50 noise.
-            structural = (generic == 0).all(axis=0)
-            solution[structural] = 0.0
-            low[structural] = 0.0
+        generic = _generic(layout, 1 + sources)
+        # Coefficients zero whatever the values are zero, not the solve's 1e-50 noise.
+        solution, low = solve_pair(A, B, zeros=None if generic is None else (generic == 0).all(axis=0))
     else:
         solution = low = np.zeros((0, 1 + sources))
         generic = None
@@ -146,6 +141,27 @@ def reduce(layout: Layout, netlist: Netlist) -> Reduced:
         low=low,
         generic=generic,
     ), netlist)
+
+
+#: Generic solutions by stamp shape (which branches join which nodes, not which value key):
+#: relays that switch between r_on and r_off share one.
+_GENERIC: "OrderedDict[tuple, np.ndarray | None]" = OrderedDict()
+_GENERIC_SIZE = 4096
+
+
+def _generic(layout: Layout, width: int) -> np.ndarray | None:
+    generic = layout.memo.get("generic", False)
+    if generic is not False:
+        return generic
+    shape = (layout.nodes, tuple((name, a, b) for name, _, a, b in layout.conductances), layout.voltage_branches,
+             layout.current_injections, width)
+    generic = _GENERIC.get(shape, False)
+    if generic is False:
+        generic = _GENERIC[shape] = generic_solution(layout, width)
+        while len(_GENERIC) > _GENERIC_SIZE:
+            _GENERIC.popitem(last=False)
+    layout.memo["generic"] = generic
+    return generic
 
 
 def _checked(reduced: Reduced, netlist: Netlist) -> Reduced:

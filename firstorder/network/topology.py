@@ -30,7 +30,7 @@ from ..netlist import GROUND, Netlist
 __all__ = ["Layout", "UnionFind", "and_list", "plan"]
 
 #: Layouts kept, by structure and configuration (a long session must not grow without limit).
-_CACHE_SIZE = 4096
+_CACHE_SIZE = 65536
 _cache: OrderedDict[tuple, "Layout"] = OrderedDict()
 
 class UnionFind:
@@ -175,11 +175,38 @@ def plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], s
     if layout is not None:
         _cache.move_to_end(key)
         return layout
-    layout = _plan(netlist, states, where)
+    # A switch with a finite, non-zero r_on and a finite r_off is a conductance either way:
+    # its state picks a value, not a topology.  Configurations that differ only in such
+    # switches share one plan, with the value keys swapped (many relays: one plan).
+    structural = _structural_switches(netlist)
+    masked = tuple(state if fixed else None for state, fixed in zip(states, structural))
+    base = _cache.get((netlist.structure, masked))
+    if base is None:
+        base = _plan(netlist, states, where)
+        _cache[(netlist.structure, masked)] = base
+    layout = base if masked == states else _with_keys(base, netlist, states)
     _cache[key] = layout
     while len(_cache) > _CACHE_SIZE:
         _cache.popitem(last=False)
     return layout
+
+
+def _structural_switches(netlist: Netlist) -> tuple[bool, ...]:
+    """Per switch: does its state change the topology (an ideal r_on or a leak-free r_off)?"""
+    return netlist._cached("structural_switches", lambda: tuple(
+        p.r_on == 0.0 or not np.isfinite(p.r_off) for p in netlist.switches))
+
+
+def _with_keys(base: Layout, netlist: Netlist, states: tuple[bool, ...]) -> Layout:
+    """`base` with every switch conductance carrying the value key of its state in `states`."""
+    closed = dict(zip(netlist.switch_names, states))
+    conductances = tuple(
+        (name, ("r_on" if closed[name] else "r_off") if name in closed else key, a, b)
+        for name, key, a, b in base.conductances)
+    return Layout(nodes=base.nodes, conductances=conductances, voltage_branches=base.voltage_branches,
+                  current_injections=base.current_injections, holds=base.holds, storage_kind=base.storage_kind,
+                  storage_name=base.storage_name, node_index=base.node_index, islands=base.islands,
+                  held_by=base.held_by, undefined_currents=base.undefined_currents)
 
 
 def _plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], str]) -> Layout:
