@@ -14,7 +14,7 @@ import numpy as np
 
 from .topology import Layout
 
-__all__ = ["ExactSum", "generic_solution", "solve", "solve_pair", "stamp"]
+__all__ = ["ExactSum", "TermPlan", "generic_solution", "solve", "solve_pair", "solve_planned", "stamp", "term_plan"]
 
 
 def stamp(layout: Layout, conductance_of, zero, one, excitations: int):
@@ -123,18 +123,25 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
     """
     A = np.array([[math.fsum(entry.terms) for entry in row] for row in A_terms])
     B = np.array([[math.fsum(entry.terms) for entry in row] for row in B_terms])
-    factors = _factor(A)
-    high = factors(B)
-    if zeros is not None:
-        high[zeros] = 0.0
-    low = np.zeros_like(high)
-    # Every term of every entry, row by row, with the column of X it multiplies.
     values = np.array([t for row in A_terms for entry in row for t in entry.terms])
     columns = np.array([j for row in A_terms for j, entry in enumerate(row) for _ in entry.terms], dtype=np.intp)
     counts = [sum(len(entry.terms) for entry in row) for row in A_terms]
     ends = np.cumsum(counts).tolist()
     starts = [e - c for e, c in zip(ends, counts)]
     rhs = [[B_terms[i][j].terms for j in range(B.shape[1])] for i in range(B.shape[0])]
+    return _refine(A, B, values, columns, starts, ends, rhs, rounds, zeros)
+
+
+def _refine(A: np.ndarray, B: np.ndarray, values: np.ndarray, columns: np.ndarray, starts: list[int],
+            ends: list[int], rhs: list, rounds: int, zeros: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """Iterative refinement of ``A z = B`` into a pair (see :func:`solve_pair`): `values`
+    are the terms of the exact A row by row (row i from starts[i] to ends[i]), `columns`
+    the unknown each multiplies, `rhs` the terms of each entry of B."""
+    factors = _factor(A)
+    high = factors(B)
+    if zeros is not None:
+        high[zeros] = 0.0
+    low = np.zeros_like(high)
     a = values[:, None]
     a_high, a_low = _split(a)
     previous = np.full_like(high, np.inf)
@@ -169,6 +176,73 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
             break
         previous = size
     return high, low
+
+
+class TermPlan:
+    """Where every stamp term of a layout goes, worked out once per layout (values vary):
+    the terms row by row, the column each multiplies, which conductance it is (or the
+    constant 1) with its sign, and B, whose entries are small integers (exact in floats)."""
+
+    __slots__ = ("rows", "columns", "conductance", "sign", "starts", "ends", "B", "size")
+
+    def __init__(self, layout: Layout, excitations: int) -> None:
+        # Stamp with codes for values: conductance k is 2 + k, the constant one is 1; the
+        # sign of a code is the sign of the term.
+        labels = [(name, key) for name, key, _, _ in layout.conductances]
+        codes = {label: float(2 + k) for k, label in enumerate(labels)}
+        A, B = stamp(layout, lambda name, key: ExactSum((codes[(name, key)],)), ExactSum(), ExactSum((1.0,)),
+                     excitations)
+        rows, columns, values = [], [], []
+        for i, row in enumerate(A):
+            for j, entry in enumerate(row):
+                for code in entry.terms:
+                    rows.append(i)
+                    columns.append(j)
+                    values.append(code)
+        values_array = np.array(values, dtype=float)
+        self.rows = np.array(rows, dtype=np.intp)
+        self.columns = np.array(columns, dtype=np.intp)
+        self.conductance = np.abs(values_array).astype(np.intp) - 2  # -1: the constant one
+        self.sign = np.sign(values_array)
+        counts = np.bincount(self.rows, minlength=len(A)) if rows else np.zeros(len(A), dtype=np.intp)
+        self.ends = np.cumsum(counts).tolist()
+        self.starts = [e - c for e, c in zip(self.ends, counts.tolist())]
+        self.B = np.array([[math.fsum(entry.terms) for entry in row] for row in B]).reshape(len(A), excitations)
+        self.size = len(A)
+
+
+def term_plan(layout: Layout, excitations: int) -> TermPlan:
+    """The layout's :class:`TermPlan` (cached on the layout)."""
+    plan = layout.memo.get("terms")
+    if plan is None or plan.B.shape[1] != excitations:
+        plan = layout.memo["terms"] = TermPlan(layout, excitations)
+    return plan
+
+
+def solve_planned(plan: TermPlan, conductances: np.ndarray, rounds: int = 40,
+                  zeros: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`solve_pair` for the system of `plan` with the given conductance of each branch.
+
+    The float matrix only preconditions (it is factored); every residual is formed exactly
+    from the terms, so the result is that of the exact system.
+
+    Examples
+    --------
+    >>> from firstorder.netlist import Netlist, Part
+    >>> from firstorder.network.topology import plan
+    >>> netlist = Netlist((Part("voltage_source", "vin", "in", "gnd"), Part("resistor", "r", "in", "out", value=1e3),
+    ...                    Part("resistor", "leak", "out", "gnd", value=1e12),
+    ...                    Part("capacitor", "c", "out", "gnd", value=1e-6)))
+    >>> layout = plan(netlist, ())
+    >>> high, low = solve_planned(term_plan(layout, 2), np.array([1e-3, 1e-12]))
+    >>> high[layout.node_index["in"]].tolist()
+    [0.0, 1.0]
+    """
+    values = plan.sign * np.where(plan.conductance >= 0, conductances[np.maximum(plan.conductance, 0)], 1.0)
+    A = np.zeros((plan.size, plan.size))
+    np.add.at(A, (plan.rows, plan.columns), values)
+    return _refine(A, plan.B, values, plan.columns, plan.starts, plan.ends,
+                   [[(v,) for v in row] for row in plan.B.tolist()], rounds, zeros)
 
 
 #: Relative rounding a converged pair keeps (2**-104), with a margin of 16.

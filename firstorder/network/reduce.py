@@ -17,7 +17,7 @@ import numpy as np
 
 from ..errors import InputError, TopologyError
 from ..netlist import GROUND, Netlist, Probe
-from .mna import ExactSum, generic_solution, solve_pair, stamp
+from .mna import generic_solution, solve_planned, term_plan
 from .topology import Layout
 
 __all__ = ["Reduced", "across_row", "node_row", "probe_row", "reduce"]
@@ -100,11 +100,12 @@ def reduce(layout: Layout, netlist: Netlist) -> Reduced:
                 f"{1 / _G_MAX:.1e} to {1 / _G_MIN:.1e} Ω")
         return g
 
-    A, B = stamp(layout, conductance_of, ExactSum(), ExactSum((1.0,)), 1 + sources)
     if layout.size:
-        generic = _generic(layout, 1 + sources)
+        generic, terms = _by_shape(layout, 1 + sources)
+        conductances = np.array([conductance_of(name, key) for name, key, _, _ in layout.conductances])
         # Coefficients zero whatever the values are zero, not the solve's 1e-50 noise.
-        solution, low = solve_pair(A, B, zeros=None if generic is None else (generic == 0).all(axis=0))
+        solution, low = solve_planned(terms, conductances,
+                                      zeros=None if generic is None else (generic == 0).all(axis=0))
     else:
         solution = low = np.zeros((0, 1 + sources))
         generic = None
@@ -143,25 +144,25 @@ def reduce(layout: Layout, netlist: Netlist) -> Reduced:
     ), netlist)
 
 
-#: Generic solutions by stamp shape (which branches join which nodes, not which value key):
-#: relays that switch between r_on and r_off share one.
-_GENERIC: "OrderedDict[tuple, np.ndarray | None]" = OrderedDict()
-_GENERIC_SIZE = 4096
+#: Generic solutions and term plans by stamp shape (which branches join which nodes, not
+#: which value key): relays that switch between r_on and r_off share them.
+_BY_SHAPE: "OrderedDict[tuple, tuple]" = OrderedDict()
+_BY_SHAPE_SIZE = 4096
 
 
-def _generic(layout: Layout, width: int) -> np.ndarray | None:
-    generic = layout.memo.get("generic", False)
-    if generic is not False:
-        return generic
+def _by_shape(layout: Layout, width: int) -> tuple:
+    cached = layout.memo.get("by_shape")
+    if cached is not None:
+        return cached
     shape = (layout.nodes, tuple((name, a, b) for name, _, a, b in layout.conductances), layout.voltage_branches,
              layout.current_injections, width)
-    generic = _GENERIC.get(shape, False)
-    if generic is False:
-        generic = _GENERIC[shape] = generic_solution(layout, width)
-        while len(_GENERIC) > _GENERIC_SIZE:
-            _GENERIC.popitem(last=False)
-    layout.memo["generic"] = generic
-    return generic
+    cached = _BY_SHAPE.get(shape)
+    if cached is None:
+        cached = _BY_SHAPE[shape] = (generic_solution(layout, width), term_plan(layout, width))
+        while len(_BY_SHAPE) > _BY_SHAPE_SIZE:
+            _BY_SHAPE.popitem(last=False)
+    layout.memo["by_shape"] = cached
+    return cached
 
 
 def _checked(reduced: Reduced, netlist: Netlist) -> Reduced:
