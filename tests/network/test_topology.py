@@ -259,3 +259,43 @@ class TestParallelIdealSwitches:
         fx.switch("k3", "s", "b")
         with pytest.raises(TopologyError, match="form a loop of ideal voltage elements"):
             fx.time_constant(k1=True, k2=True, k3=True)
+
+
+class TestSharedPlans:
+    """Configurations that differ only in relays with finite r_on and r_off share one plan and
+    one term layout; the shared path gives what planning each one afresh gives, exactly."""
+
+    def relay_bank(self, switches=4):
+        fx = fo.Fixture()
+        fx.voltage_source("vin", "in", "gnd")
+        fx.resistor("rs", "in", "a", 1e3)
+        fx.capacitor("c", "a", "gnd", 1e-7)
+        for j in range(switches):
+            fx.switch(f"k{j}", "a", f"n{j}", r_on=0.5, r_off=1e9)
+            fx.resistor(f"r{j}", f"n{j}", "gnd", 1e3 * (j + 1))
+        fx.switch("kx", "a", "gnd")  # ideal: its state does change the topology
+        fx.probe("va", node="a")
+        return fx
+
+    def test_shared_plan_equals_a_fresh_plan_of_every_configuration(self):
+        import importlib
+        import itertools
+
+        import numpy as np
+
+        reduce_module = importlib.import_module("firstorder.network.reduce")  # the module, not the function
+
+        fx = self.relay_bank()
+        netlist = fx.netlist
+        for states in itertools.product([False, True], repeat=len(netlist.switches)):
+            if states[-1]:
+                continue  # kx closed shorts the capacitor: refused either way
+            shared = network.plan(netlist, states)
+            fresh = topology._plan(netlist, states, "")
+            assert shared == fresh
+            reduce_module._BY_SHAPE.clear()
+            one = network.reduce(fresh, netlist)
+            other = network.reduce(shared, netlist)
+            assert one.tau == other.tau
+            assert np.array_equal(one.solution, other.solution) and np.array_equal(one.low, other.low)
+            assert np.array_equal(one.gain, other.gain)
