@@ -238,7 +238,8 @@ def solve_planned(plan: TermPlan, conductances: np.ndarray, rounds: int = 40,
     >>> high[layout.node_index["in"]].tolist()
     [0.0, 1.0]
     """
-    values = plan.sign * np.where(plan.conductance >= 0, conductances[np.maximum(plan.conductance, 0)], 1.0)
+    # Index -1 (the constant one) picks the 1.0 appended at the end.
+    values = plan.sign * np.append(np.asarray(conductances, dtype=float), 1.0)[plan.conductance]
     A = np.zeros((plan.size, plan.size))
     np.add.at(A, (plan.rows, plan.columns), values)
     return _refine(A, plan.B, values, plan.columns, plan.starts, plan.ends,
@@ -290,11 +291,10 @@ def generic_solution(layout: Layout, excitations: int) -> np.ndarray | None:
     >>> (generic_solution(plan(netlist, ()), 2)[0] != 0).astype(int).tolist()  # v(in) has no x
     [[0, 1], [1, 0], [1, 1], [1, 1]]
     """
-    rng = np.random.default_rng(20261202)  # fixed: the same layout gives the same pattern
-    draws = {}
+    draws: dict[str, int] = {}
 
     def conductance(name: str, key: str) -> int:  # one draw per branch, whichever value it carries
-        return draws.setdefault(name, int(rng.integers(1, _PRIMES[1])))
+        return draws.setdefault(name, _scrambled(len(draws)))
 
     A, B = stamp(layout, conductance, 0, 1, excitations)
     solutions = []
@@ -304,6 +304,15 @@ def generic_solution(layout: Layout, excitations: int) -> np.ndarray | None:
             return None
         solutions.append(solution)
     return np.stack(solutions)
+
+
+def _scrambled(k: int) -> int:
+    """A fixed pseudo-random residue for branch `k` (splitmix64's finaliser; numpy.random is
+    not imported for this: loading it evaluates text, which loading a file must not)."""
+    z = (k + 1) * 0x9E3779B97F4A7C15 & 0xFFFFFFFFFFFFFFFF
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9 & 0xFFFFFFFFFFFFFFFF
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EB & 0xFFFFFFFFFFFFFFFF
+    return 1 + (z ^ (z >> 31)) % (_PRIMES[1] - 1)
 
 
 def _solve_mod(A: np.ndarray, B: np.ndarray, prime: int) -> np.ndarray | None:
