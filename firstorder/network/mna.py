@@ -147,15 +147,17 @@ def _refine(A: np.ndarray, B: np.ndarray, values: np.ndarray, columns: np.ndarra
     previous = np.full_like(high, np.inf)
     for _ in range(rounds):
         parts = []
-        for x in (high[columns], low[columns]):
+        # The low part is zero before the first correction: its products add nothing.
+        for x in (high[columns], low[columns]) if low.any() else (high[columns],):
             products = a * x
             parts.append(products)
             parts.append(_product_errors(a, x, products, a_high, a_low))
         # Negated, row-major per row and column: every term of -A (high + low) for entry (i, j).
-        terms = -np.concatenate(parts, axis=0).reshape(len(parts), -1, B.shape[1])
-        # Per column, the terms in row order (four per stamp term): one list, sliced per row.
+        per = len(parts)
+        terms = -np.concatenate(parts, axis=0).reshape(per, -1, B.shape[1])
+        # Per column, the terms in row order (`per` per stamp term): one list, sliced per row.
         flat = [terms[:, :, j].T.ravel().tolist() for j in range(B.shape[1])]
-        residual = np.array([[math.fsum((*rhs[i][j], *flat[j][4 * first:4 * last]))
+        residual = np.array([[math.fsum((*rhs[i][j], *flat[j][per * first:per * last]))
                               for j in range(B.shape[1])]
                              for i, (first, last) in enumerate(zip(starts, ends))])
         if not residual.any():
