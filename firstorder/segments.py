@@ -232,8 +232,7 @@ class Segments:
                           state_unit=netlist.state_unit, storage_kind=netlist.storage.kind,
                           storage_name=netlist.storage.name, first_use=first_use, fixture=fixture, times=times,
                           word=word)
-        reduced = [fixture.configuration(config, where=lambda k=int(first_use[c]): provisional.label(k))[1]
-                   for c, config in enumerate(configs)]
+        reduced = _reduce_all(fixture, configs, first_use, provisional.label)
         m = levels.shape[1]
         taus = np.array([r.tau for r in reduced])
         gains = np.array([r.gain for r in reduced]).reshape(len(configs), m)
@@ -427,14 +426,24 @@ class Segments:
         if rows is None:
             probe = self.probe(name)
             netlist = self._fixture.netlist
-            by_config = []
-            for c in range(len(self.configurations)):
+            by_config: list = [None] * len(self.configurations)
+            # In order of first use, so that an undefined probe is named at its earliest segment.
+            for c in np.argsort(self._first_use, kind="stable").tolist():
                 layout, reduced = self.configuration(c)
-                by_config.append(probe_row(layout, netlist, reduced, probe,
-                                           where=lambda c=c: self.label(int(self._first_use[c]))))
+                by_config[c] = probe_row(layout, netlist, reduced, probe,
+                                         where=lambda c=c: self.label(int(self._first_use[c])))
             rows = np.array(by_config)[self.configuration_of]
             self._probe_rows[name] = rows
         return rows
+
+
+def _reduce_all(fixture: "Fixture", configs: Sequence[tuple[bool, ...]], first_use: np.ndarray, label) -> list:
+    """Every configuration reduced, in order of first use: of several ill-posed ones, the
+    error names the earliest segment."""
+    reduced: list = [None] * len(configs)
+    for c in np.argsort(first_use, kind="stable").tolist():
+        reduced[c] = fixture.configuration(configs[c], where=lambda k=int(first_use[c]): label(k))[1]
+    return reduced
 
 
 def _refuse_ramps(segments: Segments, taus: np.ndarray, drifts: np.ndarray, levels: np.ndarray,

@@ -95,6 +95,19 @@ class TestOfDrive:
         with pytest.raises(TopologyError, match=r"^segment 1 \(from 1 ms; k open\): capacitor 'c' sees no resistance"):
             Segments.of_drive(fx, drive)
 
+    def test_of_several_ill_posed_configurations_the_earliest_segment_is_named(self):
+        # k2 closed shorts the capacitor (segment 1), k1 closed shorts the source (segment 2);
+        # k1's configuration sorts first, but segment 1 comes first in time.
+        fx = fo.Fixture()
+        fx.voltage_source("v", "s", "gnd")
+        fx.resistor("r", "s", "a", 1e3)
+        fx.capacitor("c", "a", "gnd", 1e-6)
+        fx.switch("k1", "s", "gnd")
+        fx.switch("k2", "a", "gnd")
+        drive = fo.Drive([0, 1e-3, 2e-3], end=3e-3, v=[1.0] * 3, k1=[0, 0, 1], k2=[0, 1, 0])
+        with pytest.raises(TopologyError, match=r"^segment 1 \(from 1 ms; k1 open, k2 closed\)"):
+            fx.respond(drive)
+
     def test_columns_are_matched_to_the_fixture(self):
         with pytest.raises(InputError, match=r"drive columns \['vx'\] name no source or switch"):
             Segments.of_drive(relay_filter(), DRIVE.replace(vx=[0, 0, 0, 0]))

@@ -30,7 +30,7 @@ from ..netlist import GROUND, Netlist
 __all__ = ["Layout", "UnionFind", "and_list", "plan"]
 
 #: Layouts kept, by structure and configuration (a long session must not grow without limit).
-_CACHE_SIZE = 4096
+_CACHE_SIZE = 65536
 _cache: OrderedDict[tuple, "Layout"] = OrderedDict()
 
 class UnionFind:
@@ -105,6 +105,14 @@ class Layout:
         Nodes that float in this configuration (nothing but open switches or current
         sources joins them to ground), each mapped to the node pinned at 0 V for its
         island: their voltages against anything outside the island are not defined.
+    held_by : tuple of int
+        When the state is held: per excitation ``[x, u...]``, the exact coefficient
+        (0, ±1, ...) with which it drives the storage element's rate (the current into
+        a cut-off capacitor, the voltage across a shorted coil), read off the graph;
+        all zeros otherwise.
+    undefined_currents : frozenset of str
+        Zero-ohm switches that close loops of zero-ohm switches: the voltages are
+        defined, the currents through them are not.
     """
 
     nodes: tuple[str, ...]
@@ -116,6 +124,10 @@ class Layout:
     storage_name: str
     node_index: dict[str, int] = field(default_factory=dict, compare=False)
     islands: dict[str, str] = field(default_factory=dict, compare=False)
+    held_by: tuple[int, ...] = ()
+    undefined_currents: frozenset = frozenset()
+    #: Value-independent results worked out once per layout (the generic solution, say).
+    memo: dict = field(default_factory=dict, compare=False, repr=False)
 
     @property
     def size(self) -> int:
@@ -163,11 +175,38 @@ def plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], s
     if layout is not None:
         _cache.move_to_end(key)
         return layout
-    layout = _plan(netlist, states, where)
+    # A switch with a finite, non-zero r_on and a finite r_off is a conductance either way:
+    # its state picks a value, not a topology.  Configurations that differ only in such
+    # switches share one plan, with the value keys swapped (many relays: one plan).
+    structural = _structural_switches(netlist)
+    masked = tuple(state if fixed else None for state, fixed in zip(states, structural))
+    base = _cache.get((netlist.structure, masked))
+    if base is None:
+        base = _plan(netlist, states, where)
+        _cache[(netlist.structure, masked)] = base
+    layout = base if masked == states else _with_keys(base, netlist, states)
     _cache[key] = layout
     while len(_cache) > _CACHE_SIZE:
         _cache.popitem(last=False)
     return layout
+
+
+def _structural_switches(netlist: Netlist) -> tuple[bool, ...]:
+    """Per switch: does its state change the topology (an ideal r_on or a leak-free r_off)?"""
+    return netlist._cached("structural_switches", lambda: tuple(
+        p.r_on == 0.0 or not np.isfinite(p.r_off) for p in netlist.switches))
+
+
+def _with_keys(base: Layout, netlist: Netlist, states: tuple[bool, ...]) -> Layout:
+    """`base` with every switch conductance carrying the value key of its state in `states`."""
+    closed = dict(zip(netlist.switch_names, states))
+    conductances = tuple(
+        (name, ("r_on" if closed[name] else "r_off") if name in closed else key, a, b)
+        for name, key, a, b in base.conductances)
+    return Layout(nodes=base.nodes, conductances=conductances, voltage_branches=base.voltage_branches,
+                  current_injections=base.current_injections, holds=base.holds, storage_kind=base.storage_kind,
+                  storage_name=base.storage_name, node_index=base.node_index, islands=base.islands,
+                  held_by=base.held_by, undefined_currents=base.undefined_currents)
 
 
 def _plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], str]) -> Layout:
@@ -202,9 +241,17 @@ def _plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], 
     # 1. Loops of ideal voltage elements (sources and ideal switches).
     loops = UnionFind()
     placed: list[tuple[str, str, str]] = []
-    for name, a, b, _ in ideal_voltage:
+    kept: list[tuple[str, str, str, int | None]] = []
+    undefined: set[str] = set()
+    source_of = {name: source for name, _, _, source in ideal_voltage}
+    for name, a, b, source in ideal_voltage:
         if not loops.union(a, b):
             loop = sorted({name, *_path(placed, a, b)})
+            if all(source_of[n] is None for n in loop):
+                # Zero-ohm switches only (in parallel, say): every voltage is defined and the
+                # extra switch adds no equation; only the currents through the loop are not.
+                undefined.update(loop)
+                continue
             raise TopologyError(
                 f"{describe()}: {and_list(loop)} form a loop of ideal voltage elements "
                 f"(sources or zero-ohm switches); their voltages fight with no "
@@ -212,8 +259,11 @@ def _plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], 
                 f"or add a series resistance."
             )
         placed.append((name, a, b))
+        kept.append((name, a, b, source))
+    ideal_voltage = kept
 
     holds = False
+    held_by = [0] * (1 + len(netlist.sources))
     if storage.kind == "capacitor":
         if loops.find(storage.a) == loops.find(storage.b):
             loop = sorted({storage.name, *_path(placed, storage.a, storage.b)})
@@ -232,10 +282,21 @@ def _plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], 
         for _, a, b, _ in ideal_voltage:
             conducting.union(a, b)
         holds = conducting.find(storage.a) != conducting.find(storage.b)
+        if holds:
+            # Kirchhoff's current law on the side of a: what current sources bring into it
+            # leaves through the capacitor, a to b (sources from a side to elsewhere are cut
+            # sets, refused below).
+            side = conducting.find(storage.a)
+            for _, x, y, source in injections:
+                into, out_of = conducting.find(y) == side, conducting.find(x) == side
+                held_by[source] += int(into) - int(out_of)
         ideal_voltage.append((storage.name, storage.a, storage.b, 0))
     else:
         # An inductor shorted by ideal elements keeps its current: tau = L / 0.
         holds = loops.find(storage.a) == loops.find(storage.b)
+        if holds:
+            held_by = _path_voltage([(n, p, q, source_of[n]) for n, p, q in placed], storage.a, storage.b,
+                                    len(held_by))
         injections.append((storage.name, storage.a, storage.b, 0))
 
     # 2. Cut sets of current elements: components of the non-current graph.
@@ -314,6 +375,30 @@ def _plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], 
         storage_name=storage.name,
         node_index={n: i for i, n in enumerate(nodes)},
         islands=islands,
+        held_by=tuple(held_by),
+        undefined_currents=frozenset(undefined),
     )
+
+
+def _path_voltage(edges: list[tuple[str, str, str, int | None]], a: str, b: str, width: int) -> list[int]:
+    """v(a) - v(b) along a tree of ideal voltage elements, as exact integer coefficients over
+    ``[x, u...]`` (an element ``(name, p, n, source)`` holds v(p) - v(n) = u_source, or 0)."""
+    neighbours: dict[str, list[tuple[str, int | None, int]]] = defaultdict(list)
+    for _, p, n, source in edges:
+        neighbours[p].append((n, source, -1))  # v(n) = v(p) - u
+        neighbours[n].append((p, source, +1))  # v(p) = v(n) + u
+    potential: dict[str, list[int]] = {a: [0] * width}
+    queue = [a]
+    while queue:
+        node = queue.pop()
+        for other, source, sign in neighbours[node]:
+            if other not in potential:
+                row = list(potential[node])
+                if source is not None:
+                    row[source] += sign
+                potential[other] = row
+                queue.append(other)
+    # Potentials are taken from v(a) = 0: v(a) - v(b) = -potential[b].
+    return [-c for c in potential[b]]
 
 

@@ -47,6 +47,19 @@ def _nodal_matrix(index, branches):
     return G, per_volt
 
 
+def _exact_nodal(index, branches):
+    """The conductance matrix of :func:`_nodal_matrix` in exact rationals (fractions)."""
+    G = [[Fraction(0)] * len(index) for _ in index]
+    for a, b, r in branches:
+        g = 1 / Fraction(r)
+        for here, there in ((a, b), (b, a)):
+            if here in index:
+                G[index[here]][index[here]] += g
+                if there in index:
+                    G[index[here]][index[there]] -= g
+    return G
+
+
 def _unit_injection(index, into, out_of):
     """A unit current into node `into` and out of node `out_of` (ground is not an unknown)."""
     d = np.zeros(len(index))
@@ -492,8 +505,39 @@ class TestRandomSwitchedNetworks:
         by_amp[index[inject]] = 1.0
         d = _unit_injection(index, cap_a, cap_b)
         assume(np.linalg.cond(G) < 1e8)
-        r_th = float(d @ np.linalg.solve(G, d))
+        # The same nodal analysis solved exactly (fractions): a float solve of a system with
+        # a 1 GΩ leakage beside 1 Ω is itself a few 1e-7 off.
+        exact_G = _exact_nodal(index, branches)
+
+        def through(rhs):
+            solution = _exact_solve(exact_G, [Fraction(v) for v in rhs])
+            return float(sum(Fraction(x) * y for x, y in zip(d, solution)))
+
+        exact_by_volt = [sum((1 / Fraction(r) for a, b, r in branches if {a, b} == {n, "s"}), Fraction(0))
+                         for n in live]
+        r_th = through(d)
         _, red = fx.configuration(fx.switch_states(**states))
         assert red.resistance == pytest.approx(r_th, rel=1e-7)
-        assert red.gain[0] == pytest.approx(float(d @ np.linalg.solve(G, by_volt)), rel=1e-7, abs=1e-10)
-        assert red.gain[1] == pytest.approx(float(d @ np.linalg.solve(G, by_amp)), rel=1e-7, abs=1e-10 * r_th)
+        solution = _exact_solve(exact_G, exact_by_volt)
+        assert red.gain[0] == pytest.approx(float(sum(Fraction(x) * y for x, y in zip(d, solution))),
+                                            rel=1e-7, abs=1e-10)
+        assert red.gain[1] == pytest.approx(through(by_amp), rel=1e-7, abs=1e-10 * r_th)
+
+
+class TestUnrepresentableValues:
+    """Values whose products or ratios leave double precision are refused, naming the part."""
+
+    @pytest.mark.parametrize("r, c", [(1e-300, 1e-300), (1e300, 1e300), (1e-200, 1e-200)])
+    def test_tau_that_underflows_or_overflows_is_refused_naming_the_parts(self, r, c):
+        # Handbook tau = R C: 1e-600 s or 1e600 s has no double (IEEE 754 range 1e-308..1e308).
+        with pytest.raises(InputError, match=r"\b(r|c)\b.*cannot be"):
+            fo.Fixture.rc(r, c).tau
+
+    @pytest.mark.parametrize("r", [5e-324, 1e-310])
+    def test_resistance_whose_conductance_overflows_is_refused_naming_the_resistor(self, r):
+        with pytest.raises(InputError, match=r"^r: .* Ω cannot be computed with"):
+            fo.Fixture.rc(r, 1e-6).tau
+
+    def test_wide_but_representable_values_still_reduce(self):
+        # tau = R C exactly as a hand calculation rounds it (handbook).
+        assert fo.Fixture.rc(1e-100, 1e-100).tau == 1e-100 * 1e-100

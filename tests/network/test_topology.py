@@ -176,3 +176,126 @@ class TestPlanCache:
         with pytest.raises(ZeroTimeError, match=r"^segment 7 \(k closed\): capacitor 'c' sits across a loop"):
             topology.plan(fx.netlist, (True,), where)
         assert asked == [True]
+
+
+# ------------------------------------------------------------------------------------------
+class TestStructuralHolding:
+    """Whether sources move a held state is read from the graph, not from float residues."""
+
+    @pytest.mark.parametrize("seed", range(120))
+    def test_coil_shorted_by_an_ideal_switch_holds_its_current_with_sources_on(self, seed):
+        # Handbook: an ideal short holds the coil's voltage at 0, so L di/dt = 0 and the
+        # current stays where it was, whatever the sources around it do.
+        import random
+
+        rng = random.Random(seed)
+        fx = fo.Fixture()
+        fx.voltage_source("v", "s", "gnd")
+        x = rng.choice(["a", "b", "s"])
+        fx.current_source("i", x, rng.choice([n for n in ["gnd", "b"] if n != x]))
+        for name, a, b in (("r1", "s", "a"), ("r2", "b", "gnd"), ("r3", "s", "b")):
+            fx.resistor(name, a, b, 10.0 ** rng.uniform(-3, 12))
+        fx.inductor("l", "a", "b", 1e-3)
+        fx.switch("k", "a", "b")
+        drive = fo.Drive([0, 1e-3], end=2e-3, v=[1.0, 2.0], i=[1e-3, 1.0], k=[0, 1])
+        response = fx.respond(drive)
+        _, reduced = fx.configuration(fx.switch_states(k=True))
+        assert reduced.tau == float("inf")
+        assert (reduced.drift == 0.0).all()
+        assert response.segments.tau[1] == float("inf")
+
+    def test_held_drift_is_the_exact_source_coefficient(self):
+        # Kirchhoff's current law: a capacitor cut off from every resistance takes exactly
+        # what the current source brings, C dv/dt = i (handbook).
+        fx = fo.Fixture()
+        fx.current_source("i", "gnd", "a")
+        fx.capacitor("c", "a", "b", 2e-6)
+        fx.resistor("r", "b", "gnd", 1e3)
+        fx.switch("k", "a", "gnd")
+        fx.resistor("ra", "a", "gnd", 1e12)
+        _, reduced = fx.configuration(fx.switch_states(k=False))
+        assert reduced.tau < float("inf")
+        fx2 = fo.Fixture()
+        fx2.current_source("i", "gnd", "a")
+        fx2.capacitor("c", "a", "b", 2e-6)
+        fx2.resistor("r", "b", "gnd", 1e3)
+        fx2.resistor("rx", "a", "x", 1e3)
+        fx2.switch("k", "x", "gnd")
+        layout, reduced = fx2.configuration(fx2.switch_states(k=False))
+        assert layout.holds and layout.held_by == (0, 1)
+        assert reduced.drift.tolist() == [1 / 2e-6]
+
+
+class TestParallelIdealSwitches:
+    """Zero-ohm switches in parallel define every voltage; only their currents are undefined."""
+
+    def fixture(self):
+        fx = fo.Fixture()
+        fx.voltage_source("v", "s", "gnd")
+        fx.resistor("r", "s", "a", 1e3)
+        fx.capacitor("c", "a", "b", 1e-6)
+        fx.switch("k1", "b", "gnd")
+        fx.switch("k2", "b", "gnd")
+        fx.resistor("rb", "b", "gnd", 1e3)
+        fx.probe("ik1", through="k1")
+        fx.probe("vb", node="b")
+        return fx
+
+    def test_two_ideal_switches_in_parallel_give_the_handbook_tau(self):
+        fx = self.fixture()
+        # Handbook: with b shorted to ground the capacitor charges through r alone, tau = R C.
+        assert fx.time_constant(k1=True, k2=True) == pytest.approx(1e3 * 1e-6, rel=1e-15)
+        response = fx.respond(fo.Drive([0], end=1e-3, v=[1.0], k1=[1], k2=[1]))
+        assert response.segments.probe_rows("vb").tolist() == [[0.0, 0.0]]
+
+    def test_probe_of_the_current_through_one_of_two_parallel_ideal_switches_is_refused(self):
+        fx = self.fixture()
+        response = fx.respond(fo.Drive([0], end=1e-3, v=[1.0], k1=[1], k2=[1]))
+        with pytest.raises(TopologyError, match=r"segment 0 .*probe 'ik1': the current through 'k1' is not defined"):
+            response.segments.probe_rows("ik1")
+
+    def test_a_source_in_a_loop_of_ideal_switches_is_still_refused(self):
+        fx = self.fixture()
+        fx.switch("k3", "s", "b")
+        with pytest.raises(TopologyError, match="form a loop of ideal voltage elements"):
+            fx.time_constant(k1=True, k2=True, k3=True)
+
+
+class TestSharedPlans:
+    """Configurations that differ only in relays with finite r_on and r_off share one plan and
+    one term layout; the shared path gives what planning each one afresh gives, exactly."""
+
+    def relay_bank(self, switches=4):
+        fx = fo.Fixture()
+        fx.voltage_source("vin", "in", "gnd")
+        fx.resistor("rs", "in", "a", 1e3)
+        fx.capacitor("c", "a", "gnd", 1e-7)
+        for j in range(switches):
+            fx.switch(f"k{j}", "a", f"n{j}", r_on=0.5, r_off=1e9)
+            fx.resistor(f"r{j}", f"n{j}", "gnd", 1e3 * (j + 1))
+        fx.switch("kx", "a", "gnd")  # ideal: its state does change the topology
+        fx.probe("va", node="a")
+        return fx
+
+    def test_shared_plan_equals_a_fresh_plan_of_every_configuration(self):
+        import importlib
+        import itertools
+
+        import numpy as np
+
+        reduce_module = importlib.import_module("firstorder.network.reduce")  # the module, not the function
+
+        fx = self.relay_bank()
+        netlist = fx.netlist
+        for states in itertools.product([False, True], repeat=len(netlist.switches)):
+            if states[-1]:
+                continue  # kx closed shorts the capacitor: refused either way
+            shared = network.plan(netlist, states)
+            fresh = topology._plan(netlist, states, "")
+            assert shared == fresh
+            reduce_module._BY_SHAPE.clear()
+            one = network.reduce(fresh, netlist)
+            other = network.reduce(shared, netlist)
+            assert one.tau == other.tau
+            assert np.array_equal(one.solution, other.solution) and np.array_equal(one.low, other.low)
+            assert np.array_equal(one.gain, other.gain)
