@@ -148,7 +148,7 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
         if tolerance.kind == "relative":
             # Not rounding noise where the structure holds the probe still: a limit relative to
             # that noise would be waited for (see settling.table.constant_probe).
-            coefficient = np.where(constant_probe(steps, fixture.netlist, probe), 0.0, coefficient)
+            coefficient = np.where(constant_probe(steps, probe), 0.0, coefficient)
     else:
         coefficient, offset = np.ones(count), np.zeros(count)
     finals = steps.final

@@ -78,70 +78,13 @@ def watched(response: Any, probe: str | None) -> Watched:
 
 
 #: Probes whose coefficient of the state is zero whatever the part values, per configuration.
-_CONSTANT: dict[tuple, bool] = {}
-_CONSTANT_SIZE = 1024
-
-
-def _state_coefficient_is_zero(layout: Any, netlist: Any, probe: Any) -> bool:
-    """Whether `probe` does not depend on the state in `layout`, for any part values.
-
-    Decided from the structure: the nodal system is solved exactly (``fractions``) with
-    random rational part values, so a coefficient that is zero whatever the values
-    comes out exactly zero, and one that is not comes out non-zero but for a set of
-    values of probability zero (Schwartz-Zippel; from memory).  The numeric solve
-    cannot tell the two apart: it leaves rounding noise where the structure says 0.
-    """
-    import random
-    from fractions import Fraction
-
-    from ..network import stamp
-
-    draw = random.Random(20261202)  # fixed: the answer must not change from run to run
-    values: dict[tuple[str, str], Fraction] = {}
-
-    def conductance_of(name: str, key: str) -> Fraction:
-        return values.setdefault((name, key), Fraction(draw.randint(1, 1 << 30), draw.randint(1, 1 << 30)))
-
-    width = 1 + len(netlist.sources)
-    A, B = stamp(layout, conductance_of, Fraction(0), Fraction(1), width)
-    size = len(A)
-    rows = [list(A[i]) + [B[i][0]] for i in range(size)]  # the state's column only
-    for col in range(size):  # Gauss-Jordan, exact: any non-zero pivot will do
-        pivot = next(r for r in range(col, size) if rows[r][col] != 0)
-        rows[col], rows[pivot] = rows[pivot], rows[col]
-        head = rows[col]
-        for r in range(size):
-            if r != col and rows[r][col] != 0:
-                factor = rows[r][col] / head[col]
-                rows[r] = [a - factor * b for a, b in zip(rows[r], head)]
-    z = [rows[i][size] / rows[i][i] for i in range(size)]
-
-    def node(name: str) -> Fraction:
-        index = layout.node_index.get(name)
-        return Fraction(0) if index is None else z[index]
-
-    if probe.node is not None:
-        return node(probe.node) - node(probe.reference) == 0
-    part = netlist.part_map[probe.through]
-    if part.kind == "inductor":
-        return False
-    if part.kind == "current_source":
-        return True
-    if any(name == part.name for name, *_ in layout.voltage_branches):
-        return z[layout.branch_row(part.name)] == 0
-    for name, key, a, b in layout.conductances:
-        if name == part.name:
-            return node(a) - node(b) == 0
-    return True  # an open switch without leakage carries nothing
-
-
-def constant_probe(segments: Any, netlist: Any, probe: str) -> np.ndarray:
+def constant_probe(segments: Any, probe: str) -> np.ndarray:
     """Per segment: True where `probe` does not depend on the state whatever the part
     values (a probe behind an open relay), so it is constant in that segment.
 
-    The numeric probe rows leave rounding noise there (1e-17 of the state, say), and a
-    relative tolerance of that noise would never be met; the structure says the
-    quantity does not move at all.
+    A relative tolerance of rounding noise there (1e-17 of the state, say) would never be
+    met; the network layer's probe rows hold such a coefficient as exactly 0, because it
+    decides structural zeros from a generic solve, not from the numbers.
 
     Examples
     --------
@@ -150,22 +93,12 @@ def constant_probe(segments: Any, netlist: Any, probe: str) -> np.ndarray:
     ...       .capacitor("c", "a", "gnd", "1u").switch("k", "a", "b").resistor("rl", "b", "gnd", "1k")
     ...       .probe("v_b", node="b"))
     >>> res = fx.respond(fo.Drive([0, "1m"], end="2m", vin=[1.0, 2.0], k=[1, 0]))
-    >>> constant_probe(res.segments, fx.netlist, "v_b").tolist()
+    >>> constant_probe(res.segments, "v_b").tolist()
     [False, True]
     """
-    found = segments.probe(probe)
-    by_configuration = []
-    for c in range(len(segments.configurations)):
-        layout, _ = segments.configuration(c)
-        key = (netlist.structure, layout, found)
-        zero = _CONSTANT.get(key)
-        if zero is None:
-            zero = _state_coefficient_is_zero(layout, netlist, found)
-            if len(_CONSTANT) >= _CONSTANT_SIZE:
-                _CONSTANT.pop(next(iter(_CONSTANT)))
-            _CONSTANT[key] = zero
-        by_configuration.append(zero)
-    return np.array(by_configuration, dtype=bool)[segments.configuration_of]
+    # The network layer makes a coefficient that is zero by structure exactly 0 (decided by
+    # a generic solve, see firstorder.network.mna), so no tolerance of noise is needed here.
+    return segments.probe_rows(probe)[:, 0] == 0.0
 
 
 def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sample_delay", what: str = "segment",
@@ -327,7 +260,7 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
     if probe is not None and tolerance.kind == "relative" and response.fixture is not None:
         # A relative limit is taken of the step itself: of rounding noise where the probe
         # cannot move.  The structure decides it does not move (constant_probe).
-        still = constant_probe(response.segments, response.fixture.netlist, probe)
+        still = constant_probe(response.segments, probe)
         if still.any():
             quantity = replace(quantity, final=np.where(still, quantity.start, quantity.final))
     # A probe within a segment is c*x + offset: it settles at the state's rate, and its
