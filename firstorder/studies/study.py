@@ -25,8 +25,8 @@ from ..drive import MEMORY_BUDGET
 from ..errors import InputError
 from ..response import COMPONENTS, read_initial
 from ..segments import Segments
-from ..settling.table import check_tolerance, check_unit, sample_delays
-from ..units import format_value, shown
+from ..settling.table import check_tolerance, check_unit, sample_delays, watched
+from ..units import format_value, parse_array, parse_value, shown
 from .lot import Lot
 from .spread import Spread
 
@@ -226,43 +226,90 @@ class Study:
         return self._boundary
 
     # -- settling ---------------------------------------------------------------------------
-    def columns(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None) -> LotSettling:
+    def columns(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
+                target: Any = "final") -> LotSettling:
         """Every unit's settling columns (its settling table's ``settle_time``,
-        ``error_at_sample``, ``tolerance`` and ``ok``), as (units, n) arrays."""
+        ``error_at_sample``, ``tolerance`` and ``ok``), as (units, n) arrays.
+
+        `target` is what the error is taken from: ``"final"`` (each unit's own final value:
+        settling alone; each row then equals that unit's settling table), ``"nominal"``
+        (the nominal unit's final value: the spread of the final value counts), a source's
+        name (its level as scheduled: loading and gain error count) or numbers (one, or one
+        per segment).  Against another target than ``"final"`` a unit settles only if its
+        final value lies within the limit of it, and a relative tolerance is taken of each
+        unit's step from its start to the target.
+        """
         check_tolerance(tolerance)
         unit, label, start, final = self._watched(probe)
         check_unit(tolerance, unit, label)
         value, relative = tolerance._scale()
         shape = self._rate.shape
-        times = np.broadcast_to(self.drive.times, shape).ravel()
-        ends = np.broadcast_to(self.drive.ends, shape).ravel()
-        tau = np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
-        limit, settle, _, residual = engine.settling_columns(
-            start.ravel(), final.ravel(), tau.ravel(), self._decay.ravel(), times, ends, value, relative)
-        limit = np.broadcast_to(limit, (shape[0] * shape[1],)).reshape(shape)
         if sample_delay is None:
-            error, sample_time = residual.reshape(shape), self.drive.ends
+            delays, sample_time = self.drive.durations, self.drive.ends
         else:
             delays = sample_delays(sample_delay, self.drive.durations, field="sample_delay", what="segment",
                                    ends=self.drive.ends)
-            decay = engine.exp_in_place(-delays * self._rate)
-            error = np.abs(final - start) * decay
             sample_time = self.drive.times + delays
-        return LotSettling(settle.reshape(shape), error, limit, error <= limit, sample_time, unit, label)
+        if isinstance(target, str) and target == "final":
+            times = np.broadcast_to(self.drive.times, shape).ravel()
+            ends = np.broadcast_to(self.drive.ends, shape).ravel()
+            tau = np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
+            limit, settle, _, residual = engine.settling_columns(
+                start.ravel(), final.ravel(), tau.ravel(), self._decay.ravel(), times, ends, value, relative)
+            limit = np.broadcast_to(limit, (shape[0] * shape[1],)).reshape(shape)
+            if sample_delay is None:
+                error = residual.reshape(shape)
+            else:
+                # As the settling table forms it: the step times the decay to the sample.
+                error = np.abs(final - start) * engine.exp_in_place(-delays * self._rate)
+            settle = settle.reshape(shape)
+        else:
+            aim = self._target(target, probe, unit)
+            limit, settle, error = _against_target(start, final, aim, self._rate, self.drive.durations,
+                                                   delays, value, relative)
+        return LotSettling(settle, error, limit, error <= limit, sample_time, unit, label)
+
+    def _target(self, target: Any, probe: str | None, unit: str) -> np.ndarray:
+        """The target of every segment, (n,), from what `target` names."""
+        n = len(self.drive)
+        if isinstance(target, str):
+            if target == "nominal":
+                return np.asarray(watched(self.nominal, probe).final, dtype=np.float64)
+            sources = {p.name: p for p in self.fixture.netlist.sources}
+            if target in sources:
+                source_unit = "V" if sources[target].kind == "voltage_source" else "A"
+                if source_unit != unit:
+                    raise InputError(f"target: source '{target}' gives {source_unit}, but the watched quantity is "
+                                     f"in {unit}; name a source in {unit}, or give the target in numbers")
+                return np.asarray(self.drive.levels(target), dtype=np.float64)
+            try:
+                number = parse_value(target, field="target", unit=unit)
+            except InputError:
+                raise InputError(f"target: {shown(target)} is not allowed; give 'final', 'nominal', a source of the "
+                                 f"fixture {list(sources)}, or numbers ({unit}), one or one per segment") from None
+            return np.full(n, number)
+        if isinstance(target, (int, float, np.number)) and not isinstance(target, bool):
+            return np.full(n, parse_value(target, field="target", unit=unit))
+        values = parse_array(target, field="target", unit=unit, what=f"targets in {unit}")
+        if values.size != n or not np.isfinite(values).all():
+            raise InputError(f"target: got {values.size} values for {n} segments; give one finite target in {unit}, "
+                             f"or one per segment")
+        return values
 
     def settling(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
-                 fractions: Any = (0.5, 0.99, 0.999)):
+                 target: Any = "final", fractions: Any = (0.5, 0.99, 0.999)):
         """Per segment, for the lot: the nominal settle time, the settle time met by each
         fraction of units and the longest, the error at the sample at each fraction and the
         largest, the fraction of units inside tolerance at the sample (``yield``) and the
         worst unit (the largest error relative to its limit).  A pandas DataFrame.
 
-        The sample is at `sample_delay` after each change, or at each segment's end.
+        The sample is at `sample_delay` after each change, or at each segment's end;
+        `target` as in :meth:`columns`.
         """
         import pandas as pd
 
         chosen = _fractions(fractions)
-        lot = self.columns(tolerance, sample_delay, probe)
+        lot = self.columns(tolerance, sample_delay, probe, target)
         nominal = self.nominal.settling(tolerance, sample_delay=sample_delay, probe=probe)
         settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
         data: dict[str, Any] = {"start": self.drive.times, "sample_time": lot.sample_time,
@@ -280,26 +327,27 @@ class Study:
             ratio = np.where(lot.limit > 0, lot.error_at_sample / lot.limit, np.inf)
         data["worst_unit"] = np.argmax(ratio, axis=0)
         table = pd.DataFrame(data, index=pd.RangeIndex(len(self.drive), name="segment"))
-        table.attrs.update(tolerance=str(tolerance), unit=lot.unit, watched=lot.label, units=self.units,
+        table.attrs.update(tolerance=str(tolerance), unit=lot.unit, watched=lot.label, units=self.units, target=target,
                            seed=self.seed, spread=str(self.spread))
         return table
 
     def passing(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
-                confidence: Any = 0.95) -> Passing:
+                target: Any = "final", confidence: Any = 0.95) -> Passing:
         """The fraction of units whose every sample is inside tolerance, with its
         Clopper-Pearson interval at `confidence`."""
         level = _fraction(confidence, "confidence", open_top=True)
-        lot = self.columns(tolerance, sample_delay, probe)
+        lot = self.columns(tolerance, sample_delay, probe, target)
         passing = int(lot.ok.all(axis=1).sum())
         low, high = clopper_pearson(passing, self.units, level)
         return Passing(passing / self.units, low, high, passing, self.units, level)
 
-    def delay_for(self, tolerance: "Tolerance", fraction: Any = 0.999, probe: str | None = None) -> np.ndarray:
+    def delay_for(self, tolerance: "Tolerance", fraction: Any = 0.999, probe: str | None = None,
+                  target: Any = "final") -> np.ndarray:
         """Per segment, the sample delay that `fraction` of units needs: the exact order
         statistic of each unit's own settle time (NaN where that many units do not settle
         within the segment)."""
         chosen = _fraction(fraction, "fraction")
-        lot = self.columns(tolerance, None, probe)
+        lot = self.columns(tolerance, None, probe, target)
         settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
         return _never_as_nan(order_statistic(settle, chosen))
 
@@ -417,6 +465,29 @@ class Study:
             boundary = engine.relaxation_scan(self._decay, self._growth, target, start)
             self._scans[key] = (boundary[:, :-1], np.where(self._holds, boundary[:, :-1], target))
         return self._scans[key]
+
+
+def _against_target(start: np.ndarray, final: np.ndarray, aim: np.ndarray, rate: np.ndarray, durations: np.ndarray,
+                    delays: np.ndarray, value: float, relative: bool) -> tuple[np.ndarray, ...]:
+    """``(limit, settle_time, error_at_sample)`` of the error from `aim` (one per segment).
+
+    Within a segment the value is ``final + s x`` with ``s = start - final`` and ``x =
+    exp(-t / tau)`` falling from 1 to 0, so it moves monotonically and the times it lies
+    within ``aim +- limit`` form one interval: a unit settles only if its final value is
+    inside (``|d| <= limit`` with ``d = final - aim``), and then from 0 if its start is
+    inside too, else from where it crosses the band's edge on its side, ``x = (limit -
+    sign(s) d) / |s|``, at ``t = tau ln(|s| / (limit - sign(s) d))``.
+    """
+    d = final - aim
+    s = start - final
+    limit = value * np.abs(aim - start) if relative else np.full(start.shape, value)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        crossing = np.log(np.abs(s) / (limit - np.sign(s) * d)) / rate
+    inside_at_start = np.abs(start - aim) <= limit
+    settle = np.where(inside_at_start, 0.0, crossing)
+    settle = np.where((np.abs(d) <= limit) & (settle <= durations), settle, np.nan)
+    error = np.abs(d + s * engine.exp_in_place(-delays * rate))
+    return limit, settle, error
 
 
 def clopper_pearson(passing: int, units: int, confidence: float) -> tuple[float, float]:

@@ -258,3 +258,66 @@ class TestCurves:
             study.envelope([0.0], fraction=1.5)
         with pytest.raises(InputError, match="outside the drive"):
             study.evaluate([-1.0])
+
+
+class TestTargets:
+    """Against a target other than each unit's own final value, the error is |value - target|;
+    the reference is a dense grid of every unit's own curve (brute force, 20,001 points a
+    segment), whose last entry into the band must agree with the closed form."""
+
+    def brute_force(self, study, target, limit, k, segment):
+        drive = study.drive
+        t = np.linspace(drive.times[segment], drive.ends[segment], 20_001)[:-1]
+        error = np.abs(study.unit(k).total(t) - target[segment])
+        outside = np.flatnonzero(error > limit)
+        if outside.size == 0:
+            return 0.0
+        if outside[-1] == t.size - 1:
+            return math.nan
+        return t[outside[-1] + 1] - drive.times[segment]
+
+    @pytest.mark.parametrize("target", ["nominal", "vin", [5.0, 0.0], 2.5])
+    def test_settle_times_against_a_dense_grid(self, target):
+        fx = fo.Fixture.rc("10k", "100n")
+        fx.resistor("r_in", "out", "gnd", "1M") if "out" in fx.netlist.nodes else None
+        drive = fo.Drive([0, "20m"], end="40m", vin=[5.0, 0.0])
+        study = fx.study(drive, Spread({"c": "10%", "r": "1%", "vin.gain": "0.02%"}), units=40, seed=4)
+        tolerance = fo.Tolerance.absolute("2m")
+        lot = study.columns(tolerance, target=target)
+        aim = study._target(target, None, "V")
+        step = (drive.ends[0] - drive.times[0]) / 20_000
+        for k in (0, 13, 39):
+            for segment in (0, 1):
+                expected = self.brute_force(study, aim, 2e-3, k, segment)
+                got = lot.settle_time[k, segment]
+                if math.isnan(expected):
+                    assert math.isnan(got), (k, segment, got)
+                else:
+                    assert abs(got - expected) <= 1.01 * step, (k, segment, got, expected)
+
+    def test_the_final_target_is_each_units_own_table_and_gain_error_counts_against_the_source(self):
+        fx = fo.Fixture.rc("10k", "100n")
+        drive = fo.Drive([0, "20m"], end="40m", vin=[5.0, 0.0])
+        study = fx.study(drive, Spread({"vin.gain": Uniform("0.1%", "0.2%")}), units=20, seed=1)
+        half_lsb = fo.Tolerance.lsb(bits=16, span=5.0)
+        own = study.columns(half_lsb)
+        against_source = study.columns(half_lsb, target="vin")
+        # Every unit's gain is 0.1-0.2 % high: 5-10 mV off 5 V, far past 38 µV; 0 V is still 0 V.
+        assert own.ok.all()
+        assert not against_source.ok[:, 0].any() and against_source.ok[:, 1].all()
+        assert np.isnan(against_source.settle_time[:, 0]).all()
+
+    @pytest.mark.parametrize("target, message", [
+        ("typical", "target: 'typical'"), ([1.0, 2.0, 3.0], "3 values for 2 segments"), (True, "target"),
+        ({"vin": 1}, "target"),
+    ])
+    def test_bad_targets(self, target, message):
+        study = rc_study(Spread({"c": "10%"}), 5)
+        with pytest.raises(InputError, match=message):
+            study.columns(HALF_LSB_16, target=target)
+
+    def test_a_source_in_another_unit_is_refused(self):
+        fx = fo.Fixture().current_source("ib", "gnd", "a").resistor("r", "a", "gnd", "1k").capacitor("c", "a", "gnd", "1u")
+        study = fx.study(fo.Drive([0], end="10m", ib=[1e-3]), Spread({"c": "1%"}), units=5, seed=1)
+        with pytest.raises(InputError, match="gives A, but the watched quantity is in V"):
+            study.columns(fo.Tolerance.absolute("1m"), target="ib")
