@@ -215,12 +215,21 @@ _EXPECTED = {
 
 
 def _short(value: Any, limit: int = 60) -> str:
+    """`value` as a reader of the file wrote it (JSON's ``null``, ``true``), shortened."""
+    if value is None or isinstance(value, bool):
+        return json.dumps(value)
+    if isinstance(value, int) and len(str(abs(value))) > 20:
+        return f"a whole number of {len(str(abs(value)))} digits"
     text = repr(value)
     return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
-def describe_validation(error: Any, data: Any) -> str:
-    """One line naming the JSON path of the first bad field and what is allowed."""
+def describe_validation(error: Any, data: Any, tags: dict[str, Sequence[str]] | None = None) -> str:
+    """One line naming the JSON path of the first bad field and what is allowed.
+
+    `tags` gives, per field holding kinds of objects (``"parts"``,
+    ``"tolerance"``), the kinds allowed, to name them when a ``kind`` is missing.
+    """
     found = []
     for item in error.errors(include_url=False):
         path = _data_path(data, item["loc"], item["type"])
@@ -245,7 +254,13 @@ def describe_validation(error: Any, data: Any) -> str:
     context = first.get("ctx", {})
     if first["type"] in ("too_long", "too_short"):
         limit = f"at most {context.get('max_length')}" if first["type"] == "too_long" else f"at least {context.get('min_length')}"
-        return f"{where}: has {context.get('actual_length')} items; {limit} are allowed"
+        count = context.get("actual_length")
+        if count is None and hasattr(value, "__len__"):
+            count = len(value)
+        what = "entries" if isinstance(value, dict) else "items"
+        if count is None:  # pydantic stops counting a mapping once it is over the limit
+            return f"{where}: has more {what} than allowed; {limit} are allowed"
+        return f"{where}: has {count} {what}; {limit} are allowed"
     if first["type"] in ("string_too_long", "string_too_short"):
         limit = f"at most {context.get('max_length')}" if first["type"] == "string_too_long" else f"at least {context.get('min_length')}"
         return f"{where}: is {len(value) if isinstance(value, str) else '?'} characters long; {limit} are allowed"
@@ -253,7 +268,13 @@ def describe_validation(error: Any, data: Any) -> str:
         return f"{where}: {_short(value)} is not allowed; numbers must be finite (a too-large number reads as inf)"
     if first["type"] in ("union_tag_invalid", "union_tag_not_found"):
         expected = first.get("ctx", {}).get("expected_tags", "")
-        return f"{where}.kind: {_short(value.get('kind') if isinstance(value, dict) else value)} is not one of {expected}"
+        if not expected:
+            holder = next((step for step in reversed(path) if isinstance(step, str)), "")
+            expected = ", ".join(repr(kind) for kind in (tags or {}).get(holder, ()))
+        allowed = f"one of {expected}" if expected else "the kind of this object"
+        if first["type"] == "union_tag_not_found" or not isinstance(value, dict) or "kind" not in value:
+            return f"{where}.kind: is missing; give {allowed}"
+        return f"{where}.kind: {_short(value.get('kind'))} is not one of {expected or 'the kinds allowed'}"
     if first["type"] == "value_error":
         message = str(first.get("ctx", {}).get("error", first["msg"]))
         if path and isinstance(path[-1], str) and message.startswith(f"{path[-1]}: "):

@@ -37,11 +37,23 @@ MAX_NUMBER_TEXT = 100
 MAX_TITLE = 1_000
 MAX_NOTES = 100_000
 
+
+
+def _fits_a_float(value: int) -> int:
+    """A whole number the arithmetic can use (a float holds up to about 1.8e308)."""
+    if abs(value) > _LARGEST_FLOAT:
+        raise ValueError(f"value: a whole number of {len(str(abs(value)))} digits is too large; "
+                         f"numbers must lie within ±1.8e308 (what a float holds)")
+    return value
+
+
+_LARGEST_FLOAT = int(1.7976931348623157e308)
 Name = Annotated[StrictStr, Field(min_length=1, max_length=MAX_NAME)]
 FiniteFloat = Annotated[StrictFloat, Field(allow_inf_nan=False)]
 NumberText = Annotated[StrictStr, Field(min_length=1, max_length=MAX_NUMBER_TEXT)]
+WholeNumber = Annotated[StrictInt, AfterValidator(_fits_a_float)]
 # int before float: a whole number stays a whole number, as it was typed.
-Quantity = Union[StrictInt, FiniteFloat, NumberText]
+Quantity = Union[WholeNumber, FiniteFloat, NumberText]
 
 
 def _quantity_check(unit: str, *, positive: bool = False, non_negative: bool = False,
@@ -119,7 +131,7 @@ class FixtureModel(_Closed):
 
 
 # -- drive -----------------------------------------------------------------------------
-Level = Union[StrictInt, FiniteFloat, StrictBool, NumberText]
+Level = Union[WholeNumber, FiniteFloat, StrictBool, NumberText]
 
 
 class DriveModel(_Closed):
@@ -176,6 +188,15 @@ def _known_version(version: int) -> int:
     if version != FORMAT_VERSION:
         raise ValueError(f"version: {version!r} is not a version this firstorder reads (it reads version {FORMAT_VERSION})")
     return version
+
+
+#: The kinds each field of kinds of objects allows, to name them when a file leaves ``kind`` out.
+KINDS = {
+    "parts": tuple(model.model_fields["kind"].annotation.__args__[0] for model in (
+        ResistorModel, CapacitorModel, InductorModel, SwitchModel, VoltageSourceModel, CurrentSourceModel)),
+    "tolerance": tuple(model.model_fields["kind"].annotation.__args__[0] for model in (
+        AbsoluteModel, RelativeModel, PpmModel, LsbModel)),
+}
 
 
 # -- the file ----------------------------------------------------------------------------------
