@@ -25,17 +25,10 @@ from pydantic import (
 )
 
 from ..units import parse_value
-from .analysis_format import FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES
+from .analysis_format import (FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES, MAX_COLUMNS, MAX_NAME, MAX_NOTES,
+                              MAX_NUMBER_TEXT, MAX_PARTS, MAX_TITLE)
 
-__all__ = ["AnalysisFile"]
-
-#: Limits that keep a hostile or corrupt file from exhausting memory or time.
-MAX_PARTS = 10_000
-MAX_COLUMNS = 1_000
-MAX_NAME = 200
-MAX_NUMBER_TEXT = 100
-MAX_TITLE = 1_000
-MAX_NOTES = 100_000
+__all__ = ["AnalysisFile", "KINDS"]
 
 
 
