@@ -408,12 +408,18 @@ def json_text_of(text: str | bytes, source: str) -> tuple[str, str]:
     if len(text) > MAX_FILE_BYTES:
         raise InputError(f"{source}: more than {MAX_FILE_BYTES / 1e6:.0f} MB of text; not read")
     if text.lstrip()[:1] == "<":
-        match = _EMBEDDED.search(text)
-        if match is None:
+        blocks = _EMBEDDED.findall(text)
+        if len(blocks) > 1:
+            raise InputError(
+                f"{source}: holds {len(blocks)} embedded analyses (<script id=\"{EMBED_ID}\"> blocks); a "
+                f"report written by firstorder holds exactly one, so it is not clear which to read; keep "
+                f"one block, or give the analysis file itself"
+            )
+        if not blocks:
             raise InputError(
                 f"{source}: an HTML file without an embedded analysis (no <script "
                 f"id=\"{EMBED_ID}\"> block); give a file written by Analysis.report or Analysis.save"
             )
-        return match.group(1), f"{source} (embedded analysis)"
+        return blocks[0], f"{source} (embedded analysis)"
     return text, source
 

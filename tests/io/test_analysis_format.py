@@ -240,6 +240,21 @@ class TestMalformedFiles:
         with pytest.raises(fo.InputError, match="an HTML file without an embedded analysis"):
             Analysis.load(path)
 
+    def test_report_with_two_embedded_analyses_is_refused(self, tmp_path):
+        first = Analysis.from_dict(valid_data())
+        second = first.replace(title="the other one")
+        page = (f'<!DOCTYPE html><html><body><script type="application/json" id="firstorder-analysis">'
+                f'{first.embedded_json()}</script><script type="application/json" id="firstorder-analysis">'
+                f'{second.embedded_json()}</script></body></html>')
+        path = tmp_path / "two.html"
+        path.write_text(page, encoding="utf-8")
+        with pytest.raises(fo.InputError, match="holds 2 embedded analyses .* not clear which to read"):
+            Analysis.load(path)
+        # One block alone loads.
+        path.write_text(page.replace(second.embedded_json(), "", 1).replace(
+            '<script type="application/json" id="firstorder-analysis"></script>', ""), encoding="utf-8")
+        assert Analysis.load(path).title == first.title
+
     def test_from_dict_without_a_file(self):
         with pytest.raises(fo.InputError, match=r"^analysis: fixture\.parts\[2\]\.value"):
             Analysis.from_dict(_set(valid_data(), ["fixture", "parts", 2, "value"], None))
