@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import html
 import math
+import re
 from dataclasses import dataclass
 from typing import Callable
 
@@ -70,7 +71,9 @@ def parts_panel(fields: list[PartField], on_edit: Callable[[str, str], None]) ->
                              description_allow_html=False)
         field.tooltip = f"{spec.kind.replace('_', ' ')} {spec.part} ({spec.unit})"
         # The part's key keeps its underscores in the class: tests and pages find fields by it.
-        field.add_class(f"fo-part-{spec.key.replace('.', '-')}")
+        # A class is one token: a space (or any other character a class cannot hold) in a
+        # part's name would make the browser refuse it and the field fail to show.
+        field.add_class("fo-part-" + re.sub(r"[^A-Za-z0-9_-]", "-", spec.key))
         field.observe(lambda change, key=spec.key: on_edit(key, change["new"]), names="value")
         error = widgets.HTML(layout=widgets.Layout(width="auto"))
         texts[spec.key], errors[spec.key] = field, error

@@ -164,3 +164,13 @@ def html_escape(text: str, quote: bool = True) -> str:
     import html
 
     return html.escape(text, quote=quote)
+
+
+def test_a_part_name_with_spaces_gives_a_field_one_css_class():
+    from builders import hostile_fixture
+
+    panel = panels.parts_panel(part_fields(hostile_fixture()), print)
+    for field in panel.fields.values():
+        classes = [c for c in field._dom_classes if c.startswith("fo-part-")]
+        # The browser refuses a class with a space in it, and the Bench then fails to show.
+        assert len(classes) == 1 and not any(ch.isspace() or ch in "<>\"'" for ch in classes[0]), classes
