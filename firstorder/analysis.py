@@ -284,7 +284,7 @@ class Analysis:
         try:
             model = schema.AnalysisFile.model_validate(data)
         except ValidationError as error:
-            raise InputError(f"{source}: {file_format.describe_validation(error, data)}") from None
+            raise InputError(f"{source}: {file_format.describe_validation(error, data, schema.KINDS)}") from None
         return cls._from_model(model, source)
 
     @classmethod

@@ -65,7 +65,8 @@ def _build_parser() -> argparse.ArgumentParser:
                     "derivations, settling table, cautions, and the analysis itself.",
     )
     report.add_argument("analysis", help="analysis file (.json, or a report .html)")
-    report.add_argument("-o", "--output", help="report to write (default: the analysis name with .html)")
+    report.add_argument("-o", "--output",
+                        help="report to write (default: the analysis name with .html); - for standard output")
 
     settle = commands.add_parser(
         "settle", help="print the settling table of an analysis",
@@ -102,6 +103,9 @@ def _report(arguments: argparse.Namespace) -> None:
     from .analysis import Analysis
 
     analysis = Analysis.load(arguments.analysis)
+    if arguments.output == "-":
+        sys.stdout.write(analysis.to_html())
+        return
     output = arguments.output or str(Path(arguments.analysis).with_suffix(".html"))
     if Path(output).resolve() == Path(arguments.analysis).resolve():
         raise _UsageError(
@@ -293,8 +297,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         _silence_stdout()
         return 0
     except OSError as error:
-        where = f" {error.filename}" if getattr(error, "filename", None) else ""
-        print(f"{_PROGRAM}: error:{where}: {_one_line(error.strerror or str(error))}", file=sys.stderr)
+        where = f"{error.filename}: " if getattr(error, "filename", None) else ""
+        print(f"{_PROGRAM}: error: {where}{_one_line(error.strerror or str(error))}", file=sys.stderr)
         return EXIT_ERROR
     except KeyboardInterrupt:
         print(f"{_PROGRAM}: interrupted", file=sys.stderr)

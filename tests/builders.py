@@ -123,3 +123,48 @@ def relay_fixture() -> fo.Fixture:
     fx.probe("i_ib", through="ib")
     fx.probe("i_rs", through="rs")
     return fx
+
+
+#: A name that runs script if it reaches a page as HTML (in a tag or an attribute).
+HOSTILE = '<img src=x onerror="window.__pwned=1">'
+
+
+def hostile_fixture() -> fo.Fixture:
+    """Every part, node and probe named with :data:`HOSTILE` in it."""
+    fx = fo.Fixture()
+    fx.voltage_source("v" + HOSTILE, "in" + HOSTILE, "gnd")
+    fx.switch("k" + HOSTILE, "in" + HOSTILE, "mid" + HOSTILE, r_on="10")
+    fx.resistor("r" + HOSTILE, "mid" + HOSTILE, "out" + HOSTILE, "1k")
+    fx.capacitor("c" + HOSTILE, "out" + HOSTILE, "gnd", "1u")
+    fx.probe("p" + HOSTILE, through="r" + HOSTILE)
+    return fx
+
+
+def hostile_drive() -> fo.Drive:
+    return fo.Drive([0, "1m", "3m"], end="5m", **{"v" + HOSTILE: [0, 1, 1], "k" + HOSTILE: [1, 1, 0]})
+
+
+def hostile_analysis() -> Analysis:
+    return Analysis(hostile_fixture(), hostile_drive(), tolerance=fo.Tolerance.absolute("1m"),
+                    sample_delay="0.5m", title="t" + HOSTILE, notes="n" + HOSTILE)
+
+
+def assert_inert(page: str, hostile: str = HOSTILE) -> None:
+    """`page` (HTML) holds no element or attribute made from `hostile`: no <img>, no on... handler.
+
+    Parsed as a browser would (html.parser): the name may appear only as text.
+    """
+    from html.parser import HTMLParser
+
+    found: list[str] = []
+
+    class Elements(HTMLParser):
+        def handle_starttag(self, tag, attrs):
+            if tag == "img" or any(name.startswith("on") for name, _ in attrs):
+                found.append(f"<{tag} {attrs}>")
+
+    parser = Elements(convert_charrefs=True)
+    parser.feed(page)
+    parser.close()
+    assert not found, f"user text became HTML: {found[:3]}"
+    assert hostile not in page, "the hostile name appears unescaped"

@@ -193,3 +193,45 @@ class TestInterruptedSave:
         assert path.read_bytes() == before
         assert [p.name for p in tmp_path.iterdir()] == ["a.json"]  # no temporary left behind
         assert Analysis.load(path).title == "Hold capacitor behind a relay (invented)"
+
+
+class TestSaveLimits:
+    """What a save writes, a load reads: the file's limits apply when saving, with the same message."""
+
+    @staticmethod
+    def _long(kind: str) -> fo.Analysis:
+        from firstorder.io import analysis_format as limits
+
+        fx = fo.Fixture()
+        name = "r" * (limits.MAX_NAME + 1) if kind == "name" else "r"
+        fx.voltage_source("vin", "in", "gnd")
+        value = "1" * limits.MAX_NUMBER_TEXT + "k" if kind == "value" else "1k"
+        fx.resistor(name, "in", "out", value)
+        fx.capacitor("c", "out", "gnd", "1u")
+        drive = fo.Drive.steps([(0, 1.0)], end="5m")
+        title = "t" * (limits.MAX_TITLE + 1) if kind == "title" else ""
+        notes = "n" * (limits.MAX_NOTES + 1) if kind == "notes" else ""
+        return fo.Analysis(fx, drive, title=title, notes=notes)
+
+    @pytest.mark.parametrize("kind, where", [("notes", "notes"), ("title", "title"),
+                                             ("name", "fixture.parts[1].name"), ("value", "fixture.parts[1].value")])
+    def test_text_over_a_file_limit_is_refused_on_save_as_on_load(self, kind, where, tmp_path):
+        import json
+
+        analysis = self._long(kind)
+        path = tmp_path / "a.json"
+        with pytest.raises(fo.InputError) as on_save:
+            analysis.save(path)
+        assert not path.exists() and list(tmp_path.iterdir()) == []
+        with pytest.raises(fo.InputError):
+            analysis.report(tmp_path / "a.html")
+        assert list(tmp_path.iterdir()) == []
+        # The same text written by hand is refused on load with the same message.
+        from firstorder.io.analysis_format import _dumps
+
+        path.write_text(_dumps(analysis.to_dict()), encoding="utf-8")
+        with pytest.raises(fo.InputError) as on_load:
+            fo.Analysis.load(path)
+        assert str(on_load.value) == f"{path}: {on_save.value}"
+        assert str(on_save.value).startswith(f"{where}: is ")
+        json.loads(path.read_text(encoding="utf-8"))  # the hand-written file is JSON

@@ -226,3 +226,83 @@ class TestEnvironment:
         # It used to surface only on long drives, and then as "internal error".
         result = run("settle", str(demo / "demo-analysis.json"), FIRSTORDER_THREADS="abc")
         assert_one_line_error(result, "FIRSTORDER_THREADS: 'abc' is not allowed", "whole number >= 1")
+
+
+class TestOutputs:
+    def test_dash_writes_the_report_to_standard_output(self, demo, tmp_path):
+        result = run("report", str(demo / "demo-analysis.json"), "-o", "-", cwd=tmp_path)
+        assert result.returncode == 0, result.stderr
+        assert result.stdout.lstrip().startswith("<!DOCTYPE html>") and "firstorder-analysis" in result.stdout
+        assert list(tmp_path.iterdir()) == []  # no file named "-"
+        assert Analysis.from_json(result.stdout).title == cli.demo_analysis().title
+
+    def test_existing_folder_is_named_and_said_to_be_a_folder(self, demo, tmp_path):
+        result = run("report", str(demo / "demo-analysis.json"), "-o", str(tmp_path))
+        assert_one_line_error(result, f"firstorder: error: {tmp_path}: is a folder")
+        assert ".firstorder-" not in result.stderr and "firstorder-tmp" not in result.stderr
+        assert list(tmp_path.iterdir()) == []
+
+    def test_full_disk_names_the_file_and_says_the_disk_is_full(self, demo, tmp_path, monkeypatch, capsys):
+        import errno
+
+        from firstorder.io import atomic
+
+        def full(handle, data):
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+        monkeypatch.setattr(atomic.os, "write", full)
+        target = tmp_path / "r.html"
+        assert cli.main(["report", str(demo / "demo-analysis.json"), "-o", str(target)]) == 2
+        error = capsys.readouterr().err
+        assert error.startswith(f"firstorder: error: {target}: the disk is full"), error
+        assert "::" not in error and error.count("\n") == 1
+        assert list(tmp_path.iterdir()) == []
+
+
+def _malformed_files() -> dict[str, str]:
+    """Bad analysis files a user might meet, each as its text."""
+    good = json.loads(cli.demo_analysis().to_json())
+
+    def changed(change) -> str:
+        data = json.loads(json.dumps(good))
+        change(data)
+        return json.dumps(data)
+
+    huge = "9" * 400
+    return {
+        "empty": "",
+        "a list": "[1, 2, 3]",
+        "a string": '"firstorder"',
+        "null": "null",
+        "NUL bytes": "\x00" * 20,
+        "huge integer time": json.dumps(good).replace('"times": [0.0', f'"times": [{huge}', 1),
+        "huge integer value": changed(lambda d: d["fixture"]["parts"][1].update(value=0)).replace(
+            '"value": 0', f'"value": {huge}', 1),
+        "huge integer version": json.dumps(good).replace('"version": 1', f'"version": {huge}', 1),
+        "huge integer bits": json.dumps(good).replace('"bits": 16', f'"bits": {huge}', 1),
+        "huge exponent": json.dumps(good).replace('"end": 0.0014', '"end": 1e999', 1),
+        "kind missing": changed(lambda d: d["fixture"]["parts"][0].pop("kind")),
+        "kind null": changed(lambda d: d["fixture"]["parts"][0].update(kind=None)),
+        "kind unknown": changed(lambda d: d["fixture"]["parts"][0].update(kind="transistor")),
+        "tolerance kind null": changed(lambda d: d["tolerance"].update(kind=None)),
+        "too many columns": changed(lambda d: d["drive"]["columns"].update(
+            {f"c{k}": [0.0] * 5 for k in range(1001)})),
+        "parts not a list": changed(lambda d: d["fixture"].update(parts={"r": 1})),
+        "deeply nested": "[" * 100_000 + "]" * 100_000,
+        "html without analysis": "<html><body>hello</body></html>",
+        "not utf-8": "\udcff",
+    }
+
+
+class TestMalformedFiles:
+    @pytest.mark.parametrize("name", list(_malformed_files()))
+    def test_a_malformed_file_is_one_clear_line_never_an_internal_error(self, name, tmp_path, capsys):
+        path = tmp_path / "bad.json"
+        text = _malformed_files()[name]
+        path.write_bytes(text.encode("utf-8", errors="surrogateescape"))
+        for command in ("settle", "derive"):
+            assert cli.main([command, str(path)]) == 2
+            error = capsys.readouterr().err
+            assert error.count("\n") == 1 and "internal error" not in error, error
+            assert error.startswith(f"firstorder: error: {path}"), error
+            assert " None " not in error and not error.rstrip().endswith("of"), error

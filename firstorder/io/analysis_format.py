@@ -22,7 +22,8 @@ from typing import Any
 
 from ..errors import InputError
 
-__all__ = ["EMBED_ID", "FORMAT_NAME", "FORMAT_VERSION", "MAX_CHANGES", "MAX_FILE_BYTES", "as_typed", "at",
+__all__ = ["EMBED_ID", "FORMAT_NAME", "FORMAT_VERSION", "MAX_CHANGES", "MAX_COLUMNS", "MAX_FILE_BYTES", "MAX_NAME",
+           "MAX_NOTES", "MAX_NUMBER_TEXT", "MAX_PARTS", "MAX_TITLE", "as_typed", "at", "check_lengths",
            "describe_validation", "embed_safe", "file_text", "json_text_of", "parse_json", "path_text",
            "read_limited"]
 
@@ -32,6 +33,14 @@ FORMAT_VERSION = 1
 MAX_FILE_BYTES = 50_000_000
 #: Most changes a drive in a file may have.
 MAX_CHANGES = 1_000_000
+#: Limits that keep a hostile or corrupt file from exhausting memory or time; the
+#: schema applies them when a file is read, :func:`check_lengths` when one is written.
+MAX_PARTS = 10_000
+MAX_COLUMNS = 1_000
+MAX_NAME = 200
+MAX_NUMBER_TEXT = 100
+MAX_TITLE = 1_000
+MAX_NOTES = 100_000
 #: The id of the ``<script type="application/json">`` block that carries the
 #: analysis inside a report, so that :meth:`Analysis.load` reads reports too.
 EMBED_ID = "firstorder-analysis"
@@ -119,6 +128,62 @@ def parse_json(text: str, source: str) -> Any:
     except ValueError as error:  # for example an integer with more digits than Python reads
         reason = "it holds a number with thousands of digits" if "digits" in str(error) else str(error)
         raise InputError(f"{source}: not a readable analysis file: {reason}") from None
+
+
+# Fields of text that hold a name (a part, node, probe or the program that saved the file).
+_NAME_FIELDS = frozenset({"name", "a", "b", "node", "reference", "through", "saved_with"})
+# Fields whose text is one of a few fixed words (checked by the schema, never long).
+_FIXED_FIELDS = frozenset({"format", "kind", "unit"})
+
+
+def too_long(where: str, length: int, limit: int) -> str:
+    """The one message for text over its limit, on reading and on writing."""
+    return f"{where}: is {length} characters long; at most {limit} are allowed"
+
+
+def check_lengths(data: dict[str, Any]) -> None:
+    """Refuse text in `data` (what a save writes) that reading the file back would refuse.
+
+    The title, the notes, every name and every value typed as text have the
+    same limits as in :mod:`.schema`, and the same message.
+
+    Examples
+    --------
+    >>> check_lengths({"title": "RC step", "notes": "", "fixture": {"parts": [{"name": "r", "value": "10k"}]}})
+    >>> check_lengths({"title": "x" * 1001})
+    Traceback (most recent call last):
+    ...
+    firstorder.errors.InputError: title: is 1001 characters long; at most 1000 are allowed
+    """
+    def limit_of(field: str | int | None) -> int | None:
+        if field == "title":
+            return MAX_TITLE
+        if field == "notes":
+            return MAX_NOTES
+        if field in _NAME_FIELDS:
+            return MAX_NAME
+        if field in _FIXED_FIELDS:
+            return None
+        return MAX_NUMBER_TEXT
+
+    def walk(value: Any, path: list[str | int]) -> None:
+        if isinstance(value, str):
+            limit = limit_of(path[-1] if path else None)
+            if limit is not None and len(value) > limit:
+                raise InputError(too_long(path_text(path), len(value), limit))
+        elif isinstance(value, dict):
+            for key, item in value.items():
+                if path == ["drive", "columns"] and len(key) > MAX_NAME:
+                    raise InputError(too_long(path_text(path), len(key), MAX_NAME).replace(
+                        ": is", f": the name {_short(key)} is", 1))
+                walk(item, [*path, key])
+        elif isinstance(value, list) and any(isinstance(item, (str, dict, list)) for item in value[:1]):
+            # Lists of numbers (a million drive times) are skipped; a list of text is
+            # checked item by item, as values typed as text.
+            for index, item in enumerate(value):
+                walk(item, [*path, index])
+
+    walk(data, [])
 
 
 def embed_safe(text: str) -> str:
@@ -215,12 +280,21 @@ _EXPECTED = {
 
 
 def _short(value: Any, limit: int = 60) -> str:
+    """`value` as a reader of the file wrote it (JSON's ``null``, ``true``), shortened."""
+    if value is None or isinstance(value, bool):
+        return json.dumps(value)
+    if isinstance(value, int) and len(str(abs(value))) > 20:
+        return f"a whole number of {len(str(abs(value)))} digits"
     text = repr(value)
     return text if len(text) <= limit else text[: limit - 3] + "..."
 
 
-def describe_validation(error: Any, data: Any) -> str:
-    """One line naming the JSON path of the first bad field and what is allowed."""
+def describe_validation(error: Any, data: Any, tags: dict[str, Sequence[str]] | None = None) -> str:
+    """One line naming the JSON path of the first bad field and what is allowed.
+
+    `tags` gives, per field holding kinds of objects (``"parts"``,
+    ``"tolerance"``), the kinds allowed, to name them when a ``kind`` is missing.
+    """
     found = []
     for item in error.errors(include_url=False):
         path = _data_path(data, item["loc"], item["type"])
@@ -245,15 +319,29 @@ def describe_validation(error: Any, data: Any) -> str:
     context = first.get("ctx", {})
     if first["type"] in ("too_long", "too_short"):
         limit = f"at most {context.get('max_length')}" if first["type"] == "too_long" else f"at least {context.get('min_length')}"
-        return f"{where}: has {context.get('actual_length')} items; {limit} are allowed"
+        count = context.get("actual_length")
+        if count is None and hasattr(value, "__len__"):
+            count = len(value)
+        what = "entries" if isinstance(value, dict) else "items"
+        if count is None:  # pydantic stops counting a mapping once it is over the limit
+            return f"{where}: has more {what} than allowed; {limit} are allowed"
+        return f"{where}: has {count} {what}; {limit} are allowed"
     if first["type"] in ("string_too_long", "string_too_short"):
         limit = f"at most {context.get('max_length')}" if first["type"] == "string_too_long" else f"at least {context.get('min_length')}"
+        if first["type"] == "string_too_long" and isinstance(value, str):
+            return too_long(where, len(value), context.get("max_length"))
         return f"{where}: is {len(value) if isinstance(value, str) else '?'} characters long; {limit} are allowed"
     if first["type"] == "finite_number":
         return f"{where}: {_short(value)} is not allowed; numbers must be finite (a too-large number reads as inf)"
     if first["type"] in ("union_tag_invalid", "union_tag_not_found"):
         expected = first.get("ctx", {}).get("expected_tags", "")
-        return f"{where}.kind: {_short(value.get('kind') if isinstance(value, dict) else value)} is not one of {expected}"
+        if not expected:
+            holder = next((step for step in reversed(path) if isinstance(step, str)), "")
+            expected = ", ".join(repr(kind) for kind in (tags or {}).get(holder, ()))
+        allowed = f"one of {expected}" if expected else "the kind of this object"
+        if first["type"] == "union_tag_not_found" or not isinstance(value, dict) or "kind" not in value:
+            return f"{where}.kind: is missing; give {allowed}"
+        return f"{where}.kind: {_short(value.get('kind'))} is not one of {expected or 'the kinds allowed'}"
     if first["type"] == "value_error":
         message = str(first.get("ctx", {}).get("error", first["msg"]))
         if path and isinstance(path[-1], str) and message.startswith(f"{path[-1]}: "):
@@ -297,6 +385,7 @@ def file_text(data: dict[str, Any]) -> str:
         When the text would exceed the size a file may have, so that nothing is
         saved that could not be read back.
     """
+    check_lengths(data)
     text = _dumps(data) + "\n"
     size = len(text.encode("utf-8"))
     if size > MAX_FILE_BYTES:
@@ -319,12 +408,18 @@ def json_text_of(text: str | bytes, source: str) -> tuple[str, str]:
     if len(text) > MAX_FILE_BYTES:
         raise InputError(f"{source}: more than {MAX_FILE_BYTES / 1e6:.0f} MB of text; not read")
     if text.lstrip()[:1] == "<":
-        match = _EMBEDDED.search(text)
-        if match is None:
+        blocks = _EMBEDDED.findall(text)
+        if len(blocks) > 1:
+            raise InputError(
+                f"{source}: holds {len(blocks)} embedded analyses (<script id=\"{EMBED_ID}\"> blocks); a "
+                f"report written by firstorder holds exactly one, so it is not clear which to read; keep "
+                f"one block, or give the analysis file itself"
+            )
+        if not blocks:
             raise InputError(
                 f"{source}: an HTML file without an embedded analysis (no <script "
                 f"id=\"{EMBED_ID}\"> block); give a file written by Analysis.report or Analysis.save"
             )
-        return match.group(1), f"{source} (embedded analysis)"
+        return blocks[0], f"{source} (embedded analysis)"
     return text, source
 

@@ -25,23 +25,28 @@ from pydantic import (
 )
 
 from ..units import parse_value
-from .analysis_format import FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES
+from .analysis_format import (FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES, MAX_COLUMNS, MAX_NAME, MAX_NOTES,
+                              MAX_NUMBER_TEXT, MAX_PARTS, MAX_TITLE)
 
-__all__ = ["AnalysisFile"]
+__all__ = ["AnalysisFile", "KINDS"]
 
-#: Limits that keep a hostile or corrupt file from exhausting memory or time.
-MAX_PARTS = 10_000
-MAX_COLUMNS = 1_000
-MAX_NAME = 200
-MAX_NUMBER_TEXT = 100
-MAX_TITLE = 1_000
-MAX_NOTES = 100_000
 
+
+def _fits_a_float(value: int) -> int:
+    """A whole number the arithmetic can use (a float holds up to about 1.8e308)."""
+    if abs(value) > _LARGEST_FLOAT:
+        raise ValueError(f"value: a whole number of {len(str(abs(value)))} digits is too large; "
+                         f"numbers must lie within ±1.8e308 (what a float holds)")
+    return value
+
+
+_LARGEST_FLOAT = int(1.7976931348623157e308)
 Name = Annotated[StrictStr, Field(min_length=1, max_length=MAX_NAME)]
 FiniteFloat = Annotated[StrictFloat, Field(allow_inf_nan=False)]
 NumberText = Annotated[StrictStr, Field(min_length=1, max_length=MAX_NUMBER_TEXT)]
+WholeNumber = Annotated[StrictInt, AfterValidator(_fits_a_float)]
 # int before float: a whole number stays a whole number, as it was typed.
-Quantity = Union[StrictInt, FiniteFloat, NumberText]
+Quantity = Union[WholeNumber, FiniteFloat, NumberText]
 
 
 def _quantity_check(unit: str, *, positive: bool = False, non_negative: bool = False,
@@ -119,7 +124,7 @@ class FixtureModel(_Closed):
 
 
 # -- drive -----------------------------------------------------------------------------
-Level = Union[StrictInt, FiniteFloat, StrictBool, NumberText]
+Level = Union[WholeNumber, FiniteFloat, StrictBool, NumberText]
 
 
 class DriveModel(_Closed):
@@ -176,6 +181,15 @@ def _known_version(version: int) -> int:
     if version != FORMAT_VERSION:
         raise ValueError(f"version: {version!r} is not a version this firstorder reads (it reads version {FORMAT_VERSION})")
     return version
+
+
+#: The kinds each field of kinds of objects allows, to name them when a file leaves ``kind`` out.
+KINDS = {
+    "parts": tuple(model.model_fields["kind"].annotation.__args__[0] for model in (
+        ResistorModel, CapacitorModel, InductorModel, SwitchModel, VoltageSourceModel, CurrentSourceModel)),
+    "tolerance": tuple(model.model_fields["kind"].annotation.__args__[0] for model in (
+        AbsoluteModel, RelativeModel, PpmModel, LsbModel)),
+}
 
 
 # -- the file ----------------------------------------------------------------------------------

@@ -14,8 +14,13 @@ if TYPE_CHECKING:
 __all__ = ["markdown_report"]
 
 
+def _md_text(value: Any) -> str:
+    """Text that Markdown shows as written: inline HTML (a part named ``<img ...>``) stays text."""
+    return str(value).replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+
+
 def _md_cell(value: Any) -> str:
-    return str(value).replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
+    return _md_text(value).replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
 
 
 def _md_table(header: list[str], rows: list[list[str]]) -> str:
@@ -32,7 +37,7 @@ def markdown_report(analysis: "Analysis", derivations: bool = True, now: str | N
     out = [f"# {_md_cell(analysis.title or 'firstorder analysis')}",
            f"_Written by firstorder {version()} on {stamp}._"]
     if analysis.notes:
-        out += ["## Notes", analysis.notes]
+        out += ["## Notes", _md_text(analysis.notes)]
     out += ["## Summary", _md_table(["", ""], [list(r) for r in summary_rows(analysis)])]
     out += ["## Fixture", _md_table(["name", "kind", "nodes", "as typed", "value"], part_rows(fixture))]
     if fixture.probes:
@@ -49,15 +54,15 @@ def markdown_report(analysis: "Analysis", derivations: bool = True, now: str | N
     else:
         table = analysis.settling()
         header, rows, left_out = settling_rows(table, fixture.state_unit)
-        out.append(f"Tolerance {analysis.tolerance}.")
+        out.append(f"Tolerance {_md_text(analysis.tolerance)}.")
         out.append(_md_table(header, [[str(k), *cells] for k, cells, _ in rows]))
         if left_out:
             out.append(f"{left_out} rows that settled are left out.")
     out.append("## Cautions")
     cautions = analysis.cautions
-    out.append("\n".join(f"- ⚠ {c}" for c in cautions) if cautions else "None raised by firstorder's checks.")
+    out.append("\n".join(f"- ⚠ {_md_text(c)}" for c in cautions) if cautions else "None raised by firstorder's checks.")
     if derivations:
         out.append("## Derivations")
         for states, derivation in analysis.derivations(limit=MAX_DERIVATIONS):
-            out += [f"### {states_text(fixture, states)}", derivation.markdown()]
+            out += [f"### {_md_text(states_text(fixture, states))}", derivation.markdown()]
     return "\n\n".join(out) + "\n"

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import html
 import math
+import re
 from dataclasses import dataclass
 from typing import Callable
 
@@ -70,7 +71,9 @@ def parts_panel(fields: list[PartField], on_edit: Callable[[str, str], None]) ->
                              description_allow_html=False)
         field.tooltip = f"{spec.kind.replace('_', ' ')} {spec.part} ({spec.unit})"
         # The part's key keeps its underscores in the class: tests and pages find fields by it.
-        field.add_class(f"fo-part-{spec.key.replace('.', '-')}")
+        # A class is one token: a space (or any other character a class cannot hold) in a
+        # part's name would make the browser refuse it and the field fail to show.
+        field.add_class("fo-part-" + re.sub(r"[^A-Za-z0-9_-]", "-", spec.key))
         field.observe(lambda change, key=spec.key: on_edit(key, change["new"]), names="value")
         error = widgets.HTML(layout=widgets.Layout(width="auto"))
         texts[spec.key], errors[spec.key] = field, error
@@ -186,9 +189,11 @@ def drive_editor(table: DriveText, on_row: Callable[[str, int], None], on_end: C
     source = ColumnDataSource(table.as_columns())
     columns = [TableColumn(field="row", title="#", width=50),
                TableColumn(field="time", title="change at", editor=StringEditor())]
-    columns += [TableColumn(field=name, title=f"{name} ({table.units[name]})", editor=StringEditor())
+    # BokehJS's table writes a column's title into its header as HTML: escape the name.
+    columns += [TableColumn(field=name, title=html.escape(f"{name} ({table.units[name]})"), editor=StringEditor())
                 for name in sources]
-    columns += [TableColumn(field=name, title=f"{name} (switch)", editor=SelectEditor(options=["closed", "open"]))
+    columns += [TableColumn(field=name, title=html.escape(f"{name} (switch)"),
+                            editor=SelectEditor(options=["closed", "open"]))
                 for name in table.names if name in table.switches]
     grid = DataTable(source=source, columns=columns, editable=True, index_position=None, width=620,
                      height=min(260, 34 + 26 * len(table)), selectable=True)
@@ -350,6 +355,17 @@ def settling_html(session: BenchSession) -> str:
             f"<table style='font-size:0.9em'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
 
 
+def _display_math(latex: str) -> str:
+    r"""`latex` as display maths for HTMLMath, escaped as HTML text.
+
+    Examples
+    --------
+    >>> _display_math(r"r_{<b>} \cdot c")
+    '$$ r_{&lt;b&gt;} \\cdot c $$'
+    """
+    return f"$$ {html.escape(latex, quote=False)} $$"
+
+
 def derivation_html(session: BenchSession) -> str:
     """The selected segment's (or the first one's) derivation: symbols first (sympy, imported
     on first use), then its numbers."""
@@ -364,10 +380,14 @@ def derivation_html(session: BenchSession) -> str:
     start, end = float(drive.times[segment]), float(drive.ends[segment])
     levels = ", ".join(f"{p.name} = {format_value(float(drive.levels(p.name)[segment]), SOURCE_UNITS[p.kind])}"
                        for p in fixture.sources)
-    out = [f"<h4 style='margin:4px 0'>Segment {segment}: {format_value(start, 's')} to {format_value(end, 's')}</h4>",
+    # HTMLMath sets this as innerHTML before MathJax reads the text, so the LaTeX is
+    # escaped like any other text: a name typed as "<img onerror=...>" must stay text
+    # (the browser turns &lt; back into the < that MathJax then typesets).
+    out = [f"<h4 style='margin:4px 0'>Segment {segment}: {html.escape(format_value(start, 's'))} to "
+           f"{html.escape(format_value(end, 's'))}</h4>",
            f"<p>Configuration: {html.escape(derivation.configuration)}; levels: {html.escape(levels) or 'none'}</p>"]
     for caption, body in derivation.steps():
-        out.append(f"<p style='margin:2px 0'><b>{html.escape(caption)}</b></p><p>$$ {body} $$</p>")
+        out.append(f"<p style='margin:2px 0'><b>{html.escape(caption)}</b></p><p>{_display_math(body)}</p>")
     x = latex_name(derivation.state.func.__name__)
     tau, x0, final = float(response.tau[segment]), float(response.boundary[segment]), float(response.final[segment])
 
@@ -376,13 +396,15 @@ def derivation_html(session: BenchSession) -> str:
         return r"\infty" if not math.isfinite(value) else r"\mathrm{" + format_value(value, unit_text).replace(" ", r"\ ") + "}"
 
     out.append("<p style='margin:2px 0'><b>This segment in numbers</b></p>")
-    out.append(rf"<p>$$ \tau = {number(tau, 's')},\quad {x}(t_{{{segment}}}) = {number(x0, unit)},"
-               rf"\quad {x}(\infty) = {number(final, unit)} $$</p>")
+    out.append("<p>" + _display_math(rf"\tau = {number(tau, 's')},\quad {x}(t_{{{segment}}}) = {number(x0, unit)},"
+                                     rf"\quad {x}(\infty) = {number(final, unit)}") + "</p>")
     if math.isfinite(tau):
-        out.append(rf"<p>$$ {x}(t) = {number(final, unit)} + \left({number(x0, unit)} - {number(final, unit)}\right)"
-                   rf"e^{{-(t - {number(start, 's')})/{number(tau, 's')}}} $$</p>")
+        out.append("<p>" + _display_math(
+            rf"{x}(t) = {number(final, unit)} + \left({number(x0, unit)} - {number(final, unit)}\right)"
+            rf"e^{{-(t - {number(start, 's')})/{number(tau, 's')}}}") + "</p>")
     else:
-        out.append(rf"<p>$$ {x}(t) = {number(x0, unit)} \quad\text{{(held: no resistive path)}} $$</p>")
+        out.append("<p>" + _display_math(rf"{x}(t) = {number(x0, unit)} \quad\text{{(held: no resistive path)}}")
+                   + "</p>")
     if probe is not None:
         out.append(f"<p>Shown on the plot: probe {html.escape(probe)}, from the probe expression above.</p>")
     return "\n".join(out)

@@ -48,7 +48,7 @@ MALFORMED = [
     ("older version", lambda d: _set(d, ["version"], 0), "version: 0 is not a version this firstorder reads"),
     ("newer version", lambda d: _set(d, ["version"], 2), "version: 2 is newer than this firstorder reads"),
     ("version as text", lambda d: _set(d, ["version"], "1"), "version: '1' is the wrong type; expected a whole number"),
-    ("version true", lambda d: _set(d, ["version"], True), "version: True is the wrong type"),
+    ("version true", lambda d: _set(d, ["version"], True), "version: true is the wrong type"),
     ("unknown top-level field", lambda d: _set(d, ["colour"], "red"), "colour: is not a field of this format"),
     ("unknown part field", lambda d: _set(d, ["fixture", "parts", 2, "tolerance_pct"], 5),
      r"fixture\.parts\[2\]\.tolerance_pct: is not a field"),
@@ -75,7 +75,7 @@ MALFORMED = [
     ("times not a list", lambda d: _set(d, ["drive", "times"], "0, 1m"), "drive.times: '0, 1m' is the wrong type; expected a list"),
     ("times not increasing", lambda d: _set(d, ["drive", "times"], [0, 0.003, 0.001, 0.0035]),
      r"drive\.times\[2\]: 0\.001 does not come after"),
-    ("end true", lambda d: _set(d, ["drive", "end"], True), "drive.end: True is the wrong type"),
+    ("end true", lambda d: _set(d, ["drive", "end"], True), "drive.end: true is the wrong type"),
     ("huge number", lambda d: json.dumps(d).replace('"end": 0.006', '"end": 1e999'), "drive.end: inf is not allowed; numbers must be finite"),
     ("NaN token", lambda d: json.dumps(d).replace('"end": 0.006', '"end": NaN'), "NaN is not allowed"),
     ("integer too long", lambda d: json.dumps(d).replace('"end": 0.006', '"end": ' + "9" * 5000), "not a readable analysis file"),
@@ -239,6 +239,21 @@ class TestMalformedFiles:
         path.write_text("<!DOCTYPE html><html><body>hello</body></html>")
         with pytest.raises(fo.InputError, match="an HTML file without an embedded analysis"):
             Analysis.load(path)
+
+    def test_report_with_two_embedded_analyses_is_refused(self, tmp_path):
+        first = Analysis.from_dict(valid_data())
+        second = first.replace(title="the other one")
+        page = (f'<!DOCTYPE html><html><body><script type="application/json" id="firstorder-analysis">'
+                f'{first.embedded_json()}</script><script type="application/json" id="firstorder-analysis">'
+                f'{second.embedded_json()}</script></body></html>')
+        path = tmp_path / "two.html"
+        path.write_text(page, encoding="utf-8")
+        with pytest.raises(fo.InputError, match="holds 2 embedded analyses .* not clear which to read"):
+            Analysis.load(path)
+        # One block alone loads.
+        path.write_text(page.replace(second.embedded_json(), "", 1).replace(
+            '<script type="application/json" id="firstorder-analysis"></script>', ""), encoding="utf-8")
+        assert Analysis.load(path).title == first.title
 
     def test_from_dict_without_a_file(self):
         with pytest.raises(fo.InputError, match=r"^analysis: fixture\.parts\[2\]\.value"):

@@ -211,3 +211,38 @@ class TestInBrowser:
         assert canvases >= 1 and plot_box["width"] > 300 and plot_box["height"] > 100
         assert maths >= 20 and math_box["width"] > 10 and math_box["height"] > 5
         assert title == "Relay and hold capacitor"
+
+
+class TestHostileNamesStayText:
+    """Every piece of user text in the report (title, notes, parts, nodes, probes, drive columns) stays text."""
+
+    @pytest.fixture(scope="class")
+    def page(self):
+        from builders import hostile_analysis
+
+        return hostile_analysis().to_html()
+
+    def test_no_element_or_handler_from_user_text(self, page):
+        from builders import assert_inert
+
+        assert_inert(page)
+
+    def test_the_names_are_shown_escaped(self, page):
+        assert page.count("&lt;img src=x onerror=") >= 5
+
+    def test_the_page_title_is_escaped(self, page):
+        import re
+
+        title = re.search(r"<title>(.*?)</title>", page, re.DOTALL).group(1)
+        assert "&lt;img" in title and "<img" not in title
+
+    def test_round_trip_through_the_report_keeps_the_names(self, page, tmp_path):
+        from builders import HOSTILE
+
+        path = tmp_path / "r.html"
+        path.write_text(page, encoding="utf-8")
+        again = fo.Analysis.load(path)
+        assert again.fixture.part_map["r" + HOSTILE].name == "r" + HOSTILE
+        from builders import assert_inert
+
+        assert_inert(again.to_html())

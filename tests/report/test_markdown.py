@@ -43,3 +43,12 @@ class TestDerivationLatex:
         latex = relay_analysis().derivations()[0][1].latex()
         # the state is named as typed (upright "ch"), see tests/symbolic/test_names.py
         assert r"v_{ch}{\left(\infty \right)}" in latex and r"{\left(t \right)}(\infty)" not in latex
+
+
+def test_hostile_names_stay_text_outside_the_maths():
+    from builders import HOSTILE, assert_inert, hostile_analysis
+
+    text = hostile_analysis().markdown(derivations=False)
+    # Markdown passes inline HTML through to the page it becomes: the names must be entities.
+    assert_inert(text)
+    assert "&lt;img src=x" in text

@@ -323,3 +323,102 @@ class TestBenchInBrowser:
             page.locator(".jp-OutputArea-output:has(canvas)").first.screenshot(
                 path=str(BUILD / "bench-browser-band-hover.png"))
             assert found, "no min/max band answered the pointer with its lowest and highest value"
+
+
+#: A part, source, switch, probe and node named to run script if they reach the page as HTML.
+_HOSTILE = '<img src=x onerror="window.__pwned=1">'
+# The resistor and the probe carry the name: legends and axes (drawn by bokeh as text)
+# would otherwise squeeze the plots too narrow to click (the Python tests cover every name).
+_HOSTILE_CELL = f"""import firstorder as fo
+
+H = {_HOSTILE!r}
+fx = fo.Fixture()
+fx.voltage_source("vin", "in", "gnd")
+fx.switch("k1", "in", "mid" + H, r_on="10")
+fx.resistor("r" + H, "mid" + H, "out", "1k")
+fx.capacitor("c", "out", "gnd", "1u")
+fx.probe("p" + H, through="r" + H)
+drive = fo.Drive([0, "1m", "3m"], end="5m", vin=[0, 1, 1], k1=[1, 1, 0])
+# Through a file, as a colleague's analysis would arrive.
+fo.Analysis(fx, drive, tolerance=fo.Tolerance.absolute("1m")).save("hostile.json")
+loaded = fo.Analysis.load("hostile.json")
+fo.Bench(loaded.fixture, loaded.drive, tolerance=loaded.tolerance)
+"""
+
+
+#: How many elements under `selector` are <img> or carry an on... handler attribute.
+_HANDLER_COUNT = """(selector) => [...document.querySelectorAll(selector + ' *')].filter(
+    (e) => e.tagName === 'IMG' || [...e.attributes].some((a) => a.name.toLowerCase().startsWith('on'))).length"""
+
+
+def _wide_canvases(page, within: str = "") -> list[dict]:
+    boxes = [c.bounding_box() for c in page.locator(f"{within} canvas").all()]
+    return [box for box in boxes if box and box["width"] > 200 and box["height"] > 100]
+
+
+class TestHostileNamesInBrowser:
+    def test_bench_clicked_segment_runs_no_injected_handler(self, lab):
+        from playwright.sync_api import TimeoutError as PlaywrightTimeout
+
+        with _notebook_page(lab, "hostile_bench.ipynb", _HOSTILE_CELL) as (page, messages):
+            page.locator(".jp-OutputArea-output canvas").first.wait_for(timeout=RUN_SECONDS * 1000)
+            page.wait_for_timeout(2500)
+            page.locator(".lm-TabBar-tab", has_text="Derivation").first.click()
+            page.locator(".jp-OutputArea-output mjx-container").first.wait_for(timeout=60_000)
+            # Click segment 1 (1 ms to 3 ms) on the response plot, the tallest canvas, by position:
+            # bokeh draws on layered canvases in a shadow DOM, so there is no element to click.
+            box = max(_wide_canvases(page, ".jp-OutputArea-output"), key=lambda b: b["height"])
+            page.mouse.move(box["x"] + box["width"] * 0.45, box["y"] + box["height"] * 0.5)
+            page.mouse.down()
+            page.wait_for_timeout(80)
+            page.mouse.up()
+            selected = page.locator(".jp-OutputArea-output h4", has_text="Segment 1")
+            try:
+                selected.first.wait_for(timeout=10_000)
+            except PlaywrightTimeout:  # or pick the segment's row in the drive table
+                page.locator(".lm-TabBar-tab", has_text="Drive table").first.click()
+                page.locator(".jp-OutputArea-output .slick-row").nth(1).locator(".slick-cell").first.click()
+                page.wait_for_timeout(1000)
+                page.locator(".lm-TabBar-tab", has_text="Derivation").first.click()
+                selected.first.wait_for(timeout=30_000)
+            page.wait_for_timeout(1500)
+            heading = page.locator(".jp-OutputArea-output h4", has_text="Segment").first.inner_text()
+            panel = page.locator(".jp-OutputArea-output .widget-htmlmath").first.inner_text()
+            page.locator(".jp-OutputArea-output:has(canvas)").first.screenshot(
+                path=str(BUILD / "bench-browser-hostile.png"))
+            assert page.evaluate("() => window.__pwned") is None, "an injected onerror handler ran"
+            # Before the fix the derivation panel held five such elements (innerHTML from HTMLMath).
+            assert page.evaluate(_HANDLER_COUNT, ".jp-OutputArea-output") == 0, "user text became elements"
+            assert heading.startswith("Segment 1:"), heading
+            assert "onerror" in panel, "the name should show as text in the derivation"
+            assert not messages, messages  # a name with spaces once broke a field's CSS class
+
+    def test_report_offline_runs_no_injected_handler(self, tmp_path):
+        from playwright.sync_api import sync_playwright
+
+        chromium = _chromium()
+        from builders import hostile_analysis
+
+        path = hostile_analysis().report(tmp_path / "hostile.html")
+        with sync_playwright() as playwright:
+            browser = playwright.chromium.launch(executable_path=chromium, args=CHROMIUM_ARGS)
+            try:
+                page = browser.new_page(viewport={"width": 1300, "height": 1200})
+                blocked: list[str] = []
+                page.route("**/*", lambda route: route.continue_() if route.request.url.startswith(
+                    ("file://", "data:", "blob:")) else (blocked.append(route.request.url), route.abort()))
+                page.goto(path.as_uri())
+                page.locator("canvas").first.wait_for(timeout=60_000)
+                page.wait_for_timeout(1500)
+                for box in _wide_canvases(page)[:3]:
+                    for fraction in (0.3, 0.6, 0.95):  # the plot, then its legend on the right
+                        page.mouse.move(box["x"] + box["width"] * fraction, box["y"] + box["height"] * 0.4)
+                        page.mouse.click(box["x"] + box["width"] * fraction, box["y"] + box["height"] * 0.4)
+                        page.wait_for_timeout(300)
+                page.screenshot(path=str(BUILD / "report-browser-hostile.png"), full_page=True)
+                assert page.evaluate("() => window.__pwned") is None, "an injected onerror handler ran"
+                assert page.evaluate(_HANDLER_COUNT, "body") == 0, "user text became elements"
+                assert "onerror" in page.locator("#parts").inner_text()
+                assert not blocked, blocked[:5]
+            finally:
+                browser.close()

@@ -106,3 +106,71 @@ class TestCautionsPanel:
         assert "60 V" in bench.cautions_panel.value
         bench.edit_cell(1, "vin", "5")
         assert bench.cautions_panel.value == ""
+
+
+class TestHostileNamesStayText:
+    """A part named like an HTML tag shows as its name on every panel, never as HTML."""
+
+    @pytest.fixture(scope="class")
+    def bench(self):
+        from builders import hostile_drive, hostile_fixture
+
+        bench = Bench(hostile_fixture(), hostile_drive(), tolerance=fo.Tolerance.absolute("1m"), sample_delay="0.5m")
+        bench.select_segment(1)
+        return bench
+
+    def test_derivation_panel(self, bench):
+        from builders import HOSTILE, assert_inert
+
+        text = panels.derivation_html(bench.session)
+        assert_inert(text)
+        assert html_escape(HOSTILE, quote=False)[:20] in text or html_escape(HOSTILE)[:20] in text
+
+    def test_info_settling_status_cautions_and_header(self, bench):
+        from builders import HOSTILE, assert_inert
+
+        for text in (panels.info_html(bench.session, "line"), panels.settling_html(bench.session),
+                     panels.status_html({"r": f"r{HOSTILE}: 'x' is not a number"}),
+                     panels.cautions_html([f"{HOSTILE} holds 1 kV"]), panels.error_html(HOSTILE),
+                     panels.header(bench.session.fixture, bench.session.drive).value):
+            assert_inert(text)
+
+    def test_every_html_widget_of_the_bench(self, bench):
+        import ipywidgets as widgets
+
+        from builders import assert_inert
+
+        seen = 0
+        stack = [bench]
+        while stack:
+            widget = stack.pop()
+            if isinstance(widget, (widgets.HTML, widgets.HTMLMath)):
+                assert_inert(widget.value)
+                seen += 1
+            stack.extend(getattr(widget, "children", ()))
+        assert seen >= 8
+
+    def test_drive_table_titles_are_escaped(self, bench):
+        from builders import HOSTILE
+
+        editor = panels.drive_editor(bench.session.table, print, print, print)
+        titles = [column.title for column in editor.drive_table.columns]
+        # BokehJS writes a title into the table's header as HTML.
+        assert not any(HOSTILE in title for title in titles)
+        assert any(html_escape(f"v{HOSTILE} (V)") == title for title in titles), titles
+
+
+def html_escape(text: str, quote: bool = True) -> str:
+    import html
+
+    return html.escape(text, quote=quote)
+
+
+def test_a_part_name_with_spaces_gives_a_field_one_css_class():
+    from builders import hostile_fixture
+
+    panel = panels.parts_panel(part_fields(hostile_fixture()), print)
+    for field in panel.fields.values():
+        classes = [c for c in field._dom_classes if c.startswith("fo-part-")]
+        # The browser refuses a class with a space in it, and the Bench then fails to show.
+        assert len(classes) == 1 and not any(ch.isspace() or ch in "<>\"'" for ch in classes[0]), classes
