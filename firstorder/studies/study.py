@@ -227,7 +227,7 @@ class Study:
 
     # -- settling ---------------------------------------------------------------------------
     def columns(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
-                target: Any = "final") -> LotSettling:
+                target: Any = "final", within_segment: bool = True) -> LotSettling:
         """Every unit's settling columns (its settling table's ``settle_time``,
         ``error_at_sample``, ``tolerance`` and ``ok``), as (units, n) arrays.
 
@@ -237,7 +237,9 @@ class Study:
         name (its level as scheduled: loading and gain error count) or numbers (one, or one
         per segment).  Against another target than ``"final"`` a unit settles only if its
         final value lies within the limit of it, and a relative tolerance is taken of each
-        unit's step from its start to the target.
+        unit's step from its start to the target.  With `within_segment` False a settle time
+        may run past its segment's end (the time the unit would need were the segment to
+        hold on), rather than NaN there.
         """
         check_tolerance(tolerance)
         unit, label, start, final = self._watched(probe)
@@ -252,7 +254,7 @@ class Study:
             sample_time = self.drive.times + delays
         if isinstance(target, str) and target == "final":
             times = np.broadcast_to(self.drive.times, shape).ravel()
-            ends = np.broadcast_to(self.drive.ends, shape).ravel()
+            ends = np.broadcast_to(self.drive.ends if within_segment else np.full(shape[1], np.inf), shape).ravel()
             tau = np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
             limit, settle, _, residual = engine.settling_columns(
                 start.ravel(), final.ravel(), tau.ravel(), self._decay.ravel(), times, ends, value, relative)
@@ -265,8 +267,8 @@ class Study:
             settle = settle.reshape(shape)
         else:
             aim = self._target(target, probe, unit)
-            limit, settle, error = _against_target(start, final, aim, self._rate, self.drive.durations,
-                                                   delays, value, relative)
+            durations = self.drive.durations if within_segment else np.full(shape[1], np.inf)
+            limit, settle, error = _against_target(start, final, aim, self._rate, durations, delays, value, relative)
         return LotSettling(settle, error, limit, error <= limit, sample_time, unit, label)
 
     def _target(self, target: Any, probe: str | None, unit: str) -> np.ndarray:
@@ -343,11 +345,13 @@ class Study:
 
     def delay_for(self, tolerance: "Tolerance", fraction: Any = 0.999, probe: str | None = None,
                   target: Any = "final") -> np.ndarray:
-        """Per segment, the sample delay that `fraction` of units needs: the exact order
-        statistic of each unit's own settle time (NaN where that many units do not settle
-        within the segment)."""
+        """Per segment, the sample delay that `fraction` of units needs after the change:
+        the exact order statistic of each unit's own settle time, which may run past the
+        segment's end (the dwell must then grow; each unit starts from where this drive
+        leaves it), NaN where that many units never settle (a final value outside the limit
+        of the target, or a held state outside it)."""
         chosen = _fraction(fraction, "fraction")
-        lot = self.columns(tolerance, None, probe, target)
+        lot = self.columns(tolerance, None, probe, target, within_segment=False)
         settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
         return _never_as_nan(order_statistic(settle, chosen))
 

@@ -122,6 +122,19 @@ class TestAgainstExactDistributions:
         assert np.array_equal(study.delay_for(HALF_LSB_16, 0.999), table["settle_time_99.9%"].to_numpy(),
                               equal_nan=True)
 
+    def test_the_delay_for_a_fraction_may_run_past_a_short_segment(self):
+        # 10 ms steps are short of the 11.8 ms half an LSB needs: the delay is still the
+        # closed form's uniform quantile (scipy.stats.uniform), not NaN.
+        from scipy.stats import uniform
+
+        fx = fo.Fixture.rc("10k", "100n")
+        short = fx.study(fo.Drive([0, "10m"], end="20m", vin=[5.0, 0.0]), Spread({"c": "10%"}), units=self.UNITS,
+                         seed=10)
+        needed = short.delay_for(HALF_LSB_16, 0.9)[0]
+        expected = uniform(loc=0.9e-3, scale=0.2e-3).ppf(0.9) * self.SETTLE_PER_TAU
+        assert needed > 10e-3 and abs(needed - expected) < 5 * math.sqrt(0.09 / self.UNITS) * 0.2e-3 * 12
+        assert math.isnan(short.settling(HALF_LSB_16).loc[0, "settle_time_50%"])
+
 
 class TestPassing:
     def test_the_interval_is_scipys_exact_binomial_interval(self):
