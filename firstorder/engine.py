@@ -354,8 +354,10 @@ def exp_in_place(exponent: np.ndarray, deep: int | None = None, nonpositive: boo
     >>> np.array_equal(exp_in_place(exponent.copy()), np.exp(exponent))
     True
     """
-    # One reduction (vectorised, no temporary) tells most arrays they have none.
-    if deep if deep is not None else (exponent.size and not exponent.min() >= _kernels.DEEP_EXPONENT):
+    # One reduction (vectorised, no temporary) tells most arrays they have none; a short
+    # array is not worth it (numpy's slow path on a few hundred elements is still quick, and
+    # its numbers are the same).
+    if deep if deep is not None else (exponent.size > SMALL_GRID and not exponent.min() >= _kernels.DEEP_EXPONENT):
         where = np.flatnonzero(exponent < _kernels.DEEP_EXPONENT)
         if where.size:
             values = exponent[where]

@@ -13,6 +13,8 @@ Components of the state (and of every probe):
 
 from __future__ import annotations
 
+import math
+
 from functools import cached_property
 from typing import TYPE_CHECKING, Any
 
@@ -340,7 +342,7 @@ class Response:
             low, high = float(flat[0]), float(flat[-1])  # sorted: the ends are the extremes
         else:
             low, high = float(flat.min()), float(flat.max())  # NaN shows in both, inf in one
-        if not (np.isfinite(low) and np.isfinite(high)):
+        if not (math.isfinite(low) and math.isfinite(high)):
             raise InputError("t: contains NaN or inf; times must be finite seconds")
         if low < self._starts[0] or high > self.drive.end:
             bad = low if low < self._starts[0] else high

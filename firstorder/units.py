@@ -176,6 +176,11 @@ def parse_with_unit(
     >>> parse_with_unit(0.5, field="tolerance", unit=("V", "A"))
     (0.5, '')
     """
+    if type(value) is float:  # the common case first: the checks below cost more than the rest of a call
+        number = value
+        if math.isnan(number) or (math.isinf(number) and not allow_infinite) or (positive and not number > 0):
+            return _checked(number, value, field, positive, allow_infinite), ""
+        return number, ""
     if isinstance(value, (bool, np.bool_)):
         raise InputError(f"{field}: {bool(value)!r} is not a number; write 1 or 0 (True and False are switch "
                          f"states)")
@@ -192,12 +197,18 @@ def parse_with_unit(
         number, found = _parse_text(value, field=field, unit=unit)
     else:
         raise InputError(f"{field}: {shown(value)} is not a number ({_NOT_A_NUMBER})")
+    return _checked(number, value, field, positive, allow_infinite), found
+
+
+def _checked(number: float, value: object, field: str, positive: bool, allow_infinite: bool) -> float:
+    """`number` (read from `value`) if it is allowed: not NaN, finite unless
+    `allow_infinite`, > 0 if `positive`."""
     if math.isnan(number) or (math.isinf(number) and not allow_infinite):
         allowed = "a finite number" if not allow_infinite else "a number or inf"
         raise InputError(f"{field}: {shown(value)} is not allowed; expected {allowed}")
     if positive and not number > 0:
         raise InputError(f"{field}: {shown(value)} must be > 0")
-    return number, found
+    return number
 
 
 def _units(unit: str | tuple[str, ...]) -> tuple[str, ...]:
