@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import csv
 import io
+import math
 import os
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
@@ -79,7 +80,7 @@ def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = Fa
         array = buffer[:buffer.size - room]
     else:
         array = parse_array(values, field=field, unit=unit, allow_bool=allow_bool, what=what)
-        finite = bool(np.isfinite(array.sum()))  # one cheap pass: NaN or inf anywhere shows in the sum
+        finite = math.isfinite(array.sum())  # one cheap pass: NaN or inf anywhere shows in the sum
         in_order = not increasing or _first_not_increasing(array) < 0
         buffer = np.concatenate([array, np.empty(room)]) if room else array
     if not finite:
@@ -138,7 +139,7 @@ def _copy_checked(values: np.ndarray, increasing: bool, room: int = 0) -> tuple[
     if kernels is None:
         array = buffer[:values.size]
         np.copyto(array, values)
-        return buffer, bool(np.isfinite(array.sum())), not increasing or _first_not_increasing(array) < 0
+        return buffer, math.isfinite(array.sum()), not increasing or _first_not_increasing(array) < 0
     flags = _parallel.run(lambda first, stop: kernels.copy_checked(values, buffer, first, stop),
                           _parallel.pieces(values.size))
     return buffer, all(finite for finite, _ in flags), all(ordered for _, ordered in flags)
