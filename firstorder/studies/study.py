@@ -198,6 +198,8 @@ class Study:
         self._boundary = engine.relaxation_scan(self._decay, self._growth, source_final, self._start)
         self._final = np.where(self._holds, self._boundary[:, :-1], source_final)
         self._probes: dict[str, tuple[np.ndarray, np.ndarray, str]] = {}
+        self._tau: np.ndarray | None = None
+        self._durations: np.ndarray | None = None
         self._scans: dict[str, tuple[np.ndarray, np.ndarray]] = {"total": (self._boundary[:, :-1], self._final)}
 
     # -- the units --------------------------------------------------------------------------
@@ -253,11 +255,13 @@ class Study:
                                    ends=self.drive.ends)
             sample_time = self.drive.times + delays
         if isinstance(target, str) and target == "final":
-            times = np.broadcast_to(self.drive.times, shape).ravel()
-            ends = np.broadcast_to(self.drive.ends if within_segment else np.full(shape[1], np.inf), shape).ravel()
-            tau = np.where(self._rate > 0, 1.0 / np.where(self._rate > 0, self._rate, 1.0), np.inf)
+            # The table's `ends - times` is each segment's duration, exactly (Drive.durations
+            # is that difference), so a zero start and the durations give the same columns.
+            size = shape[0] * shape[1]
+            times = np.broadcast_to(0.0, (size,))
+            ends = self._flat_durations() if within_segment else np.broadcast_to(np.inf, (size,))
             limit, settle, _, residual = engine.settling_columns(
-                start.ravel(), final.ravel(), tau.ravel(), self._decay.ravel(), times, ends, value, relative)
+                start.ravel(), final.ravel(), self._flat_tau(), self._decay.ravel(), times, ends, value, relative)
             limit = np.broadcast_to(limit, (shape[0] * shape[1],)).reshape(shape)
             if sample_delay is None:
                 error = residual.reshape(shape)
@@ -444,6 +448,19 @@ class Study:
         final = start + gain * (self._final - state_start)
         return unit, f"probe '{probe}'", start, final
 
+
+    def _flat_tau(self) -> np.ndarray:
+        """Every unit's tau of every segment, flat (as Segments.tau forms it), made once."""
+        if self._tau is None:
+            rate = self._rate.ravel()
+            self._tau = np.where(rate > 0, 1.0 / np.where(rate > 0, rate, 1.0), np.inf)
+        return self._tau
+
+    def _flat_durations(self) -> np.ndarray:
+        """Every segment's duration for every unit, flat, made once."""
+        if self._durations is None:
+            self._durations = np.tile(self.drive.durations, self.units)
+        return self._durations
 
     def _probe_rows(self, probe: str) -> tuple[np.ndarray, np.ndarray, str]:
         """(units, n) each: the probe's state coefficient and its offset from the sources,
