@@ -20,7 +20,8 @@ class TestReprHtmlOfEveryObject:
     """Each ``_repr_html_`` (what a notebook shows) with a hostile part, source, probe and title."""
 
     @pytest.fixture(scope="class")
-    def analysis(self):
+    @staticmethod
+    def analysis():
         return hostile_analysis()
 
     def test_fixture_drive_response_analysis(self, analysis):

@@ -217,7 +217,8 @@ class TestHostileNamesStayText:
     """Every piece of user text in the report (title, notes, parts, nodes, probes, drive columns) stays text."""
 
     @pytest.fixture(scope="class")
-    def page(self):
+    @staticmethod
+    def page():
         from builders import hostile_analysis
 
         return hostile_analysis().to_html()

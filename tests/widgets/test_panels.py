@@ -112,7 +112,8 @@ class TestHostileNamesStayText:
     """A part named like an HTML tag shows as its name on every panel, never as HTML."""
 
     @pytest.fixture(scope="class")
-    def bench(self):
+    @staticmethod
+    def bench():
         from builders import hostile_drive, hostile_fixture
 
         bench = Bench(hostile_fixture(), hostile_drive(), tolerance=fo.Tolerance.absolute("1m"), sample_delay="0.5m")
