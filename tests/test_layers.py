@@ -62,6 +62,7 @@ SHORTCUTS = {
     ("fixture", "Fixture.respond"): {"response"},
     ("fixture", "Fixture.derivation"): {"symbolic", "symbolic.derivation"},
     ("fixture", "Fixture.study"): {"studies", "studies.study"},
+    ("fixture", "Fixture.worst_case"): {"studies.worst"},
     ("response", "Response.settling"): {"settling.table"},
     ("response", "Response.summary"): {"settling.table"},
     ("response", "Response.cautions"): {"cautions"},
