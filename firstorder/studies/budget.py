@@ -359,7 +359,8 @@ def _unit_output(study: "Study", lot: Lot, draw: Draw, segment: int, output: str
         return float(response.final[segment])
     from ..settling.tolerance import Tolerance
 
-    table = response.settling(tolerance if tolerance is not None else Tolerance.absolute(1.0),
+    # A final value does not depend on the tolerance; a relative one fits any unit.
+    table = response.settling(tolerance if tolerance is not None else Tolerance.relative(0.5),
                               sample_delay=sample_delay, probe=probe)
     column = {"final": "final", "settle_time": "settle_time"}.get(
         output, "error_at_sample" if "error_at_sample" in table else "residual_at_end")

@@ -87,6 +87,21 @@ class TestAgainstTheUncertaintiesPackage:
                                                              rel=1e-6), key
         assert sum(row.share for row in b.rows) == pytest.approx(1.0, rel=1e-12)
 
+    def test_the_final_value_of_a_current_probe(self):
+        from uncertainties import ufloat
+
+        fx = shunted_divider()
+        fx.probe("i_r", through="r")
+        drive = fo.Drive([0], end="20m", vin=[5.0])
+        b = fx.study(drive, Spread({"r": "0.1%", "rs": "0.2%"}), units=50, seed=1).budget(
+            segment=0, quantity="final", probe="i_r")
+        r = ufloat(10e3, 10e3 * 0.001 / math.sqrt(3.0))
+        rs = ufloat(30e3, 30e3 * 0.002 / math.sqrt(3.0))
+        reference = 5.0 / (r + rs)  # settled: the capacitor carries nothing, r and rs in series
+        assert b.unit == "A"
+        assert b.estimate == pytest.approx(reference.nominal_value, rel=1e-12)
+        assert b.combined == pytest.approx(reference.std_dev, rel=1e-6)
+
     def test_the_monte_carlo_spread_of_a_nearly_linear_model_matches(self):
         # For small bands the model is nearly linear, so the units' standard deviation is the
         # combined standard uncertainty within its Monte Carlo error (about 1/sqrt(2M) of it:
@@ -103,6 +118,28 @@ class TestAgainstTheUncertaintiesPackage:
         b = rc_study(Spread({"r": "50%", "c": "50%"}), units=4000).budget(segment=0, quantity="tau")
         assert not b.linear_holds
         assert max(abs(b.linear_low - b.mc_low), abs(b.linear_high - b.mc_high)) > 10 * b.numerical_tolerance
+
+
+class TestNumericSensitivities:
+    """The central differences on units built by hand, against the handbook's closed forms
+    of a step into an RC: T = R C ln(step / limit), E(d) = step exp(-d / (R C))."""
+
+    def test_the_settle_time_to_r_is_c_times_the_log(self):
+        b = rc_study(Spread({"r": "1%", "c": "1%"}), units=20).budget(
+            segment=0, quantity="settle_time", tolerance=HALF_LSB_16)
+        by_key = {row.key: row for row in b.rows}
+        step_over_limit = 2.0 ** 17  # a 5 V step to half an LSB of 16 bits over 5 V
+        assert by_key["r"].method.startswith("central difference, h = ")
+        assert by_key["r"].sensitivity == pytest.approx(100e-9 * math.log(step_over_limit), rel=1e-7)
+        assert by_key["c"].sensitivity == pytest.approx(10e3 * math.log(step_over_limit), rel=1e-7)
+
+    def test_the_error_at_the_sample_to_r(self):
+        b = rc_study(Spread({"r": "1%"}), units=20).budget(
+            segment=0, quantity="error_at_sample", tolerance=HALF_LSB_16, sample_delay="3m")
+        tau = 10e3 * 100e-9
+        error = 5.0 * math.exp(-3e-3 / tau)
+        assert b.estimate == pytest.approx(error, rel=1e-12)
+        assert b.rows[0].sensitivity == pytest.approx(error * 3e-3 / (10e3 ** 2 * 100e-9), rel=1e-7)
 
 
 class TestSensitivity:
