@@ -295,7 +295,9 @@ def budget(study: "Study", segment: Any, output: Any = "settle_time", tolerance:
 def coverage_interval(values: np.ndarray, p: float, kind: str = "symmetric") -> tuple[float, float]:
     """The 100p % coverage interval of Monte Carlo `values` (JCGM 101, 7.7.1 and 7.7.2):
     ``q = pM`` (rounded as there), from the sorted values ``[y_(r), y_(r+q)]`` with ``r``
-    the middle (probabilistically symmetric) or the one of least width (shortest).
+    the middle (probabilistically symmetric) or the one of least width (shortest).  The
+    rounding of ``q`` and ``r`` is that of JCGM 101:2008, 7.7.1 (from memory): ``q = pM`` if
+    that is whole, else ``int(pM + 1/2)``; ``r = (M - q) / 2`` if whole, else ``int((M - q + 1) / 2)``.
 
     Examples
     --------

@@ -211,7 +211,8 @@ class TestCoverageInterval:
         assert shortest[0] == values.min()  # the exponential's shortest interval starts at its mode, 0
 
     def test_the_numerical_tolerance_is_half_the_last_of_two_digits(self):
-        # JCGM 101 7.9.2, its example: u = 0.000 63 -> two digits 63 x 10^-5 -> tolerance 0.5 x 10^-5.
+        # JCGM 101 7.9.2 (from memory): u = 0.000 63 written with two digits is 63 x 10^-5, so the
+        # tolerance is 0.5 x 10^-5.
         assert numerical_tolerance(0.00063) == pytest.approx(0.5e-5)
         assert numerical_tolerance(12.0) == pytest.approx(0.5)
 
