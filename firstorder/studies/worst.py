@@ -157,7 +157,8 @@ def worst_case(fixture: "Fixture", drive: "Drive", spread: Spread, tolerance: An
     -------
     pandas.DataFrame
         A row per segment: ``settle_time`` (NaN where the worst unit does not settle
-        within the segment), each quantity's value for it (``"<key> (settle_time)"``),
+        within the segment; of those, the one with the largest error at the sample),
+        each quantity's value for it (``"<key> (settle_time)"``),
         ``error_at_sample`` with its ``limit`` and each quantity's value
         (``"<key> (error_at_sample)"``), and the quantities searched inside the box for
         each.  ``attrs``: the box, the keys bounded at ±3 sd, the number of corners.
@@ -190,6 +191,11 @@ def worst_case(fixture: "Fixture", drive: "Drive", spread: Spread, tolerance: An
     results = {}
     for name, values in (("settle_time", settle), ("error_at_sample", error)):
         best = np.argmax(values, axis=0)
+        if name == "settle_time":
+            # Where some corners never settle within the segment, the worst of them is the
+            # one furthest from settled: the largest error at the sample.
+            never = np.isinf(settle)
+            best = np.where(never.any(axis=0), np.argmax(np.where(never, error, -np.inf), axis=0), best)
         worst = values[best, np.arange(segments)]
         points = corners[best].copy()
         searched = [""] * segments

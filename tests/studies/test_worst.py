@@ -60,6 +60,18 @@ class TestAgainstEveryCornerByHand:
         assert (table["temperature (settle_time)"] == 0.0).all()  # the negative tempco: c largest when cold
 
 
+class TestNeverSettling:
+    def test_of_the_units_that_do_not_settle_the_worst_is_furthest_from_it(self):
+        fx = fo.Fixture.rc("10k", "100n")
+        drive = fo.Drive([0, "2m"], end="40m", vin=[5.0, 0.0])  # 2 tau: no unit settles to half an LSB
+        table = fx.worst_case(drive, Spread({"r": "1%", "c": "10%"}), HALF_LSB_16)
+        assert math.isnan(table.loc[0, "settle_time"])
+        # The slowest unit (both parts at their tops) is left furthest from its final value.
+        assert table.loc[0, "r (settle_time)"] == pytest.approx(10.1e3, rel=1e-15)
+        assert table.loc[0, "c (settle_time)"] == pytest.approx(110e-9, rel=1e-15)
+        assert table.loc[1, "settle_time"] > 0
+
+
 def shunted_divider() -> fo.Fixture:
     """vin -> r -> out, rs (1 kΩ) and c (1 µF) from out to ground, stepped 0 -> 1 V.
 
