@@ -321,6 +321,19 @@ class Fixture:
 
         return Study(self, drive, spread, units=units, seed=seed, initial=initial)
 
+    def worst_case(self, drive: "Drive", spread: Any, tol: Any, sample_delay: Any = None, probe: str | None = None,
+                   initial: Any = 0.0):
+        """Per segment, the worst settle time and error at the sample within `spread`'s bands,
+        and the values of every quantity giving them (a pandas DataFrame).
+
+        See Also
+        --------
+        firstorder.studies.worst.worst_case : what this calls, and how it searches.
+        """
+        from .studies.worst import worst_case
+
+        return worst_case(self, drive, spread, tol, sample_delay=sample_delay, probe=probe, initial=initial)
+
     # -- display ------------------------------------------------------------------------
     def __repr__(self) -> str:
         text = ", ".join(f"{p.name}" for p in self.parts)

@@ -1,8 +1,10 @@
 """Tolerance studies: the units of a lot, drawn from a spread, and what they do.
 
 :mod:`.spread` (:class:`Spread`, :class:`Uniform`, :class:`Normal`, and drawing units),
-:mod:`.lot` (a lot drawn, and each unit built by hand) and :mod:`.study` (:class:`Study`:
-the lot at once, per-segment answers as exact order statistics of the units).
+:mod:`.lot` (a lot drawn, and each unit built by hand), :mod:`.study` (:class:`Study`:
+the lot at once, per-segment answers as exact order statistics of the units), :mod:`.budget`
+(``Study.budget``: the JCGM 100 uncertainty budget beside the Monte Carlo result) and
+:mod:`.worst` (``Fixture.worst_case``: corners of the bands, then a bounded search).
 """
 
 from __future__ import annotations

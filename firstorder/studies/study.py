@@ -487,6 +487,21 @@ class Study:
             self._scans[key] = (boundary[:, :-1], np.where(self._holds, boundary[:, :-1], target))
         return self._scans[key]
 
+    # -- budget -----------------------------------------------------------------------------
+    def budget(self, segment: Any, quantity: Any = "settle_time", tolerance: Any = None, sample_delay: Any = None,
+               probe: str | None = None, interval: Any = "symmetric"):
+        """The uncertainty budget (JCGM 100) of `quantity` (``"settle_time"``, ``"tau"``,
+        ``"final"`` or ``"error_at_sample"``) in `segment`, beside this study's Monte Carlo
+        result and the check of linear propagation (JCGM 101, clause 8).
+
+        See Also
+        --------
+        firstorder.studies.budget.budget : what this calls, and its rules.
+        """
+        from .budget import budget
+
+        return budget(self, segment, quantity, tolerance, sample_delay, probe, interval)
+
 
 def _against_target(start: np.ndarray, final: np.ndarray, aim: np.ndarray, rate: np.ndarray, durations: np.ndarray,
                     delays: np.ndarray, value: float, relative: bool) -> tuple[np.ndarray, ...]:

@@ -114,6 +114,57 @@ class Derivation:
         exact = expression.xreplace({symbol: sp.Rational(value) for symbol, value in self.values.items()})
         return exact.xreplace({number: sp.Float(number) for number in exact.atoms(sp.Rational) if not number.is_Integer})
 
+    def sensitivity(self, part: str, of: str = "tau", levels: dict[str, float] | None = None):
+        """The sensitivity coefficient of `of` (``"tau"`` or ``"final"``) to part `part`:
+        the derivative with respect to its symbol, at the fixture's part values (JCGM 100, 5.1.3).
+
+        Parameters
+        ----------
+        part : str
+            A part's name; a switch's name is its resistance in this configuration (on or
+            off), and ``"k1.r_on"`` / ``"k1.r_off"`` name one of them (0 where it is not the one in
+            circuit).
+        of : {"tau", "final"}
+        levels : dict, optional
+            Source name to level, to evaluate a final value's derivative to a number.
+
+        Returns
+        -------
+        float, or a sympy expression in the source levels when `of` is ``"final"`` and
+        `levels` is not given.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> d = fo.Fixture.rc(r="10k", c="100n").derivation()
+        >>> d.sensitivity("r")  # d(RC)/dR = C
+        1e-07
+        >>> d.sensitivity("c", of="final", levels={"vin": 5.0})
+        0.0
+        """
+        from ..errors import InputError
+
+        if of not in ("tau", "final"):
+            raise InputError(f"sensitivity of: {of!r} is not allowed; give 'tau' or 'final'")
+        names = [n for n in self.symbols if n not in ("t", "initial", "state")]
+        name, _, field = part.partition(".") if isinstance(part, str) else ("", "", "")
+        symbol = self.symbols.get(name) if name in names else None
+        if symbol is None or field not in ("", "r_on", "r_off"):
+            raise InputError(f"sensitivity part: {part!r} names no part of this derivation; parts are {names} "
+                             f"(a switch also as 'name.r_on' or 'name.r_off')")
+        if field and not symbol.name.rstrip("'").endswith(("_on", "_off")):
+            raise InputError(f"sensitivity part: {part!r}: {name!r} is not a switch; give {name!r} alone")
+        if field and not symbol.name.rstrip("'").endswith(field[1:]):
+            return 0.0  # the switch's other resistance: not in circuit in this configuration
+        expression = self.tau if of == "tau" else self.final
+        if expression in (sp.oo, sp.zoo) or expression.has(sp.oo):
+            return 0.0  # a held state: tau is infinite whatever the part
+        derivative = self.substitute(sp.diff(expression, symbol))
+        if levels:
+            derivative = derivative.xreplace({self.symbols[n]: sp.Float(float(v)) for n, v in levels.items()
+                                              if n in self.symbols})
+        return float(derivative) if derivative.is_number else derivative
+
     def steps(self) -> list[tuple[str, str]]:
         """The derivation as (caption, LaTeX) pairs (see :func:`.steps.latex_steps`)."""
         return latex_steps(self)

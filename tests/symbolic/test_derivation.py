@@ -11,6 +11,7 @@ import sympy as sp
 from builders import divider_fixture, relay_fixture
 
 import firstorder as fo
+from firstorder.errors import InputError
 from firstorder.network import probe_row
 from firstorder.symbolic import derivation
 
@@ -243,3 +244,55 @@ class TestCache:
         assert again.tau == first.tau
         assert float(other_values.substitute(other_values.tau)) == pytest.approx(
             fx.with_values(rs="2k").time_constant(k1=True, k2=False), rel=1e-12)
+
+
+class TestSensitivity:
+    """Derivation.sensitivity against handbook formulas and sympy written here."""
+
+    def test_tau_of_an_rc_to_r_is_c_and_to_c_is_r(self):
+        # Handbook: tau = R C, so d tau / d R = C and d tau / d C = R.
+        d = fo.Fixture.rc(r="4.7k", c="220n").derivation()
+        assert d.sensitivity("r") == pytest.approx(220e-9, rel=1e-15)
+        assert d.sensitivity("c") == pytest.approx(4.7e3, rel=1e-15)
+
+    def test_a_divider_final_value_against_sympy(self):
+        fx = fo.Fixture()
+        fx.voltage_source("vin", "in", "gnd")
+        fx.resistor("r1", "in", "out", "12k")
+        fx.resistor("r2", "out", "gnd", "33k")
+        fx.capacitor("c", "out", "gnd", "1u")
+        d = fx.derivation()
+        # Reference: sympy's derivative of the handbook divider V r2 / (r1 + r2), written here.
+        v, r1, r2 = sp.symbols("v r1 r2", positive=True)
+        divider = v * r2 / (r1 + r2)
+        at = {v: 5, r1: 12000, r2: 33000}
+        for part, symbol in (("r1", r1), ("r2", r2)):
+            expected = float(sp.diff(divider, symbol).subs(at))
+            assert d.sensitivity(part, of="final", levels={"vin": 5.0}) == pytest.approx(expected, rel=1e-13)
+        symbolic = d.sensitivity("r1", of="final")  # in the source level when none is given
+        assert float(symbolic.subs(d.symbols["vin"], 5)) == pytest.approx(float(sp.diff(divider, r1).subs(at)))
+
+    def test_a_switch_resistance_in_and_out_of_circuit(self):
+        fx = fo.Fixture()
+        fx.voltage_source("v", "a", "gnd")
+        fx.switch("k1", "a", "b", r_on="10", r_off="1M")
+        fx.resistor("rs", "b", "gnd", "1k")
+        fx.capacitor("c", "b", "gnd", "1u")
+        closed = fx.derivation(k1=True)
+        # Handbook: final = v rs / (r_on + rs), so d final / d r_on = -v rs / (r_on + rs)^2.
+        assert closed.sensitivity("k1.r_on", of="final", levels={"v": 2.0}) == pytest.approx(
+            -2.0 * 1e3 / (1010.0 ** 2), rel=1e-13)
+        assert closed.sensitivity("k1.r_off", of="final", levels={"v": 2.0}) == 0.0
+        assert closed.sensitivity("k1", of="tau") == closed.sensitivity("k1.r_on", of="tau")
+
+    @pytest.mark.parametrize("part, of, field", [("nope", "tau", "part"), ("rs.r_on", "tau", "part"),
+                                                  ("k1.gain", "tau", "part"), ("rs", "settle", "of"),
+                                                  (3, "tau", "part")])
+    def test_bad_arguments_name_the_field(self, part, of, field):
+        fx = fo.Fixture()
+        fx.voltage_source("v", "a", "gnd")
+        fx.switch("k1", "a", "b", r_on="10", r_off="1M")
+        fx.resistor("rs", "b", "gnd", "1k")
+        fx.capacitor("c", "b", "gnd", "1u")
+        with pytest.raises(InputError, match=f"sensitivity {field}"):
+            fx.derivation(k1=True).sensitivity(part, of=of)
