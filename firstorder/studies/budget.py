@@ -344,9 +344,12 @@ def _monte_carlo(study: "Study", segment: int, output: str, tolerance: Any, samp
     if output == "final":
         unit, _, _, final = study._watched(probe)
         return np.array(final[:, segment]), unit
-    lot = study.columns(tolerance, sample_delay, probe)
     if output == "settle_time":
+        # The time each unit needs, even past the segment's end (as Study.delay_for): a
+        # settle time cut off at the end would leave no spread to budget.
+        lot = study.columns(tolerance, None, probe, within_segment=False)
         return np.array(lot.settle_time[:, segment]), "s"
+    lot = study.columns(tolerance, sample_delay, probe)
     return np.array(lot.error_at_sample[:, segment]), lot.unit
 
 
@@ -364,8 +367,12 @@ def _unit_output(study: "Study", lot: Lot, draw: Draw, segment: int, output: str
     # A final value does not depend on the tolerance; a relative one fits any unit.
     table = response.settling(tolerance if tolerance is not None else Tolerance.relative(0.5),
                               sample_delay=sample_delay, probe=probe)
-    column = {"final": "final", "settle_time": "settle_time"}.get(
-        output, "error_at_sample" if "error_at_sample" in table else "residual_at_end")
+    if output == "settle_time":
+        # tau ln(step / limit), the table's closed form, without its cut at the segment's end.
+        row = table.iloc[segment]
+        step, limit, tau = abs(row["final"] - row["start_value"]), row["tolerance"], float(response.tau[segment])
+        return 0.0 if not (step > limit) or math.isinf(tau) else tau * math.log(step / limit)
+    column = "final" if output == "final" else ("error_at_sample" if "error_at_sample" in table else "residual_at_end")
     return float(table[column].iloc[segment])
 
 

@@ -140,6 +140,19 @@ class TestNumericSensitivities:
         assert b.estimate == pytest.approx(error, rel=1e-12)
         assert b.rows[0].sensitivity == pytest.approx(error * 3e-3 / (10e3 ** 2 * 100e-9), rel=1e-7)
 
+    def test_a_settle_time_past_a_short_segment_is_still_budgeted(self):
+        # Steps of 10 ms are shorter than the 11.8 ms half an LSB needs (common practice:
+        # (N + 1) ln 2 tau): the budget is of the time each unit needs, as delay_for gives it.
+        fx = fo.Fixture.rc("10k", "100n")
+        study = fx.study(fo.Drive([0, "10m"], end="20m", vin=[5.0, 0.0]), Spread({"r": "1%", "c": "1%"}),
+                         units=200, seed=3)
+        b = study.budget(segment=0, quantity="settle_time", tolerance=HALF_LSB_16)
+        step_over_limit = 2.0 ** 17
+        assert b.estimate == pytest.approx(1e-3 * math.log(step_over_limit), rel=1e-12)
+        assert {row.key: row for row in b.rows}["c"].sensitivity == pytest.approx(
+            10e3 * math.log(step_over_limit), rel=1e-7)
+        assert math.isfinite(b.combined) and b.combined > 0
+
 
 class TestCoverageInterval:
     def test_the_symmetric_interval_of_normal_quantiles_is_plus_minus_1_96(self):
