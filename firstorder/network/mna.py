@@ -185,8 +185,11 @@ def _slot_groups(per_row: list[list[int]]) -> list[tuple[np.ndarray, np.ndarray]
     """Rows grouped by their count of slots rounded up to a power of two: per group, the
     rows and a table (rows, slots) of indices into the pairs summed (0: a zero pair)."""
     by_length: dict[int, list[int]] = {}
+    longest = max((len(slots) for slots in per_row), default=1)
     for i, slots in enumerate(per_row):
-        by_length.setdefault(1 << (len(slots) - 1).bit_length(), []).append(i)
+        # Short rows share one table (fewer, larger operations); zero pairs padding a row
+        # add nothing (a normalised pair plus zero is itself), so the grouping is free.
+        by_length.setdefault(1 << (max(len(slots), 1 if longest > 8 else longest) - 1).bit_length(), []).append(i)
     groups = []
     for length, members in sorted(by_length.items()):
         table = np.zeros((len(members), length), dtype=np.intp)
@@ -276,9 +279,12 @@ def solve_batch(terms: "_Terms", values: np.ndarray, rounds: int = 40, zeros: np
         # gaining (a coefficient that is zero exactly keeps a correction of its own noise).
         done = np.all((size_ <= _PAIR * np.abs(new_high)) | (size_ >= 0.5 * pick(previous)) | (size_ == 0.0),
                       axis=(1, 2))
-        update = active[moving]
-        high[update], low[update] = new_high[moving], new_low[moving]
-        previous[active] = size_
+        if every and moving.all():
+            high, low, previous = new_high, new_low, size_
+        else:
+            update = active[moving]
+            high[update], low[update] = new_high[moving], new_low[moving]
+            previous[active] = size_
         active = active[moving & ~done]
     return high, low
 
@@ -294,7 +300,7 @@ class TermPlan(_Terms):
     the terms row by row, the column each multiplies, which conductance it is (or the
     constant 1) with its sign, and B, whose entries are small integers (exact in floats)."""
 
-    __slots__ = ("conductance", "sign", "ends", "poles", "branch_groups")
+    __slots__ = ("conductance", "sign", "ends", "poles", "branch_groups", "plus", "minus")
 
     def __init__(self, layout: Layout, excitations: int) -> None:
         # Stamp with codes for values: conductance k is 2 + k, the constant one is 1; the
@@ -338,6 +344,8 @@ class TermPlan(_Terms):
                 per_row[n].append(1 + 2 * K + v)
             per_row[nodes + v].append(1 + 2 * K + 2 * V + v)
         self.branch_groups = _slot_groups(per_row)
+        self.plus = np.concatenate([self.ends[:, 0], self.poles[:, 0]])
+        self.minus = np.concatenate([self.ends[:, 1], self.poles[:, 1]])
 
     def residual(self, a: np.ndarray, conductances: np.ndarray | None, high: np.ndarray,
                  low: np.ndarray) -> np.ndarray:
@@ -354,14 +362,14 @@ class TermPlan(_Terms):
         n, width = high.shape[0], high.shape[2]
         pad = np.zeros((n, 1, width))
         h, lo = np.concatenate([high, pad], axis=1), np.concatenate([low, pad], axis=1)
-        dh, dl = _pair_difference(h[:, self.ends[:, 0]], lo[:, self.ends[:, 0]],
-                                  h[:, self.ends[:, 1]], lo[:, self.ends[:, 1]])
+        K = len(self.ends)
+        # Every conductance's voltage, then every voltage branch's, in one difference.
+        dh, dl = _pair_difference(h[:, self.plus], lo[:, self.plus], h[:, self.minus], lo[:, self.minus])
         g = conductances[:, :, None]
         g_high, g_low = _split(g)
-        products = g * dh
-        ih, il = _fast_two_sum(products, _product_errors(g, dh, products, g_high, g_low) + g * dl)
-        vh, vl = _pair_difference(h[:, self.poles[:, 0]], lo[:, self.poles[:, 0]],
-                                  h[:, self.poles[:, 1]], lo[:, self.poles[:, 1]])
+        products = g * dh[:, :K]
+        ih, il = _fast_two_sum(products, _product_errors(g, dh[:, :K], products, g_high, g_low) + g * dl[:, :K])
+        vh, vl = dh[:, K:], dl[:, K:]
         nodes = self.size - len(self.poles)
         jh, jl = high[:, nodes:], low[:, nodes:]
         every_high = np.concatenate([pad, ih, -ih, jh, -jh, -vh, np.broadcast_to(self.B, (n,) + self.B.shape)], axis=1)
