@@ -30,6 +30,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from .configurations import reduce_configurations
 from .drive import level_columns
 from .errors import InputError, TopologyError
 from .netlist import Netlist
@@ -234,7 +235,7 @@ class Segments:
                           state_unit=netlist.state_unit, storage_kind=netlist.storage.kind,
                           storage_name=netlist.storage.name, first_use=first_use, fixture=fixture, times=times,
                           word=word)
-        taus, gains, drifts, provisional._reduced = _reduce_all(fixture, states, configs, first_use,
+        taus, gains, drifts, provisional._reduced = reduce_configurations(fixture, states, configs, first_use,
                                                                 provisional.label)
         _refuse_ramps(provisional, taus, drifts, levels, inverse, netlist)
         rate_by_config = rates(taus)
@@ -409,7 +410,7 @@ class Segments:
         reduced = self._reduced
         if reduced is not None and self.units is None:
             # From the batch this was built with: bit for bit what the fixture's own gives.
-            layout, batch, i = reduced[c]
+            layout, batch, i, _ = reduced[c]
             from .network import plan
 
             return plan(self._fixture.netlist, self.configurations[c]), batch.item(i)
@@ -441,83 +442,6 @@ class Segments:
             rows = np.array(by_config)[self.configuration_of]
             self._probe_rows[name] = rows
         return rows
-
-
-def _reduce_all(fixture: "Fixture", states: np.ndarray, configs: Sequence[tuple[bool, ...]], first_use: np.ndarray,
-                label, resistance: Mapping[str, np.ndarray] | None = None, storage: np.ndarray | None = None,
-                units: int | None = None) -> tuple:
-    """Every configuration reduced: ``tau`` (c,), ``gain`` and ``drift`` (c, m) (with a
-    leading unit axis for a lot), and where each configuration's batch is.
-
-    Configurations that differ only in switches whose state picks a value, not a topology
-    (a relay with a finite r_on and r_off), share a layout shape: each shape is planned once
-    (for its earliest configuration: a topology error names the earliest segment) and all
-    its configurations, or all units of a lot, are reduced in one batched solve
-    (:func:`~firstorder.network.reduce_batch`), each bit for bit what it gives alone.
-    `resistance` maps ``"part"`` or ``"part.r_on"`` / ``"part.r_off"`` to per-unit values and
-    `storage` gives the storage element's per unit.
-    """
-    from .network import plan, reduce_batch
-    from .network.reduce import _refuse
-
-    netlist = fixture.netlist
-    m = len(netlist.source_names)
-    c_count = len(configs)
-    config_states = np.array(configs, dtype=bool).reshape(c_count, len(netlist.switch_names))
-    structural = np.array(netlist._cached("structural_switches", lambda: tuple(
-        p.r_on == 0.0 or not np.isfinite(p.r_off) for p in netlist.switches)), dtype=bool)
-    shape_code = (config_states[:, structural].astype(np.int64)
-                  @ (np.int64(1) << np.arange(int(structural.sum()), dtype=np.int64)))
-    lead = () if units is None else (units,)
-    taus = np.empty(lead + (c_count,))
-    gains = np.empty(lead + (c_count, m))
-    drifts = np.empty(lead + (c_count, m))
-    where: list = [None] * c_count
-    # Shapes in order of their earliest segment; configurations within one by first use.
-    order = np.argsort(first_use, kind="stable")
-    _, first_of_shape, shape_of = np.unique(shape_code[order], return_index=True, return_inverse=True)
-    bad: list[tuple[int, int]] = []  # (first use, configuration) of unrepresentable numbers
-    switch_index = {name: j for j, name in enumerate(netlist.switch_names)}
-    parts = netlist.part_map
-    for s_index in np.argsort(first_of_shape, kind="stable").tolist():
-        members = order[shape_of.reshape(-1) == s_index]
-        lead_c = int(members[0])
-        layout = plan(netlist, configs[lead_c], lambda k=int(first_use[lead_c]): label(k))
-        shape = lead + (members.size,)
-        columns = []
-        for name, _key, _, _ in layout.conductances:
-            part = parts[name]
-            if part.kind == "switch":
-                closed = config_states[members, switch_index[name]]
-                if resistance is None:
-                    columns.append(np.where(closed, part.r_on, part.r_off))
-                else:
-                    on = np.reshape(resistance.get(f"{name}.r_on", part.r_on), (-1, 1))
-                    off = np.reshape(resistance.get(f"{name}.r_off", part.r_off), (-1, 1))
-                    columns.append(np.broadcast_to(np.where(closed[None, :], on, off), shape))
-            else:
-                value = part.value if resistance is None else resistance.get(name, part.value)
-                columns.append(np.broadcast_to(np.reshape(value, (-1, 1)) if units else value, shape))
-        # Entries: (units, members) flattened unit by unit, or the members alone.
-        count = int(np.prod(shape))
-        r = np.stack(columns, axis=-1).reshape(count, len(columns)) if columns else np.zeros((count, 0))
-        value = netlist.storage.value if storage is None else storage
-        values = np.broadcast_to(np.reshape(value, (-1, 1)) if units else value, shape).reshape(count)
-        batch = reduce_batch(layout, netlist, r, values)
-        taus[..., members] = batch.tau.reshape(shape)
-        gains[..., members, :] = batch.gain.reshape(shape + (m,))
-        drifts[..., members, :] = batch.drift.reshape(shape + (m,))
-        fine = batch.fine.reshape(shape)
-        if units is not None:
-            fine = fine.all(axis=0)
-        for i, c in enumerate(members.tolist()):
-            where[c] = (layout, batch, i)
-            if not fine[i]:
-                bad.append((int(first_use[c]), c))
-    if bad:
-        _, c = min(bad)
-        _refuse(float(np.min(taus[..., c])), netlist)
-    return taus, gains, drifts, where
 
 
 def _refuse_ramps(segments: Segments, taus: np.ndarray, drifts: np.ndarray, levels: np.ndarray,

@@ -20,7 +20,8 @@ from ..netlist import GROUND, Netlist, Probe
 from .mna import generic_solution, solve_planned_batch, term_plan
 from .topology import Layout
 
-__all__ = ["Reduced", "ReducedBatch", "across_row", "node_row", "probe_row", "reduce", "reduce_batch", "resistances"]
+__all__ = ["Reduced", "ReducedBatch", "across_row", "node_row", "probe_row", "reduce", "reduce_batch",
+           "refuse_unrepresentable", "resistances"]
 
 
 @dataclass(frozen=True)
@@ -90,7 +91,7 @@ def reduce(layout: Layout, netlist: Netlist) -> Reduced:
     """
     batch = reduce_batch(layout, netlist)
     if not batch.fine[0]:
-        _refuse(batch.tau[0], netlist)
+        refuse_unrepresentable(batch.tau[0], netlist)
     return batch.item(0)
 
 
@@ -250,7 +251,7 @@ def _by_shape(layout: Layout, width: int) -> tuple:
     return cached
 
 
-def _refuse(tau: float, netlist: Netlist) -> None:
+def refuse_unrepresentable(tau: float, netlist: Netlist) -> None:
     """An InputError naming the storage element and the parts whose values leave double
     precision (a number of a configuration that could not be represented)."""
     storage = netlist.storage
@@ -305,8 +306,12 @@ def node_row(solution: np.ndarray, layout: Layout, node: str) -> np.ndarray:
     return solution[..., layout.node_index[node], :]
 
 
-def probe_row(layout: Layout, netlist: Netlist, reduced: Reduced, probe: Probe, where=None) -> np.ndarray:
+def probe_row(layout: Layout, netlist: Netlist, reduced: Reduced, probe: Probe, where=None,
+              resistance=None) -> np.ndarray:
     """A probe as an affine row over ``[x, u...]`` in one configuration (see :func:`node_row`).
+
+    `reduced` may hold a batch of solutions (b, size, 1 + m), giving rows (b, 1 + m);
+    `resistance(name, key)` then gives a part's resistance per entry, shape (b, 1).
 
     Raises TopologyError (naming `where`) for a node voltage across a floating island,
     whose value the pin would otherwise set to an arbitrary 0 V.
@@ -324,14 +329,14 @@ def probe_row(layout: Layout, netlist: Netlist, reduced: Reduced, probe: Probe, 
             )
         return across_row(layout, reduced, probe.node, probe.reference)
     part = netlist.part_map[probe.through]
-    width = solution.shape[1]
+    shape = solution.shape[:-2] + solution.shape[-1:]
     if part.kind == "inductor":
-        row = np.zeros(width)
-        row[0] = 1.0
+        row = np.zeros(shape)
+        row[..., 0] = 1.0
         return row
     if part.kind == "current_source":
-        row = np.zeros(width)
-        row[1 + netlist.source_names.index(part.name)] = 1.0
+        row = np.zeros(shape)
+        row[..., 1 + netlist.source_names.index(part.name)] = 1.0
         return row
     if part.name in layout.undefined_currents:
         raise TopologyError(
@@ -341,9 +346,10 @@ def probe_row(layout: Layout, netlist: Netlist, reduced: Reduced, probe: Probe, 
     for name, *_ in layout.voltage_branches:
         if name == part.name:
             row = layout.branch_row(name)
-            return solution[row] + (reduced.low[row] if reduced.low is not None else 0.0)
+            return solution[..., row, :] + (reduced.low[..., row, :] if reduced.low is not None else 0.0)
     for name, key, a, b in layout.conductances:
         if name == part.name:
-            return across_row(layout, reduced, a, b) / getattr(part, key)
+            return across_row(layout, reduced, a, b) / (getattr(part, key) if resistance is None
+                                                         else resistance(name, key))
     # An open switch with no leakage carries nothing.
-    return np.zeros(width)
+    return np.zeros(shape)
