@@ -381,6 +381,14 @@ class Segments:
         stacked._lot = tuple(lot)
         return stacked
 
+    @property
+    def unit_levels(self) -> np.ndarray:
+        """(units, n, m): every unit's source levels (a broadcast of `levels` where they
+        are shared)."""
+        if self._unit_levels is not None:
+            return self._unit_levels
+        return np.broadcast_to(self.levels, (self.units or 1,) + self.levels.shape)
+
     def unit(self, k: int) -> "Segments":
         """Unit `k` of a lot (see :meth:`stack`), without the unit axis."""
         if self.units is None:
