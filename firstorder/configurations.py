@@ -34,6 +34,10 @@ if TYPE_CHECKING:
 
 __all__ = ["lot_probe_rows", "reduce_configurations"]
 
+#: Up to this many configurations of a drive are also kept in the fixture's cache (a
+#: notebook re-running a short drive reduces nothing again); more stay with their batch.
+_KEEP = 64
+
 
 def reduce_configurations(fixture: "Fixture", states: np.ndarray, configs: Sequence[tuple[bool, ...]], first_use: np.ndarray,
                 label, resistance: Mapping[str, np.ndarray] | None = None, storage: np.ndarray | None = None,
@@ -52,6 +56,12 @@ def reduce_configurations(fixture: "Fixture", states: np.ndarray, configs: Seque
     netlist = fixture.netlist
     m = len(netlist.source_names)
     c_count = len(configs)
+    if resistance is None and storage is None and units is None:
+        cached = [fixture.known_configuration(config) for config in configs]
+        if all(entry is not None for entry in cached):  # all reduced before: nothing to batch
+            return (np.array([one.tau for _, one in cached]), np.array([one.gain for _, one in cached]).reshape(c_count, m),
+                    np.array([one.drift for _, one in cached]).reshape(c_count, m),
+                    [(layout, one, None, None) for layout, one in cached])
     config_states = np.array(configs, dtype=bool).reshape(c_count, len(netlist.switch_names))
     structural = np.array(structural_switches(netlist), dtype=bool)
     shape_code = (config_states[:, structural].astype(np.int64)
@@ -67,8 +77,23 @@ def reduce_configurations(fixture: "Fixture", states: np.ndarray, configs: Seque
     bad: list[tuple[int, int]] = []  # (first use, configuration) of unrepresentable numbers
     switch_index = {name: j for j, name in enumerate(netlist.switch_names)}
     parts = netlist.part_map
+    known = np.zeros(c_count, dtype=bool)
+    keep = False
+    if resistance is None and storage is None:
+        # The fixture's own values: what it has reduced already is taken from its cache.
+        for c, config in enumerate(configs):
+            cached = fixture.known_configuration(config)
+            if cached is not None:
+                known[c] = True
+                layout, one = cached
+                taus[c], gains[c], drifts[c] = one.tau, one.gain, one.drift
+                where[c] = (layout, one, None, None)
+        keep = c_count <= _KEEP
     for s_index in np.argsort(first_of_shape, kind="stable").tolist():
         members = order[shape_of.reshape(-1) == s_index]
+        members = members[~known[members]]
+        if not members.size:
+            continue
         lead_c = int(members[0])
         layout = plan(netlist, configs[lead_c], lambda k=int(first_use[lead_c]): label(k))
         shape = lead + (members.size,)
@@ -100,6 +125,8 @@ def reduce_configurations(fixture: "Fixture", states: np.ndarray, configs: Seque
             fine = fine.all(axis=0)
         for i, c in enumerate(members.tolist()):
             where[c] = (layout, batch, i, members.size)
+            if units is None and keep and fine[i] and resistance is None and storage is None:
+                fixture.keep_configuration(configs[c], plan(netlist, configs[c]), batch.item(i))
             if not fine[i]:
                 bad.append((int(first_use[c]), c))
     if bad:

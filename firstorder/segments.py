@@ -490,6 +490,8 @@ class Segments:
         if reduced is not None and self.units is None:
             # From the batch this was built with: bit for bit what the fixture's own gives.
             layout, batch, i, _ = reduced[c]
+            if i is None:  # from the fixture's cache
+                return layout, batch
             from .network import plan
 
             return plan(self._fixture.netlist, self.configurations[c]), batch.item(i)
