@@ -174,8 +174,8 @@ class _Terms:
             products = a[:, :, None] * x
             parts_high.append(-products)
             parts_low.append(-_product_errors(a[:, :, None], x, products, a_high[:, :, None], a_low[:, :, None]))
-        parts_high.append(np.broadcast_to(self.B, (n,) + self.B.shape))
-        parts_low.append(np.broadcast_to(self.B_low, (n,) + self.B.shape))
+        parts_high.append(_stacked(self.B, n))
+        parts_low.append(_stacked(self.B_low, n))
         every_high, every_low = np.concatenate(parts_high, axis=1), np.concatenate(parts_low, axis=1)
         residual = np.empty((n, self.size, width))
         return _row_sums(self.groups, every_high, every_low, residual)
@@ -215,6 +215,12 @@ def _pair_difference(ah, al, bh, bl):
     return _pair_sum(ah, al, -bh, -bl)
 
 
+def _stacked(array: np.ndarray, n: int) -> np.ndarray:
+    """`array` repeated along a new leading axis of `n` (a view; for one, without the cost
+    of a broadcast)."""
+    return array[None] if n == 1 else np.broadcast_to(array, (n,) + array.shape)
+
+
 def _two_sum(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``a + b`` as a rounded sum and its exact error (Knuth's two-sum)."""
     s = a + b
@@ -252,7 +258,7 @@ def solve_batch(terms: "_Terms", values: np.ndarray, rounds: int = 40, zeros: np
     A = np.zeros((size * size, n))
     np.add.at(A, terms.flat, values.T)
     A = np.ascontiguousarray(A.T).reshape(n, size, size)
-    high = _solve(A, np.broadcast_to(terms.B, (n, size, width)))
+    high = _solve(A, _stacked(terms.B, n))
     if zeros is not None:
         high[:, zeros] = 0.0
     low = np.zeros_like(high)
@@ -372,7 +378,7 @@ class TermPlan(_Terms):
         vh, vl = dh[:, K:], dl[:, K:]
         nodes = self.size - len(self.poles)
         jh, jl = high[:, nodes:], low[:, nodes:]
-        every_high = np.concatenate([pad, ih, -ih, jh, -jh, -vh, np.broadcast_to(self.B, (n,) + self.B.shape)], axis=1)
+        every_high = np.concatenate([pad, ih, -ih, jh, -jh, -vh, _stacked(self.B, n)], axis=1)
         every_low = np.concatenate([pad, il, -il, jl, -jl, -vl, np.zeros((n,) + self.B.shape)], axis=1)
         return _row_sums(self.branch_groups, every_high, every_low, np.empty((n, self.size, width)))
 
