@@ -127,6 +127,17 @@ class Lot:
             else:
                 pair = adjust.setdefault(quantity.part, [0.0, 0.0])
                 pair[0 if quantity.field == "gain" else 1] = column[:, None]
+        for part in self.fixture.switches:
+            # with_values refuses such a unit; so does the batch, naming it.
+            on = values.get(f"{part.name}.r_on", part.r_on)
+            off = values.get(f"{part.name}.r_off", part.r_off)
+            bad = ~(np.asarray(off) > np.asarray(on))
+            if np.ndim(bad) and bad.any():
+                k = int(np.argmax(bad))
+                raise InputError(f"spread {part.name}.r_off: unit {draw.first + k} draws an off resistance not above "
+                                 f"its on resistance ({format_value(float(np.broadcast_to(off, bad.shape)[k]), 'Ω')} "
+                                 f"against {format_value(float(np.broadcast_to(on, bad.shape)[k]), 'Ω')}); narrow "
+                                 f"the bands")
         levels = {name: drive.levels(name)[None, :] * (1.0 + gain) + offset for name, (gain, offset) in adjust.items()}
         if not values and not levels:  # nothing varies but the temperature: every unit nominal
             storage = self.fixture.storage
