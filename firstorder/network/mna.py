@@ -434,7 +434,16 @@ def solve_planned_batch(plan: TermPlan, conductances: np.ndarray, rounds: int = 
     g = np.asarray(conductances, dtype=float)
     # Index -1 (the constant one) picks the 1.0 appended at the end.
     values = plan.sign * np.concatenate([g, np.ones((g.shape[0], 1))], axis=1)[:, plan.conductance]
-    return solve_batch(plan, values, rounds, zeros, g)
+    if values.shape[0] <= _CHUNK:
+        return solve_batch(plan, values, rounds, zeros, g)
+    # In chunks whose working arrays stay in cache (each system's result is its own anyway).
+    pieces = [solve_batch(plan, values[k:k + _CHUNK], rounds, zeros, g[k:k + _CHUNK])
+              for k in range(0, values.shape[0], _CHUNK)]
+    return np.concatenate([p[0] for p in pieces]), np.concatenate([p[1] for p in pieces])
+
+
+#: Systems solved together at most (larger batches run in chunks of this many).
+_CHUNK = 256
 
 
 #: Relative rounding a converged pair keeps (2**-104), with a margin of 16.
