@@ -273,6 +273,15 @@ class Fixture:
             self._configurations[states] = cached
         return cached
 
+    def known_configuration(self, states: tuple[bool, ...]) -> tuple[network.Layout, network.Reduced] | None:
+        """The cached layout and numbers of a configuration, or None if not reduced yet."""
+        return self._configurations.get(states)
+
+    def keep_configuration(self, states: tuple[bool, ...], layout: network.Layout, reduced: network.Reduced) -> None:
+        """Cache a configuration reduced elsewhere (in a batch: bit for bit what
+        :meth:`configuration` would reduce)."""
+        self._configurations[states] = (layout, reduced)
+
     def time_constant(self, **switch_states: Any) -> float:
         """Time constant (s) in the given switch configuration; ``inf`` when it holds."""
         return self.configuration(self.switch_states(**switch_states))[1].tau

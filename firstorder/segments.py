@@ -30,6 +30,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from .configurations import lot_probe_rows, reduce_configurations
 from .drive import level_columns
 from .errors import InputError, TopologyError
 from .netlist import Netlist
@@ -188,6 +189,11 @@ class Segments:
         #: The level columns as read (of_columns only: a plan builds its drive from them).
         self.columns: dict[str, np.ndarray] | None = None
         self._lot: tuple["Segments", ...] = ()
+        #: Per configuration, (layout, batch, entry) of the batched reduction it came from.
+        self._reduced: list | None = None
+        #: A lot's per-unit source levels (units, n, m) and resistances (of_lot only).
+        self._unit_levels: np.ndarray | None = None
+        self._lot_resistance: dict | None = None
 
     # -- building ----------------------------------------------------------------------------
     @classmethod
@@ -232,11 +238,8 @@ class Segments:
                           state_unit=netlist.state_unit, storage_kind=netlist.storage.kind,
                           storage_name=netlist.storage.name, first_use=first_use, fixture=fixture, times=times,
                           word=word)
-        reduced = _reduce_all(fixture, configs, first_use, provisional.label)
-        m = levels.shape[1]
-        taus = np.array([r.tau for r in reduced])
-        gains = np.array([r.gain for r in reduced]).reshape(len(configs), m)
-        drifts = np.array([r.drift for r in reduced]).reshape(len(configs), m)
+        taus, gains, drifts, provisional._reduced = reduce_configurations(fixture, states, configs, first_use,
+                                                                provisional.label)
         _refuse_ramps(provisional, taus, drifts, levels, inverse, netlist)
         rate_by_config = rates(taus)
         # One rate for every segment: a read-only broadcast, not an array to fill.
@@ -244,6 +247,64 @@ class Segments:
         provisional.rate = rate
         provisional.gain_by_configuration = gains
         return provisional
+
+    @classmethod
+    def of_lot(cls, fixture: "Fixture", drive: "Drive", values: Mapping[str, Any],
+               levels: Mapping[str, Any] | None = None) -> "Segments":
+        """Every unit of a lot at once: `fixture` with per-unit part values under `drive`.
+
+        Each configuration is planned once and reduced for every unit in one batched solve
+        (:mod:`firstorder.configurations`); unit u's numbers are bit for bit those of
+        ``Segments.of_drive(fixture.with_values(...), drive)`` with its values.
+
+        Parameters
+        ----------
+        values : mapping of str to array, each shape (units,)
+            ``"part"`` (a resistor, the capacitor or inductor: ohms, farads, henries) or
+            ``"switch.r_on"`` / ``"switch.r_off"`` (ohms); parts not named keep theirs.
+        levels : mapping of str to array, each shape (units, n), optional
+            Per-unit levels of some sources (a converter's gain and offset); the others as
+            the drive gives them.
+
+        Returns
+        -------
+        Segments
+            With a unit axis: ``rate`` (units, n), ``gain_by_configuration`` (units, c, m),
+            ``final`` (units, n) and :meth:`probe_rows` (units, n, 1 + m).
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> drive = fo.Drive([0, "1m"], end="2m", vin=[1.0, 0.0])
+        >>> lot = Segments.of_lot(fo.Fixture.rc("1k", "1u"), drive, {"r": np.array([1e3, 2e3])})
+        >>> lot.units, lot.rate.tolist()
+        (2, [[1000.0, 1000.0], [500.0, 500.0]])
+        """
+        netlist = fixture.netlist
+        netlist.check()
+        base, states = match_columns(netlist, drive.columns, len(drive), "drive")
+        units, resistance, storage = _lot_values(netlist, values, levels, len(drive))
+        unit_levels = None
+        if levels:
+            unit_levels = np.empty((units,) + base.shape)
+            unit_levels[:] = base
+            for name, column in levels.items():
+                unit_levels[:, :, netlist.source_names.index(name)] = column
+        configs, inverse, first_use = _distinct(states)
+        segments = cls(levels=base, configurations=configs, configuration_of=inverse, rate=np.zeros((units, 0)),
+                       gain_by_configuration=np.zeros((units, 0, 0)), source_names=netlist.source_names,
+                       state_unit=netlist.state_unit, storage_kind=netlist.storage.kind,
+                       storage_name=netlist.storage.name, first_use=first_use, fixture=fixture, times=drive.times,
+                       word="segment")
+        taus, gains, drifts, segments._reduced = reduce_configurations(
+            fixture, states, configs, first_use, segments.label, resistance=resistance, storage=storage, units=units)
+        every = base if unit_levels is None else np.abs(unit_levels).max(axis=0)
+        _refuse_ramps(segments, taus.max(axis=0), np.abs(drifts).max(axis=0), every, inverse, netlist)
+        segments.rate = rates(taus)[:, inverse]
+        segments.gain_by_configuration = gains
+        segments._unit_levels = unit_levels
+        segments._lot_resistance = resistance
+        return segments
 
     @classmethod
     def of_model(cls, tau: Any, final: Any, *, unit: str = "", name: str = "fitted") -> "Segments":
@@ -320,12 +381,23 @@ class Segments:
         stacked._lot = tuple(lot)
         return stacked
 
+    @property
+    def unit_levels(self) -> np.ndarray:
+        """(units, n, m): every unit's source levels (a broadcast of `levels` where they
+        are shared)."""
+        if self._unit_levels is not None:
+            return self._unit_levels
+        return np.broadcast_to(self.levels, (self.units or 1,) + self.levels.shape)
+
     def unit(self, k: int) -> "Segments":
         """Unit `k` of a lot (see :meth:`stack`), without the unit axis."""
         if self.units is None:
             raise InputError("unit: these segments have no unit axis")
         if not 0 <= k < self.units:
             raise InputError(f"unit: {k!r} is not a unit; units are 0 to {self.units - 1}")
+        if not self._lot:
+            raise InputError("unit: a lot built at once (of_lot) keeps no unit's own segments; build one with "
+                             "Segments.of_drive on that unit's fixture")
         return self._lot[k]
 
     # -- per segment ---------------------------------------------------------------------------
@@ -390,6 +462,13 @@ class Segments:
     @_lazy
     def final(self) -> np.ndarray:
         """Every segment's final value from the sources alone (0 where the state is held)."""
+        if self.units is not None:
+            # Per unit, as one unit's final is formed (the same operations element by element).
+            levels = self.levels[None] if self._unit_levels is None else self._unit_levels
+            gains = self.gain_by_configuration
+            if levels.shape[2] == 1:
+                return gains[:, self.configuration_of, 0] * levels[:, :, 0]
+            return (gains[:, self.configuration_of] * levels).sum(axis=2)
         if self.one_gain is not None:
             if self.one_gain == 1.0:  # 1.0 * level is level exactly: no need for a copy
                 return self.levels[:, 0]
@@ -407,6 +486,15 @@ class Segments:
         """The layout and reduced numbers of configuration `c` (no network: an InputError)."""
         if self._fixture is None:
             raise InputError(f"these segments come from a {self.storage_kind}, not a fixture; they have no network")
+        reduced = self._reduced
+        if reduced is not None and self.units is None:
+            # From the batch this was built with: bit for bit what the fixture's own gives.
+            layout, batch, i, _ = reduced[c]
+            if i is None:  # from the fixture's cache
+                return layout, batch
+            from .network import plan
+
+            return plan(self._fixture.netlist, self.configurations[c]), batch.item(i)
         return self._fixture.configuration(self.configurations[c])
 
     @property
@@ -421,8 +509,13 @@ class Segments:
         return probes[name]
 
     def probe_rows(self, name: str) -> np.ndarray:
-        """(n, 1 + m): probe `name` as an affine row over ``[x, u...]`` in every segment (cached)."""
+        """(n, 1 + m): probe `name` as an affine row over ``[x, u...]`` in every segment (cached);
+        (units, n, 1 + m) for a lot built by :meth:`of_lot`."""
         rows = self._probe_rows.get(name)
+        if rows is None and self._lot_resistance is not None:
+            rows = lot_probe_rows(self._fixture, self._reduced, self.configurations, self._first_use, self.probe(name),
+                                  self.units, self._lot_resistance, self.label)[:, self.configuration_of]
+            self._probe_rows[name] = rows
         if rows is None:
             probe = self.probe(name)
             netlist = self._fixture.netlist
@@ -437,13 +530,37 @@ class Segments:
         return rows
 
 
-def _reduce_all(fixture: "Fixture", configs: Sequence[tuple[bool, ...]], first_use: np.ndarray, label) -> list:
-    """Every configuration reduced, in order of first use: of several ill-posed ones, the
-    error names the earliest segment."""
-    reduced: list = [None] * len(configs)
-    for c in np.argsort(first_use, kind="stable").tolist():
-        reduced[c] = fixture.configuration(configs[c], where=lambda k=int(first_use[c]): label(k))[1]
-    return reduced
+def _lot_values(netlist: Netlist, values: Mapping[str, Any], levels: Mapping[str, Any] | None,
+                n: int) -> tuple[int, dict[str, np.ndarray], np.ndarray | None]:
+    """The count of units, the per-unit resistances by key and the storage values, checked."""
+    parts = netlist.part_map
+    arrays: dict[str, np.ndarray] = {}
+    for key, column in values.items():
+        name, _, field = str(key).partition(".")
+        part = parts.get(name)
+        fine = part is not None and ((not field and part.kind in ("resistor", "capacitor", "inductor"))
+                                     or (field in ("r_on", "r_off") and part.kind == "switch"))
+        if not fine:
+            allowed = [p.name for p in netlist.parts if p.kind in ("resistor", "capacitor", "inductor")]
+            allowed += [f"{p.name}.{f}" for p in netlist.switches for f in ("r_on", "r_off")]
+            raise InputError(f"values: {key!r} names no part value of the fixture; give one of {allowed}")
+        array = np.asarray(column, dtype=np.float64)
+        if array.ndim != 1:
+            raise InputError(f"values[{key!r}]: has shape {array.shape}; give one value per unit")
+        arrays[str(key)] = array
+    lengths = {a.size for a in arrays.values()}
+    for name, column in (levels or {}).items():
+        if name not in netlist.source_names:
+            raise InputError(f"levels: {name!r} is not a source; sources are {list(netlist.source_names)}")
+        array = np.asarray(column, dtype=np.float64)
+        if array.ndim != 2 or array.shape[1] != n:
+            raise InputError(f"levels[{name!r}]: has shape {array.shape}; give (units, {n}) levels")
+        lengths.add(array.shape[0])
+    if len(lengths) != 1:
+        raise InputError(f"values: per-unit arrays of {sorted(lengths)} units; give every quantity the same "
+                         f"number of units (at least one)")
+    storage = arrays.pop(netlist.storage.name, None)
+    return lengths.pop(), arrays, storage
 
 
 def _refuse_ramps(segments: Segments, taus: np.ndarray, drifts: np.ndarray, levels: np.ndarray,

@@ -39,6 +39,7 @@ LAYERS = [
     "drive",
     "network.topology", "network.mna", "network.reduce", "network",
     "fixture",
+    "configurations",
     "segments",
     "engine",
     "response",

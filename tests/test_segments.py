@@ -163,3 +163,93 @@ class TestUnitAxis:
         other = DRIVE.replace(k1=[1, 1, 1, 1])
         with pytest.raises(InputError, match="differ in structure"):
             Segments.stack([Segments.of_drive(relay_filter(), DRIVE), Segments.of_drive(relay_filter(), other)])
+
+
+def relay_bank(switches: int) -> fo.Fixture:
+    """A source behind 1 kΩ, a capacitor, and relays (0.5 Ω on, 1 GΩ off) to loads of their own."""
+    fx = fo.Fixture()
+    fx.voltage_source("vin", "in", "gnd")
+    fx.voltage_source("vref", "ref", "gnd")
+    fx.resistor("rs", "in", "a", "1k")
+    fx.resistor("rr", "ref", "a", "47k")
+    fx.capacitor("c", "a", "gnd", "100n")
+    for j in range(switches):
+        fx.switch(f"k{j}", "a", f"n{j}", r_on="0.5", r_off="1G")
+        fx.resistor(f"r{j}", f"n{j}", "gnd", 1e3 * (j + 1))
+    fx.switch("kz", "a", "z", r_on=0)  # ideal: its state changes the topology
+    fx.resistor("rz", "z", "gnd", "2k")
+    fx.probe("va", node="a")
+    fx.probe("i0", through="k0")
+    return fx
+
+
+class TestManyConfigurations:
+    def test_configurations_reduced_together_equal_each_reduced_alone(self):
+        switches = 5
+        codes = np.arange(2 ** (switches + 1))
+        states = (codes[:, None] >> np.arange(switches + 1)) & 1
+        columns = {f"k{j}": states[:, j] for j in range(switches)}
+        n = codes.size
+        drive = fo.Drive(np.arange(n) * 1e-3, end=n * 1e-3, vin=np.ones(n), vref=np.linspace(0, 1, n),
+                         kz=states[:, switches], **columns)
+        segments = Segments.of_drive(relay_bank(switches), drive)
+        alone = relay_bank(switches)  # a fresh fixture: every configuration reduced on its own
+        for c, config in enumerate(segments.configurations):
+            layout, one = alone.configuration(config)
+            k = int(segments.first_use[c])
+            assert segments.rate[k] == rates(np.array([one.tau]))[0]
+            assert np.array_equal(segments.gain_by_configuration[c], one.gain)
+            for probe in ("va", "i0"):
+                row = fo.network.probe_row(layout, alone.netlist, one, segments.probe(probe))
+                assert np.array_equal(segments.probe_rows(probe)[k], row)
+
+
+class TestOfLot:
+    @staticmethod
+    def lot(units: int, seed: int = 3):
+        fx = relay_filter()
+        fx.voltage_source("vref", "ref", "gnd")
+        fx.resistor("rr", "ref", "b", "47k")
+        fx.probe("i_k1", through="k1")
+        rng = np.random.default_rng(seed)
+        n = 12
+        drive = fo.Drive(np.arange(n) * 1e-3, end=n * 1e-3, vdac=rng.uniform(-5, 5, n), vref=rng.uniform(0, 2, n),
+                         k1=rng.integers(0, 2, n))
+        values = {"rs": 1e3 * (1 + 0.01 * rng.uniform(-1, 1, units)), "c": 1e-7 * (1 + 0.1 * rng.uniform(-1, 1, units)),
+                  "k1.r_on": rng.uniform(0.1, 1.0, units), "rl": 1e4 * (1 + 0.01 * rng.uniform(-1, 1, units))}
+        gain = rng.uniform(-1e-3, 1e-3, units)
+        levels = {"vdac": drive.levels("vdac")[None, :] * (1.0 + gain[:, None])}
+        return fx, drive, values, gain, levels
+
+    def test_200_random_units_equal_their_hand_built_fixtures_bit_for_bit(self):
+        units = 200
+        fx, drive, values, gain, levels = self.lot(units)
+        lot = Segments.of_lot(fx, drive, values, levels)
+        assert lot.units == units and lot.rate.shape == (units, len(drive))
+        for u in range(units):
+            unit = fx.with_values(rs=values["rs"][u], c=values["c"][u], rl=values["rl"][u],
+                                  k1=(values["k1.r_on"][u], "1G"))
+            alone = Segments.of_drive(unit, drive.replace(vdac=drive.levels("vdac") * (1.0 + gain[u])))
+            for c, config in enumerate(lot.configurations):
+                layout, one = unit.configuration(config)
+                assert np.array_equal(rates(np.array([one.tau])), lot.rate[u, lot.first_use[c]:lot.first_use[c] + 1])
+                assert np.array_equal(lot.gain_by_configuration[u, c], one.gain)
+            assert np.array_equal(lot.final[u], alone.final)
+            for probe in ("v_a", "i_k1"):
+                assert np.array_equal(lot.probe_rows(probe)[u], alone.probe_rows(probe))
+
+    def test_bad_values_are_refused_naming_the_key(self):
+        fx, drive, values, _, _ = self.lot(3)
+        with pytest.raises(InputError, match=r"^values: 'k9.r_on' names no part value"):
+            Segments.of_lot(fx, drive, {"k9.r_on": np.ones(3)})
+        with pytest.raises(InputError, match=r"^values: 'vdac' names no part value"):
+            Segments.of_lot(fx, drive, {"vdac": np.ones(3)})
+        with pytest.raises(InputError, match=r"same number of units"):
+            Segments.of_lot(fx, drive, {"rs": np.ones(3), "c": np.ones(2)})
+        with pytest.raises(InputError, match=r"^levels\['vdac'\]: has shape \(3,\)"):
+            Segments.of_lot(fx, drive, values, {"vdac": np.ones(3)})
+
+    def test_a_lot_keeps_no_units_own_segments(self):
+        fx, drive, values, _, _ = self.lot(2)
+        with pytest.raises(InputError, match="of_lot"):
+            Segments.of_lot(fx, drive, values).unit(0)

@@ -14,7 +14,8 @@ import numpy as np
 
 from .topology import Layout
 
-__all__ = ["ExactSum", "TermPlan", "generic_solution", "solve", "solve_pair", "solve_planned", "stamp", "term_plan"]
+__all__ = ["ExactSum", "TermPlan", "generic_solution", "solve", "solve_batch", "solve_pair", "solve_planned",
+           "solve_planned_batch", "stamp", "term_plan"]
 
 
 def stamp(layout: Layout, conductance_of, zero, one, excitations: int):
@@ -104,10 +105,10 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
 
     A node can join a 1 mΩ path and a 1 TΩ leakage: rounding the diagonal sum
     1000 + 1e-12 S, and elimination in double precision, leave the result a few
-    parts per million off.  So the entries are summed exactly (``math.fsum``),
-    and the plain solution is refined: each round forms the residual of the
-    *exact* system against ``high + low`` from exact products (Dekker's
-    two-product) summed exactly, solves for the correction and adds it into
+    parts per million off.  So the matrix is kept as its stamp terms, and the plain
+    solution is refined: each round forms the residual of the *exact* system
+    against ``high + low`` from exact products (Dekker's two-product) summed in
+    double-double (:func:`_residual`), solves for the correction and adds it into
     the pair, until the correction is below 2**-100 of every entry.  Every round
     gains about ``-log10(cond * 1e-16)`` digits.  The low part matters for what
     is formed from differences of unknowns: the voltage across a coil shunted by
@@ -121,71 +122,191 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
     >>> float(high[0, 0]), abs(float(low[0, 0])) < 1e-16
     (0.3333333333333333, True)
     """
-    A = np.array([[math.fsum(entry.terms) for entry in row] for row in A_terms])
-    B = np.array([[math.fsum(entry.terms) for entry in row] for row in B_terms])
-    values = np.array([t for row in A_terms for entry in row for t in entry.terms])
-    columns = np.array([j for row in A_terms for j, entry in enumerate(row) for _ in entry.terms], dtype=np.intp)
-    counts = [sum(len(entry.terms) for entry in row) for row in A_terms]
-    ends = np.cumsum(counts).tolist()
-    starts = [e - c for e, c in zip(ends, counts)]
-    rhs = [[B_terms[i][j].terms for j in range(B.shape[1])] for i in range(B.shape[0])]
-    return _refine(A, B, values, columns, starts, ends, rhs, rounds, zeros)
+    rows, columns, values = [], [], []
+    for i, row in enumerate(A_terms):
+        for j, entry in enumerate(row):
+            for t in entry.terms:
+                rows.append(i)
+                columns.append(j)
+                values.append(t)
+    # B's entries as pairs: the rounded sum and what it dropped.
+    B_high = np.array([[math.fsum(entry.terms) for entry in row] for row in B_terms], dtype=float)
+    B_low = np.array([[math.fsum((*entry.terms, -h)) for entry, h in zip(row, hs)]
+                      for row, hs in zip(B_terms, B_high.tolist())], dtype=float).reshape(B_high.shape)
+    terms = _Terms(np.array(rows, dtype=np.intp), np.array(columns, dtype=np.intp), len(A_terms), B_high, B_low)
+    high, low = solve_batch(terms, np.array(values, dtype=float)[None, :], rounds, zeros)
+    return high[0], low[0]
 
 
-def _refine(A: np.ndarray, B: np.ndarray, values: np.ndarray, columns: np.ndarray, starts: list[int],
-            ends: list[int], rhs: list, rounds: int, zeros: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
-    """Iterative refinement of ``A z = B`` into a pair (see :func:`solve_pair`): `values`
-    are the terms of the exact A row by row (row i from starts[i] to ends[i]), `columns`
-    the unknown each multiplies, `rhs` the terms of each entry of B."""
-    factors = _factor(A)
-    high = factors(B)
+class _Terms:
+    """The stamp terms of a system ``A z = B`` (row and column of each; B as a pair), and
+    the slots of its residual sums, grouped by padded length (see :func:`_residual`)."""
+
+    __slots__ = ("rows", "columns", "size", "B", "B_low", "groups", "flat")
+
+    def __init__(self, rows: np.ndarray, columns: np.ndarray, size: int, B: np.ndarray,
+                 B_low: np.ndarray | None = None) -> None:
+        self.rows, self.columns, self.size = rows, columns, size
+        self.B = B
+        self.B_low = np.zeros_like(B) if B_low is None else B_low
+        self.flat = rows * size + columns
+        T = rows.size
+        # Residual slots, per row: its B entry (index 1 + 2T + i), then the products of each
+        # of its terms with the high (1 + t) and the low (1 + T + t) part; index 0 is zero.
+        per_row: list[list[int]] = [[1 + 2 * T + i] for i in range(size)]
+        for t, i in enumerate(rows.tolist()):
+            per_row[i] += [1 + t, 1 + T + t]
+        self.groups = _slot_groups(per_row)
+
+    def residual(self, a: np.ndarray, conductances: np.ndarray | None, high: np.ndarray, low: np.ndarray) -> np.ndarray:
+        """``B - A (high + low)`` for every system of a batch, from the stamp terms `a` (batch, T).
+
+        Each product of a term with a part of the solution is exact as a pair (two-product);
+        each row's pairs and its B entry are summed pairwise in double-double, so the error
+        is at most about ``3u**2 log2(slots)`` of the sum of the magnitudes: the residual of
+        a system whose every stamp term is off by that relative amount (2**-100 for 60
+        slots), which perturbs a solution as a conductance of 1e-30 of its own size would.
+        """
+        n, width = high.shape[0], high.shape[2]
+        a_high, a_low = _split(a)
+        parts_high, parts_low = [np.zeros((n, 1, width))], [np.zeros((n, 1, width))]
+        for x in (high[:, self.columns], low[:, self.columns]):
+            products = a[:, :, None] * x
+            parts_high.append(-products)
+            parts_low.append(-_product_errors(a[:, :, None], x, products, a_high[:, :, None], a_low[:, :, None]))
+        parts_high.append(_stacked(self.B, n))
+        parts_low.append(_stacked(self.B_low, n))
+        every_high, every_low = np.concatenate(parts_high, axis=1), np.concatenate(parts_low, axis=1)
+        residual = np.empty((n, self.size, width))
+        return _row_sums(self.groups, every_high, every_low, residual)
+
+
+def _slot_groups(per_row: list[list[int]]) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Rows grouped by their count of slots rounded up to a power of two: per group, the
+    rows and a table (rows, slots) of indices into the pairs summed (0: a zero pair)."""
+    by_length: dict[int, list[int]] = {}
+    longest = max((len(slots) for slots in per_row), default=1)
+    for i, slots in enumerate(per_row):
+        # Short rows share one table (fewer, larger operations); zero pairs padding a row
+        # add nothing (a normalised pair plus zero is itself), so the grouping is free.
+        by_length.setdefault(1 << (max(len(slots), 1 if longest > 8 else longest) - 1).bit_length(), []).append(i)
+    groups = []
+    for length, members in sorted(by_length.items()):
+        table = np.zeros((len(members), length), dtype=np.intp)
+        for k, i in enumerate(members):
+            table[k, :len(per_row[i])] = per_row[i]
+        groups.append((np.array(members, dtype=np.intp), table))
+    return groups
+
+
+def _row_sums(groups, every_high: np.ndarray, every_low: np.ndarray, out: np.ndarray) -> np.ndarray:
+    """Each row's pairs (picked from `every_high` + `every_low`, (batch, pairs, width) by its
+    slot table) summed pairwise in double-double, rounded to a float, into `out`."""
+    for members, table in groups:
+        sh, sl = every_high[:, table], every_low[:, table]  # (batch, rows, slots, width)
+        while sh.shape[2] > 1:  # pairwise: neighbours, then pairs of pairs
+            sh, sl = _pair_sum(sh[:, :, 0::2], sl[:, :, 0::2], sh[:, :, 1::2], sl[:, :, 1::2])
+        out[:, members] = sh[:, :, 0]
+    return out
+
+
+def _pair_difference(ah, al, bh, bl):
+    """Double-double ``a - b``."""
+    return _pair_sum(ah, al, -bh, -bl)
+
+
+def _stacked(array: np.ndarray, n: int) -> np.ndarray:
+    """`array` repeated along a new leading axis of `n` (a view; for one, without the cost
+    of a broadcast)."""
+    return array[None] if n == 1 else np.broadcast_to(array, (n,) + array.shape)
+
+
+def _two_sum(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``a + b`` as a rounded sum and its exact error (Knuth's two-sum)."""
+    s = a + b
+    v = s - a
+    return s, (a - (s - v)) + (b - v)
+
+
+def _fast_two_sum(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Two-sum for ``|a| >= |b|`` (Dekker)."""
+    s = a + b
+    return s, b - (s - a)
+
+
+def _pair_sum(xh, xl, yh, yl):
+    """Double-double ``x + y`` (AccurateDWPlusDW: relative error at most 3u**2 + 13u**3 of
+    the exact sum, u = 2**-53; Joldes, Muller and Popescu, ACM TOMS 44, 2017, Thm. 3.3)."""
+    sh, sl = _two_sum(xh, yh)
+    th, tl = _two_sum(xl, yl)
+    vh, vl = _fast_two_sum(sh, sl + th)
+    return _fast_two_sum(vh, tl + vl)
+
+
+def solve_batch(terms: "_Terms", values: np.ndarray, rounds: int = 40, zeros: np.ndarray | None = None,
+                conductances: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """The refined pair ``high + low`` (batch, size, width) of a batch of systems sharing
+    their stamp pattern `terms`, with stamp term values `values` (batch, T).
+
+    Every system is refined on its own (the same operations, element by element, with
+    its own count of rounds), so a system's result does not depend on the batch it is
+    solved in: the one-system path is this with a batch of one.
+    """
+    n = values.shape[0]
+    size, width = terms.size, terms.B.shape[1]
+    # The float matrix only preconditions; its entries are the terms added in term order.
+    A = np.zeros((size * size, n))
+    np.add.at(A, terms.flat, values.T)
+    A = np.ascontiguousarray(A.T).reshape(n, size, size)
+    high = _solve(A, _stacked(terms.B, n))
     if zeros is not None:
-        high[zeros] = 0.0
+        high[:, zeros] = 0.0
     low = np.zeros_like(high)
-    a = values[:, None]
-    a_high, a_low = _split(a)
     previous = np.full_like(high, np.inf)
+    active = np.arange(n)
     for _ in range(rounds):
-        parts = []
-        # The low part is zero before the first correction: its products add nothing.
-        for x in (high[columns], low[columns]) if low.any() else (high[columns],):
-            products = a * x
-            parts.append(products)
-            parts.append(_product_errors(a, x, products, a_high, a_low))
-        # Negated, row-major per row and column: every term of -A (high + low) for entry (i, j).
-        per = len(parts)
-        terms = -np.concatenate(parts, axis=0).reshape(per, -1, B.shape[1])
-        # Per column, the terms in row order (`per` per stamp term): one list, sliced per row.
-        flat = [terms[:, :, j].T.ravel().tolist() for j in range(B.shape[1])]
-        residual = np.array([[math.fsum((*rhs[i][j], *flat[j][per * first:per * last]))
-                              for j in range(B.shape[1])]
-                             for i, (first, last) in enumerate(zip(starts, ends))])
-        if not residual.any():
+        if not active.size:
             break
-        correction = factors(residual)
+        every = active.size == n
+        pick = (lambda array: array) if every else (lambda array: array[active])
+        h, lo = pick(high), pick(low)
+        residual = terms.residual(pick(values), None if conductances is None else pick(conductances), h, lo)
+        moving = residual.any(axis=(1, 2))
+        correction = _solve(pick(A), residual)
         if zeros is not None:
-            correction[zeros] = 0.0
-        total = low + correction
-        new_high = high + total
+            correction[:, zeros] = 0.0
+        total = lo + correction
+        new_high = h + total
         # Two-sum: what rounding new_high dropped, kept in the low part.
-        virtual = new_high - high
-        low = (high - (new_high - virtual)) + (total - virtual)
-        high = new_high
-        size = np.abs(correction)
+        virtual = new_high - h
+        new_low = (h - (new_high - virtual)) + (total - virtual)
+        size_ = np.abs(correction)
         # Done when every entry is converged to the pair's precision or has stopped
         # gaining (a coefficient that is zero exactly keeps a correction of its own noise).
-        if np.all((size <= _PAIR * np.abs(high)) | (size >= 0.5 * previous) | (size == 0.0)):
-            break
-        previous = size
+        done = np.all((size_ <= _PAIR * np.abs(new_high)) | (size_ >= 0.5 * pick(previous)) | (size_ == 0.0),
+                      axis=(1, 2))
+        if every and moving.all():
+            high, low, previous = new_high, new_low, size_
+        else:
+            update = active[moving]
+            high[update], low[update] = new_high[moving], new_low[moving]
+            previous[active] = size_
+        active = active[moving & ~done]
     return high, low
 
 
-class TermPlan:
+def _solve(A: np.ndarray, B: np.ndarray) -> np.ndarray:
+    """``A x = B`` for a stack of small systems (numpy's LU, one system at a time: scipy's
+    factor-once would cost its import on the first reduction)."""
+    return np.linalg.solve(A, B)
+
+
+class TermPlan(_Terms):
     """Where every stamp term of a layout goes, worked out once per layout (values vary):
     the terms row by row, the column each multiplies, which conductance it is (or the
     constant 1) with its sign, and B, whose entries are small integers (exact in floats)."""
 
-    __slots__ = ("rows", "columns", "conductance", "sign", "starts", "ends", "B", "size")
+    __slots__ = ("conductance", "sign", "ends", "poles", "branch_groups", "plus", "minus")
 
     def __init__(self, layout: Layout, excitations: int) -> None:
         # Stamp with codes for values: conductance k is 2 + k, the constant one is 1; the
@@ -202,15 +323,64 @@ class TermPlan:
                     columns.append(j)
                     values.append(code)
         values_array = np.array(values, dtype=float)
-        self.rows = np.array(rows, dtype=np.intp)
-        self.columns = np.array(columns, dtype=np.intp)
         self.conductance = np.abs(values_array).astype(np.intp) - 2  # -1: the constant one
         self.sign = np.sign(values_array)
-        counts = np.bincount(self.rows, minlength=len(A)) if rows else np.zeros(len(A), dtype=np.intp)
-        self.ends = np.cumsum(counts).tolist()
-        self.starts = [e - c for e, c in zip(self.ends, counts.tolist())]
-        self.B = np.array([[math.fsum(entry.terms) for entry in row] for row in B]).reshape(len(A), excitations)
-        self.size = len(A)
+        B_array = np.array([[math.fsum(entry.terms) for entry in row] for row in B]).reshape(len(A), excitations)
+        super().__init__(np.array(rows, dtype=np.intp), np.array(columns, dtype=np.intp), len(A), B_array)
+        # The residual from branch currents (see residual): each conductance's ends and each
+        # voltage branch's, as unknowns (ground: the extra unknown `size`, always 0).
+        size, index = len(A), layout.node_index
+        self.ends = np.array([[index.get(a, size), index.get(b, size)] for _, _, a, b in layout.conductances],
+                             dtype=np.intp).reshape(-1, 2)
+        self.poles = np.array([[index.get(p, size), index.get(n, size)] for _, p, n, _ in layout.voltage_branches],
+                              dtype=np.intp).reshape(-1, 2)
+        # Pairs summed: 0 zero, then +i_k and -i_k per conductance (K each), +j and -j per
+        # voltage branch current, minus each branch's voltage, and B by row.
+        K, V, nodes = len(self.ends), len(self.poles), len(layout.nodes)
+        per_row: list[list[int]] = [[1 + 2 * K + 3 * V + i] for i in range(size)]
+        for k, (a, b) in enumerate(self.ends.tolist()):
+            if a < size:
+                per_row[a].append(1 + K + k)  # row a holds +i_k: the residual takes it off
+            if b < size:
+                per_row[b].append(1 + k)
+        for v, (p, n) in enumerate(self.poles.tolist()):
+            if p < size:
+                per_row[p].append(1 + 2 * K + V + v)
+            if n < size:
+                per_row[n].append(1 + 2 * K + v)
+            per_row[nodes + v].append(1 + 2 * K + 2 * V + v)
+        self.branch_groups = _slot_groups(per_row)
+        self.plus = np.concatenate([self.ends[:, 0], self.poles[:, 0]])
+        self.minus = np.concatenate([self.ends[:, 1], self.poles[:, 1]])
+
+    def residual(self, a: np.ndarray, conductances: np.ndarray | None, high: np.ndarray,
+                 low: np.ndarray) -> np.ndarray:
+        """``B - A (high + low)`` formed from branch currents, for a batch (see the class).
+
+        Each conductance's current ``g (v_a - v_b)`` is formed as a pair from the voltage
+        difference taken in double-double (relative error about 2u**2, u = 2**-53) and an
+        exact product, each branch voltage likewise; each row's pairs are then summed
+        pairwise in double-double.  So the residual is that of the exact system with every
+        branch current and every branch voltage off by a relative 2**-100 or so (a change of
+        each conductance by that fraction): never of the size of the terms ``g v``, which a
+        1 mΩ part beside a 1 TΩ one makes 1e15 times larger than the currents that matter.
+        """
+        n, width = high.shape[0], high.shape[2]
+        pad = np.zeros((n, 1, width))
+        h, lo = np.concatenate([high, pad], axis=1), np.concatenate([low, pad], axis=1)
+        K = len(self.ends)
+        # Every conductance's voltage, then every voltage branch's, in one difference.
+        dh, dl = _pair_difference(h[:, self.plus], lo[:, self.plus], h[:, self.minus], lo[:, self.minus])
+        g = conductances[:, :, None]
+        g_high, g_low = _split(g)
+        products = g * dh[:, :K]
+        ih, il = _fast_two_sum(products, _product_errors(g, dh[:, :K], products, g_high, g_low) + g * dl[:, :K])
+        vh, vl = dh[:, K:], dl[:, K:]
+        nodes = self.size - len(self.poles)
+        jh, jl = high[:, nodes:], low[:, nodes:]
+        every_high = np.concatenate([pad, ih, -ih, jh, -jh, -vh, _stacked(self.B, n)], axis=1)
+        every_low = np.concatenate([pad, il, -il, jl, -jl, -vl, np.zeros((n,) + self.B.shape)], axis=1)
+        return _row_sums(self.branch_groups, every_high, every_low, np.empty((n, self.size, width)))
 
 
 def term_plan(layout: Layout, excitations: int) -> TermPlan:
@@ -223,10 +393,11 @@ def term_plan(layout: Layout, excitations: int) -> TermPlan:
 
 def solve_planned(plan: TermPlan, conductances: np.ndarray, rounds: int = 40,
                   zeros: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """:func:`solve_pair` for the system of `plan` with the given conductance of each branch.
+    """:func:`solve_pair` for the system of `plan` with the given conductance of each branch:
+    :func:`solve_planned_batch` with a batch of one.
 
-    The float matrix only preconditions (it is factored); every residual is formed exactly
-    from the terms, so the result is that of the exact system.
+    The float matrix only preconditions (it is factored); every residual is formed from
+    the exact terms, so the result is that of the exact system.
 
     Examples
     --------
@@ -240,24 +411,45 @@ def solve_planned(plan: TermPlan, conductances: np.ndarray, rounds: int = 40,
     >>> high[layout.node_index["in"]].tolist()
     [0.0, 1.0]
     """
+    high, low = solve_planned_batch(plan, np.asarray(conductances, dtype=float)[None, :], rounds, zeros)
+    return high[0], low[0]
+
+
+def solve_planned_batch(plan: TermPlan, conductances: np.ndarray, rounds: int = 40,
+                        zeros: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """The systems of `plan` for a batch of conductance vectors (batch, branches): the pairs
+    ``high + low``, each (batch, size, width), each system's bit for bit what it gives alone.
+
+    Examples
+    --------
+    >>> from firstorder.netlist import Netlist, Part
+    >>> from firstorder.network.topology import plan
+    >>> netlist = Netlist((Part("voltage_source", "vin", "in", "gnd"), Part("resistor", "r", "in", "out", value=1e3),
+    ...                    Part("capacitor", "c", "out", "gnd", value=1e-6)))
+    >>> layout = plan(netlist, ())
+    >>> high, low = solve_planned_batch(term_plan(layout, 2), np.array([[1e-3], [2e-3]]))
+    >>> high[:, layout.branch_row("c")].tolist()  # the capacitor's current per unit of [x, u]
+    [[-0.001, 0.001], [-0.002, 0.002]]
+    """
+    g = np.asarray(conductances, dtype=float)
     # Index -1 (the constant one) picks the 1.0 appended at the end.
-    values = plan.sign * np.append(np.asarray(conductances, dtype=float), 1.0)[plan.conductance]
-    A = np.zeros((plan.size, plan.size))
-    np.add.at(A, (plan.rows, plan.columns), values)
-    return _refine(A, plan.B, values, plan.columns, plan.starts, plan.ends,
-                   [[(v,) for v in row] for row in plan.B.tolist()], rounds, zeros)
+    values = plan.sign * np.concatenate([g, np.ones((g.shape[0], 1))], axis=1)[:, plan.conductance]
+    if values.shape[0] <= _CHUNK:
+        return solve_batch(plan, values, rounds, zeros, g)
+    # In chunks whose working arrays stay in cache (each system's result is its own anyway).
+    pieces = [solve_batch(plan, values[k:k + _CHUNK], rounds, zeros, g[k:k + _CHUNK])
+              for k in range(0, values.shape[0], _CHUNK)]
+    return np.concatenate([p[0] for p in pieces]), np.concatenate([p[1] for p in pieces])
+
+
+#: Systems solved together at most (larger batches run in chunks of this many).
+_CHUNK = 256
 
 
 #: Relative rounding a converged pair keeps (2**-104), with a margin of 16.
 _PAIR = 2.0 ** -100
 #: Primes below 2**31 (products of two residues fit in int64) for the generic solves.
 _PRIMES = (2147483647, 2147483629)
-
-
-def _factor(A: np.ndarray):
-    """A solver for ``A x = b`` (numpy's LU each call: the systems are small, and scipy's
-    factor-once would cost its import on the first reduction)."""
-    return lambda b: np.linalg.solve(A, b)
 
 
 def _product_errors(a: np.ndarray, b: np.ndarray, products: np.ndarray,

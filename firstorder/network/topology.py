@@ -27,7 +27,7 @@ import numpy as np
 from ..errors import TopologyError, ZeroTimeError
 from ..netlist import GROUND, Netlist
 
-__all__ = ["Layout", "UnionFind", "and_list", "plan"]
+__all__ = ["Layout", "UnionFind", "and_list", "plan", "structural_switches"]
 
 #: Layouts kept, by structure and configuration (a long session must not grow without limit).
 _CACHE_SIZE = 65536
@@ -178,7 +178,7 @@ def plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], s
     # A switch with a finite, non-zero r_on and a finite r_off is a conductance either way:
     # its state picks a value, not a topology.  Configurations that differ only in such
     # switches share one plan, with the value keys swapped (many relays: one plan).
-    structural = _structural_switches(netlist)
+    structural = structural_switches(netlist)
     masked = tuple(state if fixed else None for state, fixed in zip(states, structural))
     base = _cache.get((netlist.structure, masked))
     if base is None:
@@ -191,7 +191,7 @@ def plan(netlist: Netlist, states: tuple[bool, ...], where: str | Callable[[], s
     return layout
 
 
-def _structural_switches(netlist: Netlist) -> tuple[bool, ...]:
+def structural_switches(netlist: Netlist) -> tuple[bool, ...]:
     """Per switch: does its state change the topology (an ideal r_on or a leak-free r_off)?"""
     return netlist._cached("structural_switches", lambda: tuple(
         p.r_on == 0.0 or not np.isfinite(p.r_off) for p in netlist.switches))

@@ -111,6 +111,39 @@ class Lot:
                 changes[quantity.part] = (value, off) if quantity.field == "r_on" else (on, value)
         return self.fixture.with_values(**changes)
 
+    def unit_values(self, drive: "Drive", draw: Draw) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray]]:
+        """Every drawn unit's values at once, for :meth:`Segments.of_lot
+        <firstorder.segments.Segments.of_lot>`: part values by ``"part"`` or ``"switch.r_on"``
+        / ``"switch.r_off"`` (units,), and the levels of sources with a gain or offset
+        (units, n), formed as :meth:`unit_fixture` and :meth:`unit_drive` form them."""
+        values: dict[str, np.ndarray] = {}
+        adjust: dict[str, list] = {}
+        for j, quantity in enumerate(self.quantities):
+            column = draw.values[:, j]
+            if quantity.field == "value":
+                values[quantity.part] = column
+            elif quantity.field in ("r_on", "r_off"):
+                values[f"{quantity.part}.{quantity.field}"] = column
+            else:
+                pair = adjust.setdefault(quantity.part, [0.0, 0.0])
+                pair[0 if quantity.field == "gain" else 1] = column[:, None]
+        for part in self.fixture.switches:
+            # with_values refuses such a unit; so does the batch, naming it.
+            on = values.get(f"{part.name}.r_on", part.r_on)
+            off = values.get(f"{part.name}.r_off", part.r_off)
+            bad = ~(np.asarray(off) > np.asarray(on))
+            if np.ndim(bad) and bad.any():
+                k = int(np.argmax(bad))
+                raise InputError(f"spread {part.name}.r_off: unit {draw.first + k} draws an off resistance not above "
+                                 f"its on resistance ({format_value(float(np.broadcast_to(off, bad.shape)[k]), 'Ω')} "
+                                 f"against {format_value(float(np.broadcast_to(on, bad.shape)[k]), 'Ω')}); narrow "
+                                 f"the bands")
+        levels = {name: drive.levels(name)[None, :] * (1.0 + gain) + offset for name, (gain, offset) in adjust.items()}
+        if not values and not levels:  # nothing varies but the temperature: every unit nominal
+            storage = self.fixture.storage
+            values[storage.name] = np.full(len(draw), storage.value)
+        return values, levels
+
     def unit_drive(self, drive: "Drive", draw: Draw, row: int) -> "Drive":
         """`drive` as one drawn unit's sources give it: each level ``level * (1 + gain) + offset``."""
         columns = {}

@@ -183,12 +183,12 @@ class Study:
         self._initial = initial
         self._lot = Lot(fixture, spread, seed)
         self._draw = self._lot.draw(0, count)
-        self._segments = [Segments.of_drive(self._lot.unit_fixture(self._draw, u),
-                                            self._lot.unit_drive(drive, self._draw, u)) for u in range(count)]
+        # Every unit's network at once, each unit bit for bit its own (Segments.of_lot).
+        self._segments = Segments.of_lot(fixture, drive, *self._lot.unit_values(drive, self._draw))
         # Everything below runs over (units, segments) at once.
-        self._rate = np.stack([np.asarray(s.rate) for s in self._segments])
+        self._rate = self._segments.rate
         self._holds = self._rate == 0.0
-        source_final = np.stack([np.asarray(s.final) for s in self._segments])
+        source_final = self._segments.final
         durations = np.broadcast_to(drive.durations, self._rate.shape)
         self._decay, self._growth = engine.decay_factors(durations.ravel(), self._rate.ravel())
         self._decay = self._decay.reshape(self._rate.shape)
@@ -467,12 +467,11 @@ class Study:
         and its unit (the probe is ``gain * x + offset`` within a segment)."""
         if probe not in self._probes:
             the_probe = self.nominal.segments.probe(probe)  # an InputError naming the probes
-            gains, offsets = [], []
-            for segments in self._segments:
-                rows = segments.probe_rows(probe)
-                gains.append(rows[:, 0])
-                offsets.append(np.einsum("ij,ij->i", rows[:, 1:], segments.levels))  # as Response does
-            self._probes[probe] = (np.stack(gains), np.stack(offsets), the_probe.unit)
+            rows = self._segments.probe_rows(probe)  # (units, n, 1 + m)
+            levels = self._segments.unit_levels
+            # Each unit's offset as Response forms it (one einsum per unit, the same sums).
+            offsets = np.stack([np.einsum("ij,ij->i", rows[u, :, 1:], levels[u]) for u in range(self.units)])
+            self._probes[probe] = (rows[:, :, 0], offsets, the_probe.unit)
         return self._probes[probe]
 
     def _component_scan(self, key: str) -> tuple[np.ndarray, np.ndarray]:

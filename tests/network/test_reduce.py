@@ -541,3 +541,49 @@ class TestUnrepresentableValues:
     def test_wide_but_representable_values_still_reduce(self):
         # tau = R C exactly as a hand calculation rounds it (handbook).
         assert fo.Fixture.rc(1e-100, 1e-100).tau == 1e-100 * 1e-100
+
+
+# ------------------------------------------------------------------------------------------
+class TestReduceBatch:
+    """A batch of value sets reduced at once equals each set reduced alone, bit for bit
+    (the one-set path is the batch of one; the reference here is a fresh fixture per set)."""
+
+    @staticmethod
+    def bridge() -> fo.Fixture:
+        fx = fo.Fixture()
+        fx.voltage_source("v", "s", "gnd")
+        fx.current_source("i", "b", "gnd")
+        fx.resistor("r1", "s", "a", "1k")
+        fx.resistor("r2", "a", "b", "1m")
+        fx.resistor("r3", "b", "gnd", "1T")
+        fx.resistor("r4", "s", "b", "47k")
+        fx.inductor("l", "a", "gnd", "10m")
+        return fx
+
+    def test_each_entry_equals_the_one_set_reduction(self):
+        fx = self.bridge()
+        rng = np.random.default_rng(5)
+        count = 50
+        values = {name: fx.part_map[name].value * 10.0 ** rng.uniform(-2, 2, count) for name in ("r1", "r2", "r3", "r4")}
+        storage = 1e-2 * 10.0 ** rng.uniform(-1, 1, count)
+        layout = network.plan(fx.netlist, ())
+        order = [name for name, _, _, _ in layout.conductances]
+        batch = network.reduce_batch(layout, fx.netlist, np.column_stack([values[n] for n in order]), storage)
+        for k in range(count):
+            unit = fx.with_values(l=float(storage[k]), **{n: float(v[k]) for n, v in values.items()})
+            one_layout, one = unit.configuration()
+            entry = batch.item(k)
+            assert entry.tau == one.tau
+            for field in ("gain", "drift", "solution", "low"):
+                assert np.array_equal(getattr(entry, field), getattr(one, field)), field
+            probe = fo.netlist.Probe("p", node="b", reference="a")
+            assert np.array_equal(network.probe_row(one_layout, unit.netlist, entry, probe),
+                                  network.probe_row(one_layout, unit.netlist, one, probe))
+
+    def test_an_unrepresentable_entry_is_marked_and_a_tiny_resistance_named(self):
+        fx = fo.Fixture.rc("1k", "1u")
+        layout = network.plan(fx.netlist, ())
+        batch = network.reduce_batch(layout, fx.netlist, np.array([[1e3], [1e3]]), np.array([1e-6, 0.0]))  # tau 0: not a number to run
+        assert batch.fine.tolist() == [True, False]
+        with pytest.raises(InputError, match=r"^r: 5e-324 Ω cannot be computed"):
+            network.reduce_batch(layout, fx.netlist, np.array([[1e3], [5e-324]]), np.array([1e-6, 1e-6]))
