@@ -235,6 +235,17 @@ def relaxation_scan(decay: np.ndarray, growth: np.ndarray | None, target: np.nda
 
     Every argument may carry a leading unit axis (`x0` then one start per unit).
     """
+    if decay.ndim == 1 and decay.size <= _LOOP_LIMIT:
+        # A few segments: the shifts formed as the loop goes, with the same operations as
+        # the arrays below (1 - a, then growth * (scale * target)), one float at a time.
+        x = float(x0)
+        out = [x]
+        a_list = decay.tolist()
+        g_list = [1.0 - a for a in a_list] if growth is None else growth.tolist()
+        for a, g, t in zip(a_list, g_list, np.asarray(target, dtype=np.float64).tolist()):
+            x = a * x + g * (scale * t)
+            out.append(x)
+        return np.array(out)
     # A lot (a leading unit axis) takes the numpy path, whose numbers the kernels repeat.
     kernels = _kernels.available(decay.size) if decay.ndim == 1 else None
     if kernels is None:

@@ -50,6 +50,8 @@ def read_initial(initial: Any, unit: str, field: str = "initial") -> float | str
     ...
     firstorder.errors.InputError: initial: 'warm' is not allowed; give a number (the starting state, in V), 'settled' or 'periodic'
     """
+    if type(initial) is float and math.isfinite(initial):  # the common case, without the reader's checks
+        return initial
     if isinstance(initial, str):
         word = initial.strip()
         if word in NAMED_STARTS:

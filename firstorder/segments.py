@@ -25,6 +25,7 @@ Examples
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
@@ -230,6 +231,21 @@ class Segments:
         netlist = fixture.netlist
         netlist.check()
         levels, states = match_columns(netlist, columns, count, field)
+        if not netlist.switch_names:
+            known = fixture.known_configuration(())
+            if known is not None and not math.isinf(known[1].tau):
+                # No switches, reduced before, and it settles (nothing can drift): what the
+                # path below gives, without its work per configuration (a short drive's
+                # fixed cost is mostly this).
+                one = known[1]
+                segments = cls(levels=levels, configurations=[()], configuration_of=repeated(0, count, np.intp),
+                               rate=repeated(1.0 / one.tau, count),
+                               gain_by_configuration=np.array([one.gain]).reshape(1, levels.shape[1]),
+                               source_names=netlist.source_names, state_unit=netlist.state_unit,
+                               storage_kind=netlist.storage.kind, storage_name=netlist.storage.name,
+                               first_use=np.zeros(1, dtype=np.intp), fixture=fixture, times=times, word=word)
+                segments._reduced = [(known[0], one, None, None)]
+                return segments
         configs, inverse, first_use = _distinct(states)
         # Labels need every segment's configuration; a provisional object answers them for
         # errors raised while reducing (its configurations are already known).

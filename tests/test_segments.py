@@ -253,3 +253,23 @@ class TestOfLot:
         fx, drive, values, _, _ = self.lot(2)
         with pytest.raises(InputError, match="of_lot"):
             Segments.of_lot(fx, drive, values).unit(0)
+
+
+class TestReducedBefore:
+    """A fixture without switches that has reduced its one configuration takes a short path;
+    its segments must be those of the general path, bit for bit."""
+
+    def test_the_short_path_equals_the_first_reduction(self):
+        import firstorder as fo
+        from firstorder.segments import Segments
+
+        drive = fo.Drive([0, "1m", "3m"], end="4m", vin=[1.0, -2.0, 0.5])
+        fresh = fo.Fixture().voltage_source("vin", "in", "gnd").resistor("r", "in", "a", "4.7k") \
+            .capacitor("c", "a", "gnd", "220n").resistor("rl", "a", "gnd", "47k")
+        first = Segments.of_drive(fresh, drive)   # reduces: the general path
+        again = Segments.of_drive(fresh, drive)   # reduced before: the short path
+        for name in ("rate", "gain_by_configuration", "final", "tau", "configuration_of"):
+            assert np.array_equal(getattr(first, name), getattr(again, name)), name
+        assert first.configurations == again.configurations
+        assert np.array_equal(first.first_use, again.first_use)
+        assert fresh.respond(drive).boundary.tolist() == fresh.respond(drive).boundary.tolist()
