@@ -31,6 +31,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from ._arrays import lazy, repeated
 from .configurations import lot_probe_rows, reduce_configurations
 from .drive import level_columns
 from .errors import InputError, TopologyError
@@ -46,26 +47,6 @@ if TYPE_CHECKING:
 __all__ = ["Segments", "match_columns", "rates"]
 
 
-class _lazy:
-    """A property computed on first use and kept in the instance (what
-    ``functools.cached_property`` does, without the lock it takes on every first use
-    before Python 3.12, which costs more than most of these take to compute)."""
-
-    def __init__(self, compute) -> None:
-        self._compute = compute
-        self.__doc__ = compute.__doc__
-        self._name = compute.__name__
-
-    def __set_name__(self, owner: type, name: str) -> None:
-        self._name = name
-
-    def __get__(self, instance: Any, owner: type | None = None) -> Any:
-        if instance is None:
-            return self
-        value = instance.__dict__[self._name] = self._compute(instance)
-        return value
-
-
 def rates(tau: np.ndarray) -> np.ndarray:
     """``1 / tau``, and 0 where tau is infinite (the state is held): IEEE division gives
     exactly 0 there (every tau is > 0).
@@ -76,21 +57,6 @@ def rates(tau: np.ndarray) -> np.ndarray:
     array([1000.,    0.])
     """
     return np.divide(1.0, tau)
-
-
-def repeated(value: Any, count: int, dtype: Any = np.float64) -> np.ndarray:
-    """A read-only array of `count` copies of `value` that stores one (stride 0), as
-    ``np.broadcast_to`` makes but at a third of its cost on short arrays.
-
-    Examples
-    --------
-    >>> a = repeated(2.5, 3)
-    >>> a.tolist(), a.strides, a.flags.writeable
-    ([2.5, 2.5, 2.5], (0,), False)
-    """
-    array = np.ndarray((count,), dtype=dtype, buffer=np.array([value], dtype=dtype), strides=(0,))
-    array.flags.writeable = False
-    return array
 
 
 def match_columns(netlist: Netlist, columns: Mapping[str, np.ndarray], count: int,
@@ -437,7 +403,7 @@ class Segments:
         """The first segment of every configuration."""
         return self._first_use
 
-    @_lazy
+    @lazy
     def holds(self) -> np.ndarray:
         """True for segments whose configuration holds the state (read-only)."""
         if _one_value(self.rate):  # one rate for all: a broadcast answer
@@ -446,13 +412,13 @@ class Segments:
         holds.setflags(write=False)
         return holds
 
-    @_lazy
+    @lazy
     def any_holds(self) -> bool:
         if _one_value(self.rate):
             return bool(self.rate[0] == 0.0)
         return bool(self.holds.any())
 
-    @_lazy
+    @lazy
     def tau(self) -> np.ndarray:
         """Time constant of every segment (s); ``inf`` where the state is held (read-only)."""
         if _one_value(self.rate):  # one rate for all: a broadcast answer
@@ -462,12 +428,12 @@ class Segments:
         tau.setflags(write=False)
         return tau
 
-    @_lazy
+    @lazy
     def source_finals(self) -> np.ndarray:
         """(n, m): each source's share of each segment's final value (0 where held)."""
         return self.gain_by_configuration[self.configuration_of] * self.levels
 
-    @_lazy
+    @lazy
     def one_gain(self) -> float | None:
         """With one source and one configuration, the gain from its level to the final
         value (the final values are that gain times the level column); else None."""
@@ -475,7 +441,7 @@ class Segments:
             return float(self.gain_by_configuration[0, 0])
         return None
 
-    @_lazy
+    @lazy
     def final(self) -> np.ndarray:
         """Every segment's final value from the sources alone (0 where the state is held)."""
         if self.units is not None:

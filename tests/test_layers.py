@@ -34,7 +34,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "firstorder"
 #: Modules from the bottom up (relative to the package); a package's name comes right
 #: after its last module and stands for its ``__init__``.
 LAYERS = [
-    "_version", "errors", "units", "_html", "_parallel", "_kernels", "io.atomic",
+    "_version", "errors", "units", "_html", "_parallel", "_kernels", "_arrays", "io.atomic",
     "netlist",
     "drive",
     "network.topology", "network.mna", "network.reduce", "network",
