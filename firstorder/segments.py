@@ -63,6 +63,9 @@ def match_columns(netlist: Netlist, columns: Mapping[str, np.ndarray], count: in
                   field: str = "drive") -> tuple[np.ndarray, np.ndarray]:
     """Source levels ``(n, m)`` and switch states ``(n, s)`` from level columns (as
     :func:`firstorder.drive.level_columns` reads them); `field` names them in errors."""
+    if not netlist.switch_names and len(columns) == 1 == len(netlist.source_names) and netlist.source_names[0] in columns:
+        # One source, no switch, its column and nothing else: the checks below would pass.
+        return columns[netlist.source_names[0]].reshape(count, 1), np.zeros((count, 0), dtype=bool)
     sources = list(netlist.source_names)
     switches = list(netlist.switch_names)
     known = set(sources) | set(switches)
