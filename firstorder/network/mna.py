@@ -253,7 +253,7 @@ def solve_batch(terms: "_Terms", values: np.ndarray, rounds: int = 40, zeros: np
     solved in: the one-system path is this with a batch of one.
     """
     n = values.shape[0]
-    size, width = terms.size, terms.B.shape[1]
+    size = terms.size
     # The float matrix only preconditions; its entries are the terms added in term order.
     A = np.zeros((size * size, n))
     np.add.at(A, terms.flat, values.T)

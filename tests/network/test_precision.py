@@ -8,7 +8,6 @@ time constant, each source's gain, every probe row, to 1e-12 of its own scale.
 import random
 from fractions import Fraction
 
-import numpy as np
 import pytest
 
 import firstorder as fo
@@ -129,7 +128,6 @@ def check_against_fractions(fixture):
             continue
         row = network.probe_row(layout, fixture.netlist, reduced, probe)
         exact = rows[probe.name]
-        scale = None  # every entry to its own size (it multiplies the state or a level)
         for k, (value, e) in enumerate(zip(row, exact)):
             assert_close(value, e, abs(e), f"probe {probe.name}[{k}]")
 

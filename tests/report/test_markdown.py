@@ -46,7 +46,7 @@ class TestDerivationLatex:
 
 
 def test_hostile_names_stay_text_outside_the_maths():
-    from builders import HOSTILE, assert_inert, hostile_analysis
+    from builders import assert_inert, hostile_analysis
 
     text = hostile_analysis().markdown(derivations=False)
     # Markdown passes inline HTML through to the page it becomes: the names must be entities.
