@@ -105,10 +105,12 @@ class Bench(widgets.VBox):
                            tuple(p.name for p in fixture.switches), *session.view, fixture.state_unit,
                            panels.value_label(fixture, session.probe), trace_name=trace_name)
         self.sources = self.plots.sources
-        self.plot_view = BokehModel(self.plots.layout, combine_events=True)
+        # Before the wrap: a bokeh document routes a browser event only to the models that
+        # had subscribed when they joined it, and BokehModel puts the figures into one.
         self.plots.response_figure.on_event(Tap, self._on_tap)
         self.plots.drive_figure.on_event(Tap, self._on_tap)
         self.plots.response_figure.on_event(RangesUpdate, self._on_ranges)
+        self.plot_view = BokehModel(self.plots.layout, combine_events=True)
         self.sources["handles"].on_change("data", self._on_handles)
 
         parts = panels.parts_panel(part_fields(fixture), self._on_field)

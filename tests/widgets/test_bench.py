@@ -336,3 +336,37 @@ class TestRefusedEntries:
         bench.undo()  # takes back the refused entry: the field shows its last good text
         assert bench.fields["r"].value == "10 kΩ" and bench._field_errors["r"].value == ""
         assert bench.fields["c"].value == "220n"
+
+
+class TestBrowserEvents:
+    """What the browser sends: jupyter_bokeh hands a plot event to the document
+    (``callbacks.trigger_event``), which calls only the models subscribed when they
+    joined it; a handler attached after the figure was wrapped never ran."""
+
+    @staticmethod
+    def _from_browser(bench, event) -> None:
+        # The path of a "MessageSent"/"bokeh_event" message in BokehModel._sync_model.
+        bench.plot_view._document.callbacks.trigger_event(event)
+
+    def test_a_click_on_a_segment_selects_it(self):
+        from bokeh.events import Tap
+
+        bench = switched_bench()
+        bench.tabs.selected_index = bench.tabs.children.index(bench.derivation)
+        before = bench.derivation.value
+        self._from_browser(bench, Tap(bench.plots.response_figure, x=2.5e-3, y=1.0))
+        assert bench.session.segment == 2
+        assert bench.derivation.value != before and "Segment 2:" in bench.derivation.value
+
+    def test_a_box_zoom_resamples_a_long_drive(self):
+        from bokeh.events import RangesUpdate
+
+        rng = np.random.default_rng(3)
+        times = np.concatenate([[0.0], np.cumsum(rng.uniform(20e-6, 80e-6, 9_999))])
+        drive = fo.Drive(times, end=float(times[-1]) + 1e-4, vin=rng.choice([0.0, 5.0], 10_000))
+        bench = Bench(fo.Fixture.rc(r="1k", c="10n"), drive)
+        assert bench.plot_mode == "envelope"
+        self._from_browser(bench, RangesUpdate(bench.plots.response_figure, x0=0.2, x1=0.201, y0=0.0, y1=5.0))
+        assert bench.session.view == pytest.approx((0.2, 0.201))
+        assert bench.plot_mode == "line"
+        assert "zoom in" not in bench.info.value
