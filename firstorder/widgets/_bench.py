@@ -319,6 +319,8 @@ class Bench(widgets.VBox):
         if s.trace is not None:
             self._redraw("trace", (s.residual, s.view), lambda: self.plots.update_trace(
                 s.trace.times, s.trace.values, s.residual.times, s.residual.values, view))
+        self._redraw("value axis", (s.response, s.probe, s.view, s.curves, s.settling, s.sample_delay, s.residual),
+                     self.plots.fit_values)
         self._redraw("info", (s.response, self.plots.mode, s.residual),
                      lambda: setattr(self.info, "value", panels.info_html(s, self.plots.mode)))
         self._redraw("cautions", (s.response,), lambda: setattr(

@@ -166,8 +166,11 @@ class Plots:
                  source=self.sources["selection"], fill_color=SELECTION_COLOUR, fill_alpha=0.22, line_alpha=0)
 
     def _build_response_figure(self, curve_names, contributions, unit, label, trace_name) -> None:
-        fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
-                     active_scroll="xwheel_zoom", title="Response")
+        # The value axis is Python's: fitted to what is drawn in view (fit_values), so a zoom
+        # or a new probe never leaves it on another quantity's span; box zoom picks a time span.
+        self.y_range = Range1d(0.0, 1.0)
+        fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, y_range=self.y_range,
+                     tools="xpan,xwheel_zoom,xbox_zoom,reset,tap", active_scroll="xwheel_zoom", title="Response")
         self._style(fig, unit)
         fig.xaxis.axis_label = "time"
         fig.yaxis.axis_label = label
@@ -269,6 +272,24 @@ class Plots:
             self.band_renderers[name].visible = plan.mode == "envelope"
         self.mode, self.shown = plan.mode, shown
         return plan.mode
+
+    def fit_values(self) -> tuple[float, float]:
+        """Fit the value axis to the curves, bands, samples and trace drawn (5 % margin)."""
+        columns = [self.sources[name].data.get(key, ()) for name in (*self.curve_names, "trace")
+                   if name in self.sources for key in ("low", "high")]
+        columns += [self.sources["tolerance"].data["bottom"], self.sources["tolerance"].data["top"],
+                    self.sources["samples"].data["y"]]
+        values = np.concatenate([np.asarray(c, dtype=float).reshape(-1) for c in columns] + [np.zeros(0)])
+        values = values[np.isfinite(values)]
+        if values.size == 0:
+            low, high = 0.0, 1.0
+        else:
+            low, high = float(values.min()), float(values.max())
+            margin = 0.05 * (high - low) or 0.05 * abs(high) or 1e-12
+            low, high = low - margin, high + margin
+        if (self.y_range.start, self.y_range.end) != (low, high):
+            self.y_range.update(start=low, end=high, reset_start=low, reset_end=high)
+        return low, high
 
     def update_drive(self, drive, view: View) -> None:
         """Fill the level steps (or their envelope) and the switch lanes."""

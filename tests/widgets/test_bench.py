@@ -370,3 +370,19 @@ class TestBrowserEvents:
         assert bench.session.view == pytest.approx((0.2, 0.201))
         assert bench.plot_mode == "line"
         assert "zoom in" not in bench.info.value
+
+    def test_the_value_axis_follows_the_quantity_shown_after_a_zoom(self):
+        from bokeh.events import RangesUpdate
+
+        bench = switched_bench()
+        y_range = bench.plots.response_figure.y_range
+        self._from_browser(bench, RangesUpdate(bench.plots.response_figure, x0=0.9e-3, x1=1.5e-3, y0=0.0, y1=1.0))
+        bench.probe_selector.value = "i_rs"
+        # The current through rs peaks at 2.5 V / 1000.2 Ω just after 1 ms (Ohm's law): the
+        # axis spans the probe's curve, not the volts shown before.
+        peak = 2.5 / 1000.2
+        assert y_range.start <= 0.0 and peak <= y_range.end < 1.5 * peak
+        bench.set_view(bench.drive.start, bench.drive.end)  # reset
+        assert y_range.start <= 0.0 and peak <= y_range.end < 1.5 * peak
+        bench.probe_selector.value = ""
+        assert 2.5 <= y_range.end < 4.0
