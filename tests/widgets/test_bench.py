@@ -259,6 +259,26 @@ class TestUndo:
         assert bench.fields["r"].value == "10 kΩ"
         assert bench.response.tau[0] == pytest.approx(1e-3)
 
+    def test_undo_twice_goes_two_steps_back_though_the_table_echoes(self):
+        bench = rc_bench()
+        for level in ("3", "4", "2"):
+            bench.edit_cell(1, "vin", level)
+        assert len(bench.session.history) == 3
+        for expected, depth in (("4", 2), ("3", 1)):  # the text as typed
+            bench.undo_button.click()
+            # The browser sends the table it was just given back, as an edit of its own.
+            bench.table_source.data = dict(bench.table_source.data)
+            assert len(bench.session.history) == depth
+            assert bench.table_source.data["vin"][1] == expected
+
+    def test_an_edit_that_changes_nothing_is_not_recorded(self):
+        bench = rc_bench()
+        bench.fields["r"].value = "20k"
+        bench.session.edit_part("r", "20k")
+        bench.session.edit_setup("initial", bench.session.texts["initial"])
+        bench.session.edit_table(dict(bench.table_source.data))
+        assert len(bench.session.history) == 1
+
     def test_undo_row_delete(self):
         bench = rc_bench()
         bench.delete_row(1)
