@@ -159,7 +159,7 @@ class Bench(widgets.VBox):
     settling = property(lambda self: self.session.settling, doc="The settling table (None without a tolerance).")
     summary = property(lambda self: self.session.summary, doc="The settling summary (None without a tolerance).")
     probe = property(lambda self: self.session.probe, doc="The probe shown (None: the storage element's state).")
-    tolerance = property(lambda self: self.session.tolerance, doc="The tolerance, in the unit of what is shown.")
+    tolerance = property(lambda self: self.session.tolerance, doc="The tolerance as given (it judges only a quantity in its unit).")
     sample_delay = property(lambda self: self.session.sample_delay, doc="The sample delay (s), or None.")
     error = property(lambda self: self.session.error, doc="Every current error, one per line (\"\" when all is well).")
     plot_mode = property(lambda self: self.plots.mode,

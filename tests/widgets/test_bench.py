@@ -128,6 +128,49 @@ class TestSetupFields:
         assert bench.tolerance == fo.Tolerance.lsb(16, 5.0)
 
 
+class TestToleranceBelongsToAQuantity:
+    def test_a_voltage_limit_is_refused_beside_the_field_on_a_current_probe(self):
+        bench = switched_bench()
+        bench.setup_fields["tolerance"].value = "0.5 LSB of 16 bits on 5 V"
+        assert bench.settling is not None
+        bench.probe_selector.value = "i_rs"
+        message = bench._field_errors["tolerance"].value
+        assert "5 V" in message and "i_rs" in message and "A" in message
+        assert bench.settling is None  # judged against no limit rather than a silently converted one
+        assert bench.sources["tolerance"].data["top"].size == 0
+        assert bench.setup_fields["tolerance"].value == "0.5 LSB of 16 bits on 5 V"
+        bench.probe_selector.value = ""  # back on the capacitor voltage: the limit holds again
+        assert bench.error == "" and bench._field_errors["tolerance"].value == ""
+        assert bench.tolerance == fo.Tolerance.lsb(16, 5.0) and bench.settling is not None
+
+    def test_a_current_limit_is_refused_on_the_capacitor_voltage(self):
+        bench = switched_bench()
+        bench.probe_selector.value = "i_rs"
+        bench.setup_fields["tolerance"].value = "1 mA"
+        assert bench.tolerance == fo.Tolerance.absolute("1m", unit="A") and bench.settling is not None
+        bench.probe_selector.value = ""
+        assert "1 mA" in bench._field_errors["tolerance"].value
+        assert bench.settling is None and bench.setup_fields["tolerance"].value == "1 mA"
+        with pytest.raises(ValueError, match="tolerance"):
+            bench.analysis()  # the saved analysis judges the capacitor voltage: no silent 1 mV
+
+    def test_a_share_of_each_step_follows_the_quantity_shown(self):
+        bench = switched_bench()
+        bench.setup_fields["tolerance"].value = "0.1 %"
+        bench.probe_selector.value = "i_rs"
+        assert bench.error == "" and bench.summary.unit == "A" and bench.settling is not None
+
+    def test_undo_keeps_the_rule(self):
+        bench = switched_bench()
+        bench.probe_selector.value = "i_rs"
+        bench.setup_fields["tolerance"].value = "1 mA"
+        bench.probe_selector.value = ""
+        bench.fields["rs"].value = "2k"
+        assert bench.undo()  # the part value goes back; the limit is still a current
+        assert bench.fixture.part_map["rs"].value == 1e3
+        assert "1 mA" in bench._field_errors["tolerance"].value and bench.settling is None
+
+
 class TestDriveTable:
     def test_level_edit(self):
         bench = rc_bench()

@@ -61,7 +61,7 @@ class TestMarks:
 
     def test_settle_marks_lie_on_the_curve_of_a_probe(self):
         # Read from the settling table (final and limit), not evaluated: they must still lie on the curve.
-        bench = switched_bench(tolerance=fo.Tolerance.absolute("1u"), sample_delay="0.9m")
+        bench = switched_bench(tolerance=fo.Tolerance.absolute("1u", unit="A"), sample_delay="0.9m")
         bench.probe_selector.value = "i_rs"
         marks = bench.sources["settle"].data
         assert len(marks["t"]) >= 2
