@@ -22,6 +22,7 @@ from bokeh.plotting import figure
 from ..plotting.format import HOVER_CODE, TICK_CODE
 from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, SAMPLE_FAIL, SAMPLE_NEUTRAL, SAMPLE_PASS, SELECTION_COLOUR,
                                 TOLERANCE_COLOUR, component_label, source_colour, switch_colour)
+from ..settling.table import sample_delays
 from ..plotting.sampling import envelope, plan_samples, point_envelope, segments_in_view, step_envelope
 
 __all__ = ["MAX_HANDLES", "PIXELS", "Plots", "View"]
@@ -333,14 +334,17 @@ class Plots:
 
         With a settling table every mark is read from it.  Without one (no
         tolerance) the sample instants are evaluated and drawn neutral.  A segment
-        shorter than the sample delay gets no sample mark (the table judges it at its end).
+        shorter than the sample delay is marked at its end, where the table judges it.
         """
         empty = np.zeros(0)
         first, last = segments_in_view(response.starts, response.drive.end, view.start, view.end)
         crowded = (last - first + 1) * 2 > PIXELS
         rows = slice(first, last + 1)
         starts, ends = response.starts[rows], response.ends[rows]
-        sampled = None if sample_delay is None or crowded else ~(sample_delay > response.drive.durations[rows])
+        # One rule (settling.table.sample_delays): a segment shorter than the delay is read at its end.
+        delays = None if sample_delay is None or crowded else sample_delays(
+            sample_delay, response.drive.durations[rows], ends=response.ends[rows], past_end="end")
+        sampled = None if delays is None else slice(None)
         band = {"left": empty, "right": empty, "bottom": empty, "top": empty}
         samples = {"t": empty, "y": empty, "colour": [], "error": empty}
         settle = {"t": empty, "y": empty}
@@ -361,8 +365,10 @@ class Plots:
             side = np.sign(table["start_value"].to_numpy()[rows][marked] - final[marked])
             settle = {"t": starts[marked] + settle_time[marked], "y": final[marked] + side * limit[marked]}
         elif sampled is not None:
-            instants = starts[sampled] + sample_delay
-            at = response.evaluate(instants, ("total", "forced"), probe)
+            instants = starts + delays
+            # A reading at a segment's end belongs to that segment (its forced value, not the next one's).
+            inside = np.where(delays >= response.drive.durations[rows], np.nextafter(instants, -np.inf), instants)
+            at = response.evaluate(inside, ("total", "forced"), probe)
             samples = {"t": instants, "y": at["total"], "colour": [SAMPLE_NEUTRAL] * instants.size,
                        "error": at["total"] - at["forced"]}
         _assign(self.sources["tolerance"], band)
