@@ -105,10 +105,12 @@ class Bench(widgets.VBox):
                            tuple(p.name for p in fixture.switches), *session.view, fixture.state_unit,
                            panels.value_label(fixture, session.probe), trace_name=trace_name)
         self.sources = self.plots.sources
-        self.plot_view = BokehModel(self.plots.layout, combine_events=True)
+        # Before the wrap: a bokeh document routes a browser event only to the models that
+        # had subscribed when they joined it, and BokehModel puts the figures into one.
         self.plots.response_figure.on_event(Tap, self._on_tap)
         self.plots.drive_figure.on_event(Tap, self._on_tap)
         self.plots.response_figure.on_event(RangesUpdate, self._on_ranges)
+        self.plot_view = BokehModel(self.plots.layout, combine_events=True)
         self.sources["handles"].on_change("data", self._on_handles)
 
         parts = panels.parts_panel(part_fields(fixture), self._on_field)
@@ -157,7 +159,7 @@ class Bench(widgets.VBox):
     settling = property(lambda self: self.session.settling, doc="The settling table (None without a tolerance).")
     summary = property(lambda self: self.session.summary, doc="The settling summary (None without a tolerance).")
     probe = property(lambda self: self.session.probe, doc="The probe shown (None: the storage element's state).")
-    tolerance = property(lambda self: self.session.tolerance, doc="The tolerance, in the unit of what is shown.")
+    tolerance = property(lambda self: self.session.tolerance, doc="The tolerance as given (it judges only a quantity in its unit).")
     sample_delay = property(lambda self: self.session.sample_delay, doc="The sample delay (s), or None.")
     error = property(lambda self: self.session.error, doc="Every current error, one per line (\"\" when all is well).")
     plot_mode = property(lambda self: self.plots.mode,
@@ -317,6 +319,8 @@ class Bench(widgets.VBox):
         if s.trace is not None:
             self._redraw("trace", (s.residual, s.view), lambda: self.plots.update_trace(
                 s.trace.times, s.trace.values, s.residual.times, s.residual.values, view))
+        self._redraw("value axis", (s.response, s.probe, s.view, s.curves, s.settling, s.sample_delay, s.residual),
+                     self.plots.fit_values)
         self._redraw("info", (s.response, self.plots.mode, s.residual),
                      lambda: setattr(self.info, "value", panels.info_html(s, self.plots.mode)))
         self._redraw("cautions", (s.response,), lambda: setattr(

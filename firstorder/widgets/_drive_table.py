@@ -136,6 +136,11 @@ class DriveText:
         return replace(self, time=new_time, cells=new_cells, numbers=new_numbers,
                        end=self.end if end is None else str(end))
 
+    def same_text(self, other: "DriveText") -> bool:
+        """True when `other` holds the same text in every cell and the same end."""
+        return (self.end == other.end and self.names == other.names and np.array_equal(self.time, other.time)
+                and all(np.array_equal(self.cells[n], other.cells[n]) for n in self.names))
+
     def to_drive(self) -> Drive:
         """The drive these numbers make (validated by :class:`Drive`)."""
         end = parse_value(self.end, field="drive end", unit="s")

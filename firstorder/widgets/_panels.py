@@ -58,7 +58,8 @@ class FieldsPanel:
         for key, field in self.fields.items():
             if key not in errors:
                 field.value = texts[key]
-            self.errors[key].value = error_html(errors.get(key))
+            # Beside the field: its refused entry, or (the tolerance) a unit that is not the one shown.
+            self.errors[key].value = error_html(errors.get(key) or errors.get(f"{key} unit"))
 
 
 def parts_panel(fields: list[PartField], on_edit: Callable[[str, str], None]) -> FieldsPanel:

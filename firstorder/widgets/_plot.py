@@ -22,6 +22,7 @@ from bokeh.plotting import figure
 from ..plotting.format import HOVER_CODE, TICK_CODE
 from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, SAMPLE_FAIL, SAMPLE_NEUTRAL, SAMPLE_PASS, SELECTION_COLOUR,
                                 TOLERANCE_COLOUR, component_label, source_colour, switch_colour)
+from ..settling.table import sample_delays
 from ..plotting.sampling import envelope, plan_samples, point_envelope, segments_in_view, step_envelope
 
 __all__ = ["MAX_HANDLES", "PIXELS", "Plots", "View"]
@@ -166,8 +167,11 @@ class Plots:
                  source=self.sources["selection"], fill_color=SELECTION_COLOUR, fill_alpha=0.22, line_alpha=0)
 
     def _build_response_figure(self, curve_names, contributions, unit, label, trace_name) -> None:
-        fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
-                     active_scroll="xwheel_zoom", title="Response")
+        # The value axis is Python's: fitted to what is drawn in view (fit_values), so a zoom
+        # or a new probe never leaves it on another quantity's span; box zoom picks a time span.
+        self.y_range = Range1d(0.0, 1.0)
+        fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, y_range=self.y_range,
+                     tools="xpan,xwheel_zoom,xbox_zoom,reset,tap", active_scroll="xwheel_zoom", title="Response")
         self._style(fig, unit)
         fig.xaxis.axis_label = "time"
         fig.yaxis.axis_label = label
@@ -270,6 +274,24 @@ class Plots:
         self.mode, self.shown = plan.mode, shown
         return plan.mode
 
+    def fit_values(self) -> tuple[float, float]:
+        """Fit the value axis to the curves, bands, samples and trace drawn (5 % margin)."""
+        columns = [self.sources[name].data.get(key, ()) for name in (*self.curve_names, "trace")
+                   if name in self.sources for key in ("low", "high")]
+        columns += [self.sources["tolerance"].data["bottom"], self.sources["tolerance"].data["top"],
+                    self.sources["samples"].data["y"]]
+        values = np.concatenate([np.asarray(c, dtype=float).reshape(-1) for c in columns] + [np.zeros(0)])
+        values = values[np.isfinite(values)]
+        if values.size == 0:
+            low, high = 0.0, 1.0
+        else:
+            low, high = float(values.min()), float(values.max())
+            margin = 0.05 * (high - low) or 0.05 * abs(high) or 1e-12
+            low, high = low - margin, high + margin
+        if (self.y_range.start, self.y_range.end) != (low, high):
+            self.y_range.update(start=low, end=high, reset_start=low, reset_end=high)
+        return low, high
+
     def update_drive(self, drive, view: View) -> None:
         """Fill the level steps (or their envelope) and the switch lanes."""
         plan = plan_samples(drive.times, drive.end, np.full(len(drive), np.inf), view.start, view.end, PIXELS)
@@ -312,14 +334,17 @@ class Plots:
 
         With a settling table every mark is read from it.  Without one (no
         tolerance) the sample instants are evaluated and drawn neutral.  A segment
-        shorter than the sample delay gets no sample mark (the table judges it at its end).
+        shorter than the sample delay is marked at its end, where the table judges it.
         """
         empty = np.zeros(0)
         first, last = segments_in_view(response.starts, response.drive.end, view.start, view.end)
         crowded = (last - first + 1) * 2 > PIXELS
         rows = slice(first, last + 1)
         starts, ends = response.starts[rows], response.ends[rows]
-        sampled = None if sample_delay is None or crowded else ~(sample_delay > response.drive.durations[rows])
+        # One rule (settling.table.sample_delays): a segment shorter than the delay is read at its end.
+        delays = None if sample_delay is None or crowded else sample_delays(
+            sample_delay, response.drive.durations[rows], ends=response.ends[rows], past_end="end")
+        sampled = None if delays is None else slice(None)
         band = {"left": empty, "right": empty, "bottom": empty, "top": empty}
         samples = {"t": empty, "y": empty, "colour": [], "error": empty}
         settle = {"t": empty, "y": empty}
@@ -340,8 +365,10 @@ class Plots:
             side = np.sign(table["start_value"].to_numpy()[rows][marked] - final[marked])
             settle = {"t": starts[marked] + settle_time[marked], "y": final[marked] + side * limit[marked]}
         elif sampled is not None:
-            instants = starts[sampled] + sample_delay
-            at = response.evaluate(instants, ("total", "forced"), probe)
+            instants = starts + delays
+            # A reading at a segment's end belongs to that segment (its forced value, not the next one's).
+            inside = np.where(delays >= response.drive.durations[rows], np.nextafter(instants, -np.inf), instants)
+            at = response.evaluate(inside, ("total", "forced"), probe)
             samples = {"t": instants, "y": at["total"], "colour": [SAMPLE_NEUTRAL] * instants.size,
                        "error": at["total"] - at["forced"]}
         _assign(self.sources["tolerance"], band)

@@ -32,7 +32,8 @@ from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
 from ..units import format_value, parse_value
 from ._drive_table import DriveText
 
-__all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS", "UNDO_DEPTH", "part_fields"]
+__all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS", "TOLERANCE_UNIT", "UNDO_DEPTH",
+           "part_fields"]
 
 #: How many edits `undo` can take back.
 UNDO_DEPTH = 50
@@ -42,6 +43,9 @@ UNDO_DEPTH = 50
 MAX_GENERATED_CHANGES = 1_000_000
 #: The setup fields, by key.
 SETUP_KEYS = ("initial", "tolerance", "sample_delay")
+#: The error key of a tolerance whose unit is not that of the quantity shown (shown beside
+#: the tolerance field; not a refused entry, so undo does not stop at it).
+TOLERANCE_UNIT = "tolerance unit"
 #: Curves shown when a session opens; the rest are one click away.
 DEFAULT_CURVES = ("total", "forced")
 
@@ -180,7 +184,8 @@ class BenchSession(traitlets.HasTraits):
     initial = traitlets.Union([traitlets.Float(), traitlets.Unicode()], read_only=True,
                               help="Starting state: V or A, 'settled' or 'periodic'")
     tolerance = traitlets.Instance(Tolerance, allow_none=True, read_only=True,
-                                   help="The tolerance, in the unit of the quantity watched (None: none)")
+                                   help="The tolerance as given, in its own unit (None: none); it judges the "
+                                        "quantity watched only when that is in the same unit")
     sample_delay = traitlets.Float(None, allow_none=True, read_only=True,
                                    help="Time after each change at which the reading is taken (s; None: none)")
     response = traitlets.Instance(Response, read_only=True, help="The response of the last good inputs")
@@ -240,9 +245,33 @@ class BenchSession(traitlets.HasTraits):
     @property
     def value_unit(self) -> str:
         """The unit of the quantity watched: the state's, or the probe's."""
-        if self.probe:
-            return next(p.unit for p in self.fixture.probes if p.name == self.probe)
+        return self.unit_of(self.probe)
+
+    def quantity(self, probe: str | None = None) -> str:
+        """The quantity `probe` shows (the storage element's state for None), as Show names it."""
+        if probe:
+            unit = self.unit_of(probe)
+            return f"probe {probe} (a {'current' if unit == 'A' else 'voltage'}, in {unit})"
+        storage = self.fixture.storage
+        return (f"the voltage across {storage.name} (in V)" if storage.kind == "capacitor"
+                else f"the current through {storage.name} (in A)")
+
+    def unit_of(self, probe: str | None) -> str:
+        """The unit of what `probe` shows (the state's for None)."""
+        if probe:
+            return next(p.unit for p in self.fixture.probes if p.name == probe)
         return self.fixture.state_unit
+
+    def judged(self, tolerance: Tolerance | None, probe: str | None) -> Tolerance:
+        """`tolerance` as it judges what `probe` shows: a share of each step judges any
+        quantity; a limit in V or A only a quantity in that unit (refused naming both)."""
+        unit = self.unit_of(probe)
+        if tolerance is None or tolerance.unit == unit or tolerance.kind == "relative":
+            return tolerance and tolerance.in_unit(unit)
+        kind = "current" if tolerance.unit == "A" else "voltage"
+        raise InputError(
+            f"tolerance: {tolerance_text(tolerance)} is a {kind} limit, but Show is on {self.quantity(probe)}; "
+            f"type a tolerance in {unit}, or show a {kind}")
 
     @property
     def samples_at_end(self) -> bool:
@@ -369,7 +398,7 @@ class BenchSession(traitlets.HasTraits):
         A refused entry (one showing an error) is the last edit: undo first
         puts back the last good text; the edit before it needs another undo.
         """
-        if self.errors:
+        if set(self.errors) - {TOLERANCE_UNIT, "settling"}:
             self._restore(self._snapshot())
             return True
         if not self.history:
@@ -386,7 +415,7 @@ class BenchSession(traitlets.HasTraits):
         """
         from ..analysis import Analysis
 
-        tolerance = self.tolerance and self.tolerance.in_unit(self.fixture.state_unit)
+        tolerance = self.judged(self.tolerance, None)  # an analysis judges the state
         delay: Any = self.sample_delay
         if self.samples_at_end:
             delay = sample_delays(delay, self.drive.durations, ends=self.drive.ends, past_end="end").tolist()
@@ -399,7 +428,11 @@ class BenchSession(traitlets.HasTraits):
         """Build the new inputs with `make`, compute their results, and replace the state;
         on a ValueError from any layer record it under `key` and change nothing else."""
         try:
+            if texts is not None and all(self.texts.get(k) == v for k, v in texts.items()):
+                return self._unchanged(key)
             inputs = make()
+            if set(inputs) == {"table"} and inputs["table"].same_text(self.table):
+                return self._unchanged(key)
             if "table" in inputs:
                 inputs["drive"] = inputs["table"].to_drive()
             fixture = inputs.get("fixture", self.fixture)
@@ -420,11 +453,22 @@ class BenchSession(traitlets.HasTraits):
         self._replace(changes)
         return True
 
+    def _unchanged(self, key: str) -> bool:
+        # The last good text again (or the table the browser was just sent, sent back):
+        # no new state and nothing for undo, but a refused entry there is now fixed.
+        if key in self.errors:
+            self._set_error(key, None)
+        return True
+
     def _results(self, response: Response, tolerance: Tolerance | None, sample_delay: float | None,
                  probe: str | None, residual: bool, errors: dict[str, str]) -> dict[str, Any]:
         """The settling table and its summary (and, with `residual`, the trace's residual) for
         these inputs, and `errors` with the settling's own error in place of the last one."""
-        table = summary = problem = None
+        table = summary = problem = mismatch = None
+        try:
+            tolerance = self.judged(tolerance, probe)
+        except InputError as error:
+            tolerance, mismatch = None, str(error)
         if tolerance is not None:
             try:
                 delays = None if sample_delay is None else sample_delays(
@@ -433,9 +477,11 @@ class BenchSession(traitlets.HasTraits):
                 summary = table_summary(table)
             except ValueError as error:
                 problem = str(error)
-        errors = {k: v for k, v in errors.items() if k != "settling"}
+        errors = {k: v for k, v in errors.items() if k not in ("settling", TOLERANCE_UNIT)}
         if problem:
             errors["settling"] = problem
+        if mismatch:
+            errors[TOLERANCE_UNIT] = mismatch
         results = {"settling": table, "summary": summary, "errors": errors}
         if residual:
             results["residual"] = self._residual(response, probe)
@@ -476,8 +522,6 @@ class BenchSession(traitlets.HasTraits):
 
     def _restore(self, snapshot: _Snapshot, history: tuple | None = None) -> None:
         tolerance = snapshot.tolerance
-        if tolerance is not None and tolerance.unit != self.value_unit:
-            tolerance = tolerance.in_unit(self.value_unit)
         drive = snapshot.table.to_drive()
         response = snapshot.fixture.respond(drive, snapshot.initial)
         changes = dict(fixture=snapshot.fixture, table=snapshot.table, drive=drive, initial=snapshot.initial,
@@ -523,11 +567,6 @@ class BenchSession(traitlets.HasTraits):
 
     @traitlets.observe("probe")
     def _observe_probe(self, change) -> None:
-        # The same limit, read in the unit of what is now watched (V or A); then its table.
-        tolerance = self.tolerance
-        if tolerance is not None and tolerance.unit != self.value_unit:
-            tolerance = tolerance.in_unit(self.value_unit)
-        changes = {"tolerance": tolerance}
-        changes.update(self._results(self.response, tolerance, self.sample_delay, change["new"], residual=True,
-                                     errors=self.errors))
-        self._replace(changes)
+        # The same limit, judging what is now watched if it is in the same unit (_results).
+        self._replace(self._results(self.response, self.tolerance, self.sample_delay, change["new"], residual=True,
+                                    errors=self.errors))

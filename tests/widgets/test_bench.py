@@ -128,6 +128,49 @@ class TestSetupFields:
         assert bench.tolerance == fo.Tolerance.lsb(16, 5.0)
 
 
+class TestToleranceBelongsToAQuantity:
+    def test_a_voltage_limit_is_refused_beside_the_field_on_a_current_probe(self):
+        bench = switched_bench()
+        bench.setup_fields["tolerance"].value = "0.5 LSB of 16 bits on 5 V"
+        assert bench.settling is not None
+        bench.probe_selector.value = "i_rs"
+        message = bench._field_errors["tolerance"].value
+        assert "5 V" in message and "i_rs" in message and "A" in message
+        assert bench.settling is None  # judged against no limit rather than a silently converted one
+        assert bench.sources["tolerance"].data["top"].size == 0
+        assert bench.setup_fields["tolerance"].value == "0.5 LSB of 16 bits on 5 V"
+        bench.probe_selector.value = ""  # back on the capacitor voltage: the limit holds again
+        assert bench.error == "" and bench._field_errors["tolerance"].value == ""
+        assert bench.tolerance == fo.Tolerance.lsb(16, 5.0) and bench.settling is not None
+
+    def test_a_current_limit_is_refused_on_the_capacitor_voltage(self):
+        bench = switched_bench()
+        bench.probe_selector.value = "i_rs"
+        bench.setup_fields["tolerance"].value = "1 mA"
+        assert bench.tolerance == fo.Tolerance.absolute("1m", unit="A") and bench.settling is not None
+        bench.probe_selector.value = ""
+        assert "1 mA" in bench._field_errors["tolerance"].value
+        assert bench.settling is None and bench.setup_fields["tolerance"].value == "1 mA"
+        with pytest.raises(ValueError, match="tolerance"):
+            bench.analysis()  # the saved analysis judges the capacitor voltage: no silent 1 mV
+
+    def test_a_share_of_each_step_follows_the_quantity_shown(self):
+        bench = switched_bench()
+        bench.setup_fields["tolerance"].value = "0.1 %"
+        bench.probe_selector.value = "i_rs"
+        assert bench.error == "" and bench.summary.unit == "A" and bench.settling is not None
+
+    def test_undo_keeps_the_rule(self):
+        bench = switched_bench()
+        bench.probe_selector.value = "i_rs"
+        bench.setup_fields["tolerance"].value = "1 mA"
+        bench.probe_selector.value = ""
+        bench.fields["rs"].value = "2k"
+        assert bench.undo()  # the part value goes back; the limit is still a current
+        assert bench.fixture.part_map["rs"].value == 1e3
+        assert "1 mA" in bench._field_errors["tolerance"].value and bench.settling is None
+
+
 class TestDriveTable:
     def test_level_edit(self):
         bench = rc_bench()
@@ -259,6 +302,26 @@ class TestUndo:
         assert bench.fields["r"].value == "10 kΩ"
         assert bench.response.tau[0] == pytest.approx(1e-3)
 
+    def test_undo_twice_goes_two_steps_back_though_the_table_echoes(self):
+        bench = rc_bench()
+        for level in ("3", "4", "2"):
+            bench.edit_cell(1, "vin", level)
+        assert len(bench.session.history) == 3
+        for expected, depth in (("4", 2), ("3", 1)):  # the text as typed
+            bench.undo_button.click()
+            # The browser sends the table it was just given back, as an edit of its own.
+            bench.table_source.data = dict(bench.table_source.data)
+            assert len(bench.session.history) == depth
+            assert bench.table_source.data["vin"][1] == expected
+
+    def test_an_edit_that_changes_nothing_is_not_recorded(self):
+        bench = rc_bench()
+        bench.fields["r"].value = "20k"
+        bench.session.edit_part("r", "20k")
+        bench.session.edit_setup("initial", bench.session.texts["initial"])
+        bench.session.edit_table(dict(bench.table_source.data))
+        assert len(bench.session.history) == 1
+
     def test_undo_row_delete(self):
         bench = rc_bench()
         bench.delete_row(1)
@@ -336,3 +399,53 @@ class TestRefusedEntries:
         bench.undo()  # takes back the refused entry: the field shows its last good text
         assert bench.fields["r"].value == "10 kΩ" and bench._field_errors["r"].value == ""
         assert bench.fields["c"].value == "220n"
+
+
+class TestBrowserEvents:
+    """What the browser sends: jupyter_bokeh hands a plot event to the document
+    (``callbacks.trigger_event``), which calls only the models subscribed when they
+    joined it; a handler attached after the figure was wrapped never ran."""
+
+    @staticmethod
+    def _from_browser(bench, event) -> None:
+        # The path of a "MessageSent"/"bokeh_event" message in BokehModel._sync_model.
+        bench.plot_view._document.callbacks.trigger_event(event)
+
+    def test_a_click_on_a_segment_selects_it(self):
+        from bokeh.events import Tap
+
+        bench = switched_bench()
+        bench.tabs.selected_index = bench.tabs.children.index(bench.derivation)
+        before = bench.derivation.value
+        self._from_browser(bench, Tap(bench.plots.response_figure, x=2.5e-3, y=1.0))
+        assert bench.session.segment == 2
+        assert bench.derivation.value != before and "Segment 2:" in bench.derivation.value
+
+    def test_a_box_zoom_resamples_a_long_drive(self):
+        from bokeh.events import RangesUpdate
+
+        rng = np.random.default_rng(3)
+        times = np.concatenate([[0.0], np.cumsum(rng.uniform(20e-6, 80e-6, 9_999))])
+        drive = fo.Drive(times, end=float(times[-1]) + 1e-4, vin=rng.choice([0.0, 5.0], 10_000))
+        bench = Bench(fo.Fixture.rc(r="1k", c="10n"), drive)
+        assert bench.plot_mode == "envelope"
+        self._from_browser(bench, RangesUpdate(bench.plots.response_figure, x0=0.2, x1=0.201, y0=0.0, y1=5.0))
+        assert bench.session.view == pytest.approx((0.2, 0.201))
+        assert bench.plot_mode == "line"
+        assert "zoom in" not in bench.info.value
+
+    def test_the_value_axis_follows_the_quantity_shown_after_a_zoom(self):
+        from bokeh.events import RangesUpdate
+
+        bench = switched_bench()
+        y_range = bench.plots.response_figure.y_range
+        self._from_browser(bench, RangesUpdate(bench.plots.response_figure, x0=0.9e-3, x1=1.5e-3, y0=0.0, y1=1.0))
+        bench.probe_selector.value = "i_rs"
+        # The current through rs peaks at 2.5 V / 1000.2 Ω just after 1 ms (Ohm's law): the
+        # axis spans the probe's curve, not the volts shown before.
+        peak = 2.5 / 1000.2
+        assert y_range.start <= 0.0 and peak <= y_range.end < 1.5 * peak
+        bench.set_view(bench.drive.start, bench.drive.end)  # reset
+        assert y_range.start <= 0.0 and peak <= y_range.end < 1.5 * peak
+        bench.probe_selector.value = ""
+        assert 2.5 <= y_range.end < 4.0

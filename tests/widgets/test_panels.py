@@ -92,9 +92,9 @@ class TestSettlingPanel:
     def test_tolerance_in_wrong_unit_for_a_current_probe(self):
         bench = switched_bench(tolerance=fo.Tolerance.absolute("1m"))
         bench.probe_selector.value = "i_rs"
-        # The tolerance field is re-read in amps for a current probe.
-        assert bench.tolerance.unit == "A"
-        assert bench.error == ""
+        # A limit in volts does not become one in amps: an error beside the field says so.
+        assert bench.settling is None
+        assert "tolerance" in bench.error and "i_rs" in bench.error
 
 
 class TestCautionsPanel:

@@ -40,28 +40,30 @@ class TestMarks:
         band = bench.sources["tolerance"].data
         np.testing.assert_allclose(np.asarray(band["top"]) - np.asarray(band["bottom"]), 0.02)
         samples = bench.sources["samples"].data
-        # segment 0 lasts 1 ms, shorter than the delay: no reading there
-        np.testing.assert_allclose(samples["t"], [3e-3, 6e-3])
+        # segment 0 lasts 1 ms, shorter than the delay: read at its end, where the table judges it
+        np.testing.assert_allclose(samples["t"], [1e-3, 3e-3, 6e-3])
+        np.testing.assert_allclose(samples["t"], bench.settling["sample_time"], rtol=1e-15)
         # 2 ms after the step to 5 V with tau 1 ms: 5 (1 - e^-2) (common practice)
-        assert samples["y"][0] == pytest.approx(5 * (1 - math.exp(-2)), rel=1e-12)
-        assert samples["colour"][0] == "#e74c3c"  # 0.68 V short of 5 V: outside 10 mV
-        # ... though the settling table judges that segment at its end, 1 ms after the change
-        assert bench.settling.loc[0, "sample_time"] == pytest.approx(1e-3, rel=1e-15)
+        assert samples["y"][1] == pytest.approx(5 * (1 - math.exp(-2)), rel=1e-12)
+        assert samples["colour"][1] == "#e74c3c"  # 0.68 V short of 5 V: outside 10 mV
 
     def test_samples_without_a_tolerance_are_neutral(self):
         bench = rc_bench(sample_delay="2m")
         samples = bench.sources["samples"].data
-        np.testing.assert_allclose(samples["t"], [3e-3, 6e-3])
+        # segment 0 (1 ms, at 0 V throughout) is read at its end, as the settling table would
+        np.testing.assert_allclose(samples["t"], [1e-3, 3e-3, 6e-3])
         # 2 ms into each step, tau 1 ms: 5 (1 - e^-2) and 1 + (v(4m) - 1) e^-2 (common practice)
         v4 = 5 * (1 - math.exp(-3))
-        np.testing.assert_allclose(samples["y"], [5 * (1 - math.exp(-2)), 1 + (v4 - 1) * math.exp(-2)], rtol=1e-12)
-        np.testing.assert_allclose(samples["error"], [-5 * math.exp(-2), (v4 - 1) * math.exp(-2)], rtol=1e-12)
+        np.testing.assert_allclose(samples["y"], [0.0, 5 * (1 - math.exp(-2)), 1 + (v4 - 1) * math.exp(-2)],
+                                   rtol=1e-12, atol=1e-15)
+        np.testing.assert_allclose(samples["error"], [0.0, -5 * math.exp(-2), (v4 - 1) * math.exp(-2)], rtol=1e-12,
+                                   atol=1e-15)
         assert set(samples["colour"]) == {"#5d6d7e"}
         assert len(bench.sources["tolerance"].data["left"]) == 0 and len(bench.sources["settle"].data["t"]) == 0
 
     def test_settle_marks_lie_on_the_curve_of_a_probe(self):
         # Read from the settling table (final and limit), not evaluated: they must still lie on the curve.
-        bench = switched_bench(tolerance=fo.Tolerance.absolute("1u"), sample_delay="0.9m")
+        bench = switched_bench(tolerance=fo.Tolerance.absolute("1u", unit="A"), sample_delay="0.9m")
         bench.probe_selector.value = "i_rs"
         marks = bench.sources["settle"].data
         assert len(marks["t"]) >= 2

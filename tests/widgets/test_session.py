@@ -185,18 +185,18 @@ class TestObservers:
         assert dashboard.result.loc[1, "settle_time"] == pytest.approx(1e-4 * math.log(5 / 1e-6), rel=1e-12)
 
     def test_a_linked_probe_brings_its_own_table(self):
-        session = BenchSession(switched_fixture(), switched_drive(), tolerance=fo.Tolerance.absolute("1m"))
+        session = BenchSession(switched_fixture(), switched_drive(), tolerance=fo.Tolerance.relative("1m"))
         dashboard = Dashboard()
         traitlets.link((dashboard, "watched"), (session, "probe"))
         dashboard.watched = "i_rs"
-        # The limit is read again in amps, and the table is the probe's.
-        assert session.tolerance.unit == "A" and session.settling.attrs["watched"] == "probe 'i_rs'"
+        # A share of each step is one for any quantity: the table is the probe's, in amps.
+        assert session.settling.attrs["watched"] == "probe 'i_rs'"
         assert session.summary.unit == "A"
 
 
 class TestWhatOneEditCosts:
     def test_a_part_edit_builds_one_response_one_table_and_probe_rows_once(self, monkeypatch):
-        bench = switched_bench(tolerance=fo.Tolerance.absolute("1u"), sample_delay="0.8m")
+        bench = switched_bench(tolerance=fo.Tolerance.absolute("1u", unit="A"), sample_delay="0.8m")
         bench.probe_selector.value = "i_rs"
         counts = {"response": 0, "settling table": 0, "probe rows": 0, "evaluate": 0}
 
