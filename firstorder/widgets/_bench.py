@@ -28,7 +28,7 @@ __all__ = ["Bench"]
 
 _DERIVATION_TAB, _SETTLING_TAB = panels.TAB_TITLES.index("Derivation"), panels.TAB_TITLES.index("Settling")
 #: Every session trait a drawing depends on.
-_WATCHED = ["texts", "errors", "table", "drive", "view", "probe", "response", "settling", "summary", "residual",
+_WATCHED = ["texts", "errors", "notice", "table", "drive", "view", "probe", "response", "settling", "summary", "residual",
             "curves", "segment"]
 
 
@@ -114,7 +114,7 @@ class Bench(widgets.VBox):
         self.sources["handles"].on_change("data", self._on_handles)
 
         parts = panels.parts_panel(part_fields(fixture), self._on_field)
-        setup = panels.setup_panel(session.texts, fixture.state_unit, self._on_field)
+        setup = panels.setup_panel(session.texts, fixture.state_unit, self._on_field, fixture.storage.kind)
         view = panels.view_panel(fixture, session.curve_names, session.curves, session.probe, self._on_probe,
                                  self._on_overlay, self.undo)
         editor = panels.drive_editor(session.table, self._on_row, self._on_end, lambda _: self._refresh())
@@ -140,7 +140,8 @@ class Bench(widgets.VBox):
         self.tabs = panels.tab_panel([editor.box, generators.box, self.derivation, self.settling_panel, export.box])
         self.tabs.observe(lambda change: self._refresh(), names="selected_index")
         left = widgets.VBox([parts.box, setup.box, view.box], layout=widgets.Layout(width="320px", min_width="320px"))
-        super().__init__([panels.header(fixture, session.drive), self.status, self.cautions_panel,
+        self.header = widgets.HTML()
+        super().__init__([self.header, self.status, self.cautions_panel,
                           widgets.HBox([left, self.plot_view]), self.info, self.tabs])
         session.observe(self._refresh, names=_WATCHED)
         self._refresh()
@@ -298,7 +299,8 @@ class Bench(widgets.VBox):
         shown_segment = self._drawn.get("derivation", (None, None, None))[2]
         view = View(*s.view)
         parts, setup, shown, editor = self._panels
-        self._redraw("errors", (s.errors,), self._show_errors)
+        self._redraw("errors", (s.errors, s.notice), self._show_errors)
+        self._redraw("header", (s.drive,), lambda: setattr(self.header, "value", panels.header_html(s.fixture, s.drive)))
         self._redraw("texts", (s.texts, s.errors), lambda: self._sync(lambda: [
             parts.show(s.texts, s.errors), setup.show(s.texts, s.errors)]))
         self._redraw("table", (s.table,), lambda: self._sync(lambda: editor.show(s.table, not self._typed,
@@ -351,7 +353,7 @@ class Bench(widgets.VBox):
     def _show_errors(self) -> None:
         errors = self.session.errors
         self.status.value = panels.status_html(errors)
-        self.drive_error.value = panels.error_html(errors.get("drive"))
+        self.drive_error.value = panels.error_html(errors.get("drive") or self.session.notice)
         self.generator_error.value = panels.error_html(errors.get("generator"))
         # A drive error gone (fixed, or taken back by undo): the table shows the last good text again.
         if "drive" in self._drawn.get("errors", ({},))[0] and "drive" not in errors and not self._typed:

@@ -13,7 +13,7 @@ import numpy as np
 
 from ..drive import Drive
 from ..errors import InputError
-from ..units import parse_value
+from ..units import format_value, parse_value
 from ..plotting.format import format_many
 
 __all__ = ["DriveText", "switch_text", "parse_switch"]
@@ -39,6 +39,44 @@ def parse_switch(text: str, *, field: str) -> float:
     if key not in _CLOSED_WORDS:
         raise InputError(f"{field}: {text!r} is not a switch state; use closed/open (or 1/0, on/off)")
     return _CLOSED_WORDS[key]
+
+
+#: The title of the time column on screen (errors name it as the engineer sees it).
+TIME_TITLE = "change at"
+
+
+def check_order(times: np.ndarray, end: float) -> None:
+    """Refuse instants out of order, in the table's words (rows, "change at", engineering notation).
+
+    Examples
+    --------
+    >>> check_order(np.array([0.0, 2.207882717923001e-3, 2e-3]), 5e-3)
+    Traceback (most recent call last):
+    ...
+    firstorder.errors.InputError: drive table row 2, change at: 2 ms does not come after row 1's change at 2.20788 ms; the changes must be in time order
+    """
+    times = np.asarray(times, dtype=float)
+    late = np.flatnonzero(~(np.diff(times) > 0))
+    if late.size:
+        k = int(late[0]) + 1
+        raise InputError(f"drive table row {k}, {TIME_TITLE}: {format_value(times[k], 's', digits=6)} does not come "
+                         f"after row {k - 1}'s change at {format_value(times[k - 1], 's', digits=6)}; the changes "
+                         f"must be in time order")
+    if times.size and not end > times[-1]:
+        raise InputError(f"drive end: {format_value(end, 's', digits=6)} must be later than the last change "
+                         f"(row {times.size - 1}, at {format_value(times[-1], 's', digits=6)})")
+
+
+def _as_shown(value: float, unit: str) -> float:
+    """`value` as the table writes it: a dragged handle lands on a number the table shows,
+    not on one that differs from it in digits past the last shown.
+
+    Examples
+    --------
+    >>> _as_shown(2.9999993413, "V"), _as_shown(2.0000001234e-3, "s")
+    (3.0, 0.002)
+    """
+    return parse_value(format_many([value], unit)[0], field="drag", unit=unit)
 
 
 @dataclass(frozen=True)
@@ -96,7 +134,7 @@ class DriveText:
 
     # -- editing ----------------------------------------------------------------------
     def _parse_cell(self, column: str, row: int, text: str) -> float:
-        where = f"drive table row {row}, {column}"
+        where = f"drive table row {row}, {TIME_TITLE if column == 'time' else column}"
         if column == "time":
             return parse_value(text, field=where, unit="s")
         if column in self.switches:
@@ -144,10 +182,12 @@ class DriveText:
     def to_drive(self) -> Drive:
         """The drive these numbers make (validated by :class:`Drive`)."""
         end = parse_value(self.end, field="drive end", unit="s")
+        check_order(self.numbers["time"], end)
         return Drive(self.numbers["time"], end, **{name: self.numbers[name] for name in self.names})
 
     # -- row operations (each returns a new table from numbers) -----------------------------
     def _rows_from_numbers(self, times: np.ndarray, end: float, levels: dict[str, np.ndarray]) -> "DriveText":
+        check_order(times, end)
         drive = Drive(times, end, **levels)
         return DriveText.from_drive(drive, self.names, self.switches, self.units)
 
@@ -204,12 +244,12 @@ class DriveText:
         drive = self.to_drive()
         times = np.array(drive.times)
         if time is not None:
-            times[row] = time
+            times[row] = _as_shown(time, "s")
         levels = self._levels()
         if column is not None and level is not None:
             levels = dict(levels)
             levels[column] = np.array(levels[column])
-            levels[column][row] = level
+            levels[column][row] = _as_shown(level, self.units.get(column, ""))
         return self._rows_from_numbers(times, drive.end, levels)
 
     def merged(self, made: Drive) -> "DriveText":

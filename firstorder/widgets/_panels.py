@@ -30,7 +30,7 @@ from ._session import BenchSession, PartField
 
 __all__ = ["DriveEditor", "ExportPanel", "FieldsPanel", "GeneratorsPanel", "TAB_TITLES", "ViewPanel",
            "cautions_html", "derivation_html", "drive_editor", "error_html", "export_panel", "generators_panel",
-           "header", "info_html", "parts_panel", "settling_html", "setup_panel", "status_html", "tab_panel",
+           "header_html", "info_html", "parts_panel", "settling_html", "setup_panel", "status_html", "tab_panel",
            "value_label", "view_panel"]
 
 #: Tabs under the plot, in order.
@@ -83,24 +83,31 @@ def parts_panel(fields: list[PartField], on_edit: Callable[[str, str], None]) ->
     return FieldsPanel(widgets.VBox(rows), texts, errors)
 
 
-def setup_panel(texts: dict[str, str], state_unit: str, on_edit: Callable[[str, str], None]) -> FieldsPanel:
-    """The start, tolerance and sample-delay fields; `on_edit(key, text)` when one is typed."""
+def setup_panel(texts: dict[str, str], state_unit: str, on_edit: Callable[[str, str], None],
+                storage_kind: str = "capacitor") -> FieldsPanel:
+    """The start, tolerance and sample-delay fields, each with its unit and what it means;
+    `on_edit(key, text)` when one is typed."""
+    quantity = "voltage" if state_unit == "V" else "current"
+    element = "capacitor" if storage_kind == "capacitor" else "coil"
+    # (key, label, unit beside the field, what it is, written under it)
     specs = [
-        ("initial", "start", f"starting state ({state_unit}), 'settled' or 'periodic'"),
-        ("tolerance", "tolerance", "e.g. 1 mV, 0.1 %, 10 ppm of 5 V, 0.5 LSB of 16 bits on 5 V"),
-        ("sample_delay", "sample at", "time after each change when the reading is taken"),
+        ("initial", "start", state_unit, f"the {element}'s starting {quantity} ({state_unit}), or 'settled' or 'periodic'"),
+        ("tolerance", "tolerance", "", "e.g. 1 mV, 0.1 %, 10 ppm of 5 V, 0.5 LSB of 16 bits on 5 V"),
+        ("sample_delay", "sample at", "s", "time after each change when the reading is taken"),
     ]
     fields: dict[str, widgets.Text] = {}
     errors: dict[str, widgets.HTML] = {}
     rows: list[widgets.Widget] = [widgets.HTML("<b>Setup</b>")]
-    for key, label, hint in specs:
+    for key, label, unit, hint in specs:
         field = widgets.Text(value=texts[key], placeholder=hint, continuous_update=False,
-                             layout=widgets.Layout(width="230px"))
+                             layout=widgets.Layout(width="200px"))
         field.tooltip = hint
         field.add_class(f"fo-setup-{key.replace('_', '-')}")
         field.observe(lambda change, key=key: on_edit(key, change["new"]), names="value")
         fields[key], errors[key] = field, widgets.HTML()
-        rows.append(widgets.VBox([widgets.HBox([_label(label), field]), errors[key]]))
+        shown_unit = widgets.HTML(f"<span style='color:#566573'>{html.escape(unit)}</span>")
+        note = widgets.HTML(f"<span style='{_HINT_STYLE}'>{html.escape(hint)}</span>")
+        rows.append(widgets.VBox([widgets.HBox([_label(label), field, shown_unit]), note, errors[key]]))
     return FieldsPanel(widgets.VBox(rows), fields, errors)
 
 
@@ -292,9 +299,10 @@ def tab_panel(children: list[widgets.Widget]) -> widgets.Tab:
     return tabs
 
 
-def header(fixture, drive) -> widgets.HTML:
+def header_html(fixture, drive) -> str:
+    """The Bench's title line: the storage element and how many changes the drive has now."""
     storage = fixture.storage
-    return widgets.HTML(
+    return (
         f"<div style='font-size:1.15em;font-weight:600'>Bench: {html.escape(storage.kind)} "
         f"'{html.escape(storage.name)}' under a {len(drive)}-change drive</div>")
 

@@ -43,6 +43,8 @@ UNDO_DEPTH = 50
 MAX_GENERATED_CHANGES = 1_000_000
 #: The setup fields, by key.
 SETUP_KEYS = ("initial", "tolerance", "sample_delay")
+#: Each setup field's label on screen: its errors begin with it.
+SETUP_LABELS = {"initial": "start", "tolerance": "tolerance", "sample_delay": "sample at"}
 #: The error key of a tolerance whose unit is not that of the quantity shown (shown beside
 #: the tolerance field; not a refused entry, so undo does not stop at it).
 TOLERANCE_UNIT = "tolerance unit"
@@ -131,7 +133,16 @@ def _read_delay(value: Any) -> float | None:
     """A sample delay as typed ("" or None: none)."""
     if value is None or (isinstance(value, str) and not value.strip()):
         return None
-    return parse_value(value, field="sample_delay", unit="s", positive=True)
+    return parse_value(value, field=SETUP_LABELS["sample_delay"], unit="s", positive=True)
+
+
+def _labelled(key: str, read: Callable, *args: Any) -> Any:
+    """`read(*args)`, its error (which names the keyword, ``initial: ...``) under the field's label."""
+    try:
+        return read(*args)
+    except InputError as error:
+        text = str(error)
+        raise InputError(SETUP_LABELS[key] + text[len(key):] if text.startswith(key) else text) from None
 
 
 def _checked_view(start: Any, end: Any, drive: Drive) -> tuple[float, float]:
@@ -195,6 +206,8 @@ class BenchSession(traitlets.HasTraits):
     residual = traitlets.Instance(Residual, allow_none=True, read_only=True,
                                   help="Measured minus model at the trace's instants (None without a trace)")
     errors = traitlets.Dict(read_only=True, help="Field key to the error its last entry raised")
+    notice = traitlets.Unicode("", read_only=True,
+                               help="Why the last drag was refused (nothing changed, so it is no error); '' for none")
     texts = traitlets.Dict(read_only=True, help="Field key to its last good text")
     history = traitlets.Tuple(read_only=True, help="Snapshots undo can go back to, oldest first")
     view = traitlets.Tuple(traitlets.Float(), traitlets.Float(), default_value=(0.0, 1.0),
@@ -301,7 +314,7 @@ class BenchSession(traitlets.HasTraits):
     def edit_setup(self, key: str, text: str) -> bool:
         """A setup field typed: ``"initial"``, ``"tolerance"`` or ``"sample_delay"``."""
         readers: dict[str, Callable[[], dict]] = {
-            "initial": lambda: {"initial": read_initial(text, self.fixture.state_unit)},
+            "initial": lambda: {"initial": _labelled("initial", read_initial, text, self.fixture.state_unit)},
             "tolerance": lambda: {"tolerance": parse_tolerance(text, unit=self.value_unit)},
             "sample_delay": lambda: {"sample_delay": _read_delay(text)},
         }
@@ -380,7 +393,9 @@ class BenchSession(traitlets.HasTraits):
         try:
             table = self.table.dragged(column, times, levels, span)
         except ValueError as error:
-            self._set_error("drive", f"drag: {error}")
+            # The drive stays as it was and the handles go back: nothing is invalid, so this
+            # is a notice beside the drive, not an error; the next accepted edit clears it.
+            self.set_trait("notice", f"drag: {error}")
             return False
         return self._edit("drive", lambda: {"table": table}, reset_view=True)
 
@@ -447,6 +462,7 @@ class BenchSession(traitlets.HasTraits):
                                      inputs.get("sample_delay", self.sample_delay), self.probe,
                                      residual=changed_response, errors={k: v for k, v in self.errors.items() if k != key}))
         changes["texts"] = {**self.texts, **(texts or {})}
+        changes["notice"] = ""
         changes["history"] = (*self.history, self._snapshot())[-UNDO_DEPTH:]
         if "drive" in inputs:
             changes.update(self._placed(drive, reset_view))
@@ -526,7 +542,7 @@ class BenchSession(traitlets.HasTraits):
         response = snapshot.fixture.respond(drive, snapshot.initial)
         changes = dict(fixture=snapshot.fixture, table=snapshot.table, drive=drive, initial=snapshot.initial,
                        tolerance=tolerance, sample_delay=snapshot.sample_delay, response=response,
-                       texts=dict(snapshot.texts))
+                       texts=dict(snapshot.texts), notice="")
         # Undo clears every refused entry: the fields go back to their last good text.
         changes.update(self._results(response, tolerance, snapshot.sample_delay, self.probe, residual=True, errors={}))
         if history is not None:

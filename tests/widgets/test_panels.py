@@ -6,6 +6,7 @@ a first-order step is within `tol` of its final value after tau ln(step / tol).
 
 from __future__ import annotations
 
+import html
 import math
 
 import numpy as np
@@ -133,7 +134,7 @@ class TestHostileNamesStayText:
         for text in (panels.info_html(bench.session, "line"), panels.settling_html(bench.session),
                      panels.status_html({"r": f"r{HOSTILE}: 'x' is not a number"}),
                      panels.cautions_html([f"{HOSTILE} holds 1 kV"]), panels.error_html(HOSTILE),
-                     panels.header(bench.session.fixture, bench.session.drive).value):
+                     panels.header_html(bench.session.fixture, bench.session.drive)):
             assert_inert(text)
 
     def test_every_html_widget_of_the_bench(self, bench):
@@ -175,3 +176,35 @@ def test_a_part_name_with_spaces_gives_a_field_one_css_class():
         classes = [c for c in field._dom_classes if c.startswith("fo-part-")]
         # The browser refuses a class with a space in it, and the Bench then fails to show.
         assert len(classes) == 1 and not any(ch.isspace() or ch in "<>\"'" for ch in classes[0]), classes
+
+
+class TestSetupPanelWords:
+    def test_fields_show_their_units_and_start_says_what_it_is(self):
+        bench = rc_bench()
+        text = html.unescape(" ".join(w.value for w in _html_widgets(bench._panels[1].box)))
+        assert "the capacitor's starting voltage (V)" in text and ">V<" in text
+        coil = Bench(fo.Fixture.rl(r="10", l="1m"), fo.Drive.steps([(0, 0.0), ("1m", 1.0)], end="5m"))
+        text = html.unescape(" ".join(w.value for w in _html_widgets(coil._panels[1].box)))
+        assert "the coil's starting current (A)" in text
+
+    def test_errors_name_the_fields_as_labelled(self):
+        bench = rc_bench()
+        bench.setup_fields["initial"].value = "warm"
+        bench.setup_fields["sample_delay"].value = "-1m"
+        assert bench.session.errors["initial"].startswith("start: ")
+        assert bench.session.errors["sample_delay"].startswith("sample at: ")
+        bench.undo(), bench.undo()
+        bench.edit_cell(1, "time", "9m")
+        # the table's words and engineering notation, not drive.times[2]: 0.004
+        assert bench.session.errors["drive"] == (
+            "drive table row 2, change at: 4 ms does not come after row 1's change at 9 ms; "
+            "the changes must be in time order")
+
+
+def _html_widgets(box):
+    import ipywidgets as widgets
+
+    found = []
+    for child in getattr(box, "children", ()):
+        found += [child] if isinstance(child, widgets.HTML) else _html_widgets(child)
+    return found

@@ -62,7 +62,7 @@ class TestValidation:
         columns = table.as_columns()
         columns["time"][1] = "9m"
         assert not session.edit_table(columns)
-        assert "strictly increasing" in session.errors["drive"]
+        assert "time order" in session.errors["drive"]
         assert session.table is table and session.drive is drive
 
     def test_an_accepted_edit_clears_its_error_only(self):
