@@ -81,7 +81,7 @@ def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = Fa
         array = buffer[:buffer.size - room]
     else:
         array = parse_array(values, field=field, unit=unit, allow_bool=allow_bool, what=what)
-        finite = math.isfinite(array.sum())  # one cheap pass: NaN or inf anywhere shows in the sum
+        finite = _sum_is_finite(array)
         in_order = not increasing or _first_not_increasing(array) < 0
         buffer = np.concatenate([array, np.empty(room)]) if room else array
     if not finite:
@@ -150,10 +150,17 @@ def _copy_checked(values: np.ndarray, increasing: bool, room: int = 0) -> tuple[
             # values b > a is the strict order).
             listed = values.tolist()
             return buffer, math.isfinite(sum(listed)), not increasing or all(map(operator.lt, listed, listed[1:]))
-        return buffer, math.isfinite(array.sum()), not increasing or _first_not_increasing(array) < 0
+        return buffer, _sum_is_finite(array), not increasing or _first_not_increasing(array) < 0
     flags = _parallel.run(lambda first, stop: kernels.copy_checked(values, buffer, first, stop),
                           _parallel.pieces(values.size))
     return buffer, all(finite for finite, _ in flags), all(ordered for _, ordered in flags)
+
+
+def _sum_is_finite(array: np.ndarray) -> bool:
+    """One cheap pass: NaN or inf anywhere makes the sum not finite (so does a sum past
+    the largest float, which the caller's closer look then clears, without a warning)."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        return math.isfinite(array.sum())
 
 
 def _first_not_increasing(times: np.ndarray) -> int:
