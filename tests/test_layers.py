@@ -44,7 +44,7 @@ LAYERS = [
     "engine",
     "response",
     "settling.tolerance", "settling.table", "settling.planning", "settling",
-    "studies.spread", "studies.lot", "studies.budget", "studies.study", "studies.worst", "studies",
+    "studies.spread", "studies.lot", "studies.budget", "studies.study", "studies.worst", "studies.sweep", "studies",
     "cautions",
     "symbolic.names", "symbolic.nodal", "symbolic.steps", "symbolic.derivation", "symbolic",
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",
