@@ -5,10 +5,12 @@
     firstorder report A.json -o R.html
     firstorder settle A.json [--format table|csv|json]
     firstorder derive A.json [--format markdown|latex]
+    firstorder study A.json [--units N] [--seed S] [--format table|csv|json] [--require F]
     firstorder demo [-o DIR]
 
 Every command reads an analysis file (or a report, which carries its analysis).
 Errors go to stderr as one line, with exit code 2; there is never a traceback.
+``study`` exits with 1 when the passing fraction is below ``--require`` (a gate for CI).
 """
 
 from __future__ import annotations
@@ -31,6 +33,8 @@ __all__ = ["main", "demo_analysis"]
 _PROGRAM = "firstorder"
 #: Exit code for any error: bad usage, an unreadable or invalid file, a failed write.
 EXIT_ERROR = 2
+#: Exit code of ``study`` when fewer units pass than ``--require`` asks.
+EXIT_BELOW_REQUIRED = 1
 
 
 class _UsageError(Exception):
@@ -88,6 +92,24 @@ def _build_parser() -> argparse.ArgumentParser:
     derive.add_argument("--segment", type=int, default=None, metavar="K",
                         help="derive only the configuration that segment K (from 0) of the drive uses")
 
+    study = commands.add_parser(
+        "study", help="print the tolerance study of an analysis's lot",
+        description="Run the tolerance study the analysis file describes (its spread, units and seed) "
+                    "and print, per segment, the nominal settle time, the time each fraction of units "
+                    "meets, the error at the sample, the yield and the worst unit; then the fraction "
+                    "of units whose every sample is inside, with its 95 %% interval.",
+        epilog="Exit status: 0, 1 when the passing fraction is below --require, 2 on any error.",
+    )
+    study.add_argument("analysis", help="analysis file (.json, or a report .html) with a tolerance and a spread")
+    study.add_argument("--units", type=_whole_number("--units", 1), default=None, metavar="N",
+                       help="units to draw (default: the file's, else 1000)")
+    study.add_argument("--seed", type=_whole_number("--seed", 0), default=None, metavar="S",
+                       help="seed of the draws (default: the file's, else 1)")
+    study.add_argument("--format", choices=("table", "csv", "json"), default="table",
+                       help="table (for reading, the default), csv or json (for other programs)")
+    study.add_argument("--require", type=_fraction_argument, default=None, metavar="F",
+                       help="exit with status 1 when fewer than this fraction of units pass (e.g. 0.999)")
+
     demo = commands.add_parser(
         "demo", help="write a demo analysis and its report",
         description="Write a demo analysis (an invented sample-and-hold scenario) and its report, "
@@ -96,6 +118,26 @@ def _build_parser() -> argparse.ArgumentParser:
     demo.add_argument("-o", "--output", default="firstorder-demo",
                       help="folder to write into (made if missing; default: firstorder-demo)")
     return parser
+
+
+def _whole_number(flag: str, least: int):
+    def read(text: str) -> int:
+        if not text.isascii() or not text.isdigit() or int(text) < least:
+            raise argparse.ArgumentTypeError(f"{text!r} is not allowed; give a whole number >= {least}")
+        return int(text)
+
+    read.__name__ = flag  # argparse names the type in its message
+    return read
+
+
+def _fraction_argument(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    if not 0.0 < value <= 1.0:
+        raise argparse.ArgumentTypeError(f"{text!r} is not allowed; give a fraction of units in (0, 1], e.g. 0.999")
+    return value
 
 
 # -- commands ---------------------------------------------------------------------------------
@@ -175,6 +217,46 @@ def _text_table(table, unit: str) -> str:
     return "\n".join(lines)
 
 
+def _study(arguments: argparse.Namespace) -> int:
+    from .analysis import Analysis
+
+    analysis = Analysis.load(arguments.analysis)
+    if analysis.tolerance is None:
+        raise _UsageError(f"{_PROGRAM} study: {arguments.analysis} has no tolerance; add a \"tolerance\" field "
+                          f"(see the README's file format)")
+    if analysis.spread is None:
+        raise _UsageError(f"{_PROGRAM} study: {arguments.analysis} has no spread; add a \"spread\" field "
+                          f"(file version 2, see the README's file format)")
+    changes = {key: value for key, value in (("units", arguments.units), ("seed", arguments.seed))
+               if value is not None}
+    if changes:
+        analysis = analysis.replace(**changes)
+    settings = analysis.study_settings
+    study = analysis.study()
+    tolerance, delay = analysis.tolerance, analysis.sample_delay
+    table = study.settling(tolerance, sample_delay=delay, fractions=settings["fractions"])
+    passing = study.passing(tolerance, sample_delay=delay)
+    if arguments.format == "csv":
+        sys.stdout.write(table.to_csv(float_format=lambda number: repr(float(number))))
+    elif arguments.format == "json":
+        document = {"units": settings["units"], "seed": settings["seed"], "spread": str(settings["spread"]),
+                    "tolerance": str(tolerance), "passing": passing.passing, "passing_fraction": passing.fraction,
+                    "interval": [passing.low, passing.high], "confidence": passing.confidence,
+                    "segments": _records(table)}
+        sys.stdout.write(json.dumps(document, indent=1, allow_nan=False) + "\n")
+    else:
+        unit = analysis.fixture.state_unit
+        print(f"{analysis.title or arguments.analysis}: tolerance {tolerance}; {settings['units']:,} units, "
+              f"seed {settings['seed']}; spread {settings['spread']}")
+        print(_text_table(table, unit))
+        print(passing)
+    if arguments.require is not None and passing.fraction < arguments.require:
+        print(f"{_PROGRAM} study: {passing.fraction:.4%} of units pass, below the required "
+              f"{arguments.require:.4%}", file=sys.stderr)
+        return EXIT_BELOW_REQUIRED
+    return 0
+
+
 #: From this many configurations on, `derive` says on stderr which one it is deriving.
 _DERIVE_PROGRESS_FROM = 4
 
@@ -220,12 +302,14 @@ def demo_analysis():
     loads the capacitor.  The DAC steps through four levels with the relay
     closed, then the relay opens and the capacitor holds, drooping into the
     meter.  The converter samples 150 µs after each change, and the tolerance
-    is half an LSB.
+    is half an LSB.  The lot: a 10 % capacitor, 1 % resistors, relay contacts of
+    0.1 to 0.3 Ω, the DAC's gain and offset, 0 to 50 °C (``firstorder study``).
     """
     from .analysis import Analysis
     from .drive import Drive
     from .fixture import Fixture
     from .settling.tolerance import Tolerance
+    from .studies.spread import Spread, Uniform
 
     fixture = Fixture()
     fixture.voltage_source("vdac", "dac", "gnd")
@@ -247,6 +331,11 @@ def demo_analysis():
         initial="settled",
         tolerance=Tolerance.lsb(bits=16, span=5.0),
         sample_delay="150u",
+        spread=Spread({"c_hold": "10%", "r_series": "1%", "r_meter": "1%", "k_hold.r_on": Uniform("0.1", "0.3"),
+                       "vdac.gain": "0.02%", "vdac.offset": "100u"},
+                      temperature=(0, 50), tempco={"c_hold": "-750ppm", "r_series": "25ppm"}),
+        units=2000,
+        seed=2026,
         title="Demo: sample-and-hold front end (an invented scenario)",
         notes=(
             "An invented scenario to try firstorder on: a 16-bit DAC steps a hold capacitor through "
@@ -269,7 +358,7 @@ def _demo(arguments: argparse.Namespace) -> None:
     print(report)
 
 
-_COMMANDS = {"report": _report, "settle": _settle, "derive": _derive, "demo": _demo}
+_COMMANDS = {"report": _report, "settle": _settle, "derive": _derive, "study": _study, "demo": _demo}
 
 
 def _one_line(text: str) -> str:
@@ -286,7 +375,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         # A bad FIRSTORDER_THREADS would otherwise surface only once an array is long enough
         # to split: refuse it before any work, whatever the drive.
         _parallel.threads()
-        _COMMANDS[arguments.command](arguments)
+        status = _COMMANDS[arguments.command](arguments) or 0
     except _UsageError as error:
         print(_one_line(str(error)), file=sys.stderr)
         return EXIT_ERROR
@@ -313,7 +402,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         sys.stdout.flush()
     except BrokenPipeError:
         _silence_stdout()
-    return 0
+    return status
 
 
 def _silence_stdout() -> None:

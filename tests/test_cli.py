@@ -121,6 +121,78 @@ class TestSettle:
         assert_one_line_error(run("settle", str(path)), "has no tolerance")
 
 
+class TestStudy:
+    """``firstorder study``: the study of the file's spread, the same numbers as the API."""
+
+    def test_json_is_the_study_of_the_api(self, demo, capsys):
+        assert cli.main(["study", str(demo / "demo-analysis.json"), "--units", "300", "--seed", "4",
+                         "--format", "json"]) == 0
+        document = json.loads(capsys.readouterr().out)
+        analysis = Analysis.load(demo / "demo-analysis.json").replace(units=300, seed=4)
+        study = analysis.study()
+        table = study.settling(analysis.tolerance, sample_delay=analysis.sample_delay)
+        passing = study.passing(analysis.tolerance, sample_delay=analysis.sample_delay)
+        assert (document["units"], document["seed"], document["passing"]) == (300, 4, passing.passing)
+        assert document["interval"] == [passing.low, passing.high]
+        rows = document["segments"]
+        assert [row["yield"] for row in rows] == table["yield"].tolist()
+        errors = [row["error_99.9%"] for row in rows]
+        assert errors == table["error_99.9%"].tolist()
+        assert [row["worst_unit"] for row in rows] == table["worst_unit"].tolist()
+
+    def test_the_file_settings_are_used_by_default(self, demo, capsys):
+        assert cli.main(["study", str(demo / "demo-analysis.json"), "--format", "csv"]) == 0
+        text = capsys.readouterr().out
+        settings = Analysis.load(demo / "demo-analysis.json").study_settings
+        table = pd.read_csv(io.StringIO(text), index_col="segment")
+        assert list(table.columns)[:3] == ["start", "sample_time", "nominal_settle_time"]
+        assert len(table) == 5 and settings["units"] == 2000
+
+    def test_table_names_units_seed_and_the_passing_interval(self, demo):
+        result = run("study", str(demo / "demo-analysis.json"), "--units", "200")
+        assert result.returncode == 0, result.stderr
+        lines = result.stdout.splitlines()
+        assert "200 units, seed 2026" in lines[0]
+        assert lines[-1].endswith("(Clopper-Pearson)") and "of 200 units pass" in lines[-1]
+        assert "µs" in result.stdout and "%" in lines[2]
+
+    def test_require_is_a_gate(self, tmp_path, capsys):
+        # A 1 kΩ, 1 µF ± 10 % fixture sampled 20 ms (>= 18 time constants) after a 1 V step:
+        # every unit is inside 1 mV (exp(-20 / 1.1) = 1.3e-8 V), so the gate opens; at 1 ms
+        # every unit is outside (exp(-1 / 0.9) = 0.33 V), so it closes.
+        fx = fo.Fixture.rc("1k", "1u")
+        drive = fo.Drive([0], end="20m", vin=[1.0])
+        analysis = Analysis(fx, drive, tolerance=fo.Tolerance.absolute("1 mV"), spread=fo.Spread({"c": "10%"}),
+                            units=100)
+        path = analysis.save(tmp_path / "gate.json")
+        assert cli.main(["study", str(path), "--require", "0.999"]) == 0
+        short = analysis.replace(sample_delay="1m").save(tmp_path / "short.json")
+        capsys.readouterr()
+        assert cli.main(["study", str(short), "--require", "0.999"]) == cli.EXIT_BELOW_REQUIRED
+        error = capsys.readouterr().err
+        assert error == "firstorder study: 0.0000% of units pass, below the required 99.9000%\n"
+
+    @pytest.mark.parametrize("arguments, fragment", [
+        (["--units", "0"], "argument --units: '0' is not allowed; give a whole number >= 1"),
+        (["--units", "1,000"], "argument --units: '1,000' is not allowed"),
+        (["--units", "１０"], "argument --units:"),
+        (["--seed", "-3"], "argument --seed: '-3' is not allowed"),
+        (["--require", "1.5"], "argument --require: '1.5' is not allowed; give a fraction of units in (0, 1]"),
+        (["--require", "nan"], "argument --require: 'nan' is not allowed"),
+        (["--format", "xml"], "argument --format: invalid choice"),
+    ])
+    def test_bad_arguments_are_one_line(self, demo, arguments, fragment):
+        assert_one_line_error(run("study", str(demo / "demo-analysis.json"), *arguments), fragment)
+
+    def test_a_file_without_a_spread(self, tmp_path):
+        path = cli.demo_analysis().replace(spread=None).save(tmp_path / "plain.json")
+        assert_one_line_error(run("study", str(path)), "has no spread; add a \"spread\" field")
+
+    def test_a_file_without_a_tolerance(self, tmp_path):
+        path = cli.demo_analysis().replace(tolerance=None).save(tmp_path / "plain.json")
+        assert_one_line_error(run("study", str(path)), "has no tolerance")
+
+
 class TestDerive:
     def test_markdown(self, demo):
         result = run("derive", str(demo / "demo-analysis.json"))

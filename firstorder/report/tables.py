@@ -147,9 +147,14 @@ def settling_cell(column: str, value: Any, unit: str) -> str:
         return str(int(value))
     if isinstance(value, (float, np.floating)):
         number = float(value)
+        settle_column = column == "settle_time" or column.startswith(("settle_time_", "nominal_settle_time"))
         if math.isnan(number):
-            return "ends first" if column == "settle_time" else "—"
-        known = _SETTLING_UNITS.get(column, "")
+            return "ends first" if settle_column else "—"
+        if column == "yield":  # a study's fraction of units inside at the sample
+            return f"{number:.2%}"
+        if settle_column:
+            return format_value(number, "s", digits=5)
+        known = _SETTLING_UNITS.get(column, None if column.startswith("error_") else "")
         return format_value(number, known if known is not None else unit, digits=5)
     return str(value)
 
