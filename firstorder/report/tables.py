@@ -139,8 +139,15 @@ _SETTLING_UNITS = {
 }
 
 
+#: Column headings that are not the column's name with spaces.
+_HEADERS = {"hold": "judged by"}
+
+
 def settling_cell(column: str, value: Any, unit: str) -> str:
-    """One cell of a settling table as text: engineering notation, "yes"/"NO", "ends first"."""
+    """One cell of a settling table as text: engineering notation, "yes"/"NO", "ends first";
+    the ``hold`` column says what the segment is judged by ("droop" or "settling")."""
+    if column == "hold":
+        return "droop" if value else "settling"  # what the error is taken from
     if isinstance(value, (bool, np.bool_)):
         return "yes" if value else "NO"
     if isinstance(value, (int, np.integer)):
@@ -160,7 +167,7 @@ def settling_rows(table: "pd.DataFrame", unit: str) -> tuple[list[str], list[tup
     A long table keeps its first rows and every segment that did not settle
     or failed at its sample, up to :data:`FULL_SETTLING_ROWS` in all.
     """
-    header = ["segment", *[str(c).replace("_", " ") for c in table.columns]]
+    header = ["segment", *[_HEADERS.get(str(c), str(c).replace("_", " ")) for c in table.columns]]
     bad = np.zeros(len(table), dtype=bool)
     if "settled" in table.columns:
         bad |= ~table["settled"].to_numpy(dtype=bool)
@@ -187,7 +194,9 @@ def margin_rows(table: "pd.DataFrame", unit: str,
 
     Every segment of a short table; of a long one the `count` segments with the
     least margin (limit minus the error at the sample, or at the end without
-    sample columns), in segment order.  Cells as :func:`settling_cell` writes them.
+    sample columns), in segment order.  Cells as :func:`settling_cell` writes them;
+    a hold's "final" cell is the value it holds ("held 2.5 V"), which its droop is
+    taken from.
 
     Examples
     --------
@@ -209,8 +218,12 @@ def margin_rows(table: "pd.DataFrame", unit: str,
         keep = np.sort(np.argsort(margin, kind="stable")[:count])
         caption = f"the {count} segments with the least margin, of {len(table)}"
     values = [table[c].to_numpy() for c in columns]
+    hold = table["hold"].to_numpy(dtype=bool) if "hold" in table.columns else np.zeros(len(table), dtype=bool)
+    start_value = table["start_value"].to_numpy()
     rows = []
     for k in keep.tolist():
         cells = [settling_cell(c, v[k], unit) for c, v in zip(columns, values)]
+        if hold[k]:  # judged as droop from the value it holds, not against the leak's final value
+            cells[1] = "held " + settling_cell("start_value", start_value[k], unit)
         rows.append((k, cells, not bool(values[-1][k])))
     return header, rows, caption
