@@ -163,12 +163,14 @@ def _records(table) -> list[dict[str, object]]:
 
 
 def _text_table(table, unit: str) -> str:
-    from .report.tables import settling_cell
+    from .report.tables import row_scales, settling_cell
 
     header = ["segment", *[str(c) for c in table.columns]]
     columns = list(table.columns)
     values = [table[c].to_numpy() for c in columns]
-    rows = [[str(k), *(settling_cell(c, v[k], unit) for c, v in zip(columns, values))] for k in range(len(table))]
+    scales = row_scales(table)
+    rows = [[str(k), *(settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values))]
+            for k in range(len(table))]
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(header)]
     lines = ["  ".join(h.rjust(w) for h, w in zip(header, widths))]
     lines += ["  ".join(c.rjust(w) for c, w in zip(row, widths)) for row in rows]

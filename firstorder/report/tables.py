@@ -24,7 +24,7 @@ if TYPE_CHECKING:
     from ..fixture import Fixture
 
 __all__ = ["FULL_DRIVE_ROWS", "FULL_SETTLING_ROWS", "HEAD_ROWS", "MARGIN_ROWS", "MAX_DERIVATIONS", "TAIL_ROWS",
-           "drive_rows", "drive_summary_rows", "margin_rows", "part_rows", "probe_rows", "settling_cell",
+           "drive_rows", "drive_summary_rows", "margin_rows", "part_rows", "probe_rows", "row_scales", "settling_cell",
            "settling_rows", "states_text", "summary_rows", "timestamp", "version"]
 
 #: A drive with at most this many changes is shown in full; longer ones are summarised.
@@ -75,7 +75,7 @@ def summary_rows(analysis: "Analysis") -> list[tuple[str, str]]:
         tau = response.tau[response.segment_configuration == index][0]
         text = "holds its state (no resistive path)" if math.isinf(tau) else format_value(float(tau), "s")
         rows.append((f"time constant ({states_text(fixture, states)})", text))
-    rows.append(("state at the end", format_value(float(response.boundary[-1]), unit)))
+    rows.append(("state at the end", format_value(float(response.boundary[-1]), unit, scale=response.end_scale())))
     rows.append(("tolerance", str(analysis.tolerance) if analysis.tolerance is not None else "none given"))
     delay = analysis.sample_delay
     if delay is None:
@@ -143,9 +143,27 @@ _SETTLING_UNITS = {
 _HEADERS = {"hold": "judged by"}
 
 
-def settling_cell(column: str, value: Any, unit: str) -> str:
+#: Columns written against their segment's scale (a residual of 1e-117 A after a 60 mA step is 0 A).
+_SCALED = frozenset({"start_value", "final", "residual_at_end", "value_at_sample", "error_at_sample"})
+
+
+def row_scales(table: "pd.DataFrame") -> np.ndarray:
+    """Per segment of a settling table, the size its values are written against: the
+    larger of its start value and its final value (see ``format_value``'s `scale`)."""
+    return np.maximum(np.abs(table["start_value"].to_numpy()), np.abs(table["final"].to_numpy()))
+
+
+def settling_cell(column: str, value: Any, unit: str, scale: float | None = None) -> str:
     """One cell of a settling table as text: engineering notation, "yes"/"NO", "ends first";
-    the ``hold`` column says what the segment is judged by ("droop" or "settling")."""
+    the ``hold`` column says what the segment is judged by ("droop" or "settling").
+    Values of the watched quantity below 1e-12 of `scale` (the segment's size,
+    :func:`row_scales`) are written as 0.
+
+    Examples
+    --------
+    >>> settling_cell("residual_at_end", 7.271e-115, "A", scale=0.06), settling_cell("settled", True, "A")
+    ('0 A', 'yes')
+    """
     if column == "hold":
         return "droop" if value else "settling"  # what the error is taken from
     if isinstance(value, (bool, np.bool_)):
@@ -157,7 +175,8 @@ def settling_cell(column: str, value: Any, unit: str) -> str:
         if math.isnan(number):
             return "ends first" if column == "settle_time" else "—"
         known = _SETTLING_UNITS.get(column, "")
-        return format_value(number, known if known is not None else unit, digits=5)
+        return format_value(number, known if known is not None else unit, digits=5,
+                            scale=scale if column in _SCALED else None)
     return str(value)
 
 
@@ -181,9 +200,10 @@ def settling_rows(table: "pd.DataFrame", unit: str) -> tuple[list[str], list[tup
         keep = np.union1d(first, failing)[:FULL_SETTLING_ROWS]
     columns = list(table.columns)
     values = [table[c].to_numpy() for c in columns]
+    scales = row_scales(table)
     rows = []
     for k in keep.tolist():
-        cells = [settling_cell(c, v[k], unit) for c, v in zip(columns, values)]
+        cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
         rows.append((k, cells, bool(bad[k])))
     return header, rows, len(table) - len(keep)
 
@@ -220,10 +240,11 @@ def margin_rows(table: "pd.DataFrame", unit: str,
     values = [table[c].to_numpy() for c in columns]
     hold = table["hold"].to_numpy(dtype=bool) if "hold" in table.columns else np.zeros(len(table), dtype=bool)
     start_value = table["start_value"].to_numpy()
+    scales = row_scales(table)
     rows = []
     for k in keep.tolist():
-        cells = [settling_cell(c, v[k], unit) for c, v in zip(columns, values)]
+        cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
         if hold[k]:  # judged as droop from the value it holds, not against the leak's final value
-            cells[1] = "held " + settling_cell("start_value", start_value[k], unit)
+            cells[1] = "held " + settling_cell("start_value", start_value[k], unit, scales[k])
         rows.append((k, cells, not bool(values[-1][k])))
     return header, rows, caption

@@ -340,7 +340,7 @@ def info_html(session: BenchSession, mode: str) -> str:
         format_value(float(finite[0]), "s") if np.ptp(finite) == 0 else
         f"{format_value(float(finite.min()), 's')} to {format_value(float(finite.max()), 's')}")
     parts = [f"τ {tau_text}", f"{len(response.drive)} segments", f"start {format_value(response.initial, unit)}",
-             f"end {format_value(float(response.boundary[-1]), unit)}",
+             f"end {format_value(float(response.boundary[-1]), unit, scale=response.end_scale())}",
              "plot: every segment drawn" if mode == "line" else "plot: min/max per pixel (zoom in for single segments)"]
     if session.residual is not None:
         parts.append(f"residual rms {format_value(session.residual.rms, session.value_unit)}")
