@@ -44,7 +44,7 @@ _CSS = """
   ol.steps li { margin-bottom: 0.6em; }
   /* Display-style maths, set flush left under its caption (block math is centred). */
   div.eq { margin: 0.35em 0 0.35em 1.5em; }
-  div.eq math { display: inline math; math-style: normal; }
+  div.eq math { display: inline math; math-style: normal; font-size: 1.12em; }
   footer { margin-top: 2.5em; font-size: 0.85em; color: #5a6877; border-top: 1px solid #d5dee8; padding-top: 0.6em; }
   code { background: #eef2f6; padding: 0 0.25em; }
 </style>
@@ -111,7 +111,7 @@ def _derivations_html(analysis: "Analysis") -> str:
     for states, derivation in shown:
         parts.append(f"<h3>{escape(states_text(analysis.fixture, states))}</h3><ol class=steps>")
         for caption, equations in derivation_steps(derivation):
-            maths = "".join(f"<div class=eq>{mathml(equation)}</div>" for equation in equations)
+            maths = "".join(f"<div class=eq>{mathml(equation, derivation.names)}</div>" for equation in equations)
             parts.append(f"<li>{escape(caption)}{maths}</li>")
         parts.append("</ol>")
     if total > len(shown):
