@@ -13,7 +13,7 @@ and ``.markdown()`` return), and the HTML report as MathML
 :func:`to_latex` is the printer: sympy's LaTeX printer with every name written
 as typed (:func:`~firstorder.symbolic.names.latex_name`; a switch's resistance as
 ``R_{\mathrm{k1,on}}``), the state as ``v_{\mathrm{ch}}{\left(t \right)}``, a
-first derivative as ``\frac{d v_{\mathrm{ch}}}{dt}``, the decay as ``e^{-t/\tau}``,
+first derivative as ``\frac{\mathrm{d} v_{\mathrm{ch}}}{\mathrm{d}t}`` (an upright d, as in the MathML), the decay as ``e^{-t/\tau}``,
 sums in the order the steps build them, a centred dot between factors
 (``\mathrm{rbar} \cdot \mathrm{vcal}``: names of several letters would run
 together as one word), and part values in engineering notation with their unit
@@ -195,7 +195,8 @@ class _StepLatexPrinter(LatexPrinter):
         if isinstance(expr.expr, AppliedUndef) and len(expr.variable_count) == 1:
             ((variable, count),) = expr.variable_count
             if count == 1:
-                return rf"\frac{{d {latex_name(expr.expr.func.__name__)}}}{{d{self._print(variable)}}}"
+                return (rf"\frac{{\mathrm{{d}} {latex_name(expr.expr.func.__name__)}}}"
+                        rf"{{\mathrm{{d}}{self._print(variable)}}}")
         return super()._print_Derivative(expr)
 
 
@@ -222,7 +223,7 @@ def to_latex(expression: sp.Basic, names: DerivationNames | None = None) -> str:
     'r_{\\mathrm{bus\\_leak}} \\cdot \\mathrm{vcal}'
     >>> v = sp.Function("v_ch")(t)
     >>> to_latex(sp.Eq(sp.Derivative(v, t), -v, evaluate=False))
-    '\\frac{d v_{\\mathrm{ch}}}{dt} = - v_{\\mathrm{ch}}{\\left(t \\right)}'
+    '\\frac{\\mathrm{d} v_{\\mathrm{ch}}}{\\mathrm{d}t} = - v_{\\mathrm{ch}}{\\left(t \\right)}'
     >>> to_latex(v.subs(t, sp.oo))
     'v_{\\mathrm{ch}}{\\left(\\infty \\right)}'
 
@@ -418,7 +419,7 @@ def markdown_steps(derivation: "Derivation") -> str:
     >>> paragraphs = markdown_steps(fo.Fixture.rc(r="10k", c="100n").derivation()).split("\n\n")
     >>> print(paragraphs[4], paragraphs[5], sep="\n")
     **The ODE**
-    $$ \frac{d v_{c}}{dt} = \frac{V_{\mathrm{th}} - v_{c}{\left(t \right)}}{R_{\mathrm{th}} \cdot c} $$
+    $$ \frac{\mathrm{d} v_{c}}{\mathrm{d}t} = \frac{V_{\mathrm{th}} - v_{c}{\left(t \right)}}{R_{\mathrm{th}} \cdot c} $$
 
     See Also
     --------

@@ -400,16 +400,20 @@ def derivation_html(session: BenchSession) -> str:
     x = latex_name(derivation.state.func.__name__)
     tau, x0, final = float(response.tau[segment]), float(response.boundary[segment]), float(response.final[segment])
 
-    def number(value: float, unit_text: str) -> str:
+    def number(value: float, unit_text: str, bracket_negative: bool = False) -> str:
         # engineering notation, as on the axes: 1.55 ms rather than 0.00155
-        return r"\infty" if not math.isfinite(value) else r"\mathrm{" + format_value(value, unit_text).replace(" ", r"\ ") + "}"
+        if not math.isfinite(value):
+            return r"\infty"
+        text = r"\mathrm{" + format_value(value, unit_text).replace(" ", r"\ ") + "}"
+        # "a - -19.8 mV" reads as a typing slip: a negative number after a minus goes in brackets.
+        return rf"\left({text}\right)" if bracket_negative and value < 0 else text
 
     out.append("<p style='margin:2px 0'><b>This segment in numbers</b></p>")
     out.append("<p>" + _display_math(rf"\tau = {number(tau, 's')},\quad {x}(t_{{{segment}}}) = {number(x0, unit)},"
                                      rf"\quad {x}(\infty) = {number(final, unit)}") + "</p>")
     if math.isfinite(tau):
         out.append("<p>" + _display_math(
-            rf"{x}(t) = {number(final, unit)} + \left({number(x0, unit)} - {number(final, unit)}\right)"
+            rf"{x}(t) = {number(final, unit)} + \left({number(x0, unit)} - {number(final, unit, True)}\right)"
             rf"e^{{-(t - {number(start, 's')})/{number(tau, 's')}}}") + "</p>")
     else:
         out.append("<p>" + _display_math(rf"{x}(t) = {number(x0, unit)} \quad\text{{(held: no resistive path)}}")

@@ -59,7 +59,7 @@ class TestToLatex:
     def test_the_state_its_final_value_and_its_rate(self):
         assert to_latex(self.v) == r"v_{\mathrm{ch}}{\left(t \right)}"
         assert to_latex(self.v.subs(self.t, sp.oo)) == r"v_{\mathrm{ch}}{\left(\infty \right)}"
-        assert to_latex(sp.Derivative(self.v, self.t)) == r"\frac{d v_{\mathrm{ch}}}{dt}"
+        assert to_latex(sp.Derivative(self.v, self.t)) == r"\frac{\mathrm{d} v_{\mathrm{ch}}}{\mathrm{d}t}"  # upright d
         # A second derivative is left to sympy's own form.
         assert to_latex(sp.Derivative(self.v, (self.t, 2))) == r"\frac{d^{2}}{d t^{2}} v_{\mathrm{ch}}{\left(t \right)}"
 

@@ -68,6 +68,13 @@ class TestDerivationPanel:
         assert r"\tau = 1\ \mathrm{s}" in text  # in engineering notation with its unit
         np.testing.assert_allclose(bench.sources["selection"].data["left"], [2e-3])
 
+    def test_a_negative_final_value_is_bracketed_after_a_minus(self):
+        bench = Bench(fo.Fixture.rc(r="1k", c="1u"), fo.Drive([0, "1m"], end="3m", vin=[2.0, -1.0]))
+        bench.select_segment(1)
+        text = html.unescape(bench.derivation.value)
+        assert r"- \mathrm{-" not in text  # "2 V - -1 V" reads as a slip
+        assert r"- \left(\mathrm{-1\ V}\right)" in text
+
 
 class TestSettlingPanel:
     def test_settle_mark_and_table(self):
