@@ -25,8 +25,9 @@ __all__ = ["ErrorView", "FLOOR_FRACTION", "POINTS_PER_SEGMENT", "error_view"]
 #: Points per segment.  Linear in time: on a log axis an exponential is then a straight line.
 POINTS_PER_SEGMENT = 48
 #: An error of exactly 0 cannot sit on a log axis: it is drawn at this fraction of the
-#: smallest limit (and said so in the legend).
-FLOOR_FRACTION = 1e-6
+#: smallest limit (the figure's caption says so), and so is any error below that: three
+#: decades under the limit show every margin without squashing the axis.
+FLOOR_FRACTION = 1e-3
 
 
 @dataclass(frozen=True)

@@ -184,4 +184,5 @@ def html_report(analysis: "Analysis", now: str | None = None) -> str:
         bottom_html="".join(bottom),
         caption_html_for=lambda caption: f"<p class=meta>{escape(caption)}</p>",
         tolerance=analysis.tolerance,
+        table=analysis.settling() if analysis.tolerance is not None else None,
     )
