@@ -53,7 +53,7 @@ _TEMPLATE = """
 {{ report_top }}
 <section id=plot><h2>Response</h2>
 {{ plot_caption }}
-{% for doc in docs %}{% for root in doc.roots %}{{ embed(root) }}{% endfor %}{% endfor %}
+<div class=plots>{% for doc in docs %}{% for root in doc.roots %}<div class=plot>{{ embed(root) }}</div>{% endfor %}{% endfor %}</div>
 </section>
 {{ report_bottom }}
 {% endblock %}
@@ -282,6 +282,9 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None, 
         panels.append(error_figure(view, factor, unit, x_range=drive_panel.x_range))
         caption += (" The last plot is each segment's error on a log scale, with the tolerance dashed and each "
                     f"sample marked; an error below {format_value(view.floor, view.unit)} is drawn at it.")
+    for panel in panels:
+        # Shown while the pointer is over the plot: never printed, never covering the curves.
+        panel.toolbar.autohide = True
     return column(*panels), caption
 
 
@@ -303,8 +306,10 @@ def standalone_page(
     `caption_html_for` turns the figure's plain-text caption into HTML.
     """
     layout, caption = response_figure(response, tolerance, table)
+    # One root per plot (they share one document, so the time axes stay linked): each is
+    # then a block of its own that a printed page does not cut in two.
     return file_html(
-        layout,
+        list(layout.children),
         resources=INLINE,
         title=title,
         template=_TEMPLATE,

@@ -47,6 +47,24 @@ _CSS = """
   div.eq math { display: inline math; math-style: normal; font-size: 1.12em; }
   footer { margin-top: 2.5em; font-size: 0.85em; color: #5a6877; border-top: 1px solid #d5dee8; padding-top: 0.6em; }
   code { background: #eef2f6; padding: 0 0.25em; }
+  /* Print on A4 or Letter with nothing cut: the page is the printable width, the plots (drawn
+     at a fixed pixel width, about 1000 px with legend and toolbar) scale down to it, the toolbars hide
+     (shown only under the pointer), wide tables wrap their cells in a smaller type, and
+     headings, rows, equations and plots are not split across pages. */
+  @page { margin: 12mm; }
+  @media print {
+    body { max-width: none; margin: 0; padding: 0; font-size: 10pt; line-height: 1.35; }
+    h2 { margin-top: 1.1em; break-after: avoid; page-break-after: avoid; }
+    h3 { break-after: avoid; page-break-after: avoid; }
+    table.fo { font-size: 7pt; width: 100%; }
+    table.fo th, table.fo td { padding: 1px 3px; }
+    table.fo td.num { white-space: nowrap; }
+    tr, li, div.eq, .caution, .notes { break-inside: avoid; page-break-inside: avoid; }
+    div.plots { zoom: 0.66; }
+    div.plot { break-inside: avoid; page-break-inside: avoid; }
+    div.eq math { font-size: 1em; }
+    footer, .meta { color: #333; }
+  }
 </style>
 """
 
