@@ -36,7 +36,7 @@ if TYPE_CHECKING:
     from ..response import Response
     from ..settling.tolerance import Tolerance
 
-__all__ = ["error_figure", "response_figure", "standalone_page", "MAX_DETAILED_SEGMENTS"]
+__all__ = ["error_figure", "response_figure", "standalone_page", "time_scale", "MAX_DETAILED_SEGMENTS"]
 
 MAX_DETAILED_SEGMENTS = 2_000
 POINTS_PER_SEGMENT = 24
@@ -60,7 +60,7 @@ _TEMPLATE = """
 """
 
 
-def _time_scale(span: float) -> tuple[float, str]:
+def time_scale(span: float) -> tuple[float, str]:
     """A factor and unit that put `span` seconds between 1 and 1000 on the axis."""
     for factor, unit in ((1.0, "s"), (1e3, "ms"), (1e6, "µs"), (1e9, "ns"), (1e12, "ps")):
         if span * factor >= 1.0:
@@ -198,7 +198,7 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None, 
     drive = response.drive
     state_unit = response.fixture.state_unit
     span = float(drive.end - drive.times[0])
-    factor, unit = _time_scale(span)
+    factor, unit = time_scale(span)
     detailed = len(drive) <= MAX_DETAILED_SEGMENTS
     plan = None if detailed else _envelope_plan(response)
     plot = figure(
