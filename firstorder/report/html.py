@@ -51,6 +51,8 @@ _CSS = """
      at a fixed pixel width, about 1000 px with legend and toolbar) scale down to it, the toolbars hide
      (shown only under the pointer), wide tables wrap their cells in a smaller type, and
      headings, rows, equations and plots are not split across pages. */
+  /* On screen a table wider than the page scrolls in its own box (print shrinks it instead). */
+  @media screen { table.fo { display: block; max-width: 100%; overflow-x: auto; } }
   @page { margin: 12mm; }
   @media print {
     body { max-width: none; margin: 0; padding: 0; font-size: 10pt; line-height: 1.35; }
@@ -99,6 +101,11 @@ def _settling_html(analysis: "Analysis") -> str:
     verdict = (f"{not_settled} of {len(table)} segments do not settle within the tolerance before they end "
                "(settle time \"ends first\")"
                + (f"; {failed} fail at their sample instant" if "ok" in table.columns else "") + ".")
+    holds = int(table["hold"].to_numpy(dtype=bool).sum()) if "hold" in table.columns else 0
+    if holds:
+        verdict += (f" {holds} {'segment holds' if holds == 1 else 'segments hold'} (open switches cut the "
+                    f"capacitor off from every source): judged by droop, the change from the value held at the "
+                    f"change, against the tolerance (\"judged by\" column).")
     note = f" {left_out} rows that settled are left out; the CLI's <code>settle</code> lists them all." if left_out else ""
     return (f"<p>Tolerance {escape(str(analysis.tolerance))}. {escape(verdict)}{note}</p>"
             f"<table class=fo><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")

@@ -201,11 +201,20 @@ def settling_rows(table: "pd.DataFrame", unit: str) -> tuple[list[str], list[tup
     columns = list(table.columns)
     values = [table[c].to_numpy() for c in columns]
     scales = row_scales(table)
+    hold = table["hold"].to_numpy(dtype=bool) if "hold" in table.columns else np.zeros(len(table), dtype=bool)
     rows = []
     for k in keep.tolist():
         cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
+        if hold[k]:
+            _hold_cells(cells, columns)
         rows.append((k, cells, bool(bad[k])))
     return header, rows, len(table) - len(keep)
+
+
+def _hold_cells(cells: list[str], columns: list[str]) -> None:
+    """A hold whose droop leaves the tolerance before its end does not "end first": it droops out."""
+    if "settle_time" in columns and cells[columns.index("settle_time")] == "ends first":
+        cells[columns.index("settle_time")] = "droops out"
 
 
 def margin_rows(table: "pd.DataFrame", unit: str,
@@ -246,5 +255,6 @@ def margin_rows(table: "pd.DataFrame", unit: str,
         cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
         if hold[k]:  # judged as droop from the value it holds, not against the leak's final value
             cells[1] = "held " + settling_cell("start_value", start_value[k], unit, scales[k])
+            _hold_cells(cells, columns)
         rows.append((k, cells, not bool(values[-1][k])))
     return header, rows, caption

@@ -57,3 +57,17 @@ class TestNegligibleValues:
         assert rows[1][1][table.columns.get_loc("residual_at_end")] == "0 A"
         _, short, _ = report_tables.margin_rows(table, "A")
         assert "e-" not in " ".join(cell for _, cells, _ in short for cell in cells)
+
+
+class TestHoldRows:
+    def test_a_hold_is_judged_by_droop_in_the_rows(self):
+        from firstorder.cli import demo_analysis
+
+        table = demo_analysis().settling()
+        header, rows, _ = report_tables.settling_rows(table, "V")
+        judged = header.index("judged by") - 1
+        assert [cells[judged] for _, cells, _ in rows] == ["settling"] * 4 + ["droop"]
+        settle = header.index("settle time") - 1
+        assert rows[4][1][settle] == "droops out" and rows[3][1][settle] == "ends first"
+        _, short, _ = report_tables.margin_rows(table, "V")
+        assert short[4][1][1] == "held -1.9988 V" and short[4][1][3] == "droops out"
