@@ -24,7 +24,7 @@ if TYPE_CHECKING:
     from ..fixture import Fixture
 
 __all__ = ["FULL_DRIVE_ROWS", "FULL_SETTLING_ROWS", "HEAD_ROWS", "MARGIN_ROWS", "MAX_DERIVATIONS", "TAIL_ROWS",
-           "drive_rows", "drive_summary_rows", "margin_rows", "part_rows", "probe_rows", "row_scales", "settling_cell",
+           "drive_rows", "drive_summary_rows", "hold_cells", "margin_rows", "part_rows", "probe_rows", "row_scales", "settling_cell",
            "settling_rows", "states_text", "summary_rows", "timestamp", "version"]
 
 #: A drive with at most this many changes is shown in full; longer ones are summarised.
@@ -206,12 +206,12 @@ def settling_rows(table: "pd.DataFrame", unit: str) -> tuple[list[str], list[tup
     for k in keep.tolist():
         cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
         if hold[k]:
-            _hold_cells(cells, columns)
+            hold_cells(cells, columns)
         rows.append((k, cells, bool(bad[k])))
     return header, rows, len(table) - len(keep)
 
 
-def _hold_cells(cells: list[str], columns: list[str]) -> None:
+def hold_cells(cells: list[str], columns: list[str]) -> None:
     """A hold whose droop leaves the tolerance before its end does not "end first": it droops out."""
     if "settle_time" in columns and cells[columns.index("settle_time")] == "ends first":
         cells[columns.index("settle_time")] = "droops out"
@@ -255,6 +255,6 @@ def margin_rows(table: "pd.DataFrame", unit: str,
         cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
         if hold[k]:  # judged as droop from the value it holds, not against the leak's final value
             cells[1] = "held " + settling_cell("start_value", start_value[k], unit, scales[k])
-            _hold_cells(cells, columns)
+            hold_cells(cells, columns)
         rows.append((k, cells, not bool(values[-1][k])))
     return header, rows, caption
