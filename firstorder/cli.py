@@ -205,12 +205,19 @@ def _records(table) -> list[dict[str, object]]:
 
 
 def _text_table(table, unit: str) -> str:
-    from .report.tables import settling_cell
+    from .report.tables import hold_cells, row_scales, settling_cell
 
-    header = ["segment", *[str(c) for c in table.columns]]
+    header = ["segment", *["judged_by" if c == "hold" else str(c) for c in table.columns]]
     columns = list(table.columns)
     values = [table[c].to_numpy() for c in columns]
-    rows = [[str(k), *(settling_cell(c, v[k], unit) for c, v in zip(columns, values))] for k in range(len(table))]
+    scales = row_scales(table)
+    hold = table["hold"].to_numpy(dtype=bool) if "hold" in table.columns else [False] * len(table)
+    rows = []
+    for k in range(len(table)):
+        cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
+        if hold[k]:
+            hold_cells(cells, columns)  # a hold that droops past its limit "droops out"
+        rows.append([str(k), *cells])
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(header)]
     lines = ["  ".join(h.rjust(w) for h, w in zip(header, widths))]
     lines += ["  ".join(c.rjust(w) for c, w in zip(row, widths)) for row in rows]

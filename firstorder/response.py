@@ -525,10 +525,16 @@ class Response:
         return check(self)
 
     # -- display ---------------------------------------------------------------------------------
+    def end_scale(self, k: int = -1) -> float:
+        """The size of segment `k`'s values (its start, final and step): what its numbers
+        are written against (:func:`~firstorder.units.format_value`'s `scale`)."""
+        start, final = abs(float(self.boundary[:-1][k])), abs(float(self.final[k]))
+        return max(start, final, abs(float(self.boundary[:-1][k]) - float(self.final[k])))
+
     def __repr__(self) -> str:
         return (
             f"Response({len(self.drive)} segments, start {format_value(self.initial, self.state_unit)}, "
-            f"end {format_value(float(self.boundary[-1]), self.state_unit)})"
+            f"end {format_value(float(self.boundary[-1]), self.state_unit, scale=self.end_scale())})"
         )
 
     def _repr_html_(self) -> str:
@@ -542,7 +548,7 @@ class Response:
             rows.append([
                 k, format_value(float(self._starts[k]), "s"), format_value(float(self.tau[k]), "s"),
                 format_value(float(self.boundary[k]), unit), format_value(float(self.final[k]), unit),
-                format_value(float(self.boundary[k + 1]), unit),
+                format_value(float(self.boundary[k + 1]), unit, scale=self.end_scale(k)),
             ])
         caption = (
             f"Response of {self.segments.storage_kind} '{self.segments.storage_name}': {n} segments, "

@@ -365,7 +365,12 @@ def _object_items(items: list, field: str, unit: str | tuple[str, ...], allow_bo
     return out
 
 
-def format_value(value: float, unit: str = "", digits: int = 4) -> str:
+#: A value below this fraction of the scale it belongs to (the step of its segment, say)
+#: is rounding left over, not a reading: :func:`format_value` writes it as 0.
+NEGLIGIBLE = 1e-12
+
+
+def format_value(value: float, unit: str = "", digits: int = 4, scale: float | None = None) -> str:
     """Return `value` in engineering notation, for display.
 
     Parameters
@@ -374,6 +379,11 @@ def format_value(value: float, unit: str = "", digits: int = 4) -> str:
     unit : str, optional
     digits : int, optional
         Significant digits kept (trailing zeros are dropped).
+    scale : float, optional
+        The size of what `value` belongs to (a segment's step, the largest value of
+        its column): a value smaller than :data:`NEGLIGIBLE` (1e-12) times it is
+        written as 0.  A decaying state is exactly 0 only in the limit; 60 mA decayed
+        for 260 time constants is 7e-115 A, which no reader takes as a current.
 
     See Also
     --------
@@ -388,7 +398,11 @@ def format_value(value: float, unit: str = "", digits: int = 4) -> str:
     '0 V'
     >>> format_value(float("inf"), "s")
     'inf s'
+    >>> format_value(7.271e-115, "A"), format_value(7.271e-115, "A", scale=0.06)
+    ('727.1e-117 A', '0 A')
     """
+    if scale is not None and math.isfinite(scale) and abs(value) < NEGLIGIBLE * abs(scale):
+        value = 0.0
     if math.isinf(value) or math.isnan(value):
         text = repr(float(value))
         return f"{text} {unit}".strip()

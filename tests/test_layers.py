@@ -50,7 +50,7 @@ LAYERS = [
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",
     "io.analysis_format", "io.schema", "io",
     "analysis",
-    "plotting.palette", "plotting.format", "plotting.sampling", "plotting",
+    "plotting.palette", "plotting.format", "plotting.sampling", "plotting.error_view", "plotting",
     "report.tables", "report.mathml", "report.markdown", "report.figure", "report.html", "report",
     "widgets._loader", "widgets._drive_table", "widgets._plot", "widgets._session", "widgets._panels",
     "widgets._bench", "widgets",

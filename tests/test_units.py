@@ -5,6 +5,8 @@ import math
 import pytest
 
 from firstorder.errors import InputError
+import numpy as np
+
 from firstorder.units import format_value, parse_value
 
 
@@ -163,6 +165,16 @@ class TestFormatValue:
 
     def test_micro_sign(self):
         assert format_value(4.7e-6, "F") == "4.7 µF"
+
+    def test_a_value_negligible_against_its_scale_is_zero(self):
+        # 60 mA decayed for 260 time constants: 60 mA * e^-260 = 7.3e-115 A, rounding left over.
+        tiny = 0.06 * np.exp(-260.0)
+        assert format_value(tiny, "A", scale=0.06) == "0 A"
+        assert format_value(-tiny, "A", scale=0.06) == "0 A"
+        # At and above 1e-12 of the scale a value is a reading and keeps its prefix.
+        assert format_value(1e-12 * 0.06, "A", scale=0.06) == "60 fA"
+        assert format_value(3e-6, "V", scale=5.0) == "3 µV"
+        assert format_value(0.5, "V", scale=float("inf")) == "500 mV"
 
 
 # -- every public reader answers with an InputError ---------------------------------------

@@ -26,15 +26,17 @@ from bokeh.models import ColumnDataSource, HoverTool
 from bokeh.plotting import figure
 from bokeh.resources import INLINE
 
-from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, TOLERANCE_COLOUR, component_label, source_colour,
-                                switch_colour)
+from ..plotting.error_view import ErrorView
+from ..units import format_value
+from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, SAMPLE_FAIL, SAMPLE_PASS, TOLERANCE_COLOUR,
+                                component_label, source_colour, switch_colour)
 from ..plotting.sampling import envelope, plan_samples, step_envelope
 
 if TYPE_CHECKING:
     from ..response import Response
     from ..settling.tolerance import Tolerance
 
-__all__ = ["response_figure", "standalone_page", "MAX_DETAILED_SEGMENTS"]
+__all__ = ["error_figure", "response_figure", "standalone_page", "time_scale", "MAX_DETAILED_SEGMENTS"]
 
 MAX_DETAILED_SEGMENTS = 2_000
 POINTS_PER_SEGMENT = 24
@@ -51,14 +53,14 @@ _TEMPLATE = """
 {{ report_top }}
 <section id=plot><h2>Response</h2>
 {{ plot_caption }}
-{% for doc in docs %}{% for root in doc.roots %}{{ embed(root) }}{% endfor %}{% endfor %}
+<div class=plots>{% for doc in docs %}{% for root in doc.roots %}<div class=plot>{{ embed(root) }}</div>{% endfor %}{% endfor %}</div>
 </section>
 {{ report_bottom }}
 {% endblock %}
 """
 
 
-def _time_scale(span: float) -> tuple[float, str]:
+def time_scale(span: float) -> tuple[float, str]:
     """A factor and unit that put `span` seconds between 1 and 1000 on the axis."""
     for factor, unit in ((1.0, "s"), (1e3, "ms"), (1e6, "µs"), (1e9, "ns"), (1e12, "ps")):
         if span * factor >= 1.0:
@@ -131,14 +133,62 @@ def _drive_figure(response: "Response", factor: float, unit: str, detailed: bool
     return panel, switch_panel
 
 
-def response_figure(response: "Response", tolerance: "Tolerance | None" = None):
-    """The report's figure: drive above, response below, sharing the time axis.
+def error_figure(view: ErrorView, factor: float, unit: str, *, width: int = _FRAME_WIDTH, height: int = 300,
+                 x_range: Any = None):
+    """The error view: each segment's error against time on a log axis, its limit, its samples.
+
+    Parameters
+    ----------
+    view : ErrorView
+        From :func:`firstorder.plotting.error_view.error_view`.
+    factor, unit : float, str
+        Times are drawn as ``t * factor`` in `unit` (ms, µs, ...).
+    width, height : int, optional
+        The plot frame in pixels.
+    x_range : bokeh Range, optional
+        Share the time axis with another figure.
+
+    Returns
+    -------
+    bokeh figure
+    """
+    value_unit = view.unit
+    panel = figure(
+        height=height, frame_width=width, y_axis_type="log",
+        title=f"Error to the final value (a hold: to the value it holds), {value_unit}; log scale",
+        x_axis_label=f"time ({unit})", y_axis_label=f"|error| ({value_unit})",
+        tools="pan,xwheel_zoom,box_zoom,reset,save", **({"x_range": x_range} if x_range is not None else {}),
+    )
+    panel.line(view.t * factor, view.error, color=COMPONENT_COLOURS["total"], line_width=2, legend_label="error")
+    panel.line(view.limit_t * factor, view.limit, color="#1e8449", line_width=2, line_dash="dashed",
+               legend_label="tolerance")
+    if view.sample_t.size:
+        colours = np.where(view.sample_ok, SAMPLE_PASS, SAMPLE_FAIL).tolist()
+        source = ColumnDataSource({"t": view.sample_t * factor, "error": view.sample_error,
+                                   "limit": view.sample_limit, "colour": colours,
+                                   "margin": view.sample_limit / view.sample_error})
+        samples = panel.scatter("t", "error", source=source, size=9, color="colour", line_color="#1d2733",
+                                legend_label="sample (green inside, red outside)")
+        panel.add_tools(HoverTool(renderers=[samples], tooltips=[
+            (f"time ({unit})", "@t{0.000000}"), (f"error ({value_unit})", "@error{0.000e}"),
+            (f"limit ({value_unit})", "@limit{0.000e}"), ("limit / error", "@margin{0.00}")]))
+    panel.add_layout(panel.legend[0], "right")  # beside the plot: inside it would hide errors near the floor
+    return panel
+
+
+def response_figure(response: "Response", tolerance: "Tolerance | None" = None, table: Any = None):
+    """The report's figure: drive above, response below, sharing the time axis; the error
+    view under them when there is a settling table.
 
     Parameters
     ----------
     response : Response
     tolerance : Tolerance, optional
         Draws each segment's tolerance band around its final value.
+    table : pandas.DataFrame, optional
+        The settling table of the state: the band is drawn around what each segment
+        is judged against (a hold: the value it holds), the sample instants are
+        marked, and the error view (:func:`error_figure`) is added.
 
     Returns
     -------
@@ -148,7 +198,7 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None):
     drive = response.drive
     state_unit = response.fixture.state_unit
     span = float(drive.end - drive.times[0])
-    factor, unit = _time_scale(span)
+    factor, unit = time_scale(span)
     detailed = len(drive) <= MAX_DETAILED_SEGMENTS
     plan = None if detailed else _envelope_plan(response)
     plot = figure(
@@ -164,14 +214,23 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None):
         t = _detailed_times(response)
         components = ["forced", "natural", "zero_input", "zero_state", "total"]
         values = response.evaluate(t, tuple(components + (source_names if len(source_names) > 1 else [])))
-        if tolerance is not None:
-            step = np.abs(response.final - response.boundary[:-1])
-            limit = tolerance.limit(step)
+        if table is not None or tolerance is not None:
+            if table is not None:
+                from ..settling.table import judged_from  # one rule: a hold's band is on its held value
+
+                centre, limit = judged_from(table), table["tolerance"].to_numpy()
+            else:
+                centre, limit = response.final, tolerance.limit(np.abs(response.final - response.boundary[:-1]))
             x = np.append(drive.times, drive.end) * factor
-            low = np.append(response.final - limit, (response.final - limit)[-1])
-            high = np.append(response.final + limit, (response.final + limit)[-1])
+            low = np.append(centre - limit, (centre - limit)[-1])
+            high = np.append(centre + limit, (centre + limit)[-1])
             plot.varea_step(x=x, y1=low, y2=high, step_mode="after", fill_color=TOLERANCE_COLOUR,
                             fill_alpha=0.45, legend_label="tolerance band")
+        if table is not None and "sample_time" in table.columns:
+            ok = table["ok"].to_numpy(dtype=bool)
+            plot.scatter(table["sample_time"].to_numpy() * factor, table["value_at_sample"].to_numpy(), size=8,
+                         color=np.where(ok, SAMPLE_PASS, SAMPLE_FAIL).tolist(), line_color="#1d2733",
+                         legend_label="sample (green inside, red outside)")
         renderers = []
         for name in components:
             source = ColumnDataSource({"t": t * factor, "y": values[name]})
@@ -216,6 +275,16 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None):
             panel.legend.click_policy = "hide"
             panel.add_layout(panel.legend[0], "right")
     panels = [plot, drive_panel] + ([switch_panel] if switch_panel is not None else [])
+    if table is not None and detailed:
+        from ..plotting.error_view import error_view
+
+        view = error_view(response, table)
+        panels.append(error_figure(view, factor, unit, x_range=drive_panel.x_range))
+        caption += (" The last plot is each segment's error on a log scale, with the tolerance dashed and each "
+                    f"sample marked; an error below {format_value(view.floor, view.unit)} is drawn at it.")
+    for panel in panels:
+        # Shown while the pointer is over the plot: never printed, never covering the curves.
+        panel.toolbar.autohide = True
     return column(*panels), caption
 
 
@@ -228,6 +297,7 @@ def standalone_page(
     bottom_html: str,
     caption_html_for: Any,
     tolerance: "Tolerance | None" = None,
+    table: Any = None,
 ) -> str:
     """One self-contained HTML page: the given HTML around the figure, BokehJS inline.
 
@@ -235,9 +305,11 @@ def standalone_page(
     arguments are HTML already escaped by the caller, and
     `caption_html_for` turns the figure's plain-text caption into HTML.
     """
-    layout, caption = response_figure(response, tolerance)
+    layout, caption = response_figure(response, tolerance, table)
+    # One root per plot (they share one document, so the time axes stay linked): each is
+    # then a block of its own that a printed page does not cut in two.
     return file_html(
-        layout,
+        list(layout.children),
         resources=INLINE,
         title=title,
         template=_TEMPLATE,

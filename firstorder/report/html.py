@@ -44,9 +44,29 @@ _CSS = """
   ol.steps li { margin-bottom: 0.6em; }
   /* Display-style maths, set flush left under its caption (block math is centred). */
   div.eq { margin: 0.35em 0 0.35em 1.5em; }
-  div.eq math { display: inline math; math-style: normal; }
+  div.eq math { display: inline math; math-style: normal; font-size: 1.12em; }
   footer { margin-top: 2.5em; font-size: 0.85em; color: #5a6877; border-top: 1px solid #d5dee8; padding-top: 0.6em; }
   code { background: #eef2f6; padding: 0 0.25em; }
+  /* Print on A4 or Letter with nothing cut: the page is the printable width, the plots (drawn
+     at a fixed pixel width, about 1000 px with legend and toolbar) scale down to it, the toolbars hide
+     (shown only under the pointer), wide tables wrap their cells in a smaller type, and
+     headings, rows, equations and plots are not split across pages. */
+  /* On screen a table wider than the page scrolls in its own box (print shrinks it instead). */
+  @media screen { table.fo { display: block; max-width: 100%; overflow-x: auto; } }
+  @page { margin: 12mm; }
+  @media print {
+    body { max-width: none; margin: 0; padding: 0; font-size: 10pt; line-height: 1.35; }
+    h2 { margin-top: 1.1em; break-after: avoid; page-break-after: avoid; }
+    h3 { break-after: avoid; page-break-after: avoid; }
+    table.fo { font-size: 7pt; width: 100%; }
+    table.fo th, table.fo td { padding: 1px 3px; }
+    table.fo td.num { white-space: nowrap; }
+    tr, li, div.eq, .caution, .notes { break-inside: avoid; page-break-inside: avoid; }
+    div.plots { zoom: 0.66; }
+    div.plot { break-inside: avoid; page-break-inside: avoid; }
+    div.eq math { font-size: 1em; }
+    footer, .meta { color: #333; }
+  }
 </style>
 """
 
@@ -81,6 +101,11 @@ def _settling_html(analysis: "Analysis") -> str:
     verdict = (f"{not_settled} of {len(table)} segments do not settle within the tolerance before they end "
                "(settle time \"ends first\")"
                + (f"; {failed} fail at their sample instant" if "ok" in table.columns else "") + ".")
+    holds = int(table["hold"].to_numpy(dtype=bool).sum()) if "hold" in table.columns else 0
+    if holds:
+        verdict += (f" {holds} {'segment holds' if holds == 1 else 'segments hold'} (open switches cut the "
+                    f"capacitor off from every source): judged by droop, the change from the value held at the "
+                    f"change, against the tolerance (\"judged by\" column).")
     note = f" {left_out} rows that settled are left out; the CLI's <code>settle</code> lists them all." if left_out else ""
     return (f"<p>Tolerance {escape(str(analysis.tolerance))}. {escape(verdict)}{note}</p>"
             f"<table class=fo><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
@@ -111,7 +136,7 @@ def _derivations_html(analysis: "Analysis") -> str:
     for states, derivation in shown:
         parts.append(f"<h3>{escape(states_text(analysis.fixture, states))}</h3><ol class=steps>")
         for caption, equations in derivation_steps(derivation):
-            maths = "".join(f"<div class=eq>{mathml(equation)}</div>" for equation in equations)
+            maths = "".join(f"<div class=eq>{mathml(equation, derivation.names)}</div>" for equation in equations)
             parts.append(f"<li>{escape(caption)}{maths}</li>")
         parts.append("</ol>")
     if total > len(shown):
@@ -184,4 +209,5 @@ def html_report(analysis: "Analysis", now: str | None = None) -> str:
         bottom_html="".join(bottom),
         caption_html_for=lambda caption: f"<p class=meta>{escape(caption)}</p>",
         tolerance=analysis.tolerance,
+        table=analysis.settling() if analysis.tolerance is not None else None,
     )

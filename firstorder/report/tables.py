@@ -24,7 +24,7 @@ if TYPE_CHECKING:
     from ..fixture import Fixture
 
 __all__ = ["FULL_DRIVE_ROWS", "FULL_SETTLING_ROWS", "HEAD_ROWS", "MARGIN_ROWS", "MAX_DERIVATIONS", "TAIL_ROWS",
-           "drive_rows", "drive_summary_rows", "margin_rows", "part_rows", "probe_rows", "settling_cell",
+           "drive_rows", "drive_summary_rows", "hold_cells", "margin_rows", "part_rows", "probe_rows", "row_scales", "settling_cell",
            "settling_rows", "states_text", "summary_rows", "timestamp", "version"]
 
 #: A drive with at most this many changes is shown in full; longer ones are summarised.
@@ -75,7 +75,7 @@ def summary_rows(analysis: "Analysis") -> list[tuple[str, str]]:
         tau = response.tau[response.segment_configuration == index][0]
         text = "holds its state (no resistive path)" if math.isinf(tau) else format_value(float(tau), "s")
         rows.append((f"time constant ({states_text(fixture, states)})", text))
-    rows.append(("state at the end", format_value(float(response.boundary[-1]), unit)))
+    rows.append(("state at the end", format_value(float(response.boundary[-1]), unit, scale=response.end_scale())))
     rows.append(("tolerance", str(analysis.tolerance) if analysis.tolerance is not None else "none given"))
     delay = analysis.sample_delay
     if delay is None:
@@ -139,8 +139,33 @@ _SETTLING_UNITS = {
 }
 
 
-def settling_cell(column: str, value: Any, unit: str) -> str:
-    """One cell of a settling table as text: engineering notation, "yes"/"NO", "ends first"."""
+#: Column headings that are not the column's name with spaces.
+_HEADERS = {"hold": "judged by"}
+
+
+#: Columns written against their segment's scale (a residual of 1e-117 A after a 60 mA step is 0 A).
+_SCALED = frozenset({"start_value", "final", "residual_at_end", "value_at_sample", "error_at_sample"})
+
+
+def row_scales(table: "pd.DataFrame") -> np.ndarray:
+    """Per segment of a settling table, the size its values are written against: the
+    larger of its start value and its final value (see ``format_value``'s `scale`)."""
+    return np.maximum(np.abs(table["start_value"].to_numpy()), np.abs(table["final"].to_numpy()))
+
+
+def settling_cell(column: str, value: Any, unit: str, scale: float | None = None) -> str:
+    """One cell of a settling table as text: engineering notation, "yes"/"NO", "ends first";
+    the ``hold`` column says what the segment is judged by ("droop" or "settling").
+    Values of the watched quantity below 1e-12 of `scale` (the segment's size,
+    :func:`row_scales`) are written as 0.
+
+    Examples
+    --------
+    >>> settling_cell("residual_at_end", 7.271e-115, "A", scale=0.06), settling_cell("settled", True, "A")
+    ('0 A', 'yes')
+    """
+    if column == "hold":
+        return "droop" if value else "settling"  # what the error is taken from
     if isinstance(value, (bool, np.bool_)):
         return "yes" if value else "NO"
     if isinstance(value, (int, np.integer)):
@@ -155,7 +180,8 @@ def settling_cell(column: str, value: Any, unit: str) -> str:
         if settle_column:
             return format_value(number, "s", digits=5)
         known = _SETTLING_UNITS.get(column, None if column.startswith("error_") else "")
-        return format_value(number, known if known is not None else unit, digits=5)
+        return format_value(number, known if known is not None else unit, digits=5,
+                            scale=scale if column in _SCALED else None)
     return str(value)
 
 
@@ -165,7 +191,7 @@ def settling_rows(table: "pd.DataFrame", unit: str) -> tuple[list[str], list[tup
     A long table keeps its first rows and every segment that did not settle
     or failed at its sample, up to :data:`FULL_SETTLING_ROWS` in all.
     """
-    header = ["segment", *[str(c).replace("_", " ") for c in table.columns]]
+    header = ["segment", *[_HEADERS.get(str(c), str(c).replace("_", " ")) for c in table.columns]]
     bad = np.zeros(len(table), dtype=bool)
     if "settled" in table.columns:
         bad |= ~table["settled"].to_numpy(dtype=bool)
@@ -179,11 +205,21 @@ def settling_rows(table: "pd.DataFrame", unit: str) -> tuple[list[str], list[tup
         keep = np.union1d(first, failing)[:FULL_SETTLING_ROWS]
     columns = list(table.columns)
     values = [table[c].to_numpy() for c in columns]
+    scales = row_scales(table)
+    hold = table["hold"].to_numpy(dtype=bool) if "hold" in table.columns else np.zeros(len(table), dtype=bool)
     rows = []
     for k in keep.tolist():
-        cells = [settling_cell(c, v[k], unit) for c, v in zip(columns, values)]
+        cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
+        if hold[k]:
+            hold_cells(cells, columns)
         rows.append((k, cells, bool(bad[k])))
     return header, rows, len(table) - len(keep)
+
+
+def hold_cells(cells: list[str], columns: list[str]) -> None:
+    """A hold whose droop leaves the tolerance before its end does not "end first": it droops out."""
+    if "settle_time" in columns and cells[columns.index("settle_time")] == "ends first":
+        cells[columns.index("settle_time")] = "droops out"
 
 
 def margin_rows(table: "pd.DataFrame", unit: str,
@@ -192,7 +228,9 @@ def margin_rows(table: "pd.DataFrame", unit: str,
 
     Every segment of a short table; of a long one the `count` segments with the
     least margin (limit minus the error at the sample, or at the end without
-    sample columns), in segment order.  Cells as :func:`settling_cell` writes them.
+    sample columns), in segment order.  Cells as :func:`settling_cell` writes them;
+    a hold's "final" cell is the value it holds ("held 2.5 V"), which its droop is
+    taken from.
 
     Examples
     --------
@@ -214,8 +252,14 @@ def margin_rows(table: "pd.DataFrame", unit: str,
         keep = np.sort(np.argsort(margin, kind="stable")[:count])
         caption = f"the {count} segments with the least margin, of {len(table)}"
     values = [table[c].to_numpy() for c in columns]
+    hold = table["hold"].to_numpy(dtype=bool) if "hold" in table.columns else np.zeros(len(table), dtype=bool)
+    start_value = table["start_value"].to_numpy()
+    scales = row_scales(table)
     rows = []
     for k in keep.tolist():
-        cells = [settling_cell(c, v[k], unit) for c, v in zip(columns, values)]
+        cells = [settling_cell(c, v[k], unit, scales[k]) for c, v in zip(columns, values)]
+        if hold[k]:  # judged as droop from the value it holds, not against the leak's final value
+            cells[1] = "held " + settling_cell("start_value", start_value[k], unit, scales[k])
+            hold_cells(cells, columns)
         rows.append((k, cells, not bool(values[-1][k])))
     return header, rows, caption

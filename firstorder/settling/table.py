@@ -10,6 +10,11 @@ so its error ``|start - final| * exp(-(t - s_k) / tau_k)`` falls monotonically a
 the settle time is ``tau_k * ln(|start - final| / limit)`` (zero when the step is
 already within the limit).  No search, no sampling grid.
 
+A hold (:func:`hold_segments`: open switches cut the capacitor off from every
+source, and only leakage moves it) is judged as droop: its error is the change
+from the value it started holding, ``|start - final| * (1 - exp(-(t - s_k) / tau_k))``,
+which only grows (see DESIGN.md, Semantics).
+
 :func:`sample_delays` is the one rule for what a sample delay may be; the
 settling table, the plans, the analysis file and the Bench all use it.
 """
@@ -28,11 +33,13 @@ from ..units import format_value, parse_array, parse_value, shown
 from .tolerance import Tolerance
 
 __all__ = ["SAMPLE_COLUMNS", "TABLE_COLUMNS", "SettlingSummary", "check_tolerance", "check_unit", "constant_probe",
-           "sample_delays", "Watched", "settling_summary", "settling_table", "table_summary", "watched"]
+           "hold_segments", "judged_from", "sample_delays", "Watched", "settling_summary", "settling_table",
+           "table_summary", "watched"]
 
 
 #: Columns of :func:`settling_table`, in order; the sample columns follow with a delay.
-TABLE_COLUMNS = ("start", "end", "start_value", "final", "tolerance", "settle_time", "settled", "residual_at_end")
+TABLE_COLUMNS = ("start", "end", "start_value", "final", "tolerance", "settle_time", "settled", "residual_at_end",
+                 "hold")
 SAMPLE_COLUMNS = ("sample_time", "value_at_sample", "error_at_sample", "ok")
 
 
@@ -173,6 +180,60 @@ def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sam
     return delays
 
 
+def hold_segments(response: Any) -> np.ndarray:
+    """Per segment: True where the capacitor holds, cut off from every source by open switches.
+
+    The rule: the storage element is a capacitor, the segment has a switch open, and with
+    every open switch taken as an open circuit (its leakage ``r_off`` removed) no source
+    level reaches the capacitor's final value (each gain is an exact zero: the network
+    layer decides structural zeros from a generic solve, not from the numbers).  What then
+    moves the held voltage is leakage only (an open relay's ``r_off``, a meter's input
+    resistance), so the segment is judged as droop from the value at its change, not
+    against the value the leakage would end at.  A configuration with no resistive path at
+    all (tau = inf) holds too.  A discharge through a closed switch to ground with no
+    source in reach counts as a hold as well: give a target to judge it against 0 V.
+
+    Examples
+    --------
+    >>> import firstorder as fo
+    >>> fx = (fo.Fixture().voltage_source("vdac", "dac", "gnd").resistor("rs", "dac", "sw", "1k")
+    ...       .switch("k", "sw", "h", r_on="0.1", r_off="1G").capacitor("ch", "h", "gnd", "10n")
+    ...       .resistor("r_meter", "h", "gnd", "10M"))
+    >>> res = fx.respond(fo.Drive([0, "1m"], end="2m", vdac=[2.5, 2.5], k=[1, 0]))
+    >>> hold_segments(res).tolist()
+    [False, True]
+    """
+    segments = response.segments
+    fixture = getattr(response, "fixture", None)
+    n = len(segments)
+    if fixture is None or segments.storage_kind != "capacitor" or not fixture.switches:
+        return np.zeros(n, dtype=bool)
+    # The same parts with ideal open switches: only what the closed switches connect remains.
+    ideal = fixture.with_values(**{p.name: (p.r_on, math.inf) for p in fixture.switches})
+    per_configuration = np.array([
+        not all(states) and not np.any(ideal.configuration(states)[1].gain != 0.0)
+        for states in segments.configurations
+    ], dtype=bool)
+    return per_configuration[segments.configuration_of]
+
+
+def judged_from(table: Any) -> np.ndarray:
+    """Per segment of a settling table, the value its error is taken from: the final value,
+    or for a hold (column ``hold``) the value it started holding.  The plots centre the
+    tolerance band on it.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> judged_from(pd.DataFrame({"start_value": [0.0, 2.0], "final": [1.0, 0.5], "hold": [False, True]})).tolist()
+    [1.0, 2.0]
+    """
+    final = table["final"].to_numpy()
+    if "hold" not in table.columns:
+        return final
+    return np.where(table["hold"].to_numpy(dtype=bool), table["start_value"].to_numpy(), final)
+
+
 def check_tolerance(tolerance: Any) -> Tolerance:
     """`tolerance` if it is a :class:`Tolerance`; else an InputError saying how to build one."""
     if not isinstance(tolerance, Tolerance):
@@ -212,7 +273,8 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
         ``start_value``, ``final``, ``tolerance`` (the absolute limit used),
         ``settle_time`` (seconds after the change from which the error stays
         within the limit; NaN when the segment ends first), ``settled``,
-        ``residual_at_end`` (``|value at the end - final|``) and, with
+        ``residual_at_end`` (``|value at the end - final|``), ``hold`` (judged as
+        droop, :func:`hold_segments`) and, with
         `sample_delay`, ``sample_time``, ``value_at_sample``,
         ``error_at_sample`` and ``ok`` (``error_at_sample <= tolerance``).
 
@@ -234,6 +296,12 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
     exp(-t/tau)``, which only falls, so the settle time is ``tau *
     ln(|start_value - final| / limit)`` where that is positive and 0 otherwise.  A
     segment that holds its state (tau = inf) does not move and is settled at 0.
+
+    A hold (``hold`` True) is judged as droop from ``start_value``: its error
+    ``|start_value - final| * (1 - exp(-t/tau))`` only grows, so it is settled at 0
+    when the droop at its end is within the limit and never otherwise (NaN, "ends
+    first"); ``residual_at_end`` and ``error_at_sample`` are the droop there.  A
+    relative tolerance of a hold is taken of the held value ``|start_value|``.
 
     Examples
     --------
@@ -269,6 +337,18 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
     limit, settle_time, settled, residual = settling_columns(
         quantity.start, quantity.final, response.tau, response.decay, response.starts, response.ends,
         value, relative)
+    hold = hold_segments(response)
+    any_hold = bool(hold.any())
+    if any_hold:
+        # Droop from the held value: |start - final| (1 - e^(-d/tau)), -expm1 for short delays.
+        durations = response.ends - response.starts
+        droop_end = quantity.step * -np.expm1(-durations * quantity.rate)
+        if relative:
+            limit = np.where(hold, value * np.abs(quantity.start), limit)
+        within = droop_end <= limit
+        settle_time = np.where(hold, np.where(within, 0.0, np.nan), settle_time)
+        settled = np.where(hold, within, settled)
+        residual = np.where(hold, droop_end, residual)
     columns: dict[str, Any] = {
         "start": response.starts,
         "end": response.ends,
@@ -278,12 +358,15 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
         "settle_time": settle_time,
         "settled": settled,
         "residual_at_end": residual,
+        "hold": hold,
     }
     if sample_delay is not None:
         durations = response.drive.durations
         delays = sample_delays(sample_delay, durations, field="sample_delay", what="segment", ends=response.ends)
         decay = exp_in_place(-delays * quantity.rate)
         error = quantity.step * decay
+        if any_hold:
+            error = np.where(hold, quantity.step * -np.expm1(-delays * quantity.rate), error)
         columns["sample_time"] = response.starts + delays
         # final + (start - final) * decay, the left limit at a delay that reaches the next change.
         columns["value_at_sample"] = quantity.final + (quantity.start - quantity.final) * decay

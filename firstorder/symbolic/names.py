@@ -21,7 +21,7 @@ makes text safe inside ``\\text{}``.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 import sympy as sp
@@ -31,7 +31,7 @@ from ..errors import InputError
 if TYPE_CHECKING:
     from ..netlist import Netlist
 
-__all__ = ["DerivationNames", "derivation_names", "latex_name", "latex_text"]
+__all__ = ["DerivationNames", "derivation_names", "latex_name", "latex_text", "name_parts"]
 
 
 
@@ -57,6 +57,12 @@ class DerivationNames:
     time_constant, resistance, equivalent : sympy.Symbol
         ``tau`` and the equivalent the steps name first and use after:
         ``R_th`` and ``V_th`` for a capacitor, ``R_N`` and ``I_N`` for an inductor.
+    written : dict of sympy.Symbol to str
+        Symbols written otherwise than their name: a switch's resistance ``k1_on`` is
+        written ``R_k1,on`` (R with subscript "k1,on"), named apart from the parts
+        like every other made name.
+    units : dict of sympy.Symbol to str
+        The unit of each part's symbol (Ω, F, H), for the part values.
     """
 
     symbols: dict[str, sp.Symbol]
@@ -66,6 +72,8 @@ class DerivationNames:
     time_constant: sp.Symbol
     resistance: sp.Symbol
     equivalent: sp.Symbol
+    written: dict[sp.Symbol, str] = field(default_factory=dict)
+    units: dict[sp.Symbol, str] = field(default_factory=dict)
 
     @property
     def t(self) -> sp.Symbol:
@@ -77,21 +85,35 @@ class DerivationNames:
         """The state at that change (``v_0`` or ``i_0``)."""
         return self.symbols["initial"]
 
+    def name_of(self, symbol: sp.Symbol) -> str:
+        """The name `symbol` is written with (``R_k1,on`` for switch k1's resistance),
+        before :func:`name_parts` splits it; the time constant is ``tau``.
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> fx = fo.Fixture().voltage_source("v", "a", "gnd").switch("k_hold", "a", "b", r_on="1")
+        >>> names = derivation_names(fx.capacitor("c", "b", "gnd", "1n").netlist, (True,))
+        >>> names.symbols["k_hold"], names.name_of(names.symbols["k_hold"]), names.latex(names.symbols["k_hold"])
+        (k_hold_on, 'R_k_hold,on', 'R_{\\\\mathrm{k\\\\_hold,on}}')
+        """
+        return self.written.get(symbol, symbol.name)
+
     def latex(self, symbol: sp.Symbol) -> str:
-        r"""How `symbol` is written in LaTeX: ``\tau`` for the time constant, every
-        other name as typed (:func:`latex_name`).
+        r"""How `symbol` is written in LaTeX: ``\tau`` for the time constant, a switch's
+        resistance as ``R_{k1,on}``, every other name as typed (:func:`latex_name`).
 
         Examples
         --------
         >>> import firstorder as fo
         >>> names = derivation_names(fo.Fixture.rc(r="10k", c="100n").netlist, ())
         >>> names.latex(names.time_constant), names.latex(names.start), names.latex(names.resistance)
-        ('\\tau', 'v_{0}', 'R_{th}')
+        ('\\tau', 'v_{0}', 'R_{\\mathrm{th}}')
         """
         # Compared as symbols, not by name: a part typed "tau" is still written as typed.
         if symbol == self.time_constant:
             return r"\tau"
-        return latex_name(symbol.name)
+        return latex_name(self.name_of(symbol))
 
 
 def derivation_names(netlist: "Netlist", states: tuple[bool, ...]) -> DerivationNames:
@@ -159,13 +181,20 @@ def derivation_names(netlist: "Netlist", states: tuple[bool, ...]) -> Derivation
 
     probes = {probe.name: reserved(probe.name) for probe in netlist.probes}
     symbols: dict[str, sp.Symbol] = {}
+    written: dict[sp.Symbol, str] = {}
+    units: dict[sp.Symbol, str] = {}
     for part in netlist.parts:
         if part.kind == "switch":
-            symbols[part.name] = reserved(f"{part.name}_{'on' if closed[part.name] else 'off'}", positive=True)
+            state = "on" if closed[part.name] else "off"
+            symbol = symbols[part.name] = reserved(f"{part.name}_{state}", positive=True)
+            # Written R_{k1,on}: a resistance, named for its switch (apart from any part's name).
+            written[symbol] = reserved(f"R_{part.name},{state}").name
+            units[symbol] = "Ω"
         elif part.is_source:
             symbols[part.name] = sp.Symbol(part.name, real=True)  # a level may be negative
         else:
             symbols[part.name] = sp.Symbol(part.name, positive=True)
+            units[symbols[part.name]] = _PART_UNITS.get(part.kind, "")
     storage = netlist.storage
     letter = "v" if storage.kind == "capacitor" else "i"
     t = reserved("t", nonnegative=True)
@@ -185,7 +214,12 @@ def derivation_names(netlist: "Netlist", states: tuple[bool, ...]) -> Derivation
         time_constant=reserved("tau", positive=True),
         resistance=reserved(resistance),
         equivalent=reserved(equivalent),
+        written=written,
+        units=units,
     )
+
+
+_PART_UNITS = {"resistor": "Ω", "capacitor": "F", "inductor": "H"}
 
 
 # Characters LaTeX will not take as they stand, in a name (math mode) and in \text{}.
@@ -201,13 +235,36 @@ def _escape_name(text: str) -> str:
     return "".join(_LATEX_NAME_SPECIALS.get(c, c) for c in text)
 
 
+def name_parts(name: str) -> tuple[str, str, str]:
+    """`name` split the way it is written: (base, subscript, primes).
+
+    The one split every printer uses (LaTeX here, MathML in the report): the part
+    before the first underscore is the base, the rest (underscores kept) the
+    subscript, and trailing primes are set after the subscript, as by hand.
+
+    Examples
+    --------
+    >>> name_parts("r_bus_leak"), name_parts("v_0'"), name_parts("vdac"), name_parts("a_")
+    (('r', 'bus_leak', ''), ('v', '0', "'"), ('vdac', '', ''), ('a_', '', ''))
+    """
+    body = name.rstrip("'") or name
+    primes = "'" * (len(name) - len(body))
+    head, _, tail = body.partition("_")
+    if not tail:
+        # A name ending in its only underscore ("a_") is not the name without it ("a").
+        return body, "", primes
+    return head, tail, primes
+
+
 def latex_name(name: str) -> str:
     r"""A name as LaTeX, as the user typed it.
 
-    The part before the first underscore is the base (upright when it is longer
-    than one letter), the rest its subscript: ``r_bus_leak`` is r with subscript
-    bus_leak.  A name is never read as sympy's name modifiers (sympy would print
-    ``vcal`` as a calligraphic v and ``rbar`` as r with a bar).
+    The part before the first underscore is the base, the rest its subscript
+    (:func:`name_parts`): ``r_bus_leak`` is r with subscript bus_leak.  A base or
+    subscript longer than one letter is upright (it is a word, not a product of
+    letters), as the report's MathML sets it.  A name is never read as sympy's
+    name modifiers (sympy would print ``vcal`` as a calligraphic v and ``rbar``
+    as r with a bar).
 
     Parameters
     ----------
@@ -221,7 +278,7 @@ def latex_name(name: str) -> str:
     Examples
     --------
     >>> latex_name("r_bus_leak")
-    'r_{bus\\_leak}'
+    'r_{\\mathrm{bus\\_leak}}'
     >>> latex_name("vcal")
     '\\mathrm{vcal}'
     >>> latex_name("c")
@@ -234,16 +291,15 @@ def latex_name(name: str) -> str:
     latex_text : text (a caption) for ``\text{}``.
     DerivationNames.latex : a derivation's symbol, with ``\tau`` for its time constant.
     """
-    # Trailing primes (a derivation's own names yield to part names with one: v_0') are set
-    # after the subscript, as primes are written by hand.
-    body = name.rstrip("'") or name
-    primes = "'" * (len(name) - len(body))
-    head, underscore, tail = body.partition("_")
-    head = _escape_name(head) if len(head) == 1 else rf"\mathrm{{{_escape_name(head)}}}"
+    head, tail, primes = name_parts(name)
+    text = _upright(head)
     if tail:
-        return f"{head}_{{{_escape_name(tail)}}}{primes}"
-    # A name ending in its only underscore ("a_") is not the name without it ("a").
-    return (head if not underscore else rf"\mathrm{{{_escape_name(body)}}}") + primes
+        text += f"_{{{_upright(tail)}}}"
+    return text + primes
+
+
+def _upright(text: str) -> str:
+    return _escape_name(text) if len(text) == 1 else rf"\mathrm{{{_escape_name(text)}}}"
 
 
 def latex_text(text: str) -> str:

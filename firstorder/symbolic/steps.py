@@ -11,10 +11,13 @@ and ``.markdown()`` return), and the HTML report as MathML
 (:func:`firstorder.report.mathml.mathml`).
 
 :func:`to_latex` is the printer: sympy's LaTeX printer with every name written
-as typed (:func:`~firstorder.symbolic.names.latex_name`), the state as
-``v_{ch}{\left(t \right)}``, a first derivative as ``\frac{d v_{ch}}{dt}``,
-sums in the order the steps build them, and a thin space between factors
-(``\mathrm{rbar} \mathrm{vcal}`` would run together as one word).
+as typed (:func:`~firstorder.symbolic.names.latex_name`; a switch's resistance as
+``R_{\mathrm{k1,on}}``), the state as ``v_{\mathrm{ch}}{\left(t \right)}``, a
+first derivative as ``\frac{\mathrm{d} v_{\mathrm{ch}}}{\mathrm{d}t}`` (an upright d, as in the MathML), the decay as ``e^{-t/\tau}``,
+sums in the order the steps build them, a centred dot between factors
+(``\mathrm{rbar} \cdot \mathrm{vcal}``: names of several letters would run
+together as one word), and part values in engineering notation with their unit
+(:class:`PartValue`).
 
 This module reads the attributes of the derivation it is given and imports no
 module above it: :mod:`.derivation` imports it.
@@ -29,12 +32,13 @@ from sympy.core.function import AppliedUndef
 from sympy.printing.latex import LatexPrinter
 from sympy.printing.precedence import PRECEDENCE
 
+from ..units import format_value
 from .names import DerivationNames, latex_name, latex_text
 
 if TYPE_CHECKING:
     from .derivation import Derivation
 
-__all__ = ["PowerOfE", "Step", "aligned_latex", "derivation_steps", "latex_steps", "markdown_steps", "markdown_text",
+__all__ = ["PartValue", "PowerOfE", "Step", "aligned_latex", "derivation_steps", "latex_steps", "markdown_steps", "markdown_text",
            "step_latex", "to_latex"]
 
 
@@ -66,33 +70,117 @@ class PowerOfE(sp.Function):
         return f"e^{{{sign}{top}/{bottom}}}"
 
     def _mathml_presentation(self, printer):
-        element = printer.dom.createElement("msup")
-        base = printer.dom.createElement("mi")
-        base.appendChild(printer.dom.createTextNode("e"))
-        element.appendChild(base)
-        element.appendChild(printer._print(self.args[0]))
-        return element
+        # As in LaTeX: a folded t/tau, not a stacked fraction too small to read in an exponent.
+        dom = printer.dom
+
+        def node(tag, *children, text=None):
+            element = dom.createElement(tag)
+            if text is not None:
+                element.appendChild(dom.createTextNode(text))
+            for child in children:
+                element.appendChild(child)
+            return element
+
+        exponent = self.args[0]
+        numerator, denominator = sp.fraction(exponent)
+        if denominator == 1:
+            power = printer._print(exponent)
+        else:
+            parts = []
+            if numerator.could_extract_minus_sign():
+                parts.append(node("mo", text="-"))
+                numerator = -numerator
+            slash = node("mo", text="/")
+            slash.setAttribute("lspace", "0")  # t/τ set close, as in the LaTeX
+            slash.setAttribute("rspace", "0")
+            parts += [printer.parenthesize(numerator, PRECEDENCE["Mul"], strict=True), slash,
+                      printer.parenthesize(denominator, PRECEDENCE["Mul"])]
+            power = node("mrow", *parts)
+        return node("msup", node("mi", text="e"), power)
 
 
-_THIN_SPACE = r" \, "  # between factors: "\mathrm{rbar} \mathrm{vcal}" would read as one word
+class PartValue(sp.Expr):
+    r"""A part value as a reader writes it: engineering notation with its unit (``4.99 kΩ``).
+
+    sympy writes the float 4990.0 as ``4990.0`` and 1e7 as ``1.0 \cdot 10^{7}``; a
+    part value reads ``4.99\ \mathrm{k\Omega}``.  ``float()`` gives the value back.
+
+    Examples
+    --------
+    >>> value = PartValue(4990.0, "Ω")
+    >>> to_latex(value), str(value), float(value)
+    ('4.99\\ \\mathrm{k\\Omega}', '4.99 kΩ', 4990.0)
+    """
+
+    is_number = True
+    is_real = True
+
+    def __new__(cls, value: float, unit: str = "") -> "PartValue":
+        return sp.Expr.__new__(cls, sp.Float(value), sp.Symbol(unit or "1"))
+
+    @property
+    def value(self) -> float:
+        return float(self.args[0])
+
+    @property
+    def unit(self) -> str:
+        unit = self.args[1].name
+        return "" if unit == "1" else unit
+
+    @property
+    def text(self) -> str:
+        """The value as :func:`~firstorder.units.format_value` writes it."""
+        return format_value(self.value, self.unit)
+
+    def __float__(self) -> float:
+        return self.value
+
+    def _eval_evalf(self, prec):
+        return self.args[0]._eval_evalf(prec)
+
+    def _sympystr(self, printer) -> str:
+        return self.text
+
+    def _latex(self, printer) -> str:
+        number, _, unit = self.text.partition(" ")
+        number = r"\infty" if number == "inf" else number
+        if not unit:
+            return number
+        return rf"{number}\ \mathrm{{{''.join(_LATEX_UNIT_SIGNS.get(c, c) for c in unit)}}}"
+
+    def _mathml_presentation(self, printer):
+        number, _, unit = self.text.partition(" ")
+        row = printer.dom.createElement("mrow")
+        mn = printer.dom.createElement("mn")
+        mn.appendChild(printer.dom.createTextNode("∞" if number == "inf" else number))
+        row.appendChild(mn)
+        if unit:
+            space = printer.dom.createElement("mspace")
+            space.setAttribute("width", "0.25em")
+            row.appendChild(space)
+            mi = printer.dom.createElement("mi")
+            mi.setAttribute("mathvariant", "normal")
+            mi.appendChild(printer.dom.createTextNode(unit))
+            row.appendChild(mi)
+        return row
+
+
+#: Signs of units and prefixes that LaTeX writes by name.
+_LATEX_UNIT_SIGNS = {"Ω": r"\Omega", "µ": r"\mu{}"}
+
 
 
 class _StepLatexPrinter(LatexPrinter):
     """sympy's LaTeX printer with names as typed, the state as a function and d/dt as a fraction."""
 
     def __init__(self, names: DerivationNames | None = None) -> None:
-        super().__init__({"mul_symbol": _THIN_SPACE})
+        super().__init__({"mul_symbol": "dot"})
         self._names = names
 
     def _print_Add(self, expr: sp.Add, order: str | None = None) -> str:
         # Sums print in the order they were built (evaluated sums are in sympy's canonical
         # order either way); factors keep sympy's order.  The report's MathML does the same.
         return super()._print_Add(expr, order="none")
-
-    def _print_Mul(self, expr: sp.Mul) -> str:
-        # The thin space sets names apart; a bracket does that by itself.
-        text = super()._print_Mul(expr)
-        return text.replace(_THIN_SPACE + r"\left(", r" \left(").replace(r"\right)" + _THIN_SPACE, r"\right) ")
 
     def _print_Symbol(self, expr: sp.Symbol, style: str = "plain") -> str:
         return self._names.latex(expr) if self._names is not None else latex_name(expr.name)
@@ -107,7 +195,8 @@ class _StepLatexPrinter(LatexPrinter):
         if isinstance(expr.expr, AppliedUndef) and len(expr.variable_count) == 1:
             ((variable, count),) = expr.variable_count
             if count == 1:
-                return rf"\frac{{d {latex_name(expr.expr.func.__name__)}}}{{d{self._print(variable)}}}"
+                return (rf"\frac{{\mathrm{{d}} {latex_name(expr.expr.func.__name__)}}}"
+                        rf"{{\mathrm{{d}}{self._print(variable)}}}")
         return super()._print_Derivative(expr)
 
 
@@ -131,12 +220,12 @@ def to_latex(expression: sp.Basic, names: DerivationNames | None = None) -> str:
     --------
     >>> t = sp.Symbol("t")
     >>> to_latex(sp.Symbol("vcal") * sp.Symbol("r_bus_leak"))
-    'r_{bus\\_leak} \\, \\mathrm{vcal}'
+    'r_{\\mathrm{bus\\_leak}} \\cdot \\mathrm{vcal}'
     >>> v = sp.Function("v_ch")(t)
     >>> to_latex(sp.Eq(sp.Derivative(v, t), -v, evaluate=False))
-    '\\frac{d v_{ch}}{dt} = - v_{ch}{\\left(t \\right)}'
+    '\\frac{\\mathrm{d} v_{\\mathrm{ch}}}{\\mathrm{d}t} = - v_{\\mathrm{ch}}{\\left(t \\right)}'
     >>> to_latex(v.subs(t, sp.oo))
-    'v_{ch}{\\left(\\infty \\right)}'
+    'v_{\\mathrm{ch}}{\\left(\\infty \\right)}'
 
     See Also
     --------
@@ -240,9 +329,9 @@ def derivation_steps(derivation: "Derivation") -> list[Step]:
     for probe, expression in d.probes.items():
         steps.append(Step(f"Probe {probe}", (_equal(names.probes[probe], expression),)))
     if d.values:
-        numbers = [_equal(symbol, sp.Float(value, 4)) for symbol, value in d.values.items()]
-        tau_number = sp.oo if d.holds else sp.Float(float(d.substitute(d.tau)), 4)
-        steps.append(Step("With the part values (SI units)", (*numbers, _equal(tau, tau_number))))
+        numbers = [_equal(symbol, PartValue(value, names.units.get(symbol, ""))) for symbol, value in d.values.items()]
+        tau_number = sp.oo if d.holds else PartValue(float(d.substitute(d.tau)), "s")
+        steps.append(Step("With the part values", (*numbers, _equal(tau, tau_number))))
         if not d.holds:
             steps.append(Step("Final value with the part values",
                               (_equal(at_infinity, d.substitute(d.final).evalf(4)),)))
@@ -253,7 +342,7 @@ def step_latex(step: Step, names: DerivationNames | None = None) -> str:
     r"""The equations of `step` as one line of LaTeX.
 
     Equations side by side are set apart by a comma and a quad; consecutive
-    equations with the same left side are chained (``\tau = c \, R_{th} = c \, r``).
+    equations with the same left side are chained (``\tau = c \cdot R_{\mathrm{th}} = c \cdot r``).
 
     Parameters
     ----------
@@ -269,7 +358,7 @@ def step_latex(step: Step, names: DerivationNames | None = None) -> str:
     --------
     >>> r, c, tau = sp.symbols("r c tau", positive=True)
     >>> step_latex(Step("Time constant", (sp.Eq(tau, r * c), sp.Eq(tau, 1e-3), sp.Eq(r, 1e4))))
-    '\\mathrm{tau} = c \\, r = 0.001,\\quad r = 10000.0'
+    '\\mathrm{tau} = c \\cdot r = 0.001,\\quad r = 10000.0'
 
     See Also
     --------
@@ -294,7 +383,7 @@ def latex_steps(derivation: "Derivation") -> list[tuple[str, str]]:
     --------
     >>> import firstorder as fo
     >>> dict(latex_steps(fo.Fixture.rc(r="10k", c="100n").derivation()))["Time constant"]
-    '\\tau = R_{th} \\, c = c \\, r'
+    '\\tau = R_{\\mathrm{th}} \\cdot c = c \\cdot r'
 
     See Also
     --------
@@ -311,7 +400,7 @@ def aligned_latex(derivation: "Derivation") -> str:
     --------
     >>> import firstorder as fo
     >>> print(aligned_latex(fo.Fixture.rc(r="10k", c="100n").derivation()).splitlines()[1])
-    &\text{Equivalent seen by capacitor c (no switches):}\\ &\quad R_{th} = r,\quad V_{th} = \mathrm{vin} \\
+    &\text{Equivalent seen by capacitor c (no switches):}\\ &\quad R_{\mathrm{th}} = r,\quad V_{\mathrm{th}} = \mathrm{vin} \\
 
     See Also
     --------
@@ -330,7 +419,7 @@ def markdown_steps(derivation: "Derivation") -> str:
     >>> paragraphs = markdown_steps(fo.Fixture.rc(r="10k", c="100n").derivation()).split("\n\n")
     >>> print(paragraphs[4], paragraphs[5], sep="\n")
     **The ODE**
-    $$ \frac{d v_{c}}{dt} = \frac{V_{th} - v_{c}{\left(t \right)}}{R_{th} \, c} $$
+    $$ \frac{\mathrm{d} v_{c}}{\mathrm{d}t} = \frac{V_{\mathrm{th}} - v_{c}{\left(t \right)}}{R_{\mathrm{th}} \cdot c} $$
 
     See Also
     --------

@@ -27,6 +27,7 @@ from ._session import SETUP_KEYS, BenchSession, part_fields
 __all__ = ["Bench"]
 
 _DERIVATION_TAB, _SETTLING_TAB = panels.TAB_TITLES.index("Derivation"), panels.TAB_TITLES.index("Settling")
+_ERROR_TAB = panels.TAB_TITLES.index("Error view")
 #: Every session trait a drawing depends on.
 _WATCHED = ["texts", "errors", "notice", "table", "drive", "view", "probe", "response", "settling", "summary", "residual",
             "curves", "segment"]
@@ -137,7 +138,9 @@ class Bench(widgets.VBox):
         self.table_source.selected.on_change("indices", self._on_table_selection)
         self.status, self.info, self.cautions_panel = widgets.HTML(), widgets.HTML(), widgets.HTML()
         self.derivation, self.settling_panel = widgets.HTMLMath(value=""), widgets.HTML(value="")
-        self.tabs = panels.tab_panel([editor.box, generators.box, self.derivation, self.settling_panel, export.box])
+        self.error_view = widgets.VBox()
+        self.tabs = panels.tab_panel([editor.box, generators.box, self.derivation, self.settling_panel, export.box,
+                                      self.error_view])
         self.tabs.observe(lambda change: self._refresh(), names="selected_index")
         left = widgets.VBox([parts.box, setup.box, view.box], layout=widgets.Layout(width="320px", min_width="320px"))
         self.header = widgets.HTML()
@@ -336,6 +339,12 @@ class Bench(widgets.VBox):
         self._redraw("derivation", (s.fixture, s.response, s.segment, s.probe),
                      lambda: setattr(self.derivation, "value", panels.derivation_html(s)),
                      when=tab == _DERIVATION_TAB or s.segment != shown_segment)
+        self._redraw("error view", (s.response, s.settling, s.probe, s.view),
+                     self._show_error_view, when=tab == _ERROR_TAB)
+
+    def _show_error_view(self) -> None:
+        # A new figure each time it is looked at after a change (a few ms; it is not on the edit path).
+        self.error_view.children = panels.error_view_children(self.session)
 
     def _redraw(self, part: str, inputs: tuple, draw, when: bool = True) -> None:
         drawn = self._drawn.get(part)

@@ -28,13 +28,13 @@ from ._drive_table import DriveText
 from ._plot import MAX_HANDLES
 from ._session import BenchSession, PartField
 
-__all__ = ["DriveEditor", "ExportPanel", "FieldsPanel", "GeneratorsPanel", "TAB_TITLES", "ViewPanel",
-           "cautions_html", "derivation_html", "drive_editor", "error_html", "export_panel", "generators_panel",
+__all__ = ["DriveEditor", "ERROR_VIEW_SEGMENTS", "ExportPanel", "FieldsPanel", "GeneratorsPanel", "TAB_TITLES",
+           "ViewPanel", "cautions_html", "derivation_html", "drive_editor", "error_html", "error_view_children", "export_panel", "generators_panel",
            "header_html", "info_html", "parts_panel", "settling_html", "setup_panel", "status_html", "tab_panel",
            "value_label", "view_panel"]
 
 #: Tabs under the plot, in order.
-TAB_TITLES = ("Drive table", "Generators", "Derivation", "Settling", "Export")
+TAB_TITLES = ("Drive table", "Generators", "Derivation", "Settling", "Export", "Error view")
 _ERROR_STYLE = "color:#b03a2e;font-size:0.85em"
 _HINT_STYLE = "color:#566573;font-size:0.85em"
 
@@ -340,7 +340,7 @@ def info_html(session: BenchSession, mode: str) -> str:
         format_value(float(finite[0]), "s") if np.ptp(finite) == 0 else
         f"{format_value(float(finite.min()), 's')} to {format_value(float(finite.max()), 's')}")
     parts = [f"τ {tau_text}", f"{len(response.drive)} segments", f"start {format_value(response.initial, unit)}",
-             f"end {format_value(float(response.boundary[-1]), unit)}",
+             f"end {format_value(float(response.boundary[-1]), unit, scale=response.end_scale())}",
              "plot: every segment drawn" if mode == "line" else "plot: min/max per pixel (zoom in for single segments)"]
     if session.residual is not None:
         parts.append(f"residual rms {format_value(session.residual.rms, session.value_unit)}")
@@ -362,6 +362,29 @@ def settling_html(session: BenchSession) -> str:
             if session.samples_at_end else "")
     return (session.summary._repr_html_() + note + f"<p><b>Settling, {html.escape(caption)}</b></p>"
             f"<table style='font-size:0.9em'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
+
+
+#: Segments the error view draws at most (those in view, from the first).
+ERROR_VIEW_SEGMENTS = 400
+
+
+def error_view_children(session: BenchSession) -> tuple:
+    """The Error view tab: each segment's error in view on a log axis, with the tolerance and
+    the samples (:func:`firstorder.report.figure.error_figure`, as in the report)."""
+    from ..plotting.error_view import error_view
+    from ..report.figure import error_figure, time_scale
+
+    table = session.settling
+    if table is None:
+        return (widgets.HTML("<p>Give a tolerance (Setup) to see each segment's error against it.</p>"),)
+    start, end = session.view
+    view = error_view(session.response, table, session.probe, start=start, end=end,
+                      max_segments=ERROR_VIEW_SEGMENTS)
+    factor, unit = time_scale(end - start)
+    figure = error_figure(view, factor, unit, width=560, height=260)
+    note = (f"<p style='color:#566573;margin:2px 0'>The first {ERROR_VIEW_SEGMENTS} segments in view; zoom in for "
+            f"the others.</p>" if view.segments.size == ERROR_VIEW_SEGMENTS else "")
+    return (widgets.HTML(note), BokehModel(figure))
 
 
 def _display_math(latex: str) -> str:
@@ -400,16 +423,20 @@ def derivation_html(session: BenchSession) -> str:
     x = latex_name(derivation.state.func.__name__)
     tau, x0, final = float(response.tau[segment]), float(response.boundary[segment]), float(response.final[segment])
 
-    def number(value: float, unit_text: str) -> str:
+    def number(value: float, unit_text: str, bracket_negative: bool = False) -> str:
         # engineering notation, as on the axes: 1.55 ms rather than 0.00155
-        return r"\infty" if not math.isfinite(value) else r"\mathrm{" + format_value(value, unit_text).replace(" ", r"\ ") + "}"
+        if not math.isfinite(value):
+            return r"\infty"
+        text = r"\mathrm{" + format_value(value, unit_text).replace(" ", r"\ ") + "}"
+        # "a - -19.8 mV" reads as a typing slip: a negative number after a minus goes in brackets.
+        return rf"\left({text}\right)" if bracket_negative and value < 0 else text
 
     out.append("<p style='margin:2px 0'><b>This segment in numbers</b></p>")
     out.append("<p>" + _display_math(rf"\tau = {number(tau, 's')},\quad {x}(t_{{{segment}}}) = {number(x0, unit)},"
                                      rf"\quad {x}(\infty) = {number(final, unit)}") + "</p>")
     if math.isfinite(tau):
         out.append("<p>" + _display_math(
-            rf"{x}(t) = {number(final, unit)} + \left({number(x0, unit)} - {number(final, unit)}\right)"
+            rf"{x}(t) = {number(final, unit)} + \left({number(x0, unit)} - {number(final, unit, True)}\right)"
             rf"e^{{-(t - {number(start, 's')})/{number(tau, 's')}}}") + "</p>")
     else:
         out.append("<p>" + _display_math(rf"{x}(t) = {number(x0, unit)} \quad\text{{(held: no resistive path)}}")

@@ -22,7 +22,7 @@ from bokeh.plotting import figure
 from ..plotting.format import HOVER_CODE, TICK_CODE
 from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, SAMPLE_FAIL, SAMPLE_NEUTRAL, SAMPLE_PASS, SELECTION_COLOUR,
                                 TOLERANCE_COLOUR, component_label, source_colour, switch_colour)
-from ..settling.table import sample_delays
+from ..settling.table import judged_from, sample_delays
 from ..plotting.sampling import envelope, plan_samples, point_envelope, segments_in_view, step_envelope
 
 __all__ = ["MAX_HANDLES", "PIXELS", "Plots", "View"]
@@ -351,7 +351,7 @@ class Plots:
         if crowded:
             pass
         elif table is not None:
-            final = table["final"].to_numpy()[rows]
+            final = judged_from(table)[rows]  # a hold's band sits on the value it holds (droop)
             limit = table["tolerance"].to_numpy()[rows]
             band = {"left": starts, "right": ends, "bottom": final - limit, "top": final + limit}
             if sampled is not None and "sample_time" in table.columns:

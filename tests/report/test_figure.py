@@ -5,6 +5,9 @@ from __future__ import annotations
 import ast
 from pathlib import Path
 
+import numpy as np
+import pytest
+
 import firstorder as fo
 
 PACKAGE = Path(fo.__file__).parent
@@ -34,3 +37,45 @@ class TestImports:
                 assert where.startswith("widgets/") or where == "report/figure.py", where
             if "ipywidgets" in imported or "traitlets" in imported:
                 assert where.startswith("widgets/"), where
+
+
+class TestHoldsAndErrorView:
+    """The report's plot draws a hold's band on the value it holds, and the error view."""
+
+    def figure(self):
+        from bokeh.models import LogScale
+
+        from firstorder.cli import demo_analysis
+        from firstorder.report.figure import response_figure
+
+        analysis = demo_analysis()
+        table = analysis.settling()
+        layout, caption = response_figure(analysis.response, analysis.tolerance, table)
+        return analysis, table, layout, caption, LogScale
+
+    def test_the_band_of_a_hold_is_around_its_held_value(self):
+        from bokeh.models import VAreaStep
+
+        analysis, table, layout, _, _ = self.figure()
+        response_plot = layout.children[0]
+        (band,) = [r for r in response_plot.renderers if isinstance(r.glyph, VAreaStep)]
+        low, high = np.asarray(band.data_source.data["y1"]), np.asarray(band.data_source.data["y2"])
+        centre = (low + high)[:-1] / 2
+        assert table["hold"].tolist() == [False, False, False, False, True]
+        # Segment 4 holds: its band sits on the value at its change, not on the leak's final value.
+        assert centre[4] == pytest.approx(table.loc[4, "start_value"], abs=1e-12)
+        assert centre[3] == pytest.approx(table.loc[3, "final"], abs=1e-12)
+
+    def test_the_error_view_is_the_last_plot_on_a_log_axis(self):
+        from bokeh.models import Scatter
+
+        analysis, table, layout, caption, LogScale = self.figure()
+        errors = layout.children[-1]
+        assert isinstance(errors.y_scale, LogScale) and "log scale" in errors.title.text
+        (samples,) = [r for r in errors.renderers if isinstance(r.glyph, Scatter)]
+        from firstorder.plotting.error_view import FLOOR_FRACTION
+
+        floor = FLOOR_FRACTION * table["tolerance"].min()
+        np.testing.assert_array_equal(samples.data_source.data["error"],
+                                      np.maximum(table["error_at_sample"].to_numpy(), floor))
+        assert "log scale" in caption

@@ -247,3 +247,64 @@ class TestHostileNamesStayText:
         from builders import assert_inert
 
         assert_inert(again.to_html())
+
+
+#: Printable widths in CSS pixels (96 per inch) with the report's 12 mm page margins:
+#: A4 is 210 mm wide, Letter 8.5 in (ISO 216 and ANSI paper sizes, common practice).
+PRINTABLE_WIDTH = {"A4": (210 - 2 * 12) / 25.4 * 96, "Letter": 8.5 * 96 - 2 * 12 / 25.4 * 96}
+
+#: Every box on the page, in the light DOM and in bokeh's shadow roots, that reaches past
+#: the page's width; and every bokeh toolbar still shown.
+_OVERFLOW = """() => {
+  const width = document.documentElement.clientWidth;
+  const over = [], toolbars = [];
+  const walk = (root) => {
+    for (const el of root.querySelectorAll('*')) {
+      const box = el.getBoundingClientRect();
+      if (box.width > 0 && box.height > 0 && (box.right > width + 0.5 || box.left < -0.5)) {
+        over.push(`${el.tagName}.${el.className} ${Math.round(box.left)}..${Math.round(box.right)}`);
+      }
+      if (el.classList && el.classList.contains('bk-Toolbar') && getComputedStyle(el).visibility !== 'hidden') {
+        toolbars.push(el.className);
+      }
+      if (el.shadowRoot) walk(el.shadowRoot);
+    }
+  };
+  walk(document);
+  return {width, scroll: document.documentElement.scrollWidth, over, toolbars};
+}"""
+
+
+class TestPrint:
+    """The report prints on A4 and Letter with nothing cut (Chromium's print media and PDF)."""
+
+    @pytest.mark.parametrize("paper", ["A4", "Letter"])
+    @pytest.mark.parametrize("which", ["demo", "relay"])
+    def test_nothing_overflows_the_printable_width(self, tmp_path, paper, which):
+        from firstorder.cli import demo_analysis
+
+        sync_playwright = _browser_or_skip()
+        analysis = demo_analysis() if which == "demo" else relay_analysis()
+        url = analysis.report(tmp_path / "report.html").resolve().as_uri()
+        width = int(PRINTABLE_WIDTH[paper])
+        with sync_playwright() as playwright:
+            browser = playwright.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_FLAGS)
+            try:
+                # Laid out on screen first, as a reader opens it, then printed.
+                page = browser.new_page(viewport={"width": 1100, "height": 900})
+                page.goto(url)
+                page.wait_for_selector("canvas", timeout=30_000)
+                page.emulate_media(media="print")
+                pdf = page.pdf(format=paper)
+                os.makedirs("build", exist_ok=True)
+                with open(f"build/report-{which}-{paper}.pdf", "wb") as out:
+                    out.write(pdf)
+                page.set_viewport_size({"width": width, "height": 1000})
+                page.wait_for_timeout(500)
+                found = page.evaluate(_OVERFLOW)
+            finally:
+                browser.close()
+        assert pdf.startswith(b"%PDF") and pdf.count(b"/Type /Page") >= 2
+        assert found["width"] == width and found["scroll"] <= width, found
+        assert found["over"] == [], found["over"][:10]
+        assert found["toolbars"] == []  # the plot tools are not printed

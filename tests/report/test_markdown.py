@@ -42,7 +42,7 @@ class TestDerivationLatex:
     def test_final_value_written_at_infinity(self):
         latex = relay_analysis().derivations()[0][1].latex()
         # the state is named as typed (upright "ch"), see tests/symbolic/test_names.py
-        assert r"v_{ch}{\left(\infty \right)}" in latex and r"{\left(t \right)}(\infty)" not in latex
+        assert r"v_{\mathrm{ch}}{\left(\infty \right)}" in latex and r"{\left(t \right)}(\infty)" not in latex
 
 
 def test_hostile_names_stay_text_outside_the_maths():

@@ -73,7 +73,7 @@ class TestSettlingTable:
         res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0, "3m"], end="8m", vin=[1.0, -1.0]))
         tolerance = fo.Tolerance.absolute("1m")
         assert tuple(res.settling(tolerance).columns) == (
-            "start", "end", "start_value", "final", "tolerance", "settle_time", "settled", "residual_at_end")
+            "start", "end", "start_value", "final", "tolerance", "settle_time", "settled", "residual_at_end", "hold")
         with_samples = res.settling(tolerance, sample_delay="2m")
         assert tuple(with_samples.columns) == TABLE_COLUMNS + SAMPLE_COLUMNS
         assert tuple(SAMPLE_COLUMNS) == ("sample_time", "value_at_sample", "error_at_sample", "ok")
@@ -385,3 +385,68 @@ class TestSummary:
 
 
 # -- plan_dwells / plan_table -------------------------------------------------------------------------
+
+
+class TestHoldJudgedAsDroop:
+    """A hold (source cut off by an open switch, a leak to ground) is judged by its droop."""
+
+    R_S, R_LEAK, C = 1e3, 10e6, 10e-9
+    V = 2.5
+
+    def hold_fixture(self, r_off="inf"):
+        return (fo.Fixture().voltage_source("vdac", "dac", "gnd").resistor("rs", "dac", "sw", self.R_S)
+                .switch("k", "sw", "h", r_on="0.1", r_off=r_off).capacitor("ch", "h", "gnd", self.C)
+                .resistor("r_leak", "h", "gnd", self.R_LEAK))
+
+    def test_droop_of_an_rc_hold_is_the_handbook_decay(self):
+        # Charge for 100 time constants (k closed), then hold for 2 ms through r_leak.
+        drive = fo.Drive([0, "1m"], end="3m", vdac=[self.V, self.V], k=[1, 0])
+        res = self.hold_fixture().respond(drive, initial=0.0)
+        tolerance = fo.Tolerance.absolute("100u")
+        table = res.settling(tolerance, sample_delay=[0.9e-3, 0.5e-3])
+        assert table["hold"].tolist() == [False, True]
+        # Handbook: a divider sets the held value, v0 = V R_leak / (R_leak + R_s); an RC holding
+        # into R_leak decays as v0 exp(-t / (R_leak C)), so its droop is v0 (1 - exp(-t / (R_leak C))).
+        tau_charge = self.C * (self.R_S + 0.1) * self.R_LEAK / (self.R_S + 0.1 + self.R_LEAK)
+        v0 = self.V * self.R_LEAK / (self.R_LEAK + self.R_S + 0.1) * (1 - math.exp(-1e-3 / tau_charge))
+        tau_hold = self.R_LEAK * self.C
+        droop_at_sample = v0 * (1 - math.exp(-0.5e-3 / tau_hold))
+        droop_at_end = v0 * (1 - math.exp(-2e-3 / tau_hold))
+        assert table.loc[1, "start_value"] == pytest.approx(v0, rel=1e-12)
+        assert table.loc[1, "error_at_sample"] == pytest.approx(droop_at_sample, rel=1e-9)
+        assert table.loc[1, "residual_at_end"] == pytest.approx(droop_at_end, rel=1e-9)
+        # 12.5 mV at the sample against 100 µV: the hold fails on its droop, not on a final of 0 V.
+        assert not table.loc[1, "ok"] and not table.loc[1, "settled"] and math.isnan(table.loc[1, "settle_time"])
+        loose = res.settling(fo.Tolerance.absolute("60m"), sample_delay=[0.9e-3, 0.5e-3])
+        assert loose.loc[1, "ok"] and loose.loc[1, "settled"] and loose.loc[1, "settle_time"] == 0.0
+
+    def test_a_leaky_relay_still_makes_a_hold(self):
+        # r_off = 1 GΩ lets the source through a little: the gain with r_off removed is zero.
+        drive = fo.Drive([0, "1m"], end="3m", vdac=[self.V, self.V], k=[1, 0])
+        res = self.hold_fixture(r_off="1G").respond(drive, initial=0.0)
+        table = res.settling(fo.Tolerance.absolute("100u"), sample_delay=[0.9e-3, 0.5e-3])
+        assert table["hold"].tolist() == [False, True]
+        # The droop is the distance the state moved from the held value, read off the response.
+        moved = abs(float(res.total(np.array([1.5e-3]))[0]) - table.loc[1, "start_value"])
+        assert table.loc[1, "error_at_sample"] == pytest.approx(moved, rel=1e-9)
+
+    def test_a_relative_tolerance_of_a_hold_is_taken_of_the_held_value(self):
+        drive = fo.Drive([0, "1m"], end="3m", vdac=[self.V, self.V], k=[1, 0])
+        res = self.hold_fixture(r_off="1G").respond(drive, initial=0.0)  # the leak ends at 25 mV, not 0
+        table = res.settling(fo.Tolerance.relative(0.01))
+        assert abs(table.loc[1, "final"]) > 0.02
+        assert table.loc[1, "tolerance"] == pytest.approx(0.01 * abs(table.loc[1, "start_value"]), rel=1e-12)
+
+    def test_no_switch_or_a_source_in_reach_is_no_hold(self):
+        res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0, "3m"], end="8m", vin=[1.0, 0.0]))
+        assert not res.settling(fo.Tolerance.absolute("1m"))["hold"].any()
+        drive = fo.Drive([0, "1m"], end="3m", vdac=[self.V, 0.0], k=[1, 1])
+        assert not self.hold_fixture().respond(drive).settling(fo.Tolerance.absolute("1m"))["hold"].any()
+
+    def test_the_demo_hold_passes_or_fails_on_its_droop(self):
+        from firstorder.cli import demo_analysis
+
+        table = demo_analysis().settling()
+        assert table["hold"].tolist() == [False, False, False, False, True]
+        row = table.loc[4]
+        assert row["error_at_sample"] == pytest.approx(abs(row["value_at_sample"] - row["start_value"]), rel=1e-9)

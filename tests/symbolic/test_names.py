@@ -15,13 +15,13 @@ from firstorder.symbolic.names import derivation_names, latex_name, latex_text
 class TestLatexName:
     @pytest.mark.parametrize(("name", "expected"), [
         ("c", "c"),
-        ("r_bus_leak", r"r_{bus\_leak}"),     # the first underscore starts the subscript
+        ("r_bus_leak", r"r_{\mathrm{bus\_leak}}"),  # the first underscore starts the subscript (upright: a word)
         ("vcal", r"\mathrm{vcal}"),           # not sympy's calligraphic v
         ("rbar", r"\mathrm{rbar}"),           # not sympy's r with a bar
-        ("k1_on", r"\mathrm{k1}_{on}"),       # not k with subscript "1 on"
-        ("v_c_hold", r"v_{c\_hold}"),
+        ("k1_on", r"\mathrm{k1}_{\mathrm{on}}"),  # not k with subscript "1 on"
+        ("v_c_hold", r"v_{\mathrm{c\_hold}}"),
         ("r#1", r"\mathrm{r\#1}"),
-        ("i_50%", r"i_{50\%}"),
+        ("i_50%", r"i_{\mathrm{50\%}}"),
         ("a^b", r"\mathrm{a\hat{}b}"),
         ("v_0'", r"v_{0}'"),                 # a prime after the subscript, as by hand
         ("t''", r"t''"),
@@ -67,7 +67,7 @@ class TestDerivationNamesAsTyped:
         text = fixture.derivation().latex()
         assert r"\mathcal" not in text
         assert r"\mathrm{vcal}" in text
-        assert r"r_{filter}" in text
+        assert r"r_{\mathrm{filter}}" in text
 
     def test_switch_symbol_keeps_its_digit(self):
         fixture = fo.Fixture()
@@ -76,8 +76,9 @@ class TestDerivationNamesAsTyped:
         fixture.resistor("r", "b", "c", "1k")
         fixture.capacitor("c", "c", "gnd", "1u")
         text = fixture.derivation(k1=True).latex()
-        assert r"\mathrm{k1}_{on}" in text
-        assert "k_{1 on}" not in text
+        # A switch's resistance is written as a resistance named for its switch: R_{k1,on}.
+        assert r"R_{\mathrm{k1,on}}" in text
+        assert "k_{1 on}" not in text and r"\mathrm{k1}_{on}" not in text
 
 
 class TestDerivationNames:

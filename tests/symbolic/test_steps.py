@@ -33,9 +33,9 @@ class TestText:
     def test_latex_steps(self):
         d = relay_fixture().derivation(k1=True, k2=False)
         text = d.latex()
-        assert r"v_{ch}{\left(\infty \right)} =" in text  # not v_ch(t)(∞)
+        assert r"v_{\mathrm{ch}}{\left(\infty \right)} =" in text  # not v_ch(t)(∞)
         assert r"{\left(t \right)}{\left(\infty" not in text
-        assert r"r_{leak}" in text and "i_{k1}" in text
+        assert r"r_{\mathrm{leak}}" in text and r"i_{\mathrm{k1}}" in text
         for caption in ("Equivalent seen by capacitor ch", "The ODE", "Time constant", "Zero-input + zero-state",
                         "Natural + forced", "Probe i", "With the part values"):
             assert caption in text or caption.replace("_", r"}\_\text{") in text
@@ -49,7 +49,7 @@ class TestText:
         fx.capacitor("c_hold", "b", "gnd", "1n")
         text = fx.derivation(k=False).latex()
         assert "No resistive path" in text and "nan" not in text
-        assert r"v_{c\_hold}" in text
+        assert r"v_{\mathrm{c\_hold}}" in text
 
 
 class TestToLatex:
@@ -57,23 +57,25 @@ class TestToLatex:
     v = sp.Function("v_ch")(t)
 
     def test_the_state_its_final_value_and_its_rate(self):
-        assert to_latex(self.v) == r"v_{ch}{\left(t \right)}"
-        assert to_latex(self.v.subs(self.t, sp.oo)) == r"v_{ch}{\left(\infty \right)}"
-        assert to_latex(sp.Derivative(self.v, self.t)) == r"\frac{d v_{ch}}{dt}"
+        assert to_latex(self.v) == r"v_{\mathrm{ch}}{\left(t \right)}"
+        assert to_latex(self.v.subs(self.t, sp.oo)) == r"v_{\mathrm{ch}}{\left(\infty \right)}"
+        assert to_latex(sp.Derivative(self.v, self.t)) == r"\frac{\mathrm{d} v_{\mathrm{ch}}}{\mathrm{d}t}"  # upright d
         # A second derivative is left to sympy's own form.
-        assert to_latex(sp.Derivative(self.v, (self.t, 2))) == r"\frac{d^{2}}{d t^{2}} v_{ch}{\left(t \right)}"
+        assert to_latex(sp.Derivative(self.v, (self.t, 2))) == r"\frac{d^{2}}{d t^{2}} v_{\mathrm{ch}}{\left(t \right)}"
 
     def test_decay_as_a_power_of_e(self):
         names = fo.Fixture.rc(r="1k", c="1u").derivation().names
         assert to_latex(PowerOfE(-self.t / names.time_constant), names) == r"e^{-t/\tau}"
-        assert to_latex(PowerOfE(-self.t / (sp.Symbol("r") * sp.Symbol("c")))) == r"e^{-t/\left(c \, r\right)}"
+        assert to_latex(PowerOfE(-self.t / (sp.Symbol("r") * sp.Symbol("c")))) == r"e^{-t/\left(c \cdot r\right)}"
         assert to_latex(PowerOfE(-self.t)) == r"e^{- t}"
 
-    def test_factors_are_set_apart_but_not_before_a_bracket(self):
+    def test_factors_are_set_apart_by_a_dot(self):
+        # A product of names of several letters runs together ("rinvdac") without a sign;
+        # the same dot as the report's MathML, before a bracket too ("chrin(k1on+rs)").
         rbar, vcal, r = sp.Symbol("rbar"), sp.Symbol("vcal"), sp.Symbol("r")
-        assert to_latex(rbar * vcal) == r"\mathrm{rbar} \, \mathrm{vcal}"  # not one word "rbarvcal"
-        assert to_latex(vcal * (r + rbar)) == r"\mathrm{vcal} \left(r + \mathrm{rbar}\right)"
-        assert to_latex(sp.Float(2.5e-9, 4) * vcal) == r"2.5 \cdot 10^{-9} \, \mathrm{vcal}"
+        assert to_latex(rbar * vcal) == r"\mathrm{rbar} \cdot \mathrm{vcal}"
+        assert to_latex(vcal * (r + rbar)) == r"\mathrm{vcal} \cdot \left(r + \mathrm{rbar}\right)"
+        assert to_latex(sp.Float(2.5e-9, 4) * vcal) == r"2.5 \cdot 10^{-9} \cdot \mathrm{vcal}"
 
     def test_sums_keep_the_order_they_were_built_in(self):
         a, b = sp.symbols("a b")
@@ -86,7 +88,7 @@ class TestStepLatex:
         r, c, tau, x = sp.symbols("r c tau x")
         step = Step("any", (sp.Eq(tau, r * c), sp.Eq(tau, sp.Float(1e-3, 4)), sp.Eq(x, 1, evaluate=False)))
         # Written by hand: one chain for tau, then x beside it.
-        assert step_latex(step) == r"\mathrm{tau} = c \, r = 0.001,\quad x = 1"
+        assert step_latex(step) == r"\mathrm{tau} = c \cdot r = 0.001,\quad x = 1"
 
 
 class TestStepsAgainstTheOutside:
@@ -130,7 +132,7 @@ class TestStepsAgainstTheOutside:
         d = relay.derivation(k1=True, k2=False)
         rule, full = by_caption(d)["Time constant"]
         assert sp.simplify(in_full(d, rule.rhs) - full.rhs) == 0
-        *parts, tau = by_caption(d)["With the part values (SI units)"]
+        *parts, tau = by_caption(d)["With the part values"]
         # The numeric path (solved independently by the MNA) to the 4 digits shown.
         assert float(tau.rhs) == pytest.approx(relay.time_constant(k1=True, k2=False), rel=1e-3)
         assert {e.lhs for e in parts} == set(d.values)
@@ -180,7 +182,7 @@ class TestOneSourceForEveryForm:
         analysis = Analysis(relay, fo.Drive([0], end="1m", vdac=[1.0], ib=[0.0], k1=[1], k2=[0]))
         section = analysis.to_html().split("<section id=derivations>")[1].split("</section>")[0]
         zero_input = section.split("Zero-input + zero-state")[1].split("</li>")[0]
-        assert "<msup><mi>e</mi><mrow><mo>-</mo>" in zero_input and "exp" not in zero_input
+        assert "<msup><mi>e</mi><mrow><mo>&#x2212;</mo>" in zero_input and "exp" not in zero_input
 
 
 #: Names the netlist allows that printers have to take care of (LaTeX comments, braces, markup).
@@ -223,3 +225,135 @@ class TestAnyNamePrints:
         for step in derivation_steps(d):
             for equation in step.equations:
                 assert mathml(equation).startswith("<math"), (step.caption, equation)
+
+
+def inner(math: str) -> str:
+    """The markup inside a <math> element."""
+    return math.split('display="block">', 1)[1].rsplit("</math>", 1)[0]
+
+
+def sample_and_hold() -> fo.Fixture:
+    """A DAC through a series resistor and relay k_hold onto c_hold, a meter across it (our own)."""
+    fx = fo.Fixture()
+    fx.voltage_source("vdac", "dac", "gnd")
+    fx.resistor("r_series", "dac", "sw", "2.2k")
+    fx.switch("k_hold", "sw", "hold", r_on="0.15", r_off="1G")
+    fx.capacitor("c_hold", "hold", "gnd", "10n")
+    fx.resistor("r_meter", "hold", "gnd", "10M")
+    fx.probe("v_hold", node="hold")
+    fx.probe("i_series", through="r_series")
+    return fx
+
+
+class TestOneWritingOfEachName:
+    """Each name is written one way in every line and every printer (LaTeX, Markdown, MathML)."""
+
+    @pytest.mark.parametrize("closed", [True, False])
+    def test_the_state_and_the_switch_in_every_line(self, closed):
+        from firstorder.report.mathml import mathml
+
+        d = sample_and_hold().derivation(k_hold=closed)
+        state = "v_{\\mathrm{c\\_hold}}"
+        switch = rf"R_{{\mathrm{{k\_hold,{'on' if closed else 'off'}}}}}"
+        lines = dict(d.steps())
+        for caption in ("Circuit law: KCL at the capacitor, with the Thevenin equivalent", "The ODE",
+                        "Final value", "Zero-input + zero-state", "Natural + forced", "Probe v_hold",
+                        "Probe i_series"):
+            assert state in lines[caption], caption
+        for caption in ("Equivalent seen by capacitor c_hold (k_hold closed)" if closed else
+                        "Equivalent seen by capacitor c_hold (k_hold open)", "Time constant", "With the part values"):
+            assert switch in lines[caption], caption
+        text = d.latex() + d.markdown()
+        assert "v_c_hold" not in text and "k_hold_on" not in text and "k_hold_off" not in text
+        # MathML: the same subscripted state (v with subscript c_hold) in the ODE, the solution
+        # and the probes; the switch as R with subscript k_hold,on; a plain d/dt, never ⅆ.
+        state_ml = "<msub><mi>v</mi><mi>c_hold</mi></msub>"
+        switch_ml = f"<msub><mi>R</mi><mi>k_hold,{'on' if closed else 'off'}</mi></msub>"
+        by = {step.caption: "".join(mathml(e, d.names) for e in step.equations) for step in derivation_steps(d)}
+        for caption in ("The ODE", "Final value", "Zero-input + zero-state", "Natural + forced", "Probe v_hold",
+                        "Probe i_series"):
+            assert state_ml in by[caption], caption
+        assert switch_ml in by["Time constant"] and switch_ml in by["With the part values"]
+        every = "".join(by.values())
+        assert "&dd;" not in every and "ⅆ" not in every and "v_c_hold" not in every
+        assert "<mi>hold</mi><mo> </mo>" not in every  # sympy's own split of "k_hold_on"
+        assert '<mfrac><mrow><mi mathvariant="normal">d</mi>' + state_ml in by["The ODE"]
+
+    def test_products_of_long_names_have_a_dot(self):
+        from firstorder.report.mathml import mathml
+
+        d = sample_and_hold().derivation(k_hold=True)
+        (_, full) = by_caption(d)["Time constant"]
+        latex = to_latex(full.rhs, d.names)
+        # By hand: c_hold · r_meter · (R_k_hold,on + r_series) over the sum of the three.
+        assert (r"c_{\mathrm{hold}} \cdot r_{\mathrm{meter}} \cdot \left(R_{\mathrm{k\_hold,on}} + "
+                r"r_{\mathrm{series}}\right)") in latex
+        ml = inner(mathml(full.rhs, d.names))
+        assert ("<msub><mi>c</mi><mi>hold</mi></msub><mo>&#xB7;</mo><msub><mi>r</mi><mi>meter</mi></msub>"
+                "<mo>&#xB7;</mo><mrow><mo>(</mo>") in ml
+        # No two names side by side without an operator between them, in any step.
+        for step in derivation_steps(d):
+            for equation in step.equations:
+                body = inner(mathml(equation, d.names))
+                body = body.replace('<mi mathvariant="normal">d</mi>', "").replace("<mi>e</mi>", "")  # d/dt, e^x
+                tokens = re.sub(r"<mi>[^<]*</mi>", "<N/>", re.sub(r"<msub><mi>[^<]*</mi><mi>[^<]*</mi></msub>", "<N/>", body))
+                assert "<N/><N/>" not in tokens, (step.caption, body)
+
+    def test_the_exponent_is_folded_in_every_printer(self):
+        from firstorder.report.mathml import mathml
+
+        d = sample_and_hold().derivation(k_hold=True)
+        (equation,) = by_caption(d)["Zero-input + zero-state"]
+        assert r"e^{-t/\tau}" in to_latex(equation, d.names)
+        body = inner(mathml(equation, d.names))
+        # e to the power (minus t over tau) on one line: no stacked fraction in the exponent.
+        assert '<msup><mi>e</mi><mrow><mo>&#x2212;</mo><mi>t</mi><mo lspace="0" rspace="0">/</mo><mi>&#964;</mi>' \
+               '</mrow></msup>' in body
+        assert "<msup><mi>e</mi><mrow><mfrac>" not in body
+
+    def test_part_values_in_engineering_notation_with_units(self):
+        from firstorder.report.mathml import mathml
+
+        d = sample_and_hold().derivation(k_hold=True)
+        line = dict(d.steps())["With the part values"]
+        for text in (r"r_{\mathrm{series}} = 2.2\ \mathrm{k\Omega}", r"c_{\mathrm{hold}} = 10\ \mathrm{nF}",
+                     r"r_{\mathrm{meter}} = 10\ \mathrm{M\Omega}", r"R_{\mathrm{k\_hold,on}} = 150\ \mathrm{m\Omega}",
+                     r"\tau = 22\ \mathrm{\mu{}s}"):
+            assert text in line
+        assert "2200.0" not in line and "10^{" not in line
+        ml = "".join(mathml(e, d.names) for e in by_caption(d)["With the part values"])
+        assert '<mn>2.2</mn><mspace width="0.25em"/><mi mathvariant="normal">k&#937;</mi>' in ml
+        assert "2200.0" not in ml
+
+    @pytest.mark.parametrize("closed", [True, False])
+    def test_hostile_names_are_written_one_way_too(self, closed):
+        from firstorder.report.mathml import _MathMLCheck, mathml
+
+        fx = fo.Fixture()
+        fx.voltage_source("v<b>", "in", "gnd")
+        fx.resistor("r_%&", "in", "a", "1k")
+        fx.switch("k_{x}", "a", "b", r_on="1", r_off="1G")
+        fx.capacitor("c_<i>", "b", "gnd", "1n")
+        fx.resistor("R_k_{x},on", "b", "gnd", "1M")  # the written form of the switch's resistance
+        fx.probe("p_'x", node="a")
+        d = fx.derivation(**{"k_{x}": closed})
+        names = d.names
+        state_latex = names.latex(names.state)
+        switch = names.symbols["k_{x}"]
+        # Named apart from the resistor typed like its written form: a prime.
+        assert names.latex(switch) != names.latex(names.symbols["R_k_{x},on"])
+        lines = dict(d.steps())
+        for caption in ("The ODE", "Zero-input + zero-state", "Natural + forced", "Final value"):
+            assert state_latex in lines[caption]
+        state_ml = inner(mathml(names.state, names))
+        switch_ml = inner(mathml(switch, names))
+        assert "&lt;i&gt;" in state_ml and "<i>" not in state_ml
+        for step in derivation_steps(d):
+            body = "".join(mathml(e, names) for e in step.equations)
+            check = _MathMLCheck()
+            check.feed(body)
+            assert check.clean and "<b>" not in body, step.caption
+            if step.caption in ("The ODE", "Zero-input + zero-state", "Natural + forced"):
+                assert state_ml in body
+            if step.caption == "Time constant":
+                assert switch_ml in body

@@ -65,8 +65,15 @@ class TestDerivationPanel:
         assert text.index("Time constant") < text.index("This segment in numbers")
         assert "ch" in text and "rin" in text
         # tau = rin * ch = 1 s (handbook, common practice)
-        assert r"\tau = 1.0" in text
+        assert r"\tau = 1\ \mathrm{s}" in text  # in engineering notation with its unit
         np.testing.assert_allclose(bench.sources["selection"].data["left"], [2e-3])
+
+    def test_a_negative_final_value_is_bracketed_after_a_minus(self):
+        bench = Bench(fo.Fixture.rc(r="1k", c="1u"), fo.Drive([0, "1m"], end="3m", vin=[2.0, -1.0]))
+        bench.select_segment(1)
+        text = html.unescape(bench.derivation.value)
+        assert r"- \mathrm{-" not in text  # "2 V - -1 V" reads as a slip
+        assert r"- \left(\mathrm{-1\ V}\right)" in text
 
 
 class TestSettlingPanel:
@@ -208,3 +215,34 @@ def _html_widgets(box):
     for child in getattr(box, "children", ()):
         found += [child] if isinstance(child, widgets.HTML) else _html_widgets(child)
     return found
+
+
+class TestErrorViewTab:
+    def test_the_tab_draws_the_error_view_of_the_segments_in_view(self):
+        from bokeh.models import LogScale, Scatter
+
+        from firstorder.cli import demo_analysis
+        from firstorder.plotting.error_view import error_view
+
+        analysis = demo_analysis()
+        bench = Bench(analysis.fixture, analysis.drive, initial=analysis.initial, tolerance=analysis.tolerance,
+                      sample_delay="150u")
+        assert bench.error_view.children == ()  # drawn only when someone looks
+        bench.tabs.selected_index = panels.TAB_TITLES.index("Error view")
+        figure = bench.error_view.children[-1]._model
+        assert isinstance(figure.y_scale, LogScale)
+        (samples,) = [r for r in figure.renderers if isinstance(r.glyph, Scatter)]
+        expected = error_view(bench.response, bench.settling)
+        np.testing.assert_array_equal(samples.data_source.data["error"], expected.sample_error)
+        # The hold (segment 4) is judged as droop in the tab as in the table.
+        assert bench.settling["hold"].tolist()[-1] and not bench.settling["ok"].tolist()[-1]
+        before = bench.error_view.children[-1]
+        bench.set_view(0.0, 0.5e-3)
+        assert bench.error_view.children[-1] is not before
+        (samples,) = [r for r in bench.error_view.children[-1]._model.renderers if isinstance(r.glyph, Scatter)]
+        assert len(samples.data_source.data["error"]) == 3  # segments 0-2 reach into the view
+
+    def test_without_a_tolerance_the_tab_says_what_to_give(self):
+        bench = Bench(fo.Fixture.rc(r="1k", c="1u"), fo.Drive([0, "1m"], end="3m", vin=[1.0, 0.0]))
+        bench.tabs.selected_index = panels.TAB_TITLES.index("Error view")
+        assert "Give a tolerance" in bench.error_view.children[0].value
