@@ -149,7 +149,10 @@ _SCALED = frozenset({"start_value", "final", "residual_at_end", "value_at_sample
 
 def row_scales(table: "pd.DataFrame") -> np.ndarray:
     """Per segment of a settling table, the size its values are written against: the
-    larger of its start value and its final value (see ``format_value``'s `scale`)."""
+    larger of its start value and its final value (see ``format_value``'s `scale`); None
+    for each row of a table without them (a study's table: its values are written as they are)."""
+    if "start_value" not in table.columns or "final" not in table.columns:
+        return np.full(len(table), None, dtype=object)
     return np.maximum(np.abs(table["start_value"].to_numpy()), np.abs(table["final"].to_numpy()))
 
 
