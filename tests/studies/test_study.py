@@ -19,11 +19,12 @@ from builders import general_drive, general_fixture
 HALF_LSB_16 = fo.Tolerance.lsb(bits=16, span=5.0)
 
 
-def rc_study(spread, units, seed=1, initial="settled", end="40m"):
+def rc_study(spread, units, seed=1, initial="settled", end="40m", **options):
     """A 1 ms RC (10 kΩ, 100 nF) stepped 0 -> 5 V -> 0 from rest, 20 ms a step."""
     fx = fo.Fixture.rc("10k", "100n")
     drive = fo.Drive([0, "20m"], end=end, vin=[5.0, 0.0])
-    return fx.study(drive, spread, units=units, seed=seed, initial=0.0 if initial == "settled" else initial)
+    return fx.study(drive, spread, units=units, seed=seed, initial=0.0 if initial == "settled" else initial,
+                    **options)
 
 
 def general_spread() -> Spread:
@@ -193,11 +194,15 @@ class TestReproducible:
 class TestBadArguments:
     @pytest.mark.parametrize("units, message", [
         (0, "units: 0"), (-5, "units: -5"), (2.5, "units: 2.5"), (True, "units: True"), ("100", "units: '100'"),
-        (None, "units: None"), (10**9, "GiB"),
+        (None, "units: None"), ("many", "units: 'many'"),
     ])
     def test_units(self, units, message):
         with pytest.raises(InputError, match=message.replace("(", r"\(")):
             rc_study(Spread({"c": "10%"}), units)
+
+    def test_more_units_kept_than_memory_holds(self):
+        with pytest.raises(InputError, match=r"units: 1,000,000,000 units .* kept \(keep=True\) .* GiB"):
+            rc_study(Spread({"c": "10%"}), 10**9, keep=True)
 
     @pytest.mark.parametrize("fractions", [0.0, 1.5, -0.1, "0.5", (), (0.5, 2.0), True, [None], float("nan")])
     def test_fractions(self, fractions):
