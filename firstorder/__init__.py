@@ -16,7 +16,7 @@ from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
 from .response import Response, respond
 from .settling import SettlingSummary, Tolerance, plan_dwells, plan_table
-from .studies import Normal, Spread, Uniform
+from .studies import Normal, Spread, Uniform, sweep
 from .traces import Trace, fit_trace, read_trace
 from .units import format_value, parse_value
 
@@ -43,6 +43,7 @@ __all__ = [
     "plan_table",
     "read_trace",
     "respond",
+    "sweep",
 ]
 
 

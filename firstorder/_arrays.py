@@ -45,5 +45,5 @@ def repeated(value: Any, count: int, dtype: Any = np.float64) -> np.ndarray:
     ([2.5, 2.5, 2.5], (0,), False)
     """
     array = np.ndarray((count,), dtype=dtype, buffer=np.array([value], dtype=dtype), strides=(0,))
-    array.flags.writeable = False
+    array.setflags(write=False)  # (the ``flags`` object costs more than this call)
     return array

@@ -44,15 +44,52 @@ from ._version import __version__
 from .io.atomic import write_atomic
 from .settling.table import sample_delays
 from .settling.tolerance import Tolerance
-from .units import parse_value
+from .studies.spread import Spread
+from .units import parse_value, shown
 
 if TYPE_CHECKING:
     import pandas as pd
+
+    from .studies.study import Study
 
     from .response import Response
     from .symbolic import Derivation
 
 __all__ = ["Analysis", "EMBED_ID", "FORMAT_NAME", "FORMAT_VERSION", "MAX_CHANGES", "MAX_FILE_BYTES"]
+
+
+#: A study's settings when a spread leaves them out.
+DEFAULT_UNITS, DEFAULT_SEED, DEFAULT_FRACTIONS = 1_000, 1, (0.5, 0.99, 0.999)
+
+
+def _study_settings(spread: Any, units: Any, seed: Any, fractions: Any, fixture: Fixture) -> dict[str, Any] | None:
+    """The study's spread, units, seed and fractions, each checked (the spread against the
+    fixture, so a band for a part that is not there is refused now, naming it)."""
+    if spread is None:
+        given = [name for name, value in (("units", units), ("seed", seed), ("fractions", fractions))
+                 if value is not None]
+        if given:
+            raise InputError(f"{given[0]}: given without a spread; a study needs the spread of the parts")
+        return None
+    if not isinstance(spread, Spread):
+        raise InputError(f"spread: expected a firstorder.Spread, got {type(spread).__name__}")
+    spread.quantities(fixture)
+    units = DEFAULT_UNITS if units is None else units
+    if isinstance(units, bool) or not isinstance(units, (int, np.integer)) or not 1 <= units <= file_format.MAX_UNITS:
+        raise InputError(f"units: {shown(units)} is not allowed; give a whole number of units from 1 to "
+                         f"{file_format.MAX_UNITS:,}")
+    seed = DEFAULT_SEED if seed is None else seed
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed < 2**63:
+        raise InputError(f"seed: {shown(seed)} is not allowed; give a whole number from 0 to 2**63 - 1")
+    fractions = DEFAULT_FRACTIONS if fractions is None else fractions
+    if isinstance(fractions, (str, bytes)) or not hasattr(fractions, "__len__") or not (
+            1 <= len(fractions) <= file_format.MAX_FRACTIONS):
+        raise InputError(f"fractions: {shown(fractions)} is not allowed; give 1 to {file_format.MAX_FRACTIONS} "
+                         f"fractions of units, such as (0.5, 0.99, 0.999)")
+    for i, fraction in enumerate(fractions):
+        if isinstance(fraction, bool) or not isinstance(fraction, (int, float, np.number)) or not 0 < fraction <= 1:
+            raise InputError(f"fractions[{i}]: {shown(fraction)} is not allowed; give a fraction of units in (0, 1]")
+    return {"spread": spread, "units": int(units), "seed": int(seed), "fractions": tuple(float(f) for f in fractions)}
 
 
 def _check_delay(value: Any, drive: Drive) -> Any:
@@ -94,6 +131,12 @@ class Analysis:
         or one per segment.
     title, notes : str, optional
         Shown at the top of the report.
+    spread : Spread, optional
+        How the units of the lot differ (file version 2); checked against the fixture.
+    units, seed : int, optional
+        The study's number of units (default 1,000) and seed (default 1), with a spread.
+    fractions : sequence of float, optional
+        The fractions of units the study reports (default 0.5, 0.99, 0.999).
 
     Attributes
     ----------
@@ -118,6 +161,10 @@ class Analysis:
         sample_delay: Any = None,
         title: str = "",
         notes: str = "",
+        spread: Spread | None = None,
+        units: int | None = None,
+        seed: int | None = None,
+        fractions: Any = None,
     ) -> None:
         if not isinstance(fixture, Fixture):
             raise InputError(f"fixture: expected a firstorder.Fixture, got {type(fixture).__name__}")
@@ -145,6 +192,7 @@ class Analysis:
         self._sample_delay = _check_delay(sample_delay, drive)
         self._title = title
         self._notes = notes
+        self._study = _study_settings(spread, units, seed, fractions, self._fixture)
 
     # -- reading -------------------------------------------------------------------------------
     @property
@@ -176,6 +224,34 @@ class Analysis:
     @property
     def notes(self) -> str:
         return self._notes
+
+    @property
+    def spread(self) -> Spread | None:
+        """The lot's spread, or None (no study)."""
+        return None if self._study is None else self._study["spread"]
+
+    @property
+    def study_settings(self) -> dict[str, Any] | None:
+        """``{"spread", "units", "seed", "fractions"}`` of the study, or None."""
+        return None if self._study is None else dict(self._study)
+
+    def study(self, client: Any = None) -> "Study":
+        """The tolerance study the analysis describes (its spread, units and seed).
+
+        Examples
+        --------
+        >>> import firstorder as fo
+        >>> a = fo.Analysis(fo.Fixture.rc("1k", "1u"), fo.Drive([0], end="5m", vin=[1.0]),
+        ...                 spread=fo.Spread({"c": "10%"}), units=100, seed=4)
+        >>> a.study().units
+        100
+        """
+        if self._study is None:
+            raise InputError("spread: this analysis has no spread; give Analysis(..., spread=...) for a study")
+        settings = self._study
+        options = {} if client is None else {"client": client}
+        return self._fixture.study(self._drive, settings["spread"], units=settings["units"], seed=settings["seed"],
+                                   initial=self._initial, **options)
 
     @property
     def response(self) -> "Response":
@@ -219,7 +295,10 @@ class Analysis:
             "fixture": self._fixture, "drive": self._drive, "initial": self._initial,
             "tolerance": self._tolerance, "sample_delay": self._sample_delay,
             "title": self._title, "notes": self._notes,
+            "spread": None, "units": None, "seed": None, "fractions": None,
         }
+        if self._study is not None and changes.get("spread", self._study["spread"]) is not None:
+            arguments.update(self._study)  # without a spread, its settings go too
         unknown = sorted(set(changes) - set(arguments))
         if unknown:
             raise InputError(f"replace: {unknown} are not arguments of Analysis; they are {list(arguments)}")
@@ -257,6 +336,19 @@ class Analysis:
             "initial": self._initial,
             "tolerance": None if self._tolerance is None else self._tolerance.to_dict(),
             "sample_delay": self._sample_delay,
+            **self._study_dict(),
+        }
+
+    def _study_dict(self) -> dict[str, Any]:
+        if self._study is None:
+            return {}
+        spread = self._study["spread"]
+        temperature = spread.temperature
+        return {
+            "spread": {"bands": {key: str(spread.band(key)) for key in spread.keys},
+                       "temperature": None if temperature is None else list(temperature),
+                       "tempco": spread.tempco_text},
+            "units": self._study["units"], "seed": self._study["seed"], "fractions": list(self._study["fractions"]),
         }
 
     def to_json(self) -> str:
@@ -329,7 +421,22 @@ class Analysis:
                 sample_delay=model.sample_delay,
                 title=model.title,
                 notes=model.notes,
+                spread=cls._spread_of(model.spread, source),
+                units=model.units,
+                seed=model.seed,
+                fractions=model.fractions,
             )
+
+    @staticmethod
+    def _spread_of(model: Any, source: str) -> Spread | None:
+        if model is None:
+            return None
+        text = [f"{key} {band}" for key, band in model.bands.items()]
+        if model.temperature is not None:
+            low, high = model.temperature
+            text.append(f"temperature {low} .. {high}")
+        text += [f"tempco {key} {value}" for key, value in model.tempco.items()]
+        return Spread.from_text("\n".join(text))
 
     # -- files -----------------------------------------------------------------------------------------
     def save(self, path: str | os.PathLike[str]) -> Path:

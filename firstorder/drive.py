@@ -11,6 +11,7 @@ from __future__ import annotations
 import csv
 import io
 import math
+import operator
 import os
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
@@ -80,7 +81,7 @@ def _as_float_array(values: Any, *, field: str, unit: str, increasing: bool = Fa
         array = buffer[:buffer.size - room]
     else:
         array = parse_array(values, field=field, unit=unit, allow_bool=allow_bool, what=what)
-        finite = math.isfinite(array.sum())  # one cheap pass: NaN or inf anywhere shows in the sum
+        finite = _sum_is_finite(array)
         in_order = not increasing or _first_not_increasing(array) < 0
         buffer = np.concatenate([array, np.empty(room)]) if room else array
     if not finite:
@@ -130,6 +131,10 @@ def level_columns(columns: Mapping[str, Any], count: int | None, field: str = "d
     return parsed
 
 
+#: Up to this many values :func:`_copy_checked` checks them as Python floats.
+_CHECKED_IN_PYTHON = 64
+
+
 def _copy_checked(values: np.ndarray, increasing: bool, room: int = 0) -> tuple[np.ndarray, bool, bool]:
     """A copy of the 1-D float array `values` (followed by `room` unset elements), whether
     all are finite, and whether they strictly increase (checked only if `increasing`);
@@ -139,10 +144,23 @@ def _copy_checked(values: np.ndarray, increasing: bool, room: int = 0) -> tuple[
     if kernels is None:
         array = buffer[:values.size]
         np.copyto(array, values)
-        return buffer, math.isfinite(array.sum()), not increasing or _first_not_increasing(array) < 0
+        if values.size <= _CHECKED_IN_PYTHON:
+            # A few values: Python floats check them faster than numpy calls set up (the
+            # same answers: inf or NaN anywhere makes the sum not finite, and for finite
+            # values b > a is the strict order).
+            listed = values.tolist()
+            return buffer, math.isfinite(sum(listed)), not increasing or all(map(operator.lt, listed, listed[1:]))
+        return buffer, _sum_is_finite(array), not increasing or _first_not_increasing(array) < 0
     flags = _parallel.run(lambda first, stop: kernels.copy_checked(values, buffer, first, stop),
                           _parallel.pieces(values.size))
     return buffer, all(finite for finite, _ in flags), all(ordered for _, ordered in flags)
+
+
+def _sum_is_finite(array: np.ndarray) -> bool:
+    """One cheap pass: NaN or inf anywhere makes the sum not finite (so does a sum past
+    the largest float, which the caller's closer look then clears, without a warning)."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        return math.isfinite(array.sum())
 
 
 def _first_not_increasing(times: np.ndarray) -> int:

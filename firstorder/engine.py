@@ -109,6 +109,10 @@ def segment_factors(times: np.ndarray, ends: np.ndarray, rate: np.ndarray) -> tu
     kernels = _kernels.available(n)
     if kernels is None:
         exponent = _exponents(ends - times, rate)
+        if exponent.max() <= -_kernels.SMALL_EXPONENT:
+            # The usual case, every segment longer than a sliver of its time constant, told
+            # by one reduction (a short drive's fixed cost is made of such calls).
+            return exp_in_place(exponent, nonpositive=True), None
         small = _small(exponent)
         if small.size == 0:
             return exp_in_place(exponent, nonpositive=True), None
@@ -240,11 +244,15 @@ def relaxation_scan(decay: np.ndarray, growth: np.ndarray | None, target: np.nda
         # the arrays below (1 - a, then growth * (scale * target)), one float at a time.
         x = float(x0)
         out = [x]
-        a_list = decay.tolist()
-        g_list = [1.0 - a for a in a_list] if growth is None else growth.tolist()
-        for a, g, t in zip(a_list, g_list, np.asarray(target, dtype=np.float64).tolist()):
-            x = a * x + g * (scale * t)
-            out.append(x)
+        targets = np.asarray(target, dtype=np.float64).tolist()
+        if growth is None:
+            for a, t in zip(decay.tolist(), targets):
+                x = a * x + (1.0 - a) * (scale * t)
+                out.append(x)
+        else:
+            for a, g, t in zip(decay.tolist(), growth.tolist(), targets):
+                x = a * x + g * (scale * t)
+                out.append(x)
         return np.array(out)
     # A lot (a leading unit axis) takes the numpy path, whose numbers the kernels repeat.
     kernels = _kernels.available(decay.size) if decay.ndim == 1 else None

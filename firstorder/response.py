@@ -21,13 +21,11 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from . import engine
+from .drive import Drive
 from .errors import InputError
+from .fixture import Fixture
 from .segments import Segments
 from .units import format_value, parse_array, parse_value, shown
-
-if TYPE_CHECKING:
-    from .drive import Drive
-    from .fixture import Fixture
 
 __all__ = ["COMPONENTS", "Response", "read_initial", "respond"]
 
@@ -86,9 +84,6 @@ def respond(fixture: "Fixture", drive: "Drive", initial: Any = 0.0) -> "Response
     Fixture.respond : the same, as a method.
     Response.from_segments : a response of a measured model, without a fixture.
     """
-    from .drive import Drive
-    from .fixture import Fixture
-
     if not isinstance(fixture, Fixture):
         raise InputError(f"fixture: {shown(fixture)} is not a Fixture; build one with Fixture.rc(r, c) or Fixture()")
     if not isinstance(drive, Drive):

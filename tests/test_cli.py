@@ -259,6 +259,13 @@ class TestOutputs:
         assert list(tmp_path.iterdir()) == []
 
 
+def _replaced(text: str, old: str, new: str) -> str:
+    """`text` with the first `old` made `new`; `old` must be there (else the case would test
+    the good file)."""
+    assert old in text, f"{old!r} is not in the file any more: update the case"
+    return text.replace(old, new, 1)
+
+
 def _malformed_files() -> dict[str, str]:
     """Bad analysis files a user might meet, each as its text."""
     good = json.loads(cli.demo_analysis().to_json())
@@ -275,12 +282,12 @@ def _malformed_files() -> dict[str, str]:
         "a string": '"firstorder"',
         "null": "null",
         "NUL bytes": "\x00" * 20,
-        "huge integer time": json.dumps(good).replace('"times": [0.0', f'"times": [{huge}', 1),
-        "huge integer value": changed(lambda d: d["fixture"]["parts"][1].update(value=0)).replace(
-            '"value": 0', f'"value": {huge}', 1),
-        "huge integer version": json.dumps(good).replace('"version": 1', f'"version": {huge}', 1),
-        "huge integer bits": json.dumps(good).replace('"bits": 16', f'"bits": {huge}', 1),
-        "huge exponent": json.dumps(good).replace('"end": 0.0014', '"end": 1e999', 1),
+        "huge integer time": _replaced(json.dumps(good), '"times": [0.0', f'"times": [{huge}'),
+        "huge integer value": _replaced(changed(lambda d: d["fixture"]["parts"][1].update(value=0)),
+                                        '"value": 0', f'"value": {huge}'),
+        "huge integer version": _replaced(json.dumps(good), f'"version": {good["version"]}', f'"version": {huge}'),
+        "huge integer bits": _replaced(json.dumps(good), '"bits": 16', f'"bits": {huge}'),
+        "huge exponent": _replaced(json.dumps(good), '"end": 0.0014', '"end": 1e999'),
         "kind missing": changed(lambda d: d["fixture"]["parts"][0].pop("kind")),
         "kind null": changed(lambda d: d["fixture"]["parts"][0].update(kind=None)),
         "kind unknown": changed(lambda d: d["fixture"]["parts"][0].update(kind="transistor")),

@@ -195,3 +195,24 @@ class TestBooleansAreNotNumbers:
     def test_true_is_refused_where_a_number_is_read(self, call):
         with pytest.raises(InputError, match="True is not a number; write 1 or 0"):
             call()
+
+
+class TestShortAndLongChecksAgree:
+    """Short float arrays are checked as Python floats, longer ones by numpy: the same
+    refusals either side of the boundary, at the last position too."""
+
+    @pytest.mark.parametrize("n", [2, 63, 64, 65, 200])
+    @pytest.mark.parametrize("bad, message", [(np.nan, "is not allowed"), (np.inf, "is not allowed"),
+                                              (-np.inf, "is not allowed"), ("repeat", "does not come after")])
+    def test_the_last_time_refused(self, n, bad, message):
+        times = np.arange(n, dtype=float)
+        times[-1] = times[-2] if bad == "repeat" else bad
+        with pytest.raises(InputError, match=rf"drive\.times\[{n - 1}\]: .*{message}"):
+            fo.Drive(times, n + 1.0, vin=np.zeros(n))
+
+    @pytest.mark.parametrize("n", [63, 64, 65])
+    def test_a_sum_that_overflows_is_not_a_bad_value(self, n):
+        # Finite values whose float sum is inf (the cheap check's false alarm) are accepted.
+        levels = np.full(n, 1.5e308)
+        drive = fo.Drive(np.arange(n, dtype=float), float(n), vin=levels)
+        assert drive.columns["vin"][-1] == 1.5e308

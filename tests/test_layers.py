@@ -45,7 +45,7 @@ LAYERS = [
     "response",
     "settling.tolerance", "settling.table", "settling.planning", "settling",
     "studies.spread", "studies.lot", "studies.summary", "studies.run", "studies.budget", "studies.adaptive",
-    "studies.display", "studies.study", "studies.worst", "studies",
+    "studies.display", "studies.study", "studies.worst", "studies.sweep", "studies",
     "cautions",
     "symbolic.names", "symbolic.nodal", "symbolic.steps", "symbolic.derivation", "symbolic",
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",

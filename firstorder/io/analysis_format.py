@@ -22,13 +22,16 @@ from typing import Any
 
 from ..errors import InputError
 
-__all__ = ["EMBED_ID", "FORMAT_NAME", "FORMAT_VERSION", "MAX_CHANGES", "MAX_COLUMNS", "MAX_FILE_BYTES", "MAX_NAME",
-           "MAX_NOTES", "MAX_NUMBER_TEXT", "MAX_PARTS", "MAX_TITLE", "as_typed", "at", "check_lengths",
+__all__ = ["EMBED_ID", "FORMAT_NAME", "FORMAT_VERSION", "MAX_CHANGES", "MAX_COLUMNS", "MAX_FILE_BYTES", "MAX_FRACTIONS",
+           "MAX_NAME", "MAX_NOTES", "MAX_NUMBER_TEXT", "MAX_PARTS", "MAX_TITLE", "MAX_UNITS", "READ_VERSIONS", "as_typed",
+           "at", "check_lengths",
            "describe_validation", "embed_safe", "file_text", "json_text_of", "parse_json", "path_text",
            "read_limited"]
 
 FORMAT_NAME = "firstorder-analysis"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+#: Versions this firstorder reads (version 1 has no tolerance study).
+READ_VERSIONS = (1, 2)
 #: Files larger than this are refused before they are parsed (50 MB).
 MAX_FILE_BYTES = 50_000_000
 #: Most changes a drive in a file may have.
@@ -41,6 +44,9 @@ MAX_NAME = 200
 MAX_NUMBER_TEXT = 100
 MAX_TITLE = 1_000
 MAX_NOTES = 100_000
+#: Units of a study kept in a file (a cluster study may run more; the file holds its settings).
+MAX_UNITS = 1_000_000_000
+MAX_FRACTIONS = 20
 #: The id of the ``<script type="application/json">`` block that carries the
 #: analysis inside a report, so that :meth:`Analysis.load` reads reports too.
 EMBED_ID = "firstorder-analysis"
@@ -173,7 +179,7 @@ def check_lengths(data: dict[str, Any]) -> None:
                 raise InputError(too_long(path_text(path), len(value), limit))
         elif isinstance(value, dict):
             for key, item in value.items():
-                if path == ["drive", "columns"] and len(key) > MAX_NAME:
+                if path in (["drive", "columns"], ["spread", "bands"], ["spread", "tempco"]) and len(key) > MAX_NAME:
                     raise InputError(too_long(path_text(path), len(key), MAX_NAME).replace(
                         ": is", f": the name {_short(key)} is", 1))
                 walk(item, [*path, key])

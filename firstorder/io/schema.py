@@ -22,11 +22,16 @@ from pydantic import (
     StrictFloat,
     StrictInt,
     StrictStr,
+    model_validator,
 )
 
+from ..errors import InputError
 from ..units import parse_value
-from .analysis_format import (FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES, MAX_COLUMNS, MAX_NAME, MAX_NOTES,
-                              MAX_NUMBER_TEXT, MAX_PARTS, MAX_TITLE)
+from .analysis_format import (FORMAT_NAME, FORMAT_VERSION, MAX_CHANGES, MAX_COLUMNS, MAX_FRACTIONS, MAX_NAME,
+                              MAX_NOTES, MAX_NUMBER_TEXT, MAX_PARTS, MAX_TITLE, MAX_UNITS, READ_VERSIONS)
+
+#: The fields of a tolerance study (version 2).
+STUDY_FIELDS = ("spread", "units", "seed", "fractions")
 
 __all__ = ["AnalysisFile", "KINDS"]
 
@@ -178,9 +183,48 @@ def _known_version(version: int) -> int:
     if version > FORMAT_VERSION:
         raise ValueError(f"version: {version!r} is newer than this firstorder reads (version "
                          f"{FORMAT_VERSION}); the file was written by a newer firstorder, update to read it")
-    if version != FORMAT_VERSION:
-        raise ValueError(f"version: {version!r} is not a version this firstorder reads (it reads version {FORMAT_VERSION})")
+    if version not in READ_VERSIONS:
+        raise ValueError(f"version: {version!r} is not a version this firstorder reads (it reads versions "
+                         f"{', '.join(map(str, READ_VERSIONS))})")
     return version
+
+
+# -- tolerance study (version 2) -----------------------------------------------------------
+def _band_check(text: str) -> str:
+    from ..studies.spread import band_from_text
+
+    try:
+        band_from_text(text, "value")
+    except InputError as error:
+        raise ValueError(str(error).replace("spread value: ", "value: ", 1)) from None
+    return text
+
+
+def _tempco_check(text: str) -> str:
+    from ..studies.spread import Spread
+
+    try:
+        Spread({"value": "1%"}, temperature=(0, 1), tempco={"value": text})
+    except InputError as error:
+        raise ValueError(str(error).replace("spread tempco value: ", "value: ", 1)) from None
+    return text
+
+
+BandText = Annotated[StrictStr, Field(min_length=1, max_length=MAX_NUMBER_TEXT), AfterValidator(_band_check)]
+TempcoText = Annotated[StrictStr, Field(min_length=1, max_length=MAX_NUMBER_TEXT), AfterValidator(_tempco_check)]
+
+
+class SpreadModel(_Closed):
+    """Each band in the spread's text form (``"1%"``, ``"50m .. 300m"``, ``"normal 3% within 9%"``),
+    the temperature range in °C and the tempcos per kelvin."""
+
+    bands: Annotated[dict[Name, BandText], Field(min_length=1, max_length=MAX_PARTS)]
+    temperature: Annotated[list[Annotated[Quantity, _quantity_check(("°C", "C"))]],
+                           Field(min_length=2, max_length=2)] | None = None
+    tempco: Annotated[dict[Name, TempcoText], Field(max_length=MAX_PARTS)] = {}
+
+
+Fraction = Annotated[FiniteFloat, Field(gt=0.0, le=1.0)]
 
 
 #: The kinds each field of kinds of objects allows, to name them when a file leaves ``kind`` out.
@@ -204,3 +248,17 @@ class AnalysisFile(_Closed):
     initial: Quantity = 0.0
     tolerance: ToleranceModel | None = None
     sample_delay: Union[Delay, Annotated[list[Delay], Field(min_length=1, max_length=MAX_CHANGES)], None] = None
+    # Version 2: a tolerance study of the lot.
+    spread: SpreadModel | None = None
+    units: Annotated[StrictInt, Field(ge=1, le=MAX_UNITS)] | None = None
+    seed: Annotated[StrictInt, Field(ge=0, lt=2**63)] | None = None
+    fractions: Annotated[list[Fraction], Field(min_length=1, max_length=MAX_FRACTIONS)] | None = None
+
+    @model_validator(mode="after")
+    def _study_fields_of_version_2(self) -> "AnalysisFile":
+        given = [name for name in STUDY_FIELDS if getattr(self, name) is not None]
+        if given and self.version < 2:
+            raise ValueError(f"{given[0]}: is a field of version 2 files; this file says version {self.version}")
+        if self.spread is None and given:
+            raise ValueError(f"{given[0]}: given without a spread; a study needs the spread of the parts")
+        return self

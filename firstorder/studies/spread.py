@@ -338,6 +338,11 @@ class Spread:
     def temperature(self) -> tuple[float, float] | None:
         return self._temperature
 
+    @property
+    def tempco_text(self) -> dict[str, str]:
+        """Each tempco as written (``{"rs": "25ppm"}``), per kelvin from 25 °C."""
+        return dict(self._tempco_text)
+
     def band(self, key: str) -> Uniform | Normal | Any:
         return self._bands[key]
 
@@ -390,7 +395,7 @@ class Spread:
             elif head in bands:
                 raise InputError(f"spread: {head!r} is given twice; give each quantity once")
             else:
-                bands[head] = _band_from_text(rest, head)
+                bands[head] = band_from_text(rest, head)
         return cls(bands, temperature=temperature, tempco=tempco or None)
 
     # -- against a fixture -------------------------------------------------------------------
@@ -440,7 +445,15 @@ class Spread:
         return tuple(resolved)
 
 
-def _band_from_text(text: str, key: str) -> Uniform | Normal | _Symmetric:
+def band_from_text(text: str, key: str) -> Uniform | Normal | _Symmetric:
+    """One band in the text form (``"1%"``, ``"50m .. 300m"``, ``"normal 3% within 9%"``);
+    errors name ``spread <key>``.
+
+    Examples
+    --------
+    >>> band_from_text("normal 3% within 9%", "c")
+    Normal('3%', within='9%')
+    """
     if text.startswith("normal "):
         sd, _, within = text[len("normal "):].partition(" within ")
         return Normal(sd.strip(), within=within.strip() or None)

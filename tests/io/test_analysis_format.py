@@ -45,8 +45,8 @@ MALFORMED = [
     ("empty", lambda d: "", "line 1, column 1"),
     ("top level is a list", lambda d: [d], "the top level: .* expected an object"),
     ("wrong format name", lambda d: _set(d, ["format"], "other-format"), r"format: 'other-format' is not allowed"),
-    ("older version", lambda d: _set(d, ["version"], 0), "version: 0 is not a version this firstorder reads"),
-    ("newer version", lambda d: _set(d, ["version"], 2), "version: 2 is newer than this firstorder reads"),
+    ("older version", lambda d: _set(d, ["version"], 0), r"version: 0 is not a version this firstorder reads \(it reads versions 1, 2\)"),
+    ("newer version", lambda d: _set(d, ["version"], 3), "version: 3 is newer than this firstorder reads"),
     ("version as text", lambda d: _set(d, ["version"], "1"), "version: '1' is the wrong type; expected a whole number"),
     ("version true", lambda d: _set(d, ["version"], True), "version: true is the wrong type"),
     ("unknown top-level field", lambda d: _set(d, ["colour"], "red"), "colour: is not a field of this format"),
@@ -142,7 +142,7 @@ class TestToJson:
     def test_format_fields(self):
         data = valid_data()
         assert data["format"] == "firstorder-analysis"
-        assert data["version"] == 1
+        assert data["version"] == 2
         assert data["saved_with"] == f"firstorder {fo.__version__}"
         assert list(data) == ["format", "version", "saved_with", "title", "notes", "fixture", "drive",
                               "initial", "tolerance", "sample_delay"]
