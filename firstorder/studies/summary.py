@@ -54,14 +54,18 @@ def _canonical(values: np.ndarray) -> np.ndarray:
 class Ranked:
     """Per column, the `low` smallest and `high` largest values of `count` values.
 
+    The kept values are a multiset per column, in no particular order (a partition keeps
+    them; sorting them would cost more than the rest of a summary): :meth:`at` picks a rank
+    from them, and equality compares them sorted.
+
     Attributes
     ----------
     count : int
         Values seen per column.
-    smallest : ndarray, shape (min(low, count), columns)
-        Ascending.
-    largest : ndarray, shape (min(high, count), columns)
-        Ascending (the largest value last; NaN counts as larger than every number).
+    smallest : ndarray, shape (columns, min(low, count))
+        The smallest values of each column (NaN counts as larger than every number).
+    largest : ndarray, shape (columns, min(high, count))
+        The largest values of each column.
     low, high : int
         How many to keep of each side.
     """
@@ -78,27 +82,27 @@ class Ranked:
 
         Examples
         --------
-        >>> r = Ranked.of(np.array([[3.0], [1.0], [2.0]]), 1, 1)
-        >>> r.smallest.tolist(), r.largest.tolist()
-        ([[1.0]], [[3.0]])
+        >>> r = Ranked.of(np.array([[3.0], [1.0], [2.0]]), 1, 2)
+        >>> r.smallest.tolist(), sorted(r.largest[0].tolist()), float(r.at(1)[0])
+        ([[1.0]], [2.0, 3.0], 2.0)
         """
         values = np.asarray(values, dtype=np.float64)
-        count = values.shape[0]
+        by_column = _canonical(np.ascontiguousarray(values.T))  # each column's units side by side
+        return cls._kept(values.shape[0], by_column, low, high)
+
+    @classmethod
+    def _kept(cls, count: int, by_column: np.ndarray, low: int, high: int) -> "Ranked":
+        """From (columns, units) values that this may reorder in place."""
         a, b = min(low, count), min(high, count)
-        if a + b >= count:
-            ordered = np.sort(_canonical(values), axis=0)
-            return cls(count, ordered[:a], ordered[count - b:], low, high)
-        # One partition (each column's units side by side), then a sort of the kept values only.
-        by_column = _canonical(np.ascontiguousarray(values.T))
-        kth = sorted({r for r in (a - 1, count - b) if 0 <= r < count})
-        if kth:
-            by_column.partition(kth, axis=1)
-        smallest = np.ascontiguousarray(np.sort(by_column[:, :a], axis=1).T)
-        largest = np.ascontiguousarray(np.sort(by_column[:, count - b:], axis=1).T)
+        if a + b < count:  # the two sides apart: one partition places both
+            by_column.partition([r for r in (a - 1, count - b) if r >= 0], axis=1)
+            return cls(count, by_column[:, :a].copy(), by_column[:, count - b:].copy(), low, high)
+        smallest = np.partition(by_column, a - 1, axis=1)[:, :a] if a else by_column[:, :0].copy()
+        largest = np.partition(by_column, count - b, axis=1)[:, count - b:] if b else by_column[:, :0].copy()
         return cls(count, smallest, largest, low, high)
 
     def merge(self, other: "Ranked") -> "Ranked":
-        """Both summaries as one (the same whichever is first).
+        """Both summaries as one (the same multisets whichever is first).
 
         Examples
         --------
@@ -109,23 +113,31 @@ class Ranked:
         """
         if (self.low, self.high) != (other.low, other.high):
             raise ValueError("Ranked.merge: summaries keep different numbers of values")
-        smallest = np.sort(np.concatenate([self.smallest, other.smallest]), axis=0)[:self.low]
-        largest = np.sort(np.concatenate([self.largest, other.largest]), axis=0)
-        largest = largest[max(0, largest.shape[0] - self.high):]
+        smallest = np.concatenate([self.smallest, other.smallest], axis=1)
+        if smallest.shape[1] > self.low:
+            smallest.partition(self.low - 1, axis=1)
+            smallest = smallest[:, :self.low].copy()
+        largest = np.concatenate([self.largest, other.largest], axis=1)
+        if largest.shape[1] > self.high:
+            cut = largest.shape[1] - self.high
+            largest.partition(cut, axis=1)
+            largest = largest[:, cut:].copy()
         return Ranked(self.count + other.count, smallest, largest, self.low, self.high)
 
     def at(self, r: int) -> np.ndarray:
         """Per column, the value of 0-based rank `r` among all `count` values."""
-        if r < self.smallest.shape[0]:
-            return self.smallest[r].copy()
+        if r < self.smallest.shape[1]:
+            return np.partition(self.smallest, r, axis=1)[:, r]
         from_top = self.count - r  # 1 is the largest
-        if 1 <= from_top <= self.largest.shape[0]:
-            return self.largest[self.largest.shape[0] - from_top].copy()
+        kept = self.largest.shape[1]
+        if 1 <= from_top <= kept:
+            return np.partition(self.largest, kept - from_top, axis=1)[:, kept - from_top]
         raise ValueError(f"Ranked.at: rank {r} of {self.count} is not kept (low {self.low}, high {self.high})")
 
     def __eq__(self, other: object) -> bool:
         return (isinstance(other, Ranked) and (self.count, self.low, self.high) == (other.count, other.low, other.high)
-                and _same(self.smallest, other.smallest) and _same(self.largest, other.largest))
+                and _same(np.sort(self.smallest, axis=1), np.sort(other.smallest, axis=1))
+                and _same(np.sort(self.largest, axis=1), np.sort(other.largest, axis=1)))
 
     __hash__ = None  # type: ignore[assignment]
 
