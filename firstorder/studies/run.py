@@ -246,10 +246,11 @@ class UnitsRun:
 
 def summarize(lot: LotSettling, request: Request, first: int) -> SettlingSummary:
     """The summary of units ``first ..`` from their settling columns."""
-    settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(lot.limit > 0, lot.error_at_sample / lot.limit, np.inf)
-    return SettlingSummary(Ranked.of(settle, *request.settle_sides), Ranked.of(lot.error_at_sample, *request.error_sides),
+    # A unit that never settles in a segment (NaN) is the slowest there: inf.
+    return SettlingSummary(Ranked.of(lot.settle_time, *request.settle_sides, nan_as=np.inf),
+                           Ranked.of(lot.error_at_sample, *request.error_sides),
                            lot.ok.sum(axis=0, dtype=np.int64), int(lot.ok.all(axis=1).sum()), Worst.of(ratio, first))
 
 

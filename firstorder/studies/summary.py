@@ -43,10 +43,15 @@ def sides(ranks: Sequence[int], count: int) -> tuple[int, int]:
     return low, high
 
 
-def _canonical(values: np.ndarray) -> np.ndarray:
-    # -0.0 sorts equal to 0.0 and NaNs may carry payloads: make equal values equal in bits,
-    # so which copy a sort keeps cannot depend on the grouping.
-    out = np.where(np.isnan(values), np.nan, values) + 0.0
+def _canonical(values: np.ndarray, nan_as: float = np.nan) -> np.ndarray:
+    """A C-ordered copy of `values` in which equal values are equal in bits, NaN as `nan_as`.
+
+    -0.0 sorts equal to 0.0 and NaNs may carry payloads: made one (adding +0.0 turns -0.0
+    into 0.0), which copy a partition keeps cannot depend on the grouping."""
+    out = np.add(values, 0.0, order="C")
+    nan = np.isnan(out)
+    if nan.any():
+        out[nan] = nan_as
     return out
 
 
@@ -77,8 +82,8 @@ class Ranked:
     high: int
 
     @classmethod
-    def of(cls, values: np.ndarray, low: int, high: int) -> "Ranked":
-        """The summary of (units, columns) `values`.
+    def of(cls, values: np.ndarray, low: int, high: int, nan_as: float = np.nan) -> "Ranked":
+        """The summary of (units, columns) `values` (a NaN taken as `nan_as`).
 
         Examples
         --------
@@ -87,7 +92,7 @@ class Ranked:
         ([[1.0]], [2.0, 3.0], 2.0)
         """
         values = np.asarray(values, dtype=np.float64)
-        by_column = _canonical(np.ascontiguousarray(values.T))  # each column's units side by side
+        by_column = _canonical(values.T, nan_as)  # each column's units side by side, a new array
         return cls._kept(values.shape[0], by_column, low, high)
 
     @classmethod
@@ -96,7 +101,7 @@ class Ranked:
         a, b = min(low, count), min(high, count)
         if a + b < count:  # the two sides apart: one partition places both
             by_column.partition([r for r in (a - 1, count - b) if r >= 0], axis=1)
-            return cls(count, by_column[:, :a].copy(), by_column[:, count - b:].copy(), low, high)
+            return cls(count, _own(by_column[:, :a], by_column), _own(by_column[:, count - b:], by_column), low, high)
         smallest = np.partition(by_column, a - 1, axis=1)[:, :a] if a else by_column[:, :0].copy()
         largest = np.partition(by_column, count - b, axis=1)[:, count - b:] if b else by_column[:, :0].copy()
         return cls(count, smallest, largest, low, high)
@@ -161,9 +166,14 @@ class Worst:
     @classmethod
     def of(cls, score: np.ndarray, first: int) -> "Worst":
         """From (units, columns) `score` of units ``first, first + 1, ...`` (NaN as inf)."""
-        score = np.where(np.isnan(score), np.inf, score)
-        best = np.argmax(score, axis=0)  # the first of equal maxima: the lowest unit
-        return cls(score[best, np.arange(score.shape[1])] + 0.0, best.astype(np.int64) + first)
+        nan = np.isnan(score)
+        if nan.any():
+            score = np.where(nan, np.inf, score)
+        # The largest by a reduction down the units, then the first unit that reaches it
+        # (an argmax down a float array would copy it transposed first).
+        largest = score.max(axis=0)
+        best = np.argmax(score == largest, axis=0)
+        return cls(largest + 0.0, best.astype(np.int64) + first)
 
     def merge(self, other: "Worst") -> "Worst":
         take = (other.score > self.score) | ((other.score == self.score) & (other.unit < self.unit))
@@ -212,6 +222,13 @@ class SettlingSummary:
                 and self.worst == other.worst)
 
     __hash__ = None  # type: ignore[assignment]
+
+
+def _own(kept: np.ndarray, whole: np.ndarray) -> np.ndarray:
+    """`kept`, a view of the summary's own array `whole`: copied when it is a small part of
+    it (so the summary does not hold the chunk), else kept as the view (a copy would cost
+    more time than the memory it frees)."""
+    return kept.copy() if 2 * kept.size < whole.size else kept
 
 
 def merge_all(summaries: Iterable):
