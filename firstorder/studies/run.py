@@ -111,6 +111,7 @@ class UnitsRun:
         self.final = np.where(self.holds, self.boundary[:, :-1], self.source_final)
         self._probes: dict[str, tuple[np.ndarray, np.ndarray, str]] = {}
         self._tau: np.ndarray | None = None
+        self._durations: np.ndarray | None = None
         self._scans: dict[str, tuple[np.ndarray, np.ndarray]] = {"total": (self.boundary[:, :-1], self.final)}
 
     def unit_response(self, row: int) -> "Response":
@@ -135,15 +136,18 @@ class UnitsRun:
             # is that difference), so a zero start and the durations give the same columns.
             size = shape[0] * shape[1]
             times = np.broadcast_to(0.0, (size,))
-            ends = np.tile(drive.durations, shape[0]) if within_segment else np.broadcast_to(np.inf, (size,))
+            ends = self._flat_durations() if within_segment else np.broadcast_to(np.inf, (size,))
             limit, settle, _, residual = engine.settling_columns(
                 start.ravel(), final.ravel(), self._flat_tau(), self.decay.ravel(), times, ends, value, relative)
             limit = np.broadcast_to(limit, (size,)).reshape(shape)
             if delays is None:
                 error = residual.reshape(shape)
             else:
-                # As the settling table forms it: the step times the decay to the sample.
-                error = np.abs(final - start) * engine.exp_in_place(-delays * self.rate)
+                # As the settling table forms it: the step times the decay to the sample
+                # (the same operations, in place: two arrays made, not four).
+                error = np.subtract(final, start)
+                np.abs(error, out=error)
+                error *= engine.exp_in_place(np.multiply(-delays, self.rate))
             settle = settle.reshape(shape)
         else:
             durations = drive.durations if within_segment else np.full(shape[1], np.inf)
@@ -163,7 +167,7 @@ class UnitsRun:
 
     def watched(self, probe: str | None) -> tuple[str, str, np.ndarray, np.ndarray]:
         """The watched quantity of every unit: unit, label, start and final (units, n)."""
-        state_start = self.boundary[:, :-1]
+        state_start = self.state_start
         if probe is None:
             segments = self.nominal.segments
             return (segments.state_unit, f"the state of {segments.storage_kind} '{segments.storage_name}'",
@@ -235,6 +239,20 @@ class UnitsRun:
             # Each unit's own periodic start, from its own response (the one reading of it).
             return np.array([self.unit_response(u).initial for u in range(self.count)])
         return np.full(self.count, float(start))
+
+    @property
+    def state_start(self) -> np.ndarray:
+        """(units, n): the state just after every change, contiguous (made once: the settling
+        columns read it flat)."""
+        if "_state_start" not in self.__dict__:
+            self._state_start = np.ascontiguousarray(self.boundary[:, :-1])
+        return self._state_start
+
+    def _flat_durations(self) -> np.ndarray:
+        """Every segment's duration for every unit, flat, made once."""
+        if self._durations is None:
+            self._durations = np.tile(self.drive.durations, self.count)
+        return self._durations
 
     def _flat_tau(self) -> np.ndarray:
         """Every unit's tau of every segment, flat (as Segments.tau forms it), made once."""
