@@ -274,7 +274,7 @@ class TestPackage:
         assert [name for name in LAYERS if name not in modules] == []
 
     @pytest.mark.parametrize("library", ["sympy", "ipywidgets", "bokeh", "scipy", "numba", "pandas", "dask",
-                                         "pydantic", "jupyter_bokeh"])
+                                         "pydantic", "jupyter_bokeh", "tqdm"])
     def test_import_firstorder_loads_no_heavy_library(self, library, fresh_import):
         assert library not in fresh_import
 

@@ -2,9 +2,11 @@
 
 The adaptive Monte Carlo procedure of JCGM 101:2008, 7.9.4 (from memory), with the
 study's figures as its results: each batch ``r`` of `batch` units (10^4 there) gives every
-figure ``y(r)`` the study reports for its tolerance: per segment the settle time and the
-error at the sample at each fraction, the yield, and the passing fraction (not the
-largest values, which grow with the number of units).  After each batch from the second,
+figure ``y(r)`` the study reports for its tolerance: per segment the settle time each
+fraction of units needs (as ``Study.delay_for``: past the segment's end too, so that a
+figure stays a number where units settle just after the end), the error at the sample at
+each fraction and the yield, and the passing fraction (not the largest values, which grow
+with the number of units).  After each batch from the second,
 ``s = sqrt(sum((y(r) - mean)^2) / (h (h - 1)))`` (the standard deviation of the average of
 the `h` batch results) is formed per figure, and the batches stop once ``2 s`` is within
 the numerical tolerance ``delta`` of every figure: ``delta = numerical_tolerance *
@@ -17,7 +19,7 @@ units ``r * batch ..`` are batch ``r``, so the same seed repeats the same study.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -48,6 +50,8 @@ class Adaptive:
         Figures held within it.
     margin : float
         The largest ``2 s / delta`` over the figures at the stop (at most 1).
+    figures_of_batches : ndarray, shape (batches, figures)
+        Every batch's figures (inf: never reached).
     """
 
     units: int
@@ -56,6 +60,7 @@ class Adaptive:
     numerical_tolerance: float
     figures: int
     margin: float
+    figures_of_batches: np.ndarray = field(repr=False, compare=False, default=None)
 
     def __str__(self) -> str:
         return (f"{self.batches} batches of {self.batch:,} units: every one of {self.figures:,} figures within "
@@ -63,13 +68,21 @@ class Adaptive:
                 f"JCGM 101 7.9)")
 
 
-def batch_figures(table) -> tuple[np.ndarray, np.ndarray]:
-    """A batch's figures from its settling table, flat, and which are fractions of units."""
-    names = [c for c in table.columns if (c.startswith("settle_time_") or c.startswith("error_"))
-             and not c.endswith("_max")] + ["yield"]
-    values = np.concatenate([table[c].to_numpy(dtype=np.float64) for c in names] + [
-        np.array([table.attrs["passing"] / table.attrs["units"]])])
-    fraction = np.concatenate([np.full(len(table), c == "yield") for c in names] + [np.array([True])])
+def batch_figures(table, need) -> tuple[np.ndarray, np.ndarray]:
+    """A batch's figures, flat, and which are fractions of units: from its settling `table`
+    the error at each fraction, the yield and the passing fraction; from `need` (its
+    summary past the segments' ends) the settle time each fraction needs."""
+    count = table.attrs["units"]
+    fractions = [float(c[len("error_"):-1]) / 100.0 for c in table.columns
+                 if c.startswith("error_") and not c.endswith("_max")]
+    from .study import rank
+
+    names = [c for c in table.columns if c.startswith("error_") and not c.endswith("_max")] + ["yield"]
+    values = np.concatenate([need.settle.at(rank(f, count)) for f in fractions]
+                            + [table[c].to_numpy(dtype=np.float64) for c in names]
+                            + [np.array([table.attrs["passing"] / count])])
+    fraction = np.concatenate([np.zeros(len(table) * len(fractions), dtype=bool)]
+                              + [np.full(len(table), c == "yield") for c in names] + [np.array([True])])
     return np.where(np.isnan(values), np.inf, values), fraction
 
 
@@ -99,7 +112,7 @@ def run_adaptive(study: "Study", numerical_tolerance: Any, batch: Any) -> Adapti
     batch = int(batch)
     tolerance, sample_delay, probe, target, fractions = study._figures
     results: list[np.ndarray] = []
-    fraction = None
+    margin = np.inf
     bar = None
     if study.progress:
         from tqdm.auto import tqdm
@@ -107,9 +120,11 @@ def run_adaptive(study: "Study", numerical_tolerance: Any, batch: Any) -> Adapti
         bar = tqdm(desc="adaptive study", unit="batch", leave=False)
     try:
         for h in range(1, MAX_BATCHES + 1):
-            table = study.settling(tolerance, sample_delay, probe, target, fractions, units=batch,
-                                   first=(h - 1) * batch)
-            figures, fraction = batch_figures(table)
+            first = (h - 1) * batch
+            table = study.settling(tolerance, sample_delay, probe, target, fractions, units=batch, first=first)
+            need = study.summary(tolerance, None, probe, target, fractions, within_segment=False, units=batch,
+                                 first=first)
+            figures, fraction = batch_figures(table, need)
             results.append(figures)
             if bar is not None:
                 bar.update(1)
@@ -117,13 +132,14 @@ def run_adaptive(study: "Study", numerical_tolerance: Any, batch: Any) -> Adapti
                 continue
             margin = _margin(np.stack(results), fraction, tolerance_value)
             if margin <= 1.0:
-                return Adaptive(h * batch, h, batch, tolerance_value, int(figures.size), margin)
+                return Adaptive(h * batch, h, batch, tolerance_value, int(figures.size), margin, np.stack(results))
     finally:
         if bar is not None:
             bar.close()
+    why = (f"twice the standard deviation of some figure is still {margin:.2f} times it" if np.isfinite(margin) else
+           "some figure is never reached in some batches and reached in others")
     raise InputError(f"numerical_tolerance: {tolerance_value:g} is not reached after {MAX_BATCHES} batches of "
-                     f"{batch:,} units (twice the standard deviation of some figure is still "
-                     f"{margin:.2f} times it); give a larger tolerance, or a fixed number of units")
+                     f"{batch:,} units ({why}); give a larger tolerance, or a fixed number of units")
 
 
 def _margin(results: np.ndarray, fraction: np.ndarray, tolerance: float) -> float:

@@ -24,7 +24,8 @@ def study_rows(study: "Study") -> list[tuple[str, str]]:
     """The display's rows as ``(name, text)``; the figures are computed once per study."""
     rows = [("units", f"{study.units:,}"), ("seed", str(study.seed)), ("spread", str(study.spread)),
             ("segments", f"{len(study.drive):,}"),
-            ("units held", "every unit (keep=True)" if study.keep else "a chunk at a time")]
+            ("units held", "every unit (keep=True)" if study.keep else "every unit (one chunk)" if study._cache
+             else f"a chunk of {study._chunk_size():,} units at a time")]
     if study.adaptive is not None:
         rows.append(("adaptive", str(study.adaptive)))
     figures = study._figures
@@ -74,6 +75,10 @@ def study_markdown(study: "Study") -> str:
     def cell(text: str) -> str:
         return text.replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
 
+    try:
+        rows = study_rows(study)
+    except ValueError as error:
+        return f"Tolerance study: {cell(str(error))}"
     lines = ["**Tolerance study**", "", "| | |", "|---|---|"]
-    lines += [f"| {cell(name)} | {cell(text)} |" for name, text in study_rows(study)]
+    lines += [f"| {cell(name)} | {cell(text)} |" for name, text in rows]
     return "\n".join(lines)

@@ -9,7 +9,7 @@ import pytest
 import firstorder as fo
 from firstorder.errors import InputError
 from firstorder.studies import Normal, Spread
-from firstorder.studies.adaptive import _margin, batch_figures
+from firstorder.studies.adaptive import _margin
 
 HALF_LSB_16 = fo.Tolerance.lsb(bits=16, span=5.0)
 FX = fo.Fixture.rc("10k", "100n")
@@ -33,11 +33,14 @@ def test_it_stops_after_whole_batches_with_every_figure_within_tolerance(study):
     assert record.batches >= 2 and study.units == record.batches * 2000 == record.units
     assert record.margin <= 1.0 and record.figures == 2 * (2 + 2 + 1) + 1
     # JCGM 101 7.9.4: one batch fewer would not have stopped
-    tables = [study.settling(HALF_LSB_16, "11.5m", fractions=(0.5, 0.9), units=2000, first=2000 * b)
-              for b in range(record.batches - 1)]
-    results = np.stack([batch_figures(t)[0] for t in tables])
-    if record.batches > 2:
-        assert _margin(results, batch_figures(tables[0])[1], 0.005) > 1.0
+    results = study.adaptive.figures_of_batches
+    fraction = np.zeros(results.shape[1], dtype=bool)
+    fraction[-(2 * 1 + 1):] = True  # the yields and the passing fraction come last
+    assert record.batches == 2 or _margin(results[:-1], fraction, 0.005) > 1.0
+    assert _margin(results, fraction, 0.005) == record.margin
+    # each batch's figures are those of a fixed study of that batch's units alone
+    table = study.settling(HALF_LSB_16, "11.5m", fractions=(0.5, 0.9), units=2000, first=2000)
+    assert np.array_equal(results[1][2 * 2:2 * 4], table[["error_50%", "error_90%"]].to_numpy().T.ravel())
 
 
 def test_the_same_seed_repeats_it_and_another_differs(study):
