@@ -210,17 +210,16 @@ class Study:
                                  "numerical_tolerance, such as fo.Tolerance.lsb(16, 5.0)")
             self.units = 0  # while the batches run
             self.adaptive = run_adaptive(self, numerical_tolerance, batch)
-            self.units = self.adaptive.units
-        else:
-            self.units = _count(units, len(drive), self.keep)
+            units = self.adaptive.units
+        self.units = _count(units, len(drive), self.keep)
         chunks = self._chunks()
-        for first, size in chunks:
-            self._lot.unit_values(drive, self._lot.draw(first, size))  # refuses a bad unit now, naming it
         # Held: every unit when kept, else the one chunk of a study that has only one.
         self._cache = self.keep or len(chunks) == 1
-        if self._cache:
-            for first, size in chunks:
+        for first, size in chunks:
+            if self._cache:
                 self._run(first, size)
+            else:  # refuses a bad unit now, naming it, as a run would
+                self._lot.unit_values(drive, self._lot.draw(first, size))
 
     # -- the units --------------------------------------------------------------------------
     @property
