@@ -26,6 +26,7 @@ import numpy as np
 
 from ..errors import InputError
 from ..units import parse_value, shown
+from .summary import rank
 
 if TYPE_CHECKING:
     from .study import Study
@@ -75,8 +76,6 @@ def batch_figures(table, need) -> tuple[np.ndarray, np.ndarray]:
     count = table.attrs["units"]
     fractions = [float(c[len("error_"):-1]) / 100.0 for c in table.columns
                  if c.startswith("error_") and not c.endswith("_max")]
-    from .study import rank
-
     names = [c for c in table.columns if c.startswith("error_") and not c.endswith("_max")] + ["yield"]
     values = np.concatenate([need.settle.at(rank(f, count)) for f in fractions]
                             + [table[c].to_numpy(dtype=np.float64) for c in names]

@@ -32,7 +32,7 @@ from ..units import parse_array, parse_value, shown
 from .lot import Lot
 from .run import LotSettling, Request, UnitsRun, read_delays
 from .spread import Spread
-from .summary import Ranked, SettlingSummary, merge_all, sides
+from .summary import Ranked, SettlingSummary, merge_all, rank, sides
 
 if TYPE_CHECKING:
     from ..drive import Drive
@@ -52,19 +52,6 @@ CHUNK_ELEMENTS = 2 ** 22
 
 #: A study of at least this many unit-segments over several chunks shows a progress bar.
 PROGRESS_ELEMENTS = 2 ** 24
-
-
-def rank(fraction: float, count: int) -> int:
-    """The 0-based rank of the smallest value that `fraction` of `count` values do not
-    exceed: ``ceil(fraction * count) - 1`` (0.999 of 1,000 is rank 998, the 999th smallest).
-
-    Examples
-    --------
-    >>> rank(0.999, 1000), rank(0.5, 3), rank(1.0, 7), rank(1e-9, 7)
-    (998, 1, 6, 0)
-    """
-    # fraction * count is rounded: 0.999 * 1000 is 999.0000000000001, which means 999 here.
-    return max(1, math.ceil(fraction * count - 1e-9 * count)) - 1
 
 
 def order_statistics(values: np.ndarray, fractions: tuple[float, ...]) -> tuple[list[np.ndarray], np.ndarray]:

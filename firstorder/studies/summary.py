@@ -16,13 +16,27 @@ the units of each column; ranks near the top (99 %, 99.9 %, the largest) keep fe
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from functools import reduce
 from typing import Iterable, Sequence
 
 import numpy as np
 
-__all__ = ["Ranked", "SettlingSummary", "Worst", "merge_all", "sides"]
+__all__ = ["Ranked", "SettlingSummary", "Worst", "merge_all", "rank", "sides"]
+
+
+def rank(fraction: float, count: int) -> int:
+    """The 0-based rank of the smallest value that `fraction` of `count` values do not
+    exceed: ``ceil(fraction * count) - 1`` (0.999 of 1,000 is rank 998, the 999th smallest).
+
+    Examples
+    --------
+    >>> rank(0.999, 1000), rank(0.5, 3), rank(1.0, 7), rank(1e-9, 7)
+    (998, 1, 6, 0)
+    """
+    # fraction * count is rounded: 0.999 * 1000 is 999.0000000000001, which means 999 here.
+    return max(1, math.ceil(fraction * count - 1e-9 * count)) - 1
 
 
 def sides(ranks: Sequence[int], count: int) -> tuple[int, int]:
