@@ -32,6 +32,7 @@ if TYPE_CHECKING:
     from ..drive import Drive
     from ..fixture import Fixture
     from ..response import Response
+    from ..settling.tolerance import Tolerance
     from .spread import Spread
 
 __all__ = ["LotSettling", "Request", "UnitsRun", "chunk_summary", "summarize"]
