@@ -36,6 +36,10 @@ __all__ = ["Adaptive", "MAX_BATCHES", "batch_figures", "run_adaptive"]
 #: Batches an adaptive study runs at most before it refuses the numerical tolerance.
 MAX_BATCHES = 100
 
+#: Unit-segments per batch from which the batches show a progress bar (a batch then takes
+#: a noticeable time).
+PROGRESS_BATCH_ELEMENTS = 2 ** 20
+
 
 @dataclass(frozen=True)
 class Adaptive:
@@ -113,7 +117,7 @@ def run_adaptive(study: "Study", numerical_tolerance: Any, batch: Any) -> Adapti
     results: list[np.ndarray] = []
     margin = np.inf
     bar = None
-    if study.progress:
+    if study.progress and batch * len(study.drive) >= PROGRESS_BATCH_ELEMENTS:
         from tqdm.auto import tqdm
 
         bar = tqdm(desc="adaptive study", unit="batch", leave=False)

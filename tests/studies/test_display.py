@@ -50,3 +50,15 @@ def test_a_long_study_shows_a_progress_bar_and_progress_false_silences_it(monkey
     assert "study chunks" in capsys.readouterr().err
     FX.study(DRIVE, spread, units=200, seed=1, chunk=50, progress=False).settling(HALF_LSB_16)
     assert "study chunks" not in capsys.readouterr().err
+
+
+def test_long_adaptive_batches_show_a_progress_bar(monkeypatch, capsys):
+    from firstorder.studies import adaptive
+
+    monkeypatch.setattr(adaptive, "PROGRESS_BATCH_ELEMENTS", 100)
+    FX.study(DRIVE, Spread({"c": "10%"}), units="adaptive", seed=1, numerical_tolerance="5%", batch=200,
+             tolerance=HALF_LSB_16)
+    assert "adaptive study" in capsys.readouterr().err
+    FX.study(DRIVE, Spread({"c": "10%"}), units="adaptive", seed=1, numerical_tolerance="5%", batch=200,
+             tolerance=HALF_LSB_16, progress=False)
+    assert "adaptive study" not in capsys.readouterr().err

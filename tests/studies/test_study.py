@@ -405,6 +405,19 @@ class TestChunks:
         merged = parts[2].merge(parts[0]).merge(parts[1])
         assert merged == kept.summary(fo.Tolerance.absolute("1m"), delays, fractions=(0.9,))
 
+    def test_a_chunk_and_its_summary_travel_between_processes(self, kept):
+        # What a worker would receive and send back (pickled, as a task scheduler sends it).
+        import pickle
+
+        from firstorder.studies.run import Request, chunk_summary
+        from firstorder.studies.summary import rank, sides
+
+        keep = sides([rank(0.95, 60), 59], 60)
+        request = Request(fo.Tolerance.absolute("1m"), None, "v_b", None, True, keep, keep)
+        arguments = pickle.loads(pickle.dumps((general_fixture(), general_drive(), general_spread(), request)))
+        summary = pickle.loads(pickle.dumps(chunk_summary(*arguments[:3], 5, 0.25, 40, 60, arguments[3])))
+        assert summary == kept.summary(fo.Tolerance.absolute("1m"), probe="v_b", fractions=(0.95,), units=60, first=40)
+
     def test_memory_holds_a_chunk_not_the_lot(self):
         import tracemalloc
 
