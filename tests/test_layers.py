@@ -44,7 +44,8 @@ LAYERS = [
     "engine",
     "response",
     "settling.tolerance", "settling.table", "settling.planning", "settling",
-    "studies.spread", "studies.lot", "studies.budget", "studies.study", "studies.worst", "studies.sweep", "studies",
+    "studies.spread", "studies.lot", "studies.summary", "studies.run", "studies.budget", "studies.adaptive",
+    "studies.display", "studies.study", "studies.worst", "studies.sweep", "studies",
     "cautions",
     "symbolic.names", "symbolic.nodal", "symbolic.steps", "symbolic.derivation", "symbolic",
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",
@@ -273,7 +274,7 @@ class TestPackage:
         assert [name for name in LAYERS if name not in modules] == []
 
     @pytest.mark.parametrize("library", ["sympy", "ipywidgets", "bokeh", "scipy", "numba", "pandas", "dask",
-                                         "pydantic", "jupyter_bokeh"])
+                                         "pydantic", "jupyter_bokeh", "tqdm"])
     def test_import_firstorder_loads_no_heavy_library(self, library, fresh_import):
         assert library not in fresh_import
 
