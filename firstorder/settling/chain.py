@@ -1,0 +1,316 @@
+"""The chain of a plan: dwells from per-step numbers alone (no fixture, no drive).
+
+Step ``k`` starts from the state ``x_k`` the step before left, heads for its final value
+``f_k`` at rate ``r_k = 1 / tau_k`` (0: the state is held), and its watched quantity moves
+``c_k`` times the state (``c_k = 1`` for the state itself, a probe's coefficient
+otherwise).  Its sample, ``hold_k`` before the next change, must lie within the
+tolerance's limit.  :func:`walk` gives the dwells one step after the other (the
+reference, and the path for a clock or given dwells); :func:`walk_fast` gives the same
+plan with whole-array operations; :func:`exact_aims` the aims that make the total the
+least (see its docstring for the proof).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..engine import affine_scan
+from ..errors import InputError
+
+__all__ = ["AIM_INSIDE", "LIMITS", "Chain", "Walk", "exact_aims", "tick_up", "walk", "walk_fast"]
+
+#: Each planned sample aims this fraction inside its limit, plus a few ulps of the state, so
+#: that evaluating the planned drive again (another rounding path) never fails by rounding alone.
+AIM_INSIDE = 1e-9
+_ROUNDING_ULPS = 8.0
+_EPS = float(np.finfo(float).eps)
+
+#: What set each dwell, by code (``Walk.limited``).
+LIMITS = ("settling", "min_dwell", "clock", "the lot")
+
+#: Rounds of :func:`walk_fast`'s search for which steps settle (two or three suffice; a
+#: chain needing more is walked step by step).
+_FAST_ROUNDS = 8
+
+
+@dataclass(frozen=True)
+class Chain:
+    """The per-step numbers of a plan.
+
+    Attributes
+    ----------
+    rate, final, gain : ndarray, shape (n,)
+        ``r_k`` (1/s; 0 holds), ``f_k`` (ignored where held) and ``|c_k|``.
+    value : float
+        The tolerance's limit, or its fraction of each step when `relative`.
+    relative : bool
+    margin : float
+        Fraction of each limit kept in reserve (the sample aims at ``(1 - margin)`` of it).
+    hold : ndarray, shape (n,)
+        Time each step holds after its sample (s).
+    shortest : float
+        The least dwell (s).
+    """
+
+    rate: np.ndarray
+    final: np.ndarray
+    gain: np.ndarray
+    value: float
+    relative: bool
+    margin: float
+    hold: np.ndarray
+    shortest: float
+
+
+@dataclass(frozen=True)
+class Walk:
+    """A walked chain: per step its start state, dwell, settle time, the limit and the
+    error at its sample, what limited it (codes into :data:`LIMITS`); the relative
+    instants of the changes (``n + 1``, from 0) and the state left at the end."""
+
+    state: np.ndarray
+    dwell: np.ndarray
+    settle: np.ndarray
+    limit: np.ndarray
+    error: np.ndarray
+    limited: np.ndarray
+    instants: np.ndarray
+    end_state: float
+
+
+def tick_up(dwell: float, tick: float) -> float:
+    """`dwell` rounded up to whole ticks, never below it.
+
+    Examples
+    --------
+    >>> tick_up(0.95e-5, 1e-5), tick_up(2e-5, 1e-5), tick_up(2.00001e-5, 1e-5)
+    (1e-05, 2e-05, 3e-05)
+    """
+    ticks = math.ceil(dwell / tick)
+    while ticks * tick < dwell:  # the division rounded down
+        ticks += 1
+    while ticks > 1 and (ticks - 1) * tick >= dwell:
+        ticks -= 1
+    return ticks * tick
+
+
+def _zero_dwell(k: int) -> InputError:
+    return InputError(
+        f"step {k}: needs no settling (its start is already within the tolerance) and min_dwell "
+        f"and hold_after are 0, so its dwell would be 0 s, which no drive segment can be; "
+        f"give min_dwell > 0 (for example the time one sample takes)")
+
+
+def walk(chain: Chain, x0: float, aims: np.ndarray | None = None, tick: float | None = None,
+         dwells: np.ndarray | None = None) -> Walk:
+    """Each step as fast as its sample allows (or for the given `dwells`), step by step.
+
+    `aims` caps each step's error at its sample below the greedy aim (the exact plan);
+    `tick` rounds each dwell up to whole ticks.  Instants are sums of dwells from 0, each
+    the float at or just after its sum, so no dwell rounds short.
+    """
+    n = chain.rate.size
+    state_at, dwell_at, settle_at, limit_at, error_at = (np.empty(n) for _ in range(5))
+    limited = np.zeros(n, dtype=np.int8)
+    instants = np.empty(n + 1)
+    instants[0] = time = 0.0
+    state = float(x0)
+    keep = 1.0 - chain.margin
+    for k in range(n):
+        r, c, h = float(chain.rate[k]), float(chain.gain[k]), float(chain.hold[k])
+        final = state if r == 0.0 else float(chain.final[k])
+        step = c * abs(final - state)
+        limit = chain.value * step if chain.relative else chain.value
+        allowed = limit * keep
+        aim = allowed * (1.0 - AIM_INSIDE) - _ROUNDING_ULPS * _EPS * c * max(abs(state), abs(final))
+        if aim <= 0.0:
+            aim = allowed * (1.0 - AIM_INSIDE)
+        threshold = allowed
+        if aims is not None and aims[k] < aim:
+            aim = threshold = float(aims[k])
+        settle = math.log(step / aim) / r if (r > 0.0 and step > threshold) else 0.0
+        need = settle + h
+        if dwells is None:
+            dwell = max(chain.shortest, need)
+            code = 0 if need >= chain.shortest else 1
+            if tick is not None:
+                rounded = tick_up(dwell, tick)
+                code = 2 if rounded > dwell else code
+                dwell = rounded
+        else:
+            dwell, code = float(dwells[k]), 0 if need >= chain.shortest else 1
+        if not dwell > 0.0:
+            raise _zero_dwell(k)
+        following = time + dwell
+        while dwells is None and following - time < dwell:  # instants, not dwells: never round short
+            following = math.nextafter(following, math.inf)
+        dwell = following - time
+        state_at[k], dwell_at[k], settle_at[k], limit_at[k] = state, dwell, settle, limit
+        error_at[k] = step * math.exp(-(dwell - h) * r)
+        limited[k] = code
+        state = final + (state - final) * math.exp(-dwell * r)
+        time = following
+        instants[k + 1] = time
+    return Walk(state_at, dwell_at, settle_at, limit_at, error_at, limited, instants, state)
+
+
+def _instants(dwell: np.ndarray) -> np.ndarray | None:
+    """Sums of `dwell` from 0, each moved up to the next float until no dwell rounds short
+    (None if that takes more than a few rounds: the caller walks step by step)."""
+    instants = np.empty(dwell.size + 1)
+    instants[0] = 0.0
+    np.cumsum(dwell, out=instants[1:])
+    for _ in range(64):
+        short = np.flatnonzero(np.diff(instants) < dwell)
+        if short.size == 0:
+            return instants
+        instants[short + 1] = np.nextafter(instants[short + 1], np.inf)
+    return None
+
+
+def walk_fast(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Walk | None:
+    """:func:`walk` with whole-array operations, or None where it cannot tell (then walk).
+
+    A step that settles ends ``aim e^(-r hold) / c`` from its final value, on the side it
+    came from, whatever its start; every other step's end is affine in its start.  So,
+    once it is known which steps settle and from which side, the states at the changes
+    are one affine scan.  A guess (each step starting at the level before) is refined
+    until that pattern no longer changes; the dwells then follow from the states, and a
+    last scan over the real dwells gives the states and errors the table shows.  The
+    result is checked: any sample outside its limit, or a pattern that moved, returns None.
+    """
+    n = chain.rate.size
+    rate, gain, hold = chain.rate, chain.gain, chain.hold
+    holds = rate == 0.0
+    if holds.all() or (chain.shortest == 0.0 and not (hold > 0.0).all() and n == 0):
+        return None
+    keep = 1.0 - chain.margin
+    x = np.empty(n)
+    x[0] = x0
+    x[1:] = np.where(holds[:-1], x0, chain.final[:-1])
+    pattern = None
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        hold_decay = np.exp(-rate * hold)
+        for _ in range(_FAST_ROUNDS):
+            final = np.where(holds, x, chain.final)
+            offset = x - final
+            step = gain * np.abs(offset)
+            limit = chain.value * step if chain.relative else np.full(n, chain.value)
+            allowed = limit * keep
+            aim = allowed * (1.0 - AIM_INSIDE) - _ROUNDING_ULPS * _EPS * gain * np.maximum(np.abs(x), np.abs(final))
+            aim = np.where(aim <= 0.0, allowed * (1.0 - AIM_INSIDE), aim)
+            threshold = allowed
+            if aims is not None:
+                capped = aims < aim
+                aim = np.where(capped, aims, aim)
+                threshold = np.where(capped, aims, allowed)
+            moving = (rate > 0.0) & (step > threshold)
+            settle = np.where(moving, np.log(step / aim) / rate, 0.0)
+            need = settle + hold
+            settles = moving & (need >= chain.shortest)
+            side = np.sign(offset)
+            now = (settles, side)
+            if pattern is not None and np.array_equal(pattern[0], now[0]) and np.array_equal(pattern[1], now[1]):
+                break
+            pattern = now
+            dwell = np.maximum(chain.shortest, need)
+            decay = np.where(settles, 0.0, np.exp(-rate * dwell))
+            shift = np.where(settles, final + side * (aim / gain) * hold_decay, final * (1.0 - decay))
+            shift = np.where(holds, 0.0, shift)
+            decay = np.where(holds, 1.0, decay)
+            x = affine_scan(decay, shift, float(x0))[:-1]
+        else:
+            return None
+        dwell = np.maximum(chain.shortest, need)
+        bad = np.flatnonzero(~(dwell > 0.0))
+        if bad.size:
+            raise _zero_dwell(int(bad[0]))
+        instants = _instants(dwell)
+        if instants is None:
+            return None
+        real = np.diff(instants)
+        decay = np.exp(-rate * real)
+        states = affine_scan(decay, final * (1.0 - decay), float(x0))
+        # Held steps keep their state exactly: a = 1, b = 0 above.
+        start = states[:-1]
+        step_now = gain * np.abs(np.where(holds, start, final) - start)
+        error = step_now * np.exp(-rate * (real - hold))
+        limit_now = chain.value * step_now if chain.relative else np.full(n, chain.value)
+    if not (error <= limit_now * keep).all() or not np.allclose(start, x, rtol=1e-9, atol=0.0):
+        return None
+    limited = np.where(need >= chain.shortest, 0, 1).astype(np.int8)
+    return Walk(start, real, settle, limit_now, error, limited, instants, float(states[-1]))
+
+
+def exact_aims(chain: Chain, x0: float) -> tuple[np.ndarray | None, np.ndarray]:
+    """The aims (errors at each sample) that make the chain's total time the least.
+
+    Returns ``(aims, proven)``: `aims` None where nothing can be gained (every aim is
+    greedy's), and per step whether the formulation below holds for it.
+
+    Notes
+    -----
+    Let ``a_k = x_k - f_k`` be step ``k``'s offset at its change, ``u_k`` its offset at
+    its end (its residual) and ``D_k = f_k - f_(k+1)``, so ``a_(k+1) = u_k + D_k``.  The
+    step's sample, ``hold_k`` before its end, is inside when ``|u_k| <= R_k = aim_k
+    e^(-r_k hold_k) / c_k``, and its dwell is ``tau_k ln(|a_k| / |u_k|)``; ``u_k`` has
+    the sign of ``a_k``.  Call step ``k`` *free* when, for every residual the step
+    before may leave, (i) it lands on a known side of ``f_k``: ``|D_(k-1)| > R_(k-1)``
+    (for step 0, ``a_0 != 0``), and (ii) it must settle longer than `min_dwell` and its
+    hold: ``(|D_(k-1)| - R_(k-1)) e^(-r_k dmin_k) >= R_k`` with ``dmin_k = max(min_dwell,
+    hold_k)``; also ``r_k > 0``, ``c_k > 0`` and the tolerance is not relative.  If every
+    step is free, the total is
+
+        ``T = tau_0 ln|a_0| + sum_k phi_k(v_k) + const``,
+        ``phi_k(v) = -tau_k ln v + tau_(k+1) ln(|D_k| + s_k v)``  (no second term for the last step)
+
+    over ``v_k = |u_k|`` in ``(0, R_k]``, each independently: the sides ``s_k = +1`` when
+    the residual lies beyond ``f_k`` as seen from ``f_(k+1)`` (the sign of ``a_k``, fixed
+    by (i), equals that of ``D_k``), else ``-1``.  ``T`` is a sum of functions of one
+    variable each on a box, so it is least where each ``phi_k`` is.  For ``s_k = -1``
+    ``phi_k`` falls throughout (``phi' = -tau_k / v - tau_(k+1) / (|D_k| - v) < 0``): take
+    ``v_k = R_k``, greedy's choice.  For ``s_k = +1``, ``phi' = ((tau_(k+1) - tau_k) v -
+    tau_k |D_k|) / (v (|D_k| + v))``: it falls throughout if ``tau_(k+1) <= tau_k``, else
+    down to ``v* = tau_k |D_k| / (tau_(k+1) - tau_k)`` and rises after it, so ``v_k =
+    min(R_k, v*)``: lingering in a fast step before a slow one in the same direction.
+    With one tau throughout ``v* = inf`` and the plan is greedy's.  A relative
+    tolerance makes every dwell ``tau_k ln(1 / fraction)`` whatever the start, so greedy
+    is least there too.  Where a step is not free, the steps on both sides of it keep
+    greedy's residual (the states entering and leaving them are then greedy's), so the
+    plan is least on every stretch of free steps and never slower than greedy.
+    """
+    n = chain.rate.size
+    rate, gain = chain.rate, chain.gain
+    proven = np.zeros(n, dtype=bool)
+    if chain.relative or n < 2:
+        return None, np.ones(n, dtype=bool)  # greedy is least: see the notes
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        aim = chain.value * (1.0 - chain.margin) * (1.0 - AIM_INSIDE)
+        reach = aim * np.exp(-rate * chain.hold) / gain  # R_k
+        least = np.maximum(chain.shortest, chain.hold)
+        jump = chain.final[:-1] - chain.final[1:]  # D_k
+        entering = np.empty(n)  # the least |a_k| any allowed residual before it leaves
+        entering[0] = abs(x0 - chain.final[0])
+        entering[1:] = np.abs(jump) - reach[:-1]
+        free = (rate > 0.0) & (gain > 0.0) & np.isfinite(reach) & (entering > 0.0)
+        free &= entering * np.exp(-rate * least) >= reach
+        side = np.empty(n)
+        side[0] = np.sign(x0 - chain.final[0])
+        side[1:] = np.sign(jump)
+        tau = 1.0 / rate
+        same = side[:-1] == np.sign(jump)
+        slower = tau[1:] > tau[:-1]
+        lingering = np.where(same & slower, tau[:-1] * np.abs(jump) / (tau[1:] - tau[:-1]), np.inf)
+    proven[:] = free
+    both = free[:-1] & free[1:]
+    target = np.minimum(reach[:-1], lingering)
+    chosen = both & (target < reach[:-1])
+    if not chosen.any():
+        return None, proven
+    aims = np.full(n, np.inf)
+    # Back to an error at the sample: c v e^(r hold).
+    aims[:-1][chosen] = target[chosen] * gain[:-1][chosen] * np.exp(rate[:-1][chosen] * chain.hold[:-1][chosen])
+    return aims, proven
