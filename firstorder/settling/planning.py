@@ -26,11 +26,11 @@ from .chain import AIM_INSIDE, LIMITS, Chain, Walk, exact_aims, walk, walk_fast
 from .table import check_tolerance, check_unit, constant_probe, sample_delays
 from .tolerance import Tolerance
 
-__all__ = ["plan_dwells", "plan_table"]
+__all__ = ["METHODS", "plan_dwells", "plan_frame", "plan_inputs", "plan_options", "plan_rows", "plan_table"]
 
 
 
-def _plan_inputs(fixture: Any, levels: Any, tolerance: Any, min_dwell: Any, start: Any):
+def plan_inputs(fixture: Any, levels: Any, tolerance: Any, min_dwell: Any, start: Any):
     """Check the plan's arguments; return its steps and the checked numbers."""
     check_tolerance(tolerance)
     if not isinstance(levels, Mapping) or not levels:
@@ -139,7 +139,7 @@ def _renamed(sample_delay: Any, hold_after: Any) -> tuple[Any, str]:
     return sample_delay, "sample_delay"
 
 
-def _options(margin: Any, clock: Any, method: Any) -> tuple[float, float | None, str]:
+def plan_options(margin: Any, clock: Any, method: Any) -> tuple[float, float | None, str]:
     """Check the plan's options; return (margin, tick or None, method)."""
     if isinstance(margin, bool) or not isinstance(margin, (int, float, np.number, str)):
         raise InputError(f"margin: {shown(margin)} is not allowed; give the fraction of each tolerance kept in "
@@ -169,9 +169,9 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
           method: Any = "greedy", table: bool = True):
     """The plan: its drive and its per-step table (see :func:`plan_dwells`); `sample_delay`
     is the name the user gave the hold (see :func:`_renamed`)."""
-    reserve, tick, method = _options(margin, clock, method)
+    reserve, tick, method = plan_options(margin, clock, method)
     fixture.check()
-    steps, start_time, shortest = _plan_inputs(fixture, levels, tolerance, min_dwell, start)
+    steps, start_time, shortest = plan_inputs(fixture, levels, tolerance, min_dwell, start)
     count = len(steps)
     if probe is not None:
         unit, label = steps.probe(probe).unit, f"probe '{probe}'"
@@ -212,7 +212,7 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
             walked = walk_fast(chain, state, aims)
         if walked is None:
             walked = walk(chain, state, aims, tick, dwells)
-        return _rows(walked, coefficient, offset, hold, finals, rate), walked.limited, walked.end_state, \
+        return plan_rows(walked, coefficient, offset, hold, finals, rate), walked.limited, walked.end_state, \
             float(walked.instants[-1])
 
     start_state = read_initial(initial, steps.state_unit)
@@ -229,7 +229,7 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
     drive = Drive(rows["start"].copy(), time, **steps.columns)
     if not table:
         return drive, None
-    return drive, _table(rows, limited_by, tolerance, unit, label, time - start_time, method, bool(proven.all()),
+    return drive, plan_frame(rows, limited_by, tolerance, unit, label, time - start_time, method, bool(proven.all()),
                          start_state)
 
 
@@ -237,7 +237,7 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
 _FAST_FROM = 64
 
 
-def _rows(walked: Walk, coefficient: np.ndarray, offset: np.ndarray, hold: np.ndarray, finals: np.ndarray,
+def plan_rows(walked: Walk, coefficient: np.ndarray, offset: np.ndarray, hold: np.ndarray, finals: np.ndarray,
           rate: np.ndarray) -> dict:
     """The table's columns of a walked chain, in times from 0."""
     delay = walked.dwell - hold
@@ -248,7 +248,7 @@ def _rows(walked: Walk, coefficient: np.ndarray, offset: np.ndarray, hold: np.nd
             "tolerance": walked.limit, "error_at_sample": walked.error}
 
 
-def _table(rows: dict, limited: np.ndarray, tolerance: Tolerance, unit: str, label: str, total: float,
+def plan_frame(rows: dict, limited: np.ndarray, tolerance: Tolerance, unit: str, label: str, total: float,
            method: str, proven: bool, start_state: float, fraction: np.ndarray | None = None):
     """The plan's table (see :func:`plan_table`)."""
     import pandas as pd
