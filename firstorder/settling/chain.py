@@ -158,12 +158,19 @@ def walk(chain: Chain, x0: float, aims: np.ndarray | None = None, tick: float | 
 
 
 def _instants(dwell: np.ndarray) -> np.ndarray | None:
-    """Sums of `dwell` from 0, each moved up to the next float until no dwell rounds short
-    (None if that takes more than a few rounds: the caller walks step by step)."""
+    """Sums of `dwell` from 0 such that no difference of neighbours is shorter than its dwell
+    (None if that cannot be had in a few rounds: the caller walks step by step).
+
+    Each sum rounds by at most half a unit in the last place of the instant, so each
+    dwell is padded by one unit of the sum before it is added: the differences are then
+    the dwells or up to about two units of the instant longer (the step-by-step walk:
+    up to one).
+    """
     instants = np.empty(dwell.size + 1)
     instants[0] = 0.0
     np.cumsum(dwell, out=instants[1:])
-    for _ in range(64):
+    np.cumsum(dwell + np.spacing(instants[1:]), out=instants[1:])
+    for _ in range(4):
         short = np.flatnonzero(np.diff(instants) < dwell)
         if short.size == 0:
             return instants
@@ -176,7 +183,8 @@ def walk_fast(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Walk |
 
     A step that settles ends ``aim e^(-r hold) / c`` from its final value, on the side it
     came from, whatever its start; every other step's end is affine in its start.  So,
-    once it is known which steps settle and from which side, the states at the changes
+    (under a relative limit: a fixed fraction of its start) once it is known which steps
+    settle and from which side, the states at the changes
     are one affine scan.  A guess (each step starting at the level before) is refined
     until that pattern no longer changes; the dwells then follow from the states, and a
     last scan over the real dwells gives the states and errors the table shows.  The
@@ -217,8 +225,11 @@ def walk_fast(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Walk |
                 break
             pattern = now
             dwell = np.maximum(chain.shortest, need)
-            decay = np.where(settles, 0.0, np.exp(-rate * dwell))
-            shift = np.where(settles, final + side * (aim / gain) * hold_decay, final * (1.0 - decay))
+            # Under a relative limit a settling step's end is a fixed fraction of its start:
+            # affine too, its dwell not depending on the start.
+            ends_fixed = settles & (not chain.relative)
+            decay = np.where(ends_fixed, 0.0, np.exp(-rate * dwell))
+            shift = np.where(ends_fixed, final + side * (aim / gain) * hold_decay, final * (1.0 - decay))
             shift = np.where(holds, 0.0, shift)
             decay = np.where(holds, 1.0, decay)
             x = affine_scan(decay, shift, float(x0))[:-1]
