@@ -182,59 +182,84 @@ def walk_fast(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Walk |
     """:func:`walk` with whole-array operations, or None where it cannot tell (then walk).
 
     A step that settles ends ``aim e^(-r hold) / c`` from its final value, on the side it
-    came from, whatever its start; every other step's end is affine in its start.  So,
-    (under a relative limit: a fixed fraction of its start) once it is known which steps
-    settle and from which side, the states at the changes
-    are one affine scan.  A guess (each step starting at the level before) is refined
-    until that pattern no longer changes; the dwells then follow from the states, and a
-    last scan over the real dwells gives the states and errors the table shows.  The
-    result is checked: any sample outside its limit, or a pattern that moved, returns None.
+    came from, whatever its start (under a relative limit: a fixed fraction of its
+    start); every other step's dwell is ``max(min_dwell, hold)`` and its end affine in
+    its start.  So, once it is known which steps settle and from which side, the states
+    at the changes follow at once (one affine scan where some step does not settle).  A
+    guess (each step starting at the level before) is refined until that pattern no
+    longer changes; the dwells then follow from the states, and a last scan over the
+    real dwells gives the states and errors the table shows.  The result is checked:
+    any sample outside its limit, or a state on another side of its final value than
+    assumed, returns None.
     """
     n = chain.rate.size
-    rate, gain, hold = chain.rate, chain.gain, chain.hold
+    rate, gain, hold, levels = chain.rate, chain.gain, chain.hold, chain.final
     holds = rate == 0.0
-    if holds.all() or (chain.shortest == 0.0 and not (hold > 0.0).all() and n == 0):
+    some_hold, with_hold = bool(holds.any()), bool((hold != 0.0).any())
+    if holds.all():
         return None
     keep = 1.0 - chain.margin
     x = np.empty(n)
     x[0] = x0
-    x[1:] = np.where(holds[:-1], x0, chain.final[:-1])
-    pattern = None
+    x[1:] = np.where(holds[:-1], x0, levels[:-1]) if some_hold else levels[:-1]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        hold_decay = np.exp(-rate * hold)
+        hold_decay = np.exp(-rate * hold) if with_hold else None
+        least = np.maximum(chain.shortest, hold) if with_hold else chain.shortest
+        # A moving step settles (needs more than min_dwell) when its step exceeds aim * edge.
+        edge = np.exp(rate * np.maximum(chain.shortest - hold, 0.0)) if (chain.shortest > 0.0 or with_hold) else None
+        other_decay = None
+        pattern = None
         for _ in range(_FAST_ROUNDS):
-            final = np.where(holds, x, chain.final)
+            final = np.where(holds, x, levels) if some_hold else levels
             offset = x - final
-            step = gain * np.abs(offset)
-            limit = chain.value * step if chain.relative else np.full(n, chain.value)
-            allowed = limit * keep
-            aim = allowed * (1.0 - AIM_INSIDE) - _ROUNDING_ULPS * _EPS * gain * np.maximum(np.abs(x), np.abs(final))
+            step = np.abs(offset)
+            step *= gain
+            allowed = chain.value * keep * step if chain.relative else chain.value * keep
+            size = np.maximum(np.abs(x), np.abs(final))
+            size *= (_ROUNDING_ULPS * _EPS) * gain
+            aim = allowed * (1.0 - AIM_INSIDE) - size
             aim = np.where(aim <= 0.0, allowed * (1.0 - AIM_INSIDE), aim)
             threshold = allowed
             if aims is not None:
                 capped = aims < aim
                 aim = np.where(capped, aims, aim)
                 threshold = np.where(capped, aims, allowed)
-            moving = (rate > 0.0) & (step > threshold)
-            settle = np.where(moving, np.log(step / aim) / rate, 0.0)
-            need = settle + hold
-            settles = moving & (need >= chain.shortest)
+            moving = step > threshold
+            if some_hold:
+                moving &= ~holds
+            settles = moving if edge is None else moving & (step >= aim * edge)
             side = np.sign(offset)
-            now = (settles, side)
-            if pattern is not None and np.array_equal(pattern[0], now[0]) and np.array_equal(pattern[1], now[1]):
+            if pattern is not None and np.array_equal(pattern[0], settles) and np.array_equal(pattern[1], side):
                 break
-            pattern = now
-            dwell = np.maximum(chain.shortest, need)
-            # Under a relative limit a settling step's end is a fixed fraction of its start:
-            # affine too, its dwell not depending on the start.
-            ends_fixed = settles & (not chain.relative)
-            decay = np.where(ends_fixed, 0.0, np.exp(-rate * dwell))
-            shift = np.where(ends_fixed, final + side * (aim / gain) * hold_decay, final * (1.0 - decay))
-            shift = np.where(holds, 0.0, shift)
-            decay = np.where(holds, 1.0, decay)
-            x = affine_scan(decay, shift, float(x0))[:-1]
+            pattern = (settles, side)
+            reach = aim / gain
+            if with_hold:
+                reach *= hold_decay
+            if not chain.relative:
+                following = final + side * reach
+            if chain.relative or not settles.all():
+                if other_decay is None:
+                    other_decay = np.exp(-rate * least)
+                if chain.relative:
+                    decay = np.where(settles, reach / np.where(step > 0, step / gain, 1.0), other_decay)
+                    shift = final * (1.0 - decay)
+                else:
+                    decay = np.where(settles, 0.0, other_decay)
+                    shift = np.where(settles, following, final * (1.0 - decay))
+                if some_hold:
+                    decay = np.where(holds, 1.0, decay)
+                    shift = np.where(holds, 0.0, shift)
+                x = affine_scan(decay, shift, float(x0))[:-1]
+            else:
+                x = np.concatenate(([x0], following[:-1]))
         else:
             return None
+        need = np.log(step / aim)
+        need /= rate
+        need = np.where(moving, need, 0.0)
+        settle = need
+        if with_hold:
+            need = need + hold
         dwell = np.maximum(chain.shortest, need)
         bad = np.flatnonzero(~(dwell > 0.0))
         if bad.size:
@@ -247,12 +272,20 @@ def walk_fast(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Walk |
         states = affine_scan(decay, final * (1.0 - decay), float(x0))
         # Held steps keep their state exactly: a = 1, b = 0 above.
         start = states[:-1]
-        step_now = gain * np.abs(np.where(holds, start, final) - start)
-        error = step_now * np.exp(-rate * (real - hold))
-        limit_now = chain.value * step_now if chain.relative else np.full(n, chain.value)
-    if not (error <= limit_now * keep).all() or not np.allclose(start, x, rtol=1e-9, atol=0.0):
+        if some_hold:
+            final = np.where(holds, start, final)
+        distance = final - start
+        error = np.abs(distance)
+        error *= gain
+        limit_now = chain.value * error if chain.relative else np.full(n, chain.value)
+        error *= np.exp(-rate * (real - hold)) if with_hold else decay
+        # The states of the real dwells must fall on the sides the pattern assumed (they
+        # differ from the guess by the rounding of the instants only).
+        moved = ~holds if some_hold else slice(None)
+        same_sides = np.array_equal(np.sign(-distance)[moved], side[moved])
+    if not same_sides or not (error <= limit_now * keep).all():
         return None
-    limited = np.where(need >= chain.shortest, 0, 1).astype(np.int8)
+    limited = (need < chain.shortest).astype(np.int8)
     return Walk(start, real, settle, limit_now, error, limited, instants, float(states[-1]))
 
 

@@ -212,8 +212,9 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
             walked = walk_fast(chain, state, aims)
         if walked is None:
             walked = walk(chain, state, aims, tick, dwells)
-        return plan_rows(walked, coefficient, offset, hold, finals, rate), walked.limited, walked.end_state, \
-            float(walked.instants[-1])
+        rows = _Rows(lambda: plan_rows(walked, coefficient, offset, hold, finals, rate))
+        rows["start"] = walked.instants[:-1]
+        return rows, walked.limited, walked.end_state, float(walked.instants[-1])
 
     start_state = read_initial(initial, steps.state_unit)
     if start_state == "periodic":
@@ -229,12 +230,30 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
     drive = Drive(rows["start"].copy(), time, **steps.columns)
     if not table:
         return drive, None
+    rows = {name: rows[name] for name in _COLUMNS}
     return drive, plan_frame(rows, limited_by, tolerance, unit, label, time - start_time, method, bool(proven.all()),
                          start_state)
 
 
 #: Plans this long or longer are walked with whole-array operations (chain.walk_fast).
 _FAST_FROM = 64
+
+_COLUMNS = ("start", "dwell", "settle_time", "sample_delay", "sample_time", "start_value", "final", "tolerance",
+            "error_at_sample")
+
+
+class _Rows(dict):
+    """A plan's columns, made when first asked for (a drive alone needs only the instants);
+    columns set before then are kept."""
+
+    def __init__(self, make) -> None:
+        super().__init__()
+        self._make = make
+
+    def __missing__(self, key: str):
+        for name, column in self._make().items():
+            self.setdefault(name, column)
+        return dict.__getitem__(self, key)
 
 
 def plan_rows(walked: Walk, coefficient: np.ndarray, offset: np.ndarray, hold: np.ndarray, finals: np.ndarray,
