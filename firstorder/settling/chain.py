@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .. import _kernels, _parallel
 from ..engine import affine_scan
 from ..errors import InputError
 
@@ -168,14 +169,65 @@ def _instants(dwell: np.ndarray) -> np.ndarray | None:
     """
     instants = np.empty(dwell.size + 1)
     instants[0] = 0.0
-    np.cumsum(dwell, out=instants[1:])
-    np.cumsum(dwell + np.spacing(instants[1:]), out=instants[1:])
+    kernels = _kernels.available(dwell.size)
+    if kernels is not None:
+        kernels.plan_instants(np.ascontiguousarray(dwell), instants)
+    else:
+        np.cumsum(dwell, out=instants[1:])
+        np.cumsum(dwell + np.spacing(instants[1:]), out=instants[1:])
     for _ in range(4):
         short = np.flatnonzero(np.diff(instants) < dwell)
         if short.size == 0:
             return instants
         instants[short + 1] = np.nextafter(instants[short + 1], np.inf)
     return None
+
+
+def _round(chain: Chain, x: np.ndarray, aims, holds, some_hold, with_hold, hold_decay, edge, kernels):
+    """Every step from the starts `x`: ``(final, step, aim, moving, settles, side,
+    following)``: its final value, size, aim, whether it moves and needs more than
+    `min_dwell`, the side of its start and where it ends if it settles (the numpy path
+    and the kernel ``plan_round`` do the same operations)."""
+    n = x.size
+    rate, gain, levels, keep = chain.rate, chain.gain, chain.final, 1.0 - chain.margin
+    final = np.where(holds, x, levels) if some_hold else levels
+    if kernels is not None:
+        step, aim, side, following = np.empty(n), np.empty(n), np.empty(n), np.empty(n)
+        moving, settles = np.empty(n, dtype=bool), np.empty(n, dtype=bool)
+        arguments = (x, np.ascontiguousarray(levels), holds, some_hold, rate, gain, chain.value * keep,
+                     chain.relative, aims if aims is not None else x, aims is not None,
+                     edge if edge is not None else x, edge is not None, hold_decay if with_hold else x, with_hold,
+                     1.0 - AIM_INSIDE, _ROUNDING_ULPS * _EPS, step, aim, moving, settles, side, following)
+        _parallel.run(lambda first, stop: kernels.plan_round(*arguments, first, stop), _parallel.pieces(n))
+        return final, step, aim, moving, settles, side, following
+    offset = x - final
+    step = np.abs(offset)
+    step *= gain
+    allowed = chain.value * keep * step if chain.relative else chain.value * keep
+    size = np.maximum(np.abs(x), np.abs(final))
+    size *= (_ROUNDING_ULPS * _EPS) * gain
+    aim = allowed * (1.0 - AIM_INSIDE) - size
+    aim = np.where(aim <= 0.0, allowed * (1.0 - AIM_INSIDE), aim)
+    threshold = allowed
+    if aims is not None:
+        capped = aims < aim
+        aim = np.where(capped, aims, aim)
+        threshold = np.where(capped, aims, allowed)
+    moving = step > threshold
+    if some_hold:
+        moving &= ~holds
+    settles = moving if edge is None else moving & (step >= aim * edge)
+    side = np.sign(offset)
+    reach = aim / gain
+    if with_hold:
+        reach *= hold_decay
+    following = final + side * reach
+    return final, step, aim, moving, settles, side, following
+
+
+#: Passes of walk_fast's last stage at most: dwells from the states the dwells before them
+#: really leave (the instants round them up a little), until every sample is inside.
+_FINAL_PASSES = 4
 
 
 def walk_fast(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Walk | None:
@@ -187,61 +239,43 @@ def walk_fast(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Walk |
     its start.  So, once it is known which steps settle and from which side, the states
     at the changes follow at once (one affine scan where some step does not settle).  A
     guess (each step starting at the level before) is refined until that pattern no
-    longer changes; the dwells then follow from the states, and a last scan over the
-    real dwells gives the states and errors the table shows.  The result is checked:
-    any sample outside its limit, or a state on another side of its final value than
-    assumed, returns None.
+    longer changes.  The dwells then follow from the states; the instants round them up
+    by a unit or two of the instant, which moves the states they leave a little (a fast
+    step late in a long plan: 1e-8 of its residual), so the states of the real dwells
+    are scanned and the dwells taken again from them until every sample is inside, as
+    the step-by-step walk has it.  Any state on another side of its final value than
+    assumed returns None.
     """
     n = chain.rate.size
-    rate, gain, hold, levels = chain.rate, chain.gain, chain.hold, chain.final
+    rate, hold, levels = chain.rate, chain.hold, chain.final
     holds = rate == 0.0
     some_hold, with_hold = bool(holds.any()), bool((hold != 0.0).any())
     if holds.all():
         return None
     keep = 1.0 - chain.margin
+    kernels = _kernels.available(n)
     x = np.empty(n)
     x[0] = x0
     x[1:] = np.where(holds[:-1], x0, levels[:-1]) if some_hold else levels[:-1]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         hold_decay = np.exp(-rate * hold) if with_hold else None
         least = np.maximum(chain.shortest, hold) if with_hold else chain.shortest
-        # A moving step settles (needs more than min_dwell) when its step exceeds aim * edge.
+        # A moving step needs more than min_dwell when its step exceeds aim * edge.
         edge = np.exp(rate * np.maximum(chain.shortest - hold, 0.0)) if (chain.shortest > 0.0 or with_hold) else None
+        context = (aims, holds, some_hold, with_hold, hold_decay, edge, kernels)
         other_decay = None
         pattern = None
         for _ in range(_FAST_ROUNDS):
-            final = np.where(holds, x, levels) if some_hold else levels
-            offset = x - final
-            step = np.abs(offset)
-            step *= gain
-            allowed = chain.value * keep * step if chain.relative else chain.value * keep
-            size = np.maximum(np.abs(x), np.abs(final))
-            size *= (_ROUNDING_ULPS * _EPS) * gain
-            aim = allowed * (1.0 - AIM_INSIDE) - size
-            aim = np.where(aim <= 0.0, allowed * (1.0 - AIM_INSIDE), aim)
-            threshold = allowed
-            if aims is not None:
-                capped = aims < aim
-                aim = np.where(capped, aims, aim)
-                threshold = np.where(capped, aims, allowed)
-            moving = step > threshold
-            if some_hold:
-                moving &= ~holds
-            settles = moving if edge is None else moving & (step >= aim * edge)
-            side = np.sign(offset)
+            final, step, aim, moving, settles, side, following = _round(chain, x, *context)
             if pattern is not None and np.array_equal(pattern[0], settles) and np.array_equal(pattern[1], side):
                 break
             pattern = (settles, side)
-            reach = aim / gain
-            if with_hold:
-                reach *= hold_decay
-            if not chain.relative:
-                following = final + side * reach
             if chain.relative or not settles.all():
                 if other_decay is None:
                     other_decay = np.exp(-rate * least)
                 if chain.relative:
-                    decay = np.where(settles, reach / np.where(step > 0, step / gain, 1.0), other_decay)
+                    reach = (following - final) * side  # aim / gain (times the hold's decay)
+                    decay = np.where(settles, reach / np.where(step > 0, step / chain.gain, 1.0), other_decay)
                     shift = final * (1.0 - decay)
                 else:
                     decay = np.where(settles, 0.0, other_decay)
@@ -254,39 +288,43 @@ def walk_fast(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Walk |
                 x = np.concatenate(([x0], following[:-1]))
         else:
             return None
-        need = np.log(step / aim)
-        need /= rate
-        need = np.where(moving, need, 0.0)
-        settle = need
-        if with_hold:
-            need = need + hold
-        dwell = np.maximum(chain.shortest, need)
-        bad = np.flatnonzero(~(dwell > 0.0))
-        if bad.size:
-            raise _zero_dwell(int(bad[0]))
-        instants = _instants(dwell)
-        if instants is None:
-            return None
-        real = np.diff(instants)
-        decay = np.exp(-rate * real)
-        states = affine_scan(decay, final * (1.0 - decay), float(x0))
-        # Held steps keep their state exactly: a = 1, b = 0 above.
-        start = states[:-1]
-        if some_hold:
-            final = np.where(holds, start, final)
-        distance = final - start
-        error = np.abs(distance)
-        error *= gain
-        limit_now = chain.value * error if chain.relative else np.full(n, chain.value)
-        error *= np.exp(-rate * (real - hold)) if with_hold else decay
-        # The states of the real dwells must fall on the sides the pattern assumed (they
-        # differ from the guess by the rounding of the instants only).
-        moved = ~holds if some_hold else slice(None)
-        same_sides = np.array_equal(np.sign(-distance)[moved], side[moved])
-    if not same_sides or not (error <= limit_now * keep).all():
-        return None
-    limited = (need < chain.shortest).astype(np.int8)
-    return Walk(start, real, settle, limit_now, error, limited, instants, float(states[-1]))
+        for _ in range(_FINAL_PASSES):
+            need = np.log(step / aim)
+            need /= rate
+            need = np.where(moving, need, 0.0)
+            settle = need
+            if with_hold:
+                need = need + hold
+            dwell = np.maximum(chain.shortest, need)
+            bad = np.flatnonzero(~(dwell > 0.0))
+            if bad.size:
+                raise _zero_dwell(int(bad[0]))
+            instants = _instants(dwell)
+            if instants is None:
+                return None
+            real = np.diff(instants)
+            decay = np.exp(-rate * real)
+            states = affine_scan(decay, final * (1.0 - decay), float(x0))
+            # Held steps keep their state exactly: a = 1, b = 0 above.
+            start = states[:-1]
+            if some_hold:
+                final = np.where(holds, start, final)
+            distance = final - start
+            error = np.abs(distance)
+            error *= chain.gain
+            limit_now = chain.value * error if chain.relative else np.full(n, chain.value)
+            error *= np.exp(-rate * (real - hold)) if with_hold else decay
+            # The real states must fall on the sides the pattern assumed.
+            moved = ~holds if some_hold else slice(None)
+            if not np.array_equal(np.sign(-distance)[moved], side[moved]):
+                return None
+            if (error <= limit_now * keep).all():
+                limited = (need < chain.shortest).astype(np.int8)
+                return Walk(start, real, settle, limit_now, error, limited, instants, float(states[-1]))
+            final, step, aim, moving, settles, side, following = _round(chain, start, *context)
+            if not np.array_equal(pattern[0], settles):
+                return None
+    return None
 
 
 def exact_aims(chain: Chain, x0: float) -> tuple[np.ndarray | None, np.ndarray]:
