@@ -35,21 +35,6 @@ def handbook_taus(k1, k2) -> np.ndarray:
     return np.array(taus)
 
 
-def simulate(dwells, levels, taus, x0=0.0, hold=0.0):
-    """Closed-form first-order steps (the handbook step response x_f + (x_0 - x_f) e^(-t/tau)):
-    every step's error at its sample, `hold` before its end."""
-    x, errors = x0, []
-    for d, f, tau in zip(dwells, levels, taus):
-        errors.append(abs(x - f) * math.exp(-(d - hold) / tau))
-        x = f + (x - f) * math.exp(-d / tau)
-    return np.array(errors), x
-
-
-def least_dwell(x, f, tau, hold=0.0):
-    """The shortest dwell whose sample is inside (the last step's best, from its start)."""
-    return hold + (tau * math.log(abs(x - f) / TOLERANCE) if abs(x - f) > TOLERANCE else 0.0)
-
-
 SEQUENCES = {
     # fast -> slow, a small step on in the same direction: lingering helps (issue 17)
     "fast-slow": dict(vin=[1.0, 1.01], k1=[0, 1], k2=[1, 0]),
@@ -81,7 +66,6 @@ class TestExactPlan:
         fx, levels = three_speeds(), SEQUENCES[name]
         tolerance = fo.Tolerance.absolute(TOLERANCE)
         exact = fo.plan_table(fx, levels, tolerance, method="exact")
-        greedy = fo.plan_table(fx, levels, tolerance)
         taus = handbook_taus(levels["k1"], levels["k2"])
         target = np.array(levels["vin"], dtype=float)
 
