@@ -15,7 +15,7 @@ from .drive import Drive
 from .errors import InputError, TopologyError, ZeroTimeError
 from .fixture import Fixture
 from .response import Response, respond
-from .settling import SettlingSummary, Tolerance, plan_dwells, plan_table
+from .settling import SettlingSummary, Tolerance, plan_dwells, plan_order, plan_table
 from .studies import Normal, Spread, Uniform, sweep
 from .traces import Trace, fit_trace, read_trace
 from .units import format_value, parse_value
@@ -40,6 +40,7 @@ __all__ = [
     "format_value",
     "parse_value",
     "plan_dwells",
+    "plan_order",
     "plan_table",
     "read_trace",
     "respond",

@@ -286,6 +286,55 @@ def _compile():
             flags[k] = inside
             logs[k] = time if inside else np.nan
 
+
+    # -- plans (settling/chain.py's walk_fast): the same operations as its numpy path ----
+    @jit_dividing
+    def plan_round(x, levels, holds, some_hold, rate, gain, scale, relative, aims, has_aims, edge, has_edge,
+                   hold_decay, with_hold, inside, ulps, step, aim, moving, settles, side, following, first, stop):
+        """Steps first:stop of one round of the plan's pattern, from the guessed starts `x`:
+        each step's size, aim, whether it moves and settles, its side and where it ends if
+        it settles.  ``scale`` is value * keep, ``inside`` 1 - AIM_INSIDE, ``ulps`` the
+        rounding allowance per unit of the state."""
+        for k in range(first, stop):
+            final = x[k] if (some_hold and holds[k]) else levels[k]
+            offset = x[k] - final
+            size_k = abs(offset) * gain[k]
+            allowed = scale * size_k if relative else scale
+            bigger = max(abs(x[k]), abs(final)) * (ulps * gain[k])
+            goal = allowed * inside - bigger
+            if goal <= 0.0:
+                goal = allowed * inside
+            threshold = allowed
+            if has_aims and aims[k] < goal:
+                goal = aims[k]
+                threshold = aims[k]
+            move = size_k > threshold
+            if some_hold and holds[k]:
+                move = False
+            settle = move and (size_k >= goal * edge[k]) if has_edge else move
+            sign = 1.0 if offset > 0.0 else (-1.0 if offset < 0.0 else offset)
+            reach = goal / gain[k]
+            if with_hold:
+                reach = reach * hold_decay[k]
+            step[k] = size_k
+            aim[k] = goal
+            moving[k] = move
+            settles[k] = settle
+            side[k] = sign
+            following[k] = final + sign * reach
+
+    @jit_dividing
+    def plan_instants(dwell, instants):
+        """Sums of the dwells from 0, then again with each dwell padded by the spacing of
+        the first sum at it (numpy: two cumsums and np.spacing)."""
+        plain = 0.0
+        padded = 0.0
+        instants[0] = 0.0
+        for k in range(dwell.size):
+            plain = plain + dwell[k]
+            padded = padded + (dwell[k] + (np.nextafter(plain, np.inf) - plain))
+            instants[k + 1] = padded
+
     return types.SimpleNamespace(
         block_totals=block_totals,
         block_states=block_states,
@@ -295,4 +344,6 @@ def _compile():
         combine=combine,
         settle_quotients=settle_quotients,
         settle_times=settle_times,
+        plan_round=plan_round,
+        plan_instants=plan_instants,
     )

@@ -226,3 +226,28 @@ class TestGridErrors:
             numpy_only(response.total, grid)
         assert str(compiled.value) == str(plain.value)
         assert str(compiled.value).startswith(message)
+
+
+class TestPlanWalk:
+    """A long plan's whole-array walk (settling/chain.py) gives the same plan on both paths."""
+
+    @pytest.mark.parametrize("case", ["plain", "min_dwell", "hold", "holding", "relative", "aims"])
+    def test_identical(self, case, numpy_only):
+        from firstorder.settling.chain import Chain, walk_fast
+
+        rng = np.random.default_rng(len(case))
+        n = 60_001
+        rate = rng.choice([1e3, 1e6, 3e4], n)
+        final = rng.uniform(-2, 2, n)
+        gain = rng.uniform(0.5, 1.5, n)
+        hold = np.full(n, 2e-6 if case == "hold" else 0.0)
+        if case == "holding":
+            rate[rng.integers(1, n, 300)] = 0.0
+        value, relative = (0.01, True) if case == "relative" else (1e-3, False)
+        chain = Chain(rate, final, gain, value, relative, 0.1, hold, 4e-5 if case in ("min_dwell", "holding") else 1e-9)
+        aims = np.where(rng.uniform(size=n) < 0.3, 1e-5, np.inf) if case == "aims" else None
+        compiled = walk_fast(chain, 0.3, aims)
+        plain = numpy_only(walk_fast, chain, 0.3, aims)
+        assert compiled is not None and plain is not None
+        for name in ("state", "dwell", "settle", "limit", "error", "limited", "instants"):
+            np.testing.assert_array_equal(getattr(compiled, name), getattr(plain, name), err_msg=name)

@@ -11,6 +11,7 @@ are known.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Mapping
 from typing import Any
 
@@ -20,19 +21,16 @@ from ..drive import Drive
 from ..errors import InputError
 from ..response import read_initial
 from ..segments import Segments
-from ..units import format_value, parse_value
+from ..units import format_value, parse_value, shown
+from .chain import AIM_INSIDE, LIMITS, Chain, Walk, exact_aims, walk, walk_fast
 from .table import check_tolerance, check_unit, constant_probe, sample_delays
 from .tolerance import Tolerance
 
-__all__ = ["plan_dwells", "plan_table"]
-
-#: Each planned sample aims this fraction inside its limit, plus a few ulps of the state, so
-#: that evaluating the planned drive again (another rounding path) never fails by rounding alone.
-_AIM_INSIDE = 1e-9
-_ROUNDING_ULPS = 8.0
+__all__ = ["METHODS", "plan_dwells", "plan_frame", "plan_inputs", "plan_options", "plan_rows", "plan_table"]
 
 
-def _plan_inputs(fixture: Any, levels: Any, tolerance: Any, min_dwell: Any, start: Any):
+
+def plan_inputs(fixture: Any, levels: Any, tolerance: Any, min_dwell: Any, start: Any):
     """Check the plan's arguments; return its steps and the checked numbers."""
     check_tolerance(tolerance)
     if not isinstance(levels, Mapping) or not levels:
@@ -69,8 +67,8 @@ def _periodic(greedy, guess: float, coefficient: np.ndarray, rate: np.ndarray):
     for _ in range(_PERIODIC_ROUNDS):
         rows, limited_by, end, time = greedy(start)
         gap = end - start
-        # The samples aim _AIM_INSIDE of their limit inside it: a start off by far less moves no sample out.
-        allowed = 0.25 * _AIM_INSIDE * float(np.min(rows["tolerance"] / np.maximum(np.abs(coefficient), 1e-300)))
+        # The samples aim AIM_INSIDE of their limit inside it: a start off by far less moves no sample out.
+        allowed = 0.25 * AIM_INSIDE * float(np.min(rows["tolerance"] / np.maximum(np.abs(coefficient), 1e-300)))
         if abs(gap) <= allowed:
             return start, (rows, limited_by, end, time)
         if previous is not None and gap != previous[1]:
@@ -127,20 +125,60 @@ def _shifted(greedy, state: float, rows: dict, limited_by: list, length: float, 
     return moved, limited_by, float(instants[-1])
 
 
-def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: Any, start: Any,
-          sample_delay: Any, probe: str | None):
-    """The greedy plan: its drive and its per-step table (see :func:`plan_dwells`)."""
-    import pandas as pd
+def _renamed(sample_delay: Any, hold_after: Any) -> tuple[Any, str]:
+    """`hold_after`, or the deprecated `sample_delay` of a plan taken as it (with a warning)."""
+    if sample_delay is None:
+        return hold_after, "hold_after"
+    if hold_after is not None:
+        raise InputError(f"sample_delay: {shown(sample_delay)} and hold_after: {shown(hold_after)} are both "
+                         f"given; give hold_after (the time a step holds after its sample) alone")
+    warnings.warn(
+        "plan_dwells: sample_delay= here meant the time each step holds after its sample; that is now "
+        "hold_after= (sample_delay means the time from a change to its sample everywhere else, and will "
+        "mean it here in the next release); taken as hold_after for now", FutureWarning, stacklevel=3)
+    return sample_delay, "sample_delay"
 
+
+def plan_options(margin: Any, clock: Any, method: Any) -> tuple[float, float | None, str]:
+    """Check the plan's options; return (margin, tick or None, method)."""
+    if isinstance(margin, bool) or not isinstance(margin, (int, float, np.number, str)):
+        raise InputError(f"margin: {shown(margin)} is not allowed; give the fraction of each tolerance kept in "
+                         f"reserve, from 0 (none) up to but not including 1 (such as 0.2)")
+    reserve = parse_value(margin, field="margin")
+    if not 0.0 <= reserve < 1.0:
+        raise InputError(f"margin: {shown(margin)} is not allowed; give the fraction of each tolerance kept in "
+                         f"reserve, from 0 (none) up to but not including 1 (such as 0.2)")
+    tick = None
+    if clock is not None:
+        tick = parse_value(clock, field="clock", unit="s")
+        if not (tick > 0.0 and math.isfinite(tick)):
+            raise InputError(f"clock: {shown(clock)} is not allowed; give the sequencer's tick, a time > 0 "
+                             f"(such as '10u')")
+    if method not in METHODS:
+        raise InputError(f"method: {shown(method)} is not allowed; give one of {list(METHODS)}")
+    return reserve, tick, method
+
+
+#: The plans: ``"greedy"`` (each step as fast as it may be, in turn) or ``"exact"`` (the
+#: least total time for the given order, see :func:`~firstorder.settling.chain.exact_aims`).
+METHODS = ("greedy", "exact")
+
+
+def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: Any, start: Any,
+          sample_delay: Any, probe: str | None, hold_after: Any = None, margin: Any = 0.0, clock: Any = None,
+          method: Any = "greedy", table: bool = True):
+    """The plan: its drive and its per-step table (see :func:`plan_dwells`); `sample_delay`
+    is the name the user gave the hold (see :func:`_renamed`)."""
+    reserve, tick, method = plan_options(margin, clock, method)
     fixture.check()
-    steps, start_time, shortest = _plan_inputs(fixture, levels, tolerance, min_dwell, start)
+    steps, start_time, shortest = plan_inputs(fixture, levels, tolerance, min_dwell, start)
     count = len(steps)
     if probe is not None:
         unit, label = steps.probe(probe).unit, f"probe '{probe}'"
     else:
         unit, label = steps.state_unit, f"the state of {steps.storage_kind} '{steps.storage_name}'"
     check_unit(tolerance, unit, label)
-    rate = np.asarray(steps.rate)
+    rate = np.asarray(steps.rate, dtype=np.float64)
     if probe is not None:
         # The probe is c*x + offset in each step: it settles with the state, |c| times its error.
         by_step = steps.probe_rows(probe)
@@ -151,62 +189,32 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
             coefficient = np.where(constant_probe(steps, probe), 0.0, coefficient)
     else:
         coefficient, offset = np.ones(count), np.zeros(count)
-    finals = steps.final
-
-    hold_after = np.zeros(count)
-    if sample_delay is not None:
-        hold_after = sample_delays(sample_delay, np.full(count, np.inf), field="sample_delay", what="step")
-
-    eps = np.finfo(float).eps
+    finals = np.asarray(steps.final, dtype=np.float64)
+    hold = np.zeros(count)
+    if hold_after is not None:
+        hold = sample_delays(hold_after, np.full(count, np.inf), field=sample_delay, what="step")
+    value, relative = tolerance._scale()
+    chain = Chain(rate, finals, np.abs(coefficient), value, relative, reserve, hold, shortest)
+    proven = np.ones(count, dtype=bool)
 
     def greedy(state: float, dwells: np.ndarray | None = None):
-        """Each step as fast as its sample allows, from `state` (or for the given `dwells`):
-        the rows, what limited each dwell, the state left at the end and the end instant.
+        """The plan from `state` (or for the given `dwells`): its rows, what limited each
+        dwell, the state left at the end and the end instant.
 
         Times run from 0 at the first change, not from `start`: far from 0 the spacing of
         floats (0.125 s at 1e15 s) would otherwise round every dwell up to it."""
-        rows = {name: np.empty(count) for name in
-                ("start", "dwell", "settle_time", "sample_delay", "sample_time", "start_value", "final",
-                 "tolerance", "error_at_sample")}
-        limited_by = []
-        time = 0.0
-        for k in range(count):
-            r, c = float(rate[k]), abs(float(coefficient[k]))
-            final = state if r == 0.0 else float(finals[k])
-            step = c * abs(final - state)
-            limit = float(tolerance.limit(np.array([step]))[0])
-            aim = limit * (1.0 - _AIM_INSIDE) - _ROUNDING_ULPS * eps * c * max(abs(state), abs(final))
-            if aim <= 0.0:
-                aim = limit * (1.0 - _AIM_INSIDE)
-            # Already within the limit: no wait (aiming inside matters only for steps that move).
-            settle = math.log(step / aim) / r if (r > 0.0 and step > limit) else 0.0
-            need = settle + float(hold_after[k])
-            dwell = max(shortest, need) if dwells is None else float(dwells[k])
-            if not dwell > 0.0:
-                raise InputError(
-                    f"step {k}: needs no settling (its start is already within {tolerance}) and min_dwell "
-                    f"and sample_delay are 0, so its dwell would be 0 s, which no drive segment can be; "
-                    f"give min_dwell > 0 (for example the time one sample takes)"
-                )
-            following = time + dwell
-            while dwells is None and following - time < dwell:  # instants, not dwells: never round short
-                following = math.nextafter(following, math.inf)
-            dwell = following - time
-            delay = dwell - float(hold_after[k])
-            decay = math.exp(-delay * r)
-            rows["start"][k] = time
-            rows["dwell"][k] = dwell
-            rows["settle_time"][k] = settle
-            rows["sample_delay"][k] = delay
-            rows["sample_time"][k] = time + delay
-            rows["start_value"][k] = coefficient[k] * state + offset[k]
-            rows["final"][k] = coefficient[k] * final + offset[k]
-            rows["tolerance"][k] = limit
-            rows["error_at_sample"][k] = step * decay
-            limited_by.append("settling" if need >= shortest else "min_dwell")
-            state = final + (state - final) * math.exp(-dwell * r)
-            time = following
-        return rows, limited_by, state, time
+        nonlocal proven
+        aims = None
+        if method == "exact" and dwells is None:
+            aims, proven = exact_aims(chain, state)
+        walked = None
+        if dwells is None and tick is None and count >= _FAST_FROM:
+            walked = walk_fast(chain, state, aims)
+        if walked is None:
+            walked = walk(chain, state, aims, tick, dwells)
+        rows = _Rows(lambda: plan_rows(walked, coefficient, offset, hold, finals, rate))
+        rows["start"] = walked.instants[:-1]
+        return rows, walked.limited, walked.end_state, float(walked.instants[-1])
 
     start_state = read_initial(initial, steps.state_unit)
     if start_state == "periodic":
@@ -220,14 +228,66 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
     if start_time != 0.0:
         rows, limited_by, time = _shifted(greedy, start_state, rows, limited_by, time, start_time, start)
     drive = Drive(rows["start"].copy(), time, **steps.columns)
+    if not table:
+        return drive, None
+    rows = {name: rows[name] for name in _COLUMNS}
+    return drive, plan_frame(rows, limited_by, tolerance, unit, label, time - start_time, method, bool(proven.all()),
+                         start_state)
+
+
+#: Plans this long or longer are walked with whole-array operations (chain.walk_fast).
+_FAST_FROM = 64
+
+_COLUMNS = ("start", "dwell", "settle_time", "sample_delay", "sample_time", "start_value", "final", "tolerance",
+            "error_at_sample")
+
+
+class _Rows(dict):
+    """A plan's columns, made when first asked for (a drive alone needs only the instants);
+    columns set before then are kept."""
+
+    def __init__(self, make) -> None:
+        super().__init__()
+        self._make = make
+
+    def __missing__(self, key: str):
+        for name, column in self._make().items():
+            self.setdefault(name, column)
+        return dict.__getitem__(self, key)
+
+
+def plan_rows(walked: Walk, coefficient: np.ndarray, offset: np.ndarray, hold: np.ndarray, finals: np.ndarray,
+          rate: np.ndarray) -> dict:
+    """The table's columns of a walked chain, in times from 0."""
+    delay = walked.dwell - hold
+    final_state = np.where(rate == 0.0, walked.state, finals)
+    return {"start": walked.instants[:-1].copy(), "dwell": walked.dwell, "settle_time": walked.settle,
+            "sample_delay": delay, "sample_time": walked.instants[:-1] + delay,
+            "start_value": coefficient * walked.state + offset, "final": coefficient * final_state + offset,
+            "tolerance": walked.limit, "error_at_sample": walked.error}
+
+
+def plan_frame(rows: dict, limited: np.ndarray, tolerance: Tolerance, unit: str, label: str, total: float,
+           method: str, proven: bool, start_state: float, fraction: np.ndarray | None = None):
+    """The plan's table (see :func:`plan_table`)."""
+    import pandas as pd
+
+    count = rows["dwell"].size
     table = pd.DataFrame(rows, index=pd.RangeIndex(count, name="step"))
-    table["limited_by"] = limited_by
-    table.attrs.update(tolerance=str(tolerance), unit=unit, watched=label, total_time=time - start_time)
-    return drive, table
+    with np.errstate(divide="ignore", invalid="ignore"):
+        table["margin_left"] = np.where(rows["tolerance"] > 0, 1.0 - rows["error_at_sample"] / rows["tolerance"],
+                                        np.nan)
+    table["limited_by"] = np.array(LIMITS, dtype=object)[np.asarray(limited, dtype=np.intp)]
+    table["fraction_inside"] = np.full(count, np.nan) if fraction is None else fraction
+    table.attrs.update(tolerance=str(tolerance), unit=unit, watched=label, total_time=total, method=method,
+                       exact=proven if method == "exact" else None, initial=start_state)
+    return table
 
 
 def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 0.0, min_dwell: Any = 0.0,
-                start: Any = 0.0, sample_delay: Any = None, probe: str | None = None):
+                start: Any = 0.0, sample_delay: Any = None, probe: str | None = None, *, hold_after: Any = None,
+                margin: Any = 0.0, clock: Any = None, method: str = "greedy", spread: Any = None, units: Any = None,
+                seed: Any = None, fraction: Any = 0.999):
     """The fastest drive that steps through `levels` with every sample within `tolerance`.
 
     Parameters
@@ -252,19 +312,40 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
         The first change instant (s).  The plan is made in times from it, so
         the dwells do not depend on it; a start so far from 0 that the floats
         there cannot keep the dwells (0.125 s apart at 1e15 s) is refused.
-    sample_delay : float, str or sequence, optional
-        How long before the next change each sample is taken (s), one value or
-        one per step: a converter's conversion or aperture time, or the
-        controller's latency before it commands the next step.  The step must
-        hold that long after its sample, so its dwell is ``settle_time +
-        sample_delay`` (or `min_dwell` if longer), and the sample instant is
-        ``dwell - sample_delay`` after the change; :func:`plan_table` lists
-        those instants as delays after each change, ready for
-        :meth:`Response.settling`'s own `sample_delay`.  Without it each step is
-        sampled at the end of its dwell.
+    sample_delay : optional
+        Deprecated here: it meant what `hold_after` now means, and is taken as
+        that for one release, with a ``FutureWarning``.  Everywhere else (and
+        in :func:`plan_table`'s column) a sample delay is the time from a
+        change to its sample.
     probe : str, optional
         Plan for this probe instead of the state (its error is ``|c|`` times
         the state's, with ``c`` its coefficient of the state in each step).
+    hold_after : float, str or sequence, optional
+        How long each step must still hold after its sample (s), one value or
+        one per step: a converter's conversion time, or the controller's
+        latency before it commands the next step.  The dwell is then
+        ``settle_time + hold_after`` (or `min_dwell` if longer) and the
+        sample is ``hold_after`` before the next change.
+    margin : float, optional
+        Fraction of each step's tolerance kept in reserve: with 0.2 every
+        sample aims at 80 % of its limit.
+    clock : float or str, optional
+        The sequencer's tick (s, such as ``"10u"``): every dwell is rounded up
+        to whole ticks (each step still planned from the state the rounded
+        steps before it leave, so every sample stays inside).
+    method : {"greedy", "exact"}, optional
+        ``"greedy"``: each step as fast as its sample allows, in turn.
+        ``"exact"``: the least total time over all choices of dwells for this
+        order of steps (see Notes); the same as greedy when tau is the same
+        in every step.
+    spread : Spread, optional
+        Plan for a lot: `units` units drawn from `spread` with `seed`, each
+        dwell long enough that `fraction` of them (each from its own state
+        left by the step before) is inside at the sample (``fraction=1.0``:
+        every drawn unit).  See :func:`firstorder.studies.plan.plan_lot`.
+    units, seed, fraction : optional
+        The lot's size, its seed, and the fraction of units inside at each
+        sample (with `spread` only).
 
     Returns
     -------
@@ -276,13 +357,15 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
     Raises
     ------
     InputError
-        Bad columns, a negative `min_dwell` or `sample_delay`, an unknown probe,
+        Bad columns, a negative `min_dwell` or `hold_after`, an unknown probe,
         a tolerance in the wrong unit, a step whose dwell would be 0 s (give
-        `min_dwell` > 0), or a `start` too far from 0 for the dwells.
+        `min_dwell` > 0), a `start` too far from 0 for the dwells, a `margin`
+        outside [0, 1), a `clock` not > 0, an unknown `method`.
 
     See Also
     --------
     plan_table : the same plan, one row per step.
+    plan_order : the order of the steps that takes least time.
     firstorder.settling.table.settling_table : judge any drive, planned or not.
 
     Notes
@@ -291,13 +374,15 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
     step before left, heads for its final value ``f_k`` with time constant
     ``tau_k`` and needs ``settle_k = tau_k * ln(|f_k - x_k| / limit_k)`` (0 when
     already within the limit); its dwell is ``max(min_dwell, settle_k +
-    sample_delay_k)``.  So no dwell can be shortened without its sample failing
+    hold_after_k)``.  So no dwell can be shortened without its sample failing
     (a test shortens each by 0.1 % and watches it fail).  When tau is the same in
-    every step the plan is also the fastest overall: lingering in one step never
-    brings the state closer to the next level than heading straight for it
-    would (a test lengthens dwells and re-plans the rest).  When switches change
-    tau, lingering in a fast configuration can occasionally shorten a following
-    slow step, so the plan is then fastest step by step, not always in total.
+    every step the plan is also the fastest overall.  When switches change tau,
+    lingering in a fast step can shorten a following slow one: ``method="exact"``
+    then picks each step's residual at its end, within its tolerance, to make
+    the total least (the chain separates into one variable per step, each with
+    a closed-form best; the proof and its conditions are in
+    :func:`firstorder.settling.chain.exact_aims`, and ``plan_table(...).attrs
+    ["exact"]`` says whether they held for every step).
 
     Each sample is aimed a few parts per billion inside its limit (plus a few
     units of rounding of the state), so that evaluating the planned drive again
@@ -313,23 +398,43 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
     >>> res = fx.respond(drive)
     >>> bool(res.settling(fo.Tolerance.lsb(bits=12, span=5.0), sample_delay=drive.durations)["ok"].all())
     True
+    >>> ticked = plan_dwells(fx, {"vin": [5.0, 0.0, 5.0]}, fo.Tolerance.lsb(bits=12, span=5.0), clock="1m")
+    >>> (ticked.durations / 1e-3).round(6)
+    array([10., 10.,  9.])
     """
-    return _plan(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe)[0]
+    hold_after, field = _renamed(sample_delay, hold_after)
+    sample_delay = field  # from here on, only the name the user gave the hold
+    if spread is not None:
+        return _for_the_lot(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after,
+                            margin, clock, method, spread, units, seed, fraction)[0]
+    _no_lot(units, seed)
+    return _plan(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after, margin,
+                 clock, method, table=False)[0]
 
 
 def plan_table(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 0.0, min_dwell: Any = 0.0,
-               start: Any = 0.0, sample_delay: Any = None, probe: str | None = None):
+               start: Any = 0.0, sample_delay: Any = None, probe: str | None = None, *, hold_after: Any = None,
+               margin: Any = 0.0, clock: Any = None, method: str = "greedy", spread: Any = None, units: Any = None,
+               seed: Any = None, fraction: Any = 0.999):
     """The plan of :func:`plan_dwells`, one row per step (same arguments).
 
     Returns
     -------
     pandas.DataFrame
         Index ``step``; columns ``start`` (its change instant), ``dwell``,
-        ``settle_time`` (needed after the change), ``sample_delay`` (the sample
-        instant after the change), ``sample_time``, ``start_value``, ``final``,
-        ``tolerance`` (the limit used), ``error_at_sample`` and ``limited_by``
-        (``"settling"`` or ``"min_dwell"``).  ``table.attrs["total_time"]`` is
-        the length of the whole plan.
+        ``settle_time`` (needed after the change by the nominal unit),
+        ``sample_delay`` (from the change to the sample), ``sample_time``,
+        ``start_value``, ``final``, ``tolerance`` (the limit),
+        ``error_at_sample``, ``margin_left`` (the fraction of the limit the
+        sample leaves unused), ``limited_by`` (``"settling"``,
+        ``"min_dwell"``, ``"clock"``: rounded up to a tick, or ``"the lot"``:
+        the units of a lot plan) and ``fraction_inside`` (of a lot's units at
+        the sample; NaN for a plan of one unit).  ``table.attrs["total_time"]``
+        is the length of the whole plan, ``attrs["method"]`` and
+        ``attrs["exact"]`` (for ``method="exact"``: whether every step met the
+        conditions of the proof); a lot plan adds ``attrs["passing"]`` (the
+        fraction of the drawn units with every sample inside, with its
+        interval).
 
     See Also
     --------
@@ -349,4 +454,29 @@ def plan_table(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 0
     >>> round(table.attrs["total_time"], 6)
     0.019034
     """
-    return _plan(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe)[1]
+    hold_after, field = _renamed(sample_delay, hold_after)
+    sample_delay = field  # from here on, only the name the user gave the hold
+    if spread is not None:
+        return _for_the_lot(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after,
+                            margin, clock, method, spread, units, seed, fraction)[1]
+    _no_lot(units, seed)
+    return _plan(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after, margin,
+                 clock, method)[1]
+
+
+def _no_lot(units: Any, seed: Any) -> None:
+    for name, value in (("units", units), ("seed", seed)):
+        if value is not None:
+            raise InputError(f"{name}: {shown(value)} is given without spread; a lot plan needs spread= (the "
+                             f"bands of the parts), units= and seed=")
+
+
+def _for_the_lot(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: Any, start: Any,
+                 sample_delay: Any, probe: Any, hold_after: Any, margin: Any, clock: Any, method: Any, spread: Any,
+                 units: Any, seed: Any, fraction: Any):
+    """The lot plan (a one-call shortcut into the studies layer)."""
+    from ..studies.plan import plan_lot
+
+    return plan_lot(fixture, levels, tolerance, spread, units=units, seed=seed, fraction=fraction, initial=initial,
+                    min_dwell=min_dwell, start=start, sample_delay=sample_delay, probe=probe, hold_after=hold_after,
+                    margin=margin, clock=clock, method=method)

@@ -53,14 +53,14 @@ class TestPlanDwells:
             errors, _ = sample_errors(fx, trial, shorter)
             assert errors[k] > tolerance.value, f"step {k} still passes with a 0.1 % shorter dwell"
 
-    def test_min_dwell_and_sample_delay(self):
+    def test_min_dwell_and_hold_after(self):
         fx = self.scanner()
         tolerance = fo.Tolerance.lsb(bits=14, span=5.0)
         levels = {"v0": [1.0, 1.0, 1.0, 1.0, 1.0, 1.0], "v1": [4.0] * 6, "v2": [-2.0] * 6,
                   "k0": [1, 0, 0, 1, 1, 0], "k1": [0, 1, 0, 0, 0, 1], "k2": [0, 0, 1, 0, 0, 0]}
         hold_after, shortest = 2e-6, 20e-6
-        table = fo.plan_table(fx, levels, tolerance, min_dwell=shortest, sample_delay=hold_after)
-        drive = fo.plan_dwells(fx, levels, tolerance, min_dwell=shortest, sample_delay=hold_after)
+        table = fo.plan_table(fx, levels, tolerance, min_dwell=shortest, hold_after=hold_after)
+        drive = fo.plan_dwells(fx, levels, tolerance, min_dwell=shortest, hold_after=hold_after)
         assert drive.durations == pytest.approx(table["dwell"].to_numpy(), rel=1e-15)
         # Step 4 repeats step 3's channel: nothing to settle, so min_dwell rules it.
         assert table.loc[4, "limited_by"] == "min_dwell"
@@ -121,7 +121,7 @@ class TestPlanDwells:
         tolerance = fo.Tolerance.absolute("1m")
         levels = rng.uniform(-5, 5, 6)
         delay = None if hold_after == 0 else hold_after
-        best = fo.plan_dwells(fx, {"vin": levels}, tolerance, sample_delay=delay)
+        best = fo.plan_dwells(fx, {"vin": levels}, tolerance, hold_after=delay)
         best_total = best.end - best.start
         for k in range(len(levels) - 1):
             for factor in (1.01, 1.3, 3.0):
@@ -130,7 +130,7 @@ class TestPlanDwells:
                 head = fo.Drive(np.concatenate([[0.0], np.cumsum(dwells)[:-1]]), float(dwells.sum()),
                                 vin=levels[:k + 1])
                 state = float(fx.respond(head).boundary[-1])
-                rest = fo.plan_dwells(fx, {"vin": levels[k + 1:]}, tolerance, initial=state, sample_delay=delay)
+                rest = fo.plan_dwells(fx, {"vin": levels[k + 1:]}, tolerance, initial=state, hold_after=delay)
                 assert head.end + (rest.end - rest.start) >= best_total * (1 - 1e-12)
 
     def test_when_tau_changes_lingering_can_help(self):
@@ -169,7 +169,8 @@ class TestPlanDwells:
         fx = fo.Fixture.rc(r="1k", c="1u")
         table = fo.plan_table(fx, {"vin": [1.0, 2.0]}, fo.Tolerance.absolute("1m"), start=0.5)
         assert list(table.columns) == ["start", "dwell", "settle_time", "sample_delay", "sample_time",
-                                       "start_value", "final", "tolerance", "error_at_sample", "limited_by"]
+                                       "start_value", "final", "tolerance", "error_at_sample", "margin_left",
+                                       "limited_by", "fraction_inside"]
         assert table.attrs["total_time"] == pytest.approx(table["dwell"].sum(), rel=1e-12)
         assert (table["error_at_sample"] <= table["tolerance"]).all()
         assert table.loc[0, "start"] == 0.5
@@ -210,7 +211,7 @@ class TestPlanDwells:
             options["min_dwell"] = "40u"  # four tau: every dwell is the minimum, none settles fully
             tolerance = fo.Tolerance.absolute("0.2")
         if case == "sample_delay":
-            options["sample_delay"] = "3u"
+            options["hold_after"] = "3u"
         table = fo.plan_table(fx, levels, tolerance, initial="periodic", **options)
         drive = fo.plan_dwells(fx, levels, tolerance, initial="periodic", **options)
         response = fx.respond(drive, initial="periodic")
@@ -237,7 +238,7 @@ class TestPlanDwells:
         levels = {"v0": [1.0, 1.0, 1.0, 1.0], "v1": [4.0] * 4, "v2": [-2.0] * 4,
                   "k0": [1, 0, 0, 1], "k1": [0, 1, 0, 0], "k2": [0, 0, 1, 0]}
         tolerance = fo.Tolerance.lsb(bits=14, span=5.0)
-        options = dict(initial=initial, min_dwell="1u", sample_delay="200n")
+        options = dict(initial=initial, min_dwell="1u", hold_after="200n")
         at_zero = fo.plan_table(fx, levels, tolerance, **options)
         moved = fo.plan_table(fx, levels, tolerance, start=start, **options)
         drive = fo.plan_dwells(fx, levels, tolerance, start=start, **options)
@@ -266,8 +267,9 @@ class TestPlanDwells:
         (dict(levels={"vin": []}), "levels"),
         (dict(levels={"vin": [1.0, "x"]}), r"levels\.vin\[1\]"),
         (dict(levels={"vin": [1.0]}, min_dwell=-1e-6), "min_dwell"),
-        (dict(levels={"vin": [1.0]}, sample_delay=-1e-6), "sample_delay: .* step 0"),
-        (dict(levels={"vin": [1.0, 2.0]}, sample_delay=[0.0]), "sample_delay"),
+        (dict(levels={"vin": [1.0]}, hold_after=-1e-6), "hold_after: .* step 0"),
+        (dict(levels={"vin": [1.0, 2.0]}, hold_after=[0.0]), "hold_after"),
+
         (dict(levels={"vin": [1.0]}, initial="cyclic"), "initial"),
         (dict(levels={"vin": [1.0]}, probe="nothing"), "probe"),
         (dict(levels={"vin": [1.0]}, tolerance=1e-3), "tolerance"),
