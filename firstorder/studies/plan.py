@@ -91,7 +91,7 @@ def plan_lot(fixture: "Fixture", levels: Any, tolerance: "Tolerance", spread: "S
     fixture.check()
     steps, start_time, shortest = plan_inputs(fixture, levels, tolerance, min_dwell, start)
     n = len(steps)
-    count = _count(units, n)
+    count = _count(units, n, keep=True)  # every unit is walked at once
     share = _fraction(fraction, "fraction")
     if probe is not None:
         unit, label = steps.probe(probe).unit, f"probe '{probe}'"
