@@ -380,8 +380,8 @@ class Bench(widgets.VBox):
     def analysis(self, title: str = "", notes: str = ""):
         """The last good fixture, drive, start, tolerance and sample delay as an :class:`~firstorder.Analysis`.
 
-        A sample delay longer than some segments is kept per segment, cut to
-        each segment's length (as the settling table here judges them).
+        The sample delay is kept as typed, one for every segment; a segment
+        shorter than it is sampled at its end, in the analysis as here.
         """
         return self.session.analysis(title, notes)
 

@@ -358,8 +358,12 @@ def settling_html(session: BenchSession) -> str:
     body = "".join(
         "<tr>" + "".join(f"<td style='padding:1px 8px'>{html.escape(cell)}</td>" for cell in [str(k), *cells]) + "</tr>"
         for k, cells, _ in rows)
-    note = ("<p style='color:#566573'>Segments shorter than the sample delay are judged at their end.</p>"
-            if session.samples_at_end else "")
+    short = session.short_segments
+    listed = ", ".join(str(k) for k in short[:8]) + (f" and {short.size - 8} more" if short.size > 8 else "")
+    note = (f"<p style='color:#566573'>{'Segment' if short.size == 1 else 'Segments'} {listed} "
+            f"{'is' if short.size == 1 else 'are'} shorter than the sample delay "
+            f"({html.escape(format_value(session.sample_delay, 's'))}): sampled at {'its' if short.size == 1 else 'their'} "
+            "end (a square on the plot).</p>" if short.size else "")
     return (session.summary._repr_html_() + note + f"<p><b>Settling, {html.escape(caption)}</b></p>"
             f"<table style='font-size:0.9em'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
 

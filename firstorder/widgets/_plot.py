@@ -202,14 +202,16 @@ class Plots:
             fig.add_tools(HoverTool(renderers=[line], tooltips=[(text, "@y{custom}"), ("at", "@t{custom}")],
                                     formatters={"@y": value_hover, "@t": _hover("s")}))
             fig.add_tools(_band_hover(band, text, value_hover))
-        samples = ColumnDataSource({"t": [], "y": [], "colour": [], "error": []})
+        samples = ColumnDataSource({"t": [], "y": [], "colour": [], "error": [], "marker": [], "when": []})
         self.sources["samples"] = samples
-        sample_renderer = fig.scatter("t", "y", source=samples, size=8, marker="diamond", fill_color="colour",
+        # A segment shorter than the sample delay is sampled at its end: a square there, a diamond elsewhere.
+        sample_renderer = fig.scatter("t", "y", source=samples, size=8, marker="marker", fill_color="colour",
                                       line_color="#17324d")
         sample_value, sample_error = _hover(unit), _hover(unit)
         self.value_formatters += [sample_value, sample_error]
         fig.add_tools(HoverTool(renderers=[sample_renderer],
-                                tooltips=[("sample at", "@t{custom}"), ("value", "@y{custom}"), ("error", "@error{custom}")],
+                                tooltips=[("sample at", "@t{custom}"), ("taken", "@when"), ("value", "@y{custom}"),
+                                          ("error", "@error{custom}")],
                                 formatters={"@t": _hover("s"), "@y": sample_value, "@error": sample_error}))
         items.append(LegendItem(label="sample instants", renderers=[sample_renderer]))
         settle = ColumnDataSource({"t": [], "y": []})
@@ -346,7 +348,7 @@ class Plots:
             sample_delay, response.drive.durations[rows], ends=response.ends[rows], past_end="end")
         sampled = None if delays is None else slice(None)
         band = {"left": empty, "right": empty, "bottom": empty, "top": empty}
-        samples = {"t": empty, "y": empty, "colour": [], "error": empty}
+        samples = {"t": empty, "y": empty, "colour": [], "error": empty, "marker": [], "when": []}
         settle = {"t": empty, "y": empty}
         if crowded:
             pass
@@ -358,7 +360,8 @@ class Plots:
                 value = table["value_at_sample"].to_numpy()[rows][sampled]
                 ok = table["ok"].to_numpy()[rows][sampled]
                 samples = {"t": table["sample_time"].to_numpy()[rows][sampled], "y": value,
-                           "colour": np.where(ok, SAMPLE_PASS, SAMPLE_FAIL).tolist(), "error": value - final[sampled]}
+                           "colour": np.where(ok, SAMPLE_PASS, SAMPLE_FAIL).tolist(), "error": value - final[sampled],
+                           **_sample_kinds(delays, response.drive.durations[rows])}
             settle_time = table["settle_time"].to_numpy()[rows]
             marked = np.isfinite(settle_time) & (settle_time > 0)
             # At its settle time a segment's error has fallen to its limit, on the side it came from.
@@ -370,7 +373,7 @@ class Plots:
             inside = np.where(delays >= response.drive.durations[rows], np.nextafter(instants, -np.inf), instants)
             at = response.evaluate(inside, ("total", "forced"), probe)
             samples = {"t": instants, "y": at["total"], "colour": [SAMPLE_NEUTRAL] * instants.size,
-                       "error": at["total"] - at["forced"]}
+                       "error": at["total"] - at["forced"], **_sample_kinds(delays, response.drive.durations[rows])}
         _assign(self.sources["tolerance"], band)
         _assign(self.sources["samples"], samples)
         _assign(self.sources["settle"], settle)
@@ -422,6 +425,14 @@ class Plots:
             _assign(self.sources["selection"], {"left": [], "right": []})
         else:
             self.sources["selection"].data = {"left": [float(drive.times[segment])], "right": [float(drive.ends[segment])]}
+
+
+def _sample_kinds(delays: np.ndarray, durations: np.ndarray) -> dict[str, list[str]]:
+    """Each sample's marker and how it was taken: at the delay, or at the end of a segment
+    shorter than the delay (a square, so the engineer sees which readings those are)."""
+    at_end = delays >= durations
+    return {"marker": np.where(at_end, "square", "diamond").tolist(),
+            "when": np.where(at_end, "at the segment's end (shorter than the delay)", "after the delay").tolist()}
 
 
 def _runs(starts, ends, closed, plan, view) -> tuple[np.ndarray, np.ndarray]:

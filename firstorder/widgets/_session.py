@@ -27,7 +27,7 @@ from ..errors import InputError
 from ..fixture import Fixture
 from ..netlist import PART_UNITS, SOURCE_UNITS
 from ..response import COMPONENTS, Response, read_initial
-from ..settling.table import SettlingSummary, sample_delays, table_summary
+from ..settling.table import SettlingSummary, table_summary
 from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
 from ..units import format_value, parse_value
 from ._drive_table import DriveText
@@ -237,7 +237,9 @@ class BenchSession(traitlets.HasTraits):
         texts = {field.key: field.text for field in part_fields(fixture)}
         texts.update(initial=initial if isinstance(initial, str) else format_value(start, unit, digits=6),
                      tolerance=tolerance_text(tolerance),
-                     sample_delay="" if delay is None else format_value(delay, "s", digits=6))
+                     # As typed: the saved analysis keeps the text the field shows.
+                     sample_delay="" if delay is None else sample_delay.strip() if isinstance(sample_delay, str)
+                     else format_value(delay, "s", digits=6))
         with self.hold_trait_notifications():
             for name, value in dict(fixture=fixture, table=table, drive=drive, initial=start, tolerance=tolerance,
                                     sample_delay=delay, response=response, texts=texts).items():
@@ -289,7 +291,14 @@ class BenchSession(traitlets.HasTraits):
     @property
     def samples_at_end(self) -> bool:
         """True when some segments are shorter than the sample delay: those are judged at their end."""
-        return self.sample_delay is not None and bool((self.drive.durations < self.sample_delay).any())
+        return self.short_segments.size > 0
+
+    @property
+    def short_segments(self) -> np.ndarray:
+        """The segments shorter than the sample delay, each sampled at its end (none without a delay)."""
+        if self.sample_delay is None:
+            return np.zeros(0, dtype=np.intp)
+        return np.flatnonzero(self.drive.durations < self.sample_delay)
 
     @property
     def curve_names(self) -> tuple[str, ...]:
@@ -425,15 +434,15 @@ class BenchSession(traitlets.HasTraits):
     def analysis(self, title: str = "", notes: str = ""):
         """The last good fixture, drive, start, tolerance and sample delay as an :class:`~firstorder.Analysis`.
 
-        A sample delay longer than some segments is kept per segment, cut to
-        each segment's length (as the settling table here judges them).
+        The sample delay is kept as typed (``"800u"``), one for every segment: a
+        segment shorter than it is sampled at its end, in the analysis as here
+        (:func:`~firstorder.settling.table.sample_delays`, the one rule).
         """
         from ..analysis import Analysis
 
         tolerance = self.judged(self.tolerance, None)  # an analysis judges the state
-        delay: Any = self.sample_delay
-        if self.samples_at_end:
-            delay = sample_delays(delay, self.drive.durations, ends=self.drive.ends, past_end="end").tolist()
+        typed = self.texts.get("sample_delay", "").strip()
+        delay: Any = None if self.sample_delay is None else (typed or self.sample_delay)
         return Analysis(self.fixture, self.drive, initial=self.initial, tolerance=tolerance,
                         sample_delay=delay, title=title, notes=notes)
 
@@ -487,9 +496,8 @@ class BenchSession(traitlets.HasTraits):
             tolerance, mismatch = None, str(error)
         if tolerance is not None:
             try:
-                delays = None if sample_delay is None else sample_delays(
-                    sample_delay, response.drive.durations, ends=response.ends, past_end="end")
-                table = response.settling(tolerance, sample_delay=delays, probe=probe)
+                # One delay for every segment: a shorter segment is sampled at its end (sample_delays).
+                table = response.settling(tolerance, sample_delay=sample_delay, probe=probe)
                 summary = table_summary(table)
             except ValueError as error:
                 problem = str(error)

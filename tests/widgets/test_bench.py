@@ -16,6 +16,7 @@ import pytest
 
 import firstorder as fo
 from firstorder.widgets import Bench
+from firstorder.widgets._panels import settling_html
 
 from benches import charging, rc_bench, switched_bench
 
@@ -386,13 +387,24 @@ class TestAnalysisExport:
         assert again.fixture.part_map["rs"].value == 2200.0
         assert again.drive == bench.drive
         assert again.tolerance == fo.Tolerance.lsb(16, 5.0)
-        assert again.sample_delay == 0.8e-3
+        assert again.sample_delay == "0.8m"  # as typed
         np.testing.assert_allclose(again.response.boundary, bench.response.boundary, rtol=0, atol=0)
 
-    def test_long_delay_is_kept_per_segment(self, tmp_path):
+    def test_long_delay_is_kept_as_typed_and_judged_alike(self, tmp_path):
+        # Segment 0 lasts 1 ms, shorter than the 2 ms typed: the Bench, the saved analysis and
+        # its report sample it at its end, and the file keeps the delay as typed.
         bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"), sample_delay="2m")
-        analysis = bench.analysis()
-        np.testing.assert_allclose(analysis.sample_delay, [1e-3, 2e-3, 2e-3])
+        bench.setup_fields["sample_delay"].value = "1.5m"
+        analysis = fo.Analysis.load(bench.save_analysis(tmp_path / "a.json"))
+        assert analysis.sample_delay == "1.5m"
+        for column in ("sample_time", "error_at_sample", "ok"):
+            np.testing.assert_array_equal(analysis.settling()[column].to_numpy(), bench.settling[column].to_numpy())
+        assert bench.settling["sample_time"].to_numpy()[0] == 1e-3  # the end of segment 0
+        samples = bench.sources["samples"].data
+        assert list(samples["marker"]) == ["square", "diamond", "diamond"]
+        assert "Segment 0 is shorter than the sample delay (1.5 ms): sampled at its end" in settling_html(bench.session)
+        html = bench.analysis().to_html()
+        assert "a segment shorter than that is sampled at its end" in html
 
     def test_report_is_written(self, tmp_path):
         bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"))
