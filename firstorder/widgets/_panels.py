@@ -134,6 +134,13 @@ def value_label(fixture, probe: str | None = None) -> str:
     return f"voltage across {storage.name}" if storage.kind == "capacitor" else f"current through {storage.name}"
 
 
+def _look_on_or_off(button: widgets.ToggleButton) -> None:
+    """A shown curve's button filled with a tick, a hidden one plain with an empty box: told
+    apart at a glance, not by a slightly darker grey."""
+    button.button_style = "info" if button.value else ""
+    button.icon = "check-square" if button.value else "square-o"
+
+
 def view_panel(fixture, curve_names: tuple[str, ...], shown: tuple[str, ...], probe: str | None,
                on_probe: Callable[[str], None], on_overlay: Callable[[str, bool], None],
                on_undo: Callable[[], None]) -> ViewPanel:
@@ -147,6 +154,8 @@ def view_panel(fixture, curve_names: tuple[str, ...], shown: tuple[str, ...], pr
         label = component_label(name)
         button = widgets.ToggleButton(value=name in shown, description=label, layout=widgets.Layout(width="146px"))
         button.tooltip = f"show or hide the {label} curve"
+        _look_on_or_off(button)
+        button.observe(lambda change: _look_on_or_off(change["owner"]), names="value")
         button.observe(lambda change, name=name: on_overlay(name, change["new"]), names="value")
         overlays[name] = button
     grid = widgets.GridBox(list(overlays.values()), layout=widgets.Layout(grid_template_columns="repeat(2, 150px)"))
@@ -323,11 +332,26 @@ def status_html(errors: dict[str, str]) -> str:
 
 
 def cautions_html(cautions: list) -> str:
+    """The cautions, compact: each one's finding on one line, what to do folded under it, and
+    the reminder every caution ends with said once."""
     if not cautions:
         return ""
-    items = "".join(f"<li>{html.escape(str(c))}</li>" for c in cautions)
-    return ("<div style='background:#fef5e7;border-left:4px solid #d68910;padding:4px 8px'>"
-            f"<b>⚠ Cautions</b><ul style='margin:2px 0'>{items}</ul></div>")
+    items, reminders = [], []
+    for caution in cautions:
+        text = str(caution)
+        # A caution's first sentence says what was found; the rest is advice.
+        finding, _, advice = text.partition(". ")
+        reminder = advice.find("These are reminders")
+        if reminder >= 0:
+            advice, tail = advice[:reminder].rstrip(), advice[reminder:]
+            if tail not in reminders:
+                reminders.append(tail)
+        folded = (f"<details style='display:inline'><summary style='display:inline;cursor:pointer;"
+                  f"color:#7e5109'> more</summary>{html.escape(advice)}</details>" if advice else "")
+        items.append(f"<div>⚠ <b>{html.escape(finding.rstrip('.'))}.</b>{folded}</div>")
+    note = "".join(f"<div style='{_HINT_STYLE}'>{html.escape(r)}</div>" for r in reminders)
+    return ("<div class='fo-cautions' style='background:#fef5e7;border-left:4px solid #d68910;padding:2px 8px'>"
+            + "".join(items) + note + "</div>")
 
 
 def info_html(session: BenchSession, mode: str) -> str:
