@@ -21,6 +21,7 @@ from ..io.atomic import write_atomic
 from ..settling.tolerance import Tolerance
 from . import _panels as panels
 from ._loader import live_kernel_cell, publish_bokehjs
+from ._generators import column_defaults
 from ._plot import Plots, View
 from ._session import SETUP_KEYS, BenchSession, part_fields
 
@@ -118,7 +119,9 @@ class Bench(widgets.VBox):
         view = panels.view_panel(fixture, session.curve_names, session.curves, session.probe, self._on_probe,
                                  self._on_overlay, self.undo)
         editor = panels.drive_editor(session.table, self._on_row, self._on_end, lambda _: self._refresh())
-        generators = panels.generators_panel(sources, self._generate)
+        table = session.table
+        generators = panels.generators_panel(table.names, table.switches, table.units,
+                                             column_defaults(session.drive, table.switches, table.units), self._generate)
         export = panels.export_panel([
             ("Plotted components (CSV)", "_components.csv", self.export_components),
             ("Drive (CSV)", "_drive.csv", self.export_drive), ("Analysis (JSON)", "_analysis.json", self.save_analysis),
@@ -130,7 +133,7 @@ class Bench(widgets.VBox):
         self.table_source, self.drive_table, self.table_view = editor.table_source, editor.drive_table, editor.table_view
         self.end_field, self.row_field, self.drag_column, self.drive_error = (
             editor.end_field, editor.row_field, editor.drag_column, editor.error)
-        self.pulse_fields, self.stair_fields = generators.pulse_fields, generators.stair_fields
+        self.generators = generators
         self.generator_error = generators.error
         self.export_name, self.export_message = export.name, export.message
         self.table_source.on_change("data", self._on_table)
@@ -258,9 +261,25 @@ class Bench(widgets.VBox):
     def _on_end(self, text: str) -> None:
         self._typed_edit({}, end=text)
 
-    def _generate(self, kind: str) -> None:
-        fields = self.pulse_fields if kind == "pulses" else self.stair_fields
-        self.session.generate(kind, {key: widget.value for key, widget in fields.items()})
+    def _generate(self) -> None:
+        self.session.generate(*self.generators.values())
+
+    def generate(self, kind: str, column: str, columns: dict[str, str] | None = None, **fields: str) -> bool:
+        """Fill the Generators tab and press its button: `kind` ``"pattern"``, ``"staircase"``
+        or ``"ramp"`` on source `column`, its `fields` as text (those not given keep what the tab
+        shows), `columns` the other columns' text.  False (and an error there) when refused."""
+        panel = self.generators
+        if kind not in panel.fields:
+            raise InputError(f"generate: kind {kind!r} is not one of {list(panel.fields)}")
+        unknown = set(fields) - set(panel.fields[kind]) or set(columns or {}) - set(panel.columns)
+        if unknown:
+            raise InputError(f"generate: {sorted(unknown)} are not fields of {kind!r}")
+        panel.kind.value, panel.column.value = kind, column
+        for key, text in fields.items():
+            panel.fields[kind][key].value = str(text)
+        for name, text in (columns or {}).items():
+            panel.columns[name].value = str(text)
+        return self.session.generate(*panel.values())
 
     def _on_handles(self, attr, old, new) -> None:
         if self._syncing:

@@ -20,17 +20,18 @@ import numpy as np
 from bokeh.models import ColumnDataSource, DataTable, SelectEditor, StringEditor, TableColumn
 from jupyter_bokeh import BokehModel
 
-from ..netlist import SOURCE_UNITS
+from ..netlist import GROUND, SOURCE_UNITS
 from ..plotting.palette import component_label
 from ..report.tables import margin_rows
 from ..units import format_value
 from ._drive_table import DriveText
+from ._generators import GENERATORS
 from ._plot import MAX_HANDLES
 from ._session import BenchSession, PartField
 
 __all__ = ["DriveEditor", "ExportPanel", "FieldsPanel", "GeneratorsPanel", "TAB_TITLES", "ViewPanel",
            "cautions_html", "derivation_html", "drive_editor", "error_html", "export_panel", "generators_panel",
-           "header_html", "info_html", "parts_panel", "settling_html", "setup_panel", "status_html", "tab_panel",
+           "header_html", "info_html", "parts_panel", "probe_label", "settling_html", "setup_panel", "status_html", "tab_panel",
            "value_label", "view_panel"]
 
 #: Tabs under the plot, in order.
@@ -126,10 +127,25 @@ class ViewPanel:
             button.value = name in curves
 
 
+def probe_label(probe) -> str:
+    """What a probe watches in plain words: ``voltage at out``, ``voltage sup → drain``,
+    ``current through coil``.
+
+    Examples
+    --------
+    >>> from firstorder.netlist import Probe
+    >>> probe_label(Probe("v", node="sup", reference="drain")), probe_label(Probe("i", through="coil"))
+    ('voltage sup → drain', 'current through coil')
+    """
+    if probe.node is None:
+        return f"current through {probe.through}"
+    return f"voltage at {probe.node}" if probe.reference == GROUND else f"voltage {probe.node} → {probe.reference}"
+
+
 def value_label(fixture, probe: str | None = None) -> str:
     """What the response panel's value axis shows: the probe, or the storage element's state."""
     if probe:
-        return probe
+        return f"{probe}: {probe_label(next(p for p in fixture.probes if p.name == probe))}"
     storage = fixture.storage
     return f"voltage across {storage.name}" if storage.kind == "capacitor" else f"current through {storage.name}"
 
@@ -146,7 +162,7 @@ def view_panel(fixture, curve_names: tuple[str, ...], shown: tuple[str, ...], pr
                on_undo: Callable[[], None]) -> ViewPanel:
     """The quantity watched (the state or a probe), a toggle per curve, and undo."""
     storage = fixture.storage
-    options = [(f"state {value_label(fixture)}", "")] + [(f"{p.name}: {p.describe()}", p.name) for p in fixture.probes]
+    options = [(f"state: {value_label(fixture)}", "")] + [(value_label(fixture, p.name), p.name) for p in fixture.probes]
     selector = widgets.Dropdown(options=options, value=probe or "", layout=widgets.Layout(width="300px"))
     selector.observe(lambda change: on_probe(change["new"]), names="value")
     overlays = {}
@@ -240,35 +256,71 @@ def drive_editor(table: DriveText, on_row: Callable[[str, int], None], on_end: C
 @dataclass(frozen=True)
 class GeneratorsPanel:
     box: widgets.VBox
-    pulse_fields: dict[str, widgets.Widget]
-    stair_fields: dict[str, widgets.Widget]
+    kind: widgets.ToggleButtons
+    column: widgets.Dropdown
+    fields: dict[str, dict[str, widgets.Text]]  # generator key -> its fields
+    columns: dict[str, widgets.Text]  # every column's own levels or states
+    button: widgets.Button
     error: widgets.HTML
 
+    def values(self) -> tuple[str, str, dict[str, str], dict[str, str]]:
+        """What `on_generate` needs: the generator, the source it makes, its fields and every column's."""
+        kind = self.kind.value
+        return (kind, self.column.value, {key: w.value for key, w in self.fields[kind].items()},
+                {name: w.value for name, w in self.columns.items()})
 
-def generators_panel(source_names: tuple[str, ...], on_generate: Callable[[str], None]) -> GeneratorsPanel:
-    """Pulse-train and staircase fields; `on_generate("pulses" or "staircase")` on their buttons."""
-    names = list(source_names) or [""]
 
-    def text(value: str, label: str, width: str = "160px") -> widgets.Text:
-        return widgets.Text(value=value, description=label, layout=widgets.Layout(width=width))
+def generators_panel(names: tuple[str, ...], switches: frozenset[str], units: dict[str, str],
+                     defaults: dict[str, str], on_generate: Callable[[], None]) -> GeneratorsPanel:
+    """A repeated pattern, a staircase or a ramp of steps on one source, and a field for every
+    other column (nothing kept from the drive it replaces); `on_generate()` on the button."""
+    sources = [name for name in names if name not in switches] or [""]
+    kind = widgets.ToggleButtons(options=[(g.title, g.key) for g in GENERATORS], value=GENERATORS[0].key,
+                                 style={"button_width": "140px"})
+    column = widgets.Dropdown(options=sources, value=sources[0], description="source",
+                              layout=widgets.Layout(width="200px"))
+    fields: dict[str, dict[str, widgets.Text]] = {}
+    boxes = {}
+    for generator in GENERATORS:
+        fields[generator.key] = {}
+        rows = []
+        for key, label, text, hint in generator.fields:
+            field = widgets.Text(value=text, description=label, placeholder=hint, tooltip=hint,
+                                 layout=widgets.Layout(width="230px"))
+            field.add_class(f"fo-gen-{generator.key}-{key}")
+            fields[generator.key][key] = field
+            rows.append(field)
+        boxes[generator.key] = widgets.HBox(rows, layout=widgets.Layout(flex_flow="row wrap"))
+    shown = widgets.Box([boxes[kind.value]])
+    kind.observe(lambda change: setattr(shown, "children", [boxes[change["new"]]]), names="value")
+    columns: dict[str, widgets.Text] = {}
+    for name in names:
+        label = f"{name} (switch)" if name in switches else f"{name} ({units.get(name, '')})"
+        field = widgets.Text(value=defaults.get(name, ""), description=label, style={"description_width": "initial"},
+                             tooltip="one value, or one per level of the pattern (closed/open for a switch)",
+                             layout=widgets.Layout(width="230px"))
+        field.add_class("fo-gen-column-" + re.sub(r"[^A-Za-z0-9_-]", "-", name))
+        columns[name] = field
 
-    def column() -> widgets.Dropdown:
-        return widgets.Dropdown(options=names, value=names[0], description="source", layout=widgets.Layout(width="180px"))
+    def mark_generated(change=None) -> None:
+        # The generated source's own field is the generator's: shown, but not typed in.
+        for name, field in columns.items():
+            field.disabled = name == column.value
+            field.placeholder = "made by the generator" if field.disabled else ""
 
-    pulses = {"column": column(), "period": text("1m", "period"), "duty": text("0.5", "duty"),
-              "high": text("1", "high"), "low": text("0", "low"), "count": text("4", "count")}
-    stairs = {"column": column(), "levels": text("0, 1, 2, 3", "levels", "260px"), "dwell": text("1m", "dwell")}
-    pulse_button = widgets.Button(description="Make pulse train", layout=widgets.Layout(width="160px"))
-    pulse_button.on_click(lambda _: on_generate("pulses"))
-    stair_button = widgets.Button(description="Make staircase", layout=widgets.Layout(width="160px"))
-    stair_button.on_click(lambda _: on_generate("staircase"))
+    mark_generated()
+    column.observe(mark_generated, names="value")
+    button = widgets.Button(description="Make drive", icon="magic", button_style="primary",
+                            layout=widgets.Layout(width="160px"))
+    button.on_click(lambda _: on_generate())
     error = widgets.HTML()
-    note = widgets.HTML(f"<span style='{_HINT_STYLE}'>A generator replaces the drive; other "
-                        "columns keep the level they had at each new instant. Undo takes it back.</span>")
-    box = widgets.VBox([widgets.HTML("<b>Pulse train</b>"), widgets.HBox(list(pulses.values())), pulse_button,
-                        widgets.HTML("<b>Staircase</b>"), widgets.HBox(list(stairs.values())), stair_button,
-                        error, note])
-    return GeneratorsPanel(box, pulses, stairs, error)
+    note = widgets.HTML(f"<span style='{_HINT_STYLE}'>A generator replaces the whole drive: the source above "
+                        "takes the generator's levels; every other column takes the value beside it (one value, "
+                        "or one per level of the pattern; closed/open for a switch). Undo takes it back.</span>")
+    column_box = widgets.HBox(list(columns.values()), layout=widgets.Layout(flex_flow="row wrap"))
+    box = widgets.VBox([kind, widgets.HBox([column]), shown, widgets.HTML("<b>Every other column</b>"), column_box,
+                        button, error, note])
+    return GeneratorsPanel(box, kind, column, fields, columns, button, error)
 
 
 @dataclass(frozen=True)

@@ -31,16 +31,13 @@ from ..settling.table import SettlingSummary, table_summary
 from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
 from ..units import format_value, parse_value
 from ._drive_table import DriveText
+from ._generators import generated_drive
 
 __all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS", "TOLERANCE_UNIT", "UNDO_DEPTH",
            "part_fields"]
 
 #: How many edits `undo` can take back.
 UNDO_DEPTH = 50
-#: The most changes a generator may make in the Bench.  Every edit redraws the whole drive
-#: (benchmarks/bench.py: about 40 ms at 100,000 changes), so ten times that keeps an edit
-#: under about half a second; longer drives are built in code and shown whole.
-MAX_GENERATED_CHANGES = 1_000_000
 #: The setup fields, by key.
 SETUP_KEYS = ("initial", "tolerance", "sample_delay")
 #: Each setup field's label on screen: its errors begin with it.
@@ -361,34 +358,21 @@ class BenchSession(traitlets.HasTraits):
         return self._edit("drive", lambda: {"table": DriveText.from_drive(drive, table.names, table.switches,
                                                                           table.units)}, reset_view=True)
 
-    def generate(self, kind: str, fields: dict[str, str]) -> bool:
-        """Replace the drive by a pulse train (``kind="pulses"``: column, period, duty, high,
-        low, count) or a staircase (``"staircase"``: column, levels, dwell), given as text."""
+    def generate(self, kind: str, column: str, fields: dict[str, str], columns: dict[str, str]) -> bool:
+        """Replace the drive by a generated one (:func:`._generators.generated_drive`):
+        ``kind`` ``"pattern"`` (levels, dwells, repeats), ``"staircase"`` (levels, dwell) or
+        ``"ramp"`` (from, to, steps, dwell, and back) on source `column`; every other column
+        from its own text in `columns` (one value, or one per level), none inherited."""
+        table = self.table
         try:
-            if kind == "pulses":
-                count = fields["count"].strip()
-                # ASCII digits only: str.isdigit also accepts '²' and other digits int() refuses.
-                if not (count.isascii() and count.isdigit()) or int(count) < 1:
-                    raise InputError(f"pulses.count: {count!r} must be a whole number >= 1")
-                if 2 * int(count) > MAX_GENERATED_CHANGES:
-                    raise InputError(
-                        f"pulses.count: {count} pulses make {2 * int(count):,} changes; the Bench takes at most "
-                        f"{MAX_GENERATED_CHANGES:,} ({MAX_GENERATED_CHANGES // 2:,} pulses); build longer drives "
-                        f"in code with Drive.pulses")
-                made = Drive.pulses(period=fields["period"], duty=parse_value(fields["duty"], field="pulses.duty"),
-                                    high=fields["high"], low=fields["low"], count=int(count), name=fields["column"],
-                                    start=self.drive.start)
-            elif kind == "staircase":
-                levels = [item.strip() for item in fields["levels"].split(",") if item.strip()]
-                made = Drive.staircase(levels, dwell=fields["dwell"], name=fields["column"], start=self.drive.start)
-            else:
-                raise InputError(f"generate: kind {kind!r} is not 'pulses' or 'staircase'")
-            table = self.table.merged(made)
+            made = generated_drive(kind, column, fields, columns, table.names, table.switches, table.units,
+                                   float(self.drive.start))
+            made_table = DriveText.from_drive(made, table.names, table.switches, table.units)
         except ValueError as error:
             self._set_error("generator", str(error))
             return False
         self._set_error("generator", None)
-        return self._edit("drive", lambda: {"table": table}, reset_view=True)
+        return self._edit("drive", lambda: {"table": made_table}, reset_view=True)
 
     def drag(self, column: str, times: Any, levels: Any) -> bool:
         """Drag handles moved to (`times`, `levels`) on `column`; False (and the drive as it

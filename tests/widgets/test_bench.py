@@ -238,22 +238,33 @@ class TestDriveTable:
         bench.delete_row(9)
         assert "row 9" in bench.error
 
-    def test_generators(self):
-        bench = rc_bench()
-        bench.pulse_fields["period"].value = "2m"
-        bench.pulse_fields["duty"].value = "0.25"
-        bench.pulse_fields["high"].value = "5"
-        bench.pulse_fields["count"].value = "3"
-        bench._generate("pulses")
-        expected = fo.Drive.pulses(period="2m", duty=0.25, high=5, count=3)
+    def test_generators_make_the_whole_drive_and_keep_nothing_silently(self):
+        bench = switched_bench()
+        # The old drive has k1 closed at its first change and vdac at 0 V; the pattern says
+        # otherwise for k1 (closed while high, open while low): that is what the drive gets.
+        assert bench.generate("pattern", "vdac", levels="0, 2.5", dwells="1m, 3m", repeats="3",
+                              columns={"k1": "open, closed"})
+        expected = fo.Drive(np.array([0, 1, 4, 5, 8, 9]) * 1e-3, 12e-3, vdac=[0, 2.5] * 3, k1=[0, 1] * 3)
         assert bench.drive == expected
-        bench.stair_fields["levels"].value = "0, 1, 2"
-        bench.stair_fields["dwell"].value = "1m"
-        bench._generate("staircase")
-        assert bench.drive == fo.Drive.staircase([0, 1, 2], dwell="1m")
-        bench.pulse_fields["duty"].value = "2"
-        bench._generate("pulses")
-        assert "duty" in bench.error
+        assert bench.generate("staircase", "vdac", levels="0, 1, 2", dwell="1m", columns={"k1": "closed"})
+        assert bench.drive == fo.Drive([0, 1e-3, 2e-3], 3e-3, vdac=[0, 1, 2], k1=[1, 1, 1])
+        assert bench.generate("ramp", "vdac", first="0", last="2", steps="4", dwell="500u", back="yes")
+        np.testing.assert_array_equal(bench.drive.levels("vdac"), [0, 0.5, 1, 1.5, 2, 1.5, 1, 0.5, 0])
+        np.testing.assert_allclose(bench.drive.times, np.arange(9) * 0.5e-3, rtol=0, atol=1e-18)
+        assert len(bench.drive) == 9 and "9-change drive" in bench.header.value
+        assert not bench.generate("pattern", "vdac", dwells="1m, 2m, 3m", levels="0, 1")
+        assert "repeated pattern: dwells: 3 dwells for 2 levels" in bench.error
+        assert not bench.generate("pattern", "vdac", dwells="1m", columns={"k1": "open, closed, open"})
+        assert "k1 (switch): 3 values for a pattern of 2 levels" in bench.error
+        assert not bench.generate("ramp", "vdac", steps="0")
+        assert "ramp of steps: steps: '0' must be a whole number >= 1" in bench.error
+        assert len(bench.drive) == 9  # refused: the drive stays
+
+    def test_the_generated_source_field_is_the_generators(self):
+        bench = switched_bench()
+        columns = bench.generators.columns
+        assert columns["vdac"].disabled and not columns["k1"].disabled
+        assert columns["k1"].value == "closed"  # the old drive's first state, shown, to be changed
 
     def test_drag_a_handle(self):
         bench = rc_bench()
@@ -296,8 +307,7 @@ class TestDriveTable:
     def test_the_header_counts_the_changes_of_the_drive_shown(self):
         bench = rc_bench()
         assert "3-change drive" in bench.header.value
-        bench.pulse_fields["count"].value = "3"
-        bench._generate("pulses")
+        bench.generate("pattern", "vin", levels="0, 5", dwells="1m", repeats="3")
         assert len(bench.drive) == 6 and "6-change drive" in bench.header.value
 
 

@@ -232,3 +232,21 @@ def _html_widgets(box):
     for child in getattr(box, "children", ()):
         found += [child] if isinstance(child, widgets.HTML) else _html_widgets(child)
     return found
+
+
+class TestPlainLabels:
+    def test_probes_read_in_plain_words_in_show_and_on_the_axis(self):
+        fixture = fo.Fixture()
+        fixture.voltage_source("vsup", "sup", "gnd")
+        fixture.inductor("coil", "sup", "mid", "200m")
+        fixture.resistor("rcoil", "mid", "drain", "400")
+        fixture.resistor("rdrv", "drain", "gnd", "10")
+        fixture.probe("v_coil", node="sup", reference="drain")
+        fixture.probe("v_drain", node="drain")
+        fixture.probe("i_r", through="rcoil")
+        bench = Bench(fixture, fo.Drive.steps([(0, 0.0), ("1m", 24.0)], end="5m", name="vsup"))
+        labels = [label for label, _ in bench.probe_selector.options]
+        assert labels == ["state: current through coil", "v_coil: voltage sup → drain", "v_drain: voltage at drain",
+                          "i_r: current through rcoil"]
+        bench.probe_selector.value = "v_coil"
+        assert bench.plots.response_figure.yaxis[0].axis_label == "v_coil: voltage sup → drain"
