@@ -8,6 +8,8 @@ each part at most once whatever number of traits the edit replaced.
 
 from __future__ import annotations
 
+import html
+from pathlib import Path
 from typing import Any
 
 import ipywidgets as widgets
@@ -21,6 +23,7 @@ from ..io.atomic import write_atomic
 from ..settling.tolerance import Tolerance
 from . import _panels as panels
 from ._loader import live_kernel_cell, publish_bokehjs
+from ._files import loaded_inputs
 from ._generators import column_defaults
 from ._plot import Plots, View
 from ._session import SETUP_KEYS, BenchSession, part_fields
@@ -122,10 +125,13 @@ class Bench(widgets.VBox):
         table = session.table
         generators = panels.generators_panel(table.names, table.switches, table.units,
                                              column_defaults(session.drive, table.switches, table.units), self._generate)
+        storage = fixture.storage
         export = panels.export_panel([
             ("Plotted components (CSV)", "_components.csv", self.export_components),
-            ("Drive (CSV)", "_drive.csv", self.export_drive), ("Analysis (JSON)", "_analysis.json", self.save_analysis),
-            ("Report (HTML)", "_report.html", self.report)])
+            ("Drive (CSV)", "_drive.csv", self.export_drive),
+            ("Analysis (JSON)", "_analysis.json", lambda path: self.save_analysis(path, *self._title_notes())),
+            ("Report (HTML)", "_report.html", lambda path: self.report(path, *self._title_notes()))],
+            f"{storage.kind.capitalize()} '{storage.name}': settling", self._on_load)
         self._panels = (parts, setup, view, editor)
         self.fields, self.setup_fields = parts.fields, setup.fields
         self._field_errors = {**parts.errors, **setup.errors}
@@ -135,6 +141,7 @@ class Bench(widgets.VBox):
             editor.end_field, editor.row_field, editor.drag_column, editor.error)
         self.generators = generators
         self.generator_error = generators.error
+        self.export = export
         self.export_name, self.export_message = export.name, export.message
         self.table_source.on_change("data", self._on_table)
         self.table_source.selected.on_change("indices", self._on_table_selection)
@@ -377,6 +384,52 @@ class Bench(widgets.VBox):
         # A drive error gone (fixed, or taken back by undo): the table shows the last good text again.
         if "drive" in self._drawn.get("errors", ({},))[0] and "drive" not in errors and not self._typed:
             self._drawn.pop("table", None)
+
+    # -- files ----------------------------------------------------------------------------------------
+    @classmethod
+    def from_analysis(cls, analysis, trace: Any = None) -> "Bench":
+        """A Bench for an :class:`~firstorder.Analysis` (from :meth:`Analysis.load`): its fixture,
+        drive, start, tolerance and sample delay, its title and notes in the Export tab."""
+        delay = analysis.sample_delay
+        if isinstance(delay, list):
+            raise InputError("Bench.from_analysis: the analysis has one sample delay per segment; the Bench's "
+                             "'sample at' takes one delay for every segment")
+        bench = cls(analysis.fixture, analysis.drive, analysis.initial, analysis.tolerance, delay, trace)
+        bench.export.title.value, bench.export.notes.value = analysis.title or bench.export.title.value, analysis.notes
+        return bench
+
+    def load_analysis(self, source: Any) -> None:
+        """Put an analysis into this Bench (undoable): an :class:`~firstorder.Analysis`, or the
+        path of an analysis file or report.  It must be of a fixture with the same parts and
+        probes (other values are fine); else open it with :meth:`from_analysis`."""
+        from ..analysis import Analysis
+
+        analysis = source if isinstance(source, Analysis) else Analysis.load(source)
+        loaded = loaded_inputs(analysis, self.fixture, lambda fx: {f.key: f.text for f in part_fields(fx)})
+        self.session.load(loaded.fixture, loaded.drive, loaded.initial, loaded.tolerance, loaded.sample_delay,
+                          loaded.texts)
+        if loaded.title:
+            self.export.title.value = loaded.title
+        self.export.notes.value = loaded.notes
+
+    def _on_load(self, path: str | None, content: bytes | None) -> str:
+        from ..analysis import Analysis
+
+        try:
+            if path is not None:
+                if not path:
+                    return panels.error_html("load: type the path of an analysis (.json) or report (.html) file")
+                self.load_analysis(path)
+                where = str(Path(path).resolve())
+            else:
+                self.load_analysis(Analysis.from_json(content, source="uploaded file"))
+                where = "the uploaded file"
+        except (OSError, ValueError) as error:
+            return panels.error_html(str(error))
+        return f"loaded: <code>{html.escape(where)}</code>"
+
+    def _title_notes(self) -> tuple[str, str]:
+        return self.export.title.value.strip(), self.export.notes.value
 
     # -- export --------------------------------------------------------------------------------------------------
     def components_table(self):

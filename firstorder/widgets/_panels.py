@@ -25,6 +25,7 @@ from ..plotting.palette import component_label
 from ..report.tables import margin_rows
 from ..units import format_value
 from ._drive_table import DriveText
+from ._files import download_html
 from ._generators import GENERATORS
 from ._plot import MAX_HANDLES
 from ._session import BenchSession, PartField
@@ -327,29 +328,67 @@ def generators_panel(names: tuple[str, ...], switches: frozenset[str], units: di
 class ExportPanel:
     box: widgets.VBox
     name: widgets.Text
+    title: widgets.Text
+    notes: widgets.Textarea
     message: widgets.HTML
+    load_path: widgets.Text
+    load_button: widgets.Button
+    upload: widgets.FileUpload
+    load_message: widgets.HTML
 
 
-def export_panel(actions: list[tuple[str, str, Callable[[str], str]]]) -> ExportPanel:
-    """A file stem and a button per `(label, suffix, write)`: ``write(stem + suffix)`` returns
-    the path written, shown under the buttons (or the error that stopped it)."""
-    name = widgets.Text(value="bench", description="file stem", layout=widgets.Layout(width="260px"))
+def export_panel(actions: list[tuple[str, str, Callable[[str], str]]], title: str,
+                 on_load: Callable[[str | None, bytes | None], str]) -> ExportPanel:
+    """A file stem, the report's title and notes, a button per `(label, suffix, write)`, and
+    loading an analysis file.  ``write(stem + suffix)`` returns the path written, shown in
+    full with a link that downloads it (or the error that stopped it); ``on_load(path, None)``
+    or ``on_load(None, content)`` loads one and returns what to show."""
+    wide = widgets.Layout(width="460px")
+    name = widgets.Text(value="bench", description="file stem", layout=wide)
+    name.add_class("fo-export-stem")
+    title_field = widgets.Text(value=title, description="title", placeholder="the report's title", layout=wide)
+    title_field.add_class("fo-export-title")
+    notes = widgets.Textarea(value="", description="notes", placeholder="notes at the top of the report and in "
+                             "the analysis file", layout=widgets.Layout(width="460px", height="60px"))
+    notes.add_class("fo-export-notes")
     message = widgets.HTML()
+    message.add_class("fo-export-message")
 
     def run(suffix: str, write: Callable[[str], str]) -> None:
         try:
             written = write((name.value.strip() or "bench") + suffix)
+            message.value = download_html(written)
         except (OSError, ValueError) as error:
             message.value = error_html(str(error))
-            return
-        message.value = f"written: <code>{html.escape(written)}</code>"
 
     buttons = []
     for label, suffix, write in actions:
-        button = widgets.Button(description=label, layout=widgets.Layout(width="190px"))
+        # Wide enough for its whole label: a cut "Plotted components (CS…" says nothing.
+        button = widgets.Button(description=label, icon="download", layout=widgets.Layout(width="auto"))
+        button.add_class("fo-export-" + suffix.strip("_").replace(".", "-"))
         button.on_click(lambda _, suffix=suffix, write=write: run(suffix, write))
         buttons.append(button)
-    return ExportPanel(widgets.VBox([name, widgets.HBox(buttons), message]), name, message)
+    load_path = widgets.Text(description="file", placeholder="path to an analysis (.json) or report (.html)",
+                             layout=wide)
+    load_path.add_class("fo-load-path")
+    load_button = widgets.Button(description="Load", icon="folder-open", layout=widgets.Layout(width="auto"))
+    upload = widgets.FileUpload(accept=".json,.html", multiple=False, description="Upload")
+    load_message = widgets.HTML()
+    load_message.add_class("fo-load-message")
+
+    def load(path: str | None, content: bytes | None) -> None:
+        load_message.value = on_load(path, content)
+
+    load_button.on_click(lambda _: load(load_path.value.strip(), None))
+    upload.observe(lambda change: change["new"] and load(None, bytes(change["new"][0]["content"])), names="value")
+    hint = widgets.HTML(f"<span style='{_HINT_STYLE}'>Files are written in the notebook's folder; each also "
+                        "downloads from the link shown. Loading puts an analysis's part values, drive and setup "
+                        "into this Bench (undo takes it back).</span>")
+    box = widgets.VBox([
+        widgets.HTML("<b>Export</b>"), name, title_field, notes,
+        widgets.HBox(buttons, layout=widgets.Layout(flex_flow="row wrap")), message,
+        widgets.HTML("<b>Load an analysis</b>"), widgets.HBox([load_path, load_button, upload]), load_message, hint])
+    return ExportPanel(box, name, title_field, notes, message, load_path, load_button, upload, load_message)
 
 
 def tab_panel(children: list[widgets.Widget]) -> widgets.Tab:

@@ -111,7 +111,7 @@ class Plots:
     def _build_drive_figure(self, names, units, switches) -> None:
         distinct_units = sorted({units.get(n, "") for n in names})
         unit = distinct_units[0] if len(distinct_units) == 1 else ""
-        fig = figure(width=PLOT_WIDTH, height=190, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
+        fig = figure(width=PLOT_WIDTH, height=190, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap,save",
                      active_scroll="xwheel_zoom", title="Drive: source levels; switch lanes shaded where closed")
         self._style(fig, unit)
         fig.yaxis.axis_label = "level"  # the tick labels carry the unit
@@ -171,7 +171,7 @@ class Plots:
         # or a new probe never leaves it on another quantity's span; box zoom picks a time span.
         self.y_range = Range1d(0.0, 1.0)
         fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, y_range=self.y_range,
-                     tools="xpan,xwheel_zoom,xbox_zoom,reset,tap", active_scroll="xwheel_zoom", title="Response")
+                     tools="xpan,xwheel_zoom,xbox_zoom,reset,tap,save", active_scroll="xwheel_zoom", title="Response")
         self._style(fig, unit)
         fig.xaxis.axis_label = "time"
         fig.yaxis.axis_label = label
@@ -230,7 +230,7 @@ class Plots:
                                                      fill_alpha=0.4, visible=False)
             items.append(LegendItem(label=f"measured: {trace_name}", renderers=[trace_line]))
             residual_fig = figure(width=PLOT_WIDTH, height=150, x_range=self.x_range,
-                                  tools="xpan,xwheel_zoom,box_zoom,reset", active_scroll="xwheel_zoom",
+                                  tools="xpan,xwheel_zoom,box_zoom,reset,save", active_scroll="xwheel_zoom",
                                   title="Residual: measured - model (total)")
             self._style(residual_fig, unit)
             residual_fig.yaxis.axis_label = "residual"

@@ -427,8 +427,16 @@ class BenchSession(traitlets.HasTraits):
         tolerance = self.judged(self.tolerance, None)  # an analysis judges the state
         typed = self.texts.get("sample_delay", "").strip()
         delay: Any = None if self.sample_delay is None else (typed or self.sample_delay)
-        return Analysis(self.fixture, self.drive, initial=self.initial, tolerance=tolerance,
+        initial = self.texts.get("initial", "").strip() or self.initial  # as typed, too
+        return Analysis(self.fixture, self.drive, initial=initial, tolerance=tolerance,
                         sample_delay=delay, title=title, notes=notes)
+
+    def load(self, fixture: Fixture, drive: Drive, initial: float | str, tolerance: Tolerance | None,
+             sample_delay: float | None, texts: dict[str, str]) -> None:
+        """Every input at once (an analysis file read back, :mod:`._files` checks it); undoable."""
+        table = DriveText.from_drive(drive, self.table.names, self.table.switches, self.table.units)
+        snapshot = _Snapshot(fixture, table, {**self.texts, **texts}, initial, tolerance, sample_delay)
+        self._restore(snapshot, history=(*self.history, self._snapshot())[-UNDO_DEPTH:])
 
     # -- the one path of an edit ----------------------------------------------------------------------
     def _edit(self, key: str, make: Callable[[], dict[str, Any]], texts: dict[str, str] | None = None,

@@ -7,6 +7,7 @@ and tau = L / R for a coil; series and parallel resistance.
 from __future__ import annotations
 
 import math
+from pathlib import Path
 import subprocess
 import sys
 
@@ -420,6 +421,92 @@ class TestAnalysisExport:
         bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"))
         path = bench.report(tmp_path / "r.html")
         assert fo.Analysis.load(path).drive == bench.drive
+
+
+def _click(bench, label: str) -> None:
+    button = next(b for b in bench.export.box.children[4].children if b.description == label)
+    button.click()
+
+
+class TestExportTab:
+    def test_each_file_is_written_shown_in_full_and_offered_as_a_download(self, tmp_path, monkeypatch):
+        import base64
+        import re
+
+        monkeypatch.chdir(tmp_path)
+        bench = switched_bench(tolerance=fo.Tolerance.lsb(16, 5.0), sample_delay="0.8m")
+        bench.export.title.value = "Channel 3 hold capacitor"
+        bench.export.notes.value = "relay K1 from lot 7"
+        for label, suffix in [("Plotted components (CSV)", "_components.csv"), ("Drive (CSV)", "_drive.csv"),
+                              ("Analysis (JSON)", "_analysis.json"), ("Report (HTML)", "_report.html")]:
+            _click(bench, label)
+            message = bench.export.message.value
+            path = tmp_path / f"bench{suffix}"
+            assert f"<code class='fo-written'>{path.resolve()}</code>" in message  # the full path
+            link = re.search(r'download="([^"]+)" href="data:([^;]+);base64,([^"]+)"', message)
+            assert link and link.group(1) == path.name
+            assert base64.b64decode(link.group(3)) == path.read_bytes()  # the file itself, to the browser
+        analysis = fo.Analysis.load(tmp_path / "bench_analysis.json")
+        assert (analysis.title, analysis.notes) == ("Channel 3 hold capacitor", "relay K1 from lot 7")
+        report = (tmp_path / "bench_report.html").read_text(encoding="utf-8")
+        assert "Channel 3 hold capacitor" in report and "relay K1 from lot 7" in report
+        assert "<title>firstorder analysis" not in report
+
+    def test_labels_are_whole(self):
+        bench = rc_bench()
+        for button in bench.export.box.children[4].children:
+            assert button.layout.width == "auto", button.description  # never cut to a fixed width
+
+    def test_plots_carry_a_save_tool(self):
+        from bokeh.models import SaveTool
+
+        bench = rc_bench()
+        for fig in (bench.plots.drive_figure, bench.plots.response_figure):
+            assert any(isinstance(tool, SaveTool) for tool in fig.toolbar.tools)
+
+
+class TestLoadAnalysis:
+    def test_a_saved_analysis_loads_back_and_undo_takes_it_back(self, tmp_path):
+        saved = switched_bench(tolerance=fo.Tolerance.absolute("2m"), sample_delay="0.5m", initial="0.3")
+        saved.fields["rs"].value = "2.2k"
+        saved.edit_cell(3, "vdac", "-1.5")
+        saved.export.title.value = "after rework"
+        path = saved.save_analysis(tmp_path / "a.json", *saved._title_notes())
+        bench = switched_bench()
+        before = bench.drive
+        bench.export.load_path.value = str(path)
+        bench.export.load_button.click()
+        assert "loaded:" in bench.export.load_message.value and str(Path(path).resolve()) in bench.export.load_message.value
+        assert bench.drive == saved.drive and bench.fields["rs"].value == "2.2 kΩ"
+        assert bench.setup_fields["sample_delay"].value == "0.5m" and bench.setup_fields["initial"].value == "0.3"
+        assert bench.tolerance == fo.Tolerance.absolute("2m") and bench.export.title.value == "after rework"
+        np.testing.assert_array_equal(bench.response.boundary, saved.response.boundary)
+        assert bench.undo() and bench.drive == before
+
+    def test_an_uploaded_report_loads(self, tmp_path):
+        saved = switched_bench(tolerance=fo.Tolerance.absolute("2m"))
+        saved.edit_cell(1, "vdac", "1.25")
+        content = saved.report(tmp_path / "r.html")
+        bench = switched_bench()
+        bench._on_load(None, (tmp_path / "r.html").read_bytes())
+        assert bench.drive == saved.drive and content
+
+    def test_another_fixture_is_refused_naming_the_way_to_open_it(self, tmp_path):
+        path = rc_bench().save_analysis(tmp_path / "rc.json")
+        bench = switched_bench()
+        drive = bench.drive
+        bench.export.load_path.value = str(path)
+        bench.export.load_button.click()
+        assert "another fixture" in bench.export.load_message.value
+        assert "Bench.from_analysis" in bench.export.load_message.value and bench.drive is drive
+        again = Bench.from_analysis(fo.Analysis.load(path))
+        assert again.drive == rc_bench().drive
+
+    def test_a_missing_file_is_an_error_there(self, tmp_path):
+        bench = rc_bench()
+        bench.export.load_path.value = str(tmp_path / "none.json")
+        bench.export.load_button.click()
+        assert "none.json" in bench.export.load_message.value
 
 
 class TestInductorBench:
