@@ -115,6 +115,8 @@ class Bench(widgets.VBox):
         self.plots.drive_figure.on_event(Tap, self._on_tap)
         self.plots.response_figure.on_event(RangesUpdate, self._on_ranges)
         self.plot_view = BokehModel(self.plots.layout, combine_events=True)
+        # The plots take the width left beside the side panel, and go under it when too little is left.
+        self.plot_view.layout = widgets.Layout(flex="1 1 460px", min_width="0", width="auto")
         self.sources["handles"].on_change("data", self._on_handles)
 
         parts = panels.parts_panel(part_fields(fixture), self._on_field)
@@ -149,10 +151,12 @@ class Bench(widgets.VBox):
         self.derivation, self.settling_panel = widgets.HTMLMath(value=""), widgets.HTML(value="")
         self.tabs = panels.tab_panel([editor.box, generators.box, self.derivation, self.settling_panel, export.box])
         self.tabs.observe(lambda change: self._refresh(), names="selected_index")
-        left = widgets.VBox([parts.box, setup.box, view.box], layout=widgets.Layout(width="320px", min_width="320px"))
+        left = widgets.VBox([parts.box, setup.box, view.box], layout=widgets.Layout(flex="0 0 320px", width="320px"))
         self.header = widgets.HTML()
-        super().__init__([self.header, self.status, self.cautions_panel,
-                          widgets.HBox([left, self.plot_view]), self.info, self.tabs])
+        top = widgets.HBox([left, self.plot_view], layout=widgets.Layout(flex_flow="row wrap", width="100%"))
+        super().__init__([self.header, self.status, self.cautions_panel, top, self.info, self.tabs],
+                         layout=widgets.Layout(width="100%", max_width="100%"))
+        self.add_class("fo-bench")
         session.observe(self._refresh, names=_WATCHED)
         self._refresh()
         # Shown inside another widget (a dashboard's VBox or Tab), the Bench is never asked

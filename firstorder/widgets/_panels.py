@@ -38,7 +38,7 @@ __all__ = ["DriveEditor", "ExportPanel", "FieldsPanel", "GeneratorsPanel", "TAB_
 #: Tabs under the plot, in order.
 TAB_TITLES = ("Drive table", "Generators", "Derivation", "Settling", "Export")
 _ERROR_STYLE = "color:#b03a2e;font-size:0.85em"
-_HINT_STYLE = "color:#566573;font-size:0.85em"
+_HINT_STYLE = "color:#566573;font-size:0.85em;line-height:1.25;display:inline-block"
 
 
 def _label(text: str, width: str = "78px") -> widgets.HTML:
@@ -230,6 +230,7 @@ def drive_editor(table: DriveText, on_row: Callable[[str, int], None], on_end: C
                             editor=SelectEditor(options=["closed", "open"]))
                 for name in table.names if name in table.switches]
     grid = DataTable(source=source, columns=columns, editable=True, index_position=None, width=620,
+                     sizing_mode="stretch_width",
                      height=min(260, 34 + 26 * len(table)), selectable=True)
     end = widgets.Text(value=table.end, description="end", continuous_update=False, layout=widgets.Layout(width="200px"))
     end.observe(lambda change: on_end(change["new"]), names="value")
@@ -250,7 +251,8 @@ def drive_editor(table: DriveText, on_row: Callable[[str, int], None], on_end: C
         "engineering notation, switches closed/open). On the drive plot, drag a square handle: sideways "
         f"moves the change, up or down sets the level (up to {MAX_HANDLES} changes).</span>")
     view = BokehModel(grid, combine_events=True)
-    box = widgets.VBox([widgets.HBox([end, row, *buttons]), widgets.HBox([drag]), error, view, hint])
+    view.layout = widgets.Layout(width="100%")
+    box = widgets.VBox([widgets.HBox([end, row, *buttons], layout=widgets.Layout(flex_flow="row wrap")), widgets.HBox([drag]), error, view, hint])
     return DriveEditor(box, source, grid, view, end, row, drag, error)
 
 
@@ -343,13 +345,13 @@ def export_panel(actions: list[tuple[str, str, Callable[[str], str]]], title: st
     loading an analysis file.  ``write(stem + suffix)`` returns the path written, shown in
     full with a link that downloads it (or the error that stopped it); ``on_load(path, None)``
     or ``on_load(None, content)`` loads one and returns what to show."""
-    wide = widgets.Layout(width="460px")
+    wide = widgets.Layout(width="95%", max_width="460px")
     name = widgets.Text(value="bench", description="file stem", layout=wide)
     name.add_class("fo-export-stem")
     title_field = widgets.Text(value=title, description="title", placeholder="the report's title", layout=wide)
     title_field.add_class("fo-export-title")
     notes = widgets.Textarea(value="", description="notes", placeholder="notes at the top of the report and in "
-                             "the analysis file", layout=widgets.Layout(width="460px", height="60px"))
+                             "the analysis file", layout=widgets.Layout(width="95%", max_width="460px", height="60px"))
     notes.add_class("fo-export-notes")
     message = widgets.HTML()
     message.add_class("fo-export-message")
@@ -369,7 +371,7 @@ def export_panel(actions: list[tuple[str, str, Callable[[str], str]]], title: st
         button.on_click(lambda _, suffix=suffix, write=write: run(suffix, write))
         buttons.append(button)
     load_path = widgets.Text(description="file", placeholder="path to an analysis (.json) or report (.html)",
-                             layout=wide)
+                             layout=widgets.Layout(width="95%", max_width="460px"))
     load_path.add_class("fo-load-path")
     load_button = widgets.Button(description="Load", icon="folder-open", layout=widgets.Layout(width="auto"))
     upload = widgets.FileUpload(accept=".json,.html", multiple=False, description="Upload")
@@ -387,7 +389,8 @@ def export_panel(actions: list[tuple[str, str, Callable[[str], str]]], title: st
     box = widgets.VBox([
         widgets.HTML("<b>Export</b>"), name, title_field, notes,
         widgets.HBox(buttons, layout=widgets.Layout(flex_flow="row wrap")), message,
-        widgets.HTML("<b>Load an analysis</b>"), widgets.HBox([load_path, load_button, upload]), load_message, hint])
+        widgets.HTML("<b>Load an analysis</b>"), widgets.HBox([load_path, load_button, upload], layout=widgets.Layout(flex_flow="row wrap")),
+        load_message, hint])
     return ExportPanel(box, name, title_field, notes, message, load_path, load_button, upload, load_message)
 
 

@@ -29,8 +29,14 @@ __all__ = ["MAX_HANDLES", "PIXELS", "Plots", "View"]
 
 #: Drag handles are offered up to this many changes (beyond it, edit the table).
 MAX_HANDLES = 400
-PLOT_WIDTH = 720
+PLOT_WIDTH = 720  # the first width; the figures then take the width the page gives them
+#: The narrowest the figures get (the Bench puts them under the side panel before that).
+MIN_PLOT_WIDTH = 460
 PIXELS = 520  # the plot area without axes, for sampling
+
+
+_LEGEND = {"label_text_font_size": "11px", "glyph_width": 18, "spacing": 12, "padding": 4, "margin": 4,
+           "label_standoff": 4, "border_line_alpha": 0}
 
 
 def _formatter(unit: str) -> CustomJSTickFormatter:
@@ -96,23 +102,26 @@ class Plots:
         figures = [self.drive_figure, self.response_figure]
         if trace_name is not None:
             figures.append(self.residual_figure)
-        self.layout = column(*figures)
+        self.layout = column(*figures, sizing_mode="stretch_width")
 
     # -- building -----------------------------------------------------------------------
     def _style(self, fig, y_unit: str) -> None:
         fig.xaxis.formatter = _formatter("s")
         fig.yaxis.formatter = _formatter(y_unit)
         fig.toolbar.logo = None
+        fig.toolbar_location = "above"  # a row has room for every tool; a short plot's column hides some
         fig.background_fill_color = "#fbfbf8"
         fig.grid.grid_line_color = "#e4e4dc"
         fig.outline_line_color = "#c8c8bd"
         fig.min_border_left = 70
+        fig.min_border_right = 70  # room for the switch lanes' axis, so the time axes line up
+        fig.min_width = MIN_PLOT_WIDTH
 
     def _build_drive_figure(self, names, units, switches) -> None:
         distinct_units = sorted({units.get(n, "") for n in names})
         unit = distinct_units[0] if len(distinct_units) == 1 else ""
-        fig = figure(width=PLOT_WIDTH, height=190, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap,save",
-                     active_scroll="xwheel_zoom", title="Drive: source levels; switch lanes shaded where closed")
+        fig = figure(width=PLOT_WIDTH, height=210, sizing_mode="stretch_width", x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap,save",
+                     active_scroll="xwheel_zoom", title="Drive")
         self._style(fig, unit)
         fig.yaxis.axis_label = "level"  # the tick labels carry the unit
         fig.xaxis.axis_label = None
@@ -155,7 +164,9 @@ class Plots:
         fig.toolbar.active_drag = self.point_draw
         fig.toolbar.active_tap = self.point_draw
         self._add_selection(fig)
-        fig.add_layout(Legend(items=items, location="center", click_policy="none"), "right")
+        # Legends under the plots, in columns: a legend beside a plot takes its width, and one
+        # wider than the page is cut ("tolerance ba").
+        fig.add_layout(Legend(items=items, click_policy="none", orientation="horizontal", ncols=4, **_LEGEND), "below")
         self.drive_figure = fig
 
     def _add_selection(self, fig) -> None:
@@ -170,7 +181,7 @@ class Plots:
         # The value axis is Python's: fitted to what is drawn in view (fit_values), so a zoom
         # or a new probe never leaves it on another quantity's span; box zoom picks a time span.
         self.y_range = Range1d(0.0, 1.0)
-        fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, y_range=self.y_range,
+        fig = figure(width=PLOT_WIDTH, height=380, sizing_mode="stretch_width", x_range=self.x_range, y_range=self.y_range,
                      tools="xpan,xwheel_zoom,xbox_zoom,reset,tap,save", active_scroll="xwheel_zoom", title="Response")
         self._style(fig, unit)
         fig.xaxis.axis_label = "time"
@@ -229,7 +240,7 @@ class Plots:
             self.band_renderers["trace"] = fig.varea("t", "low", "high", source=trace, fill_color="#7f8c8d",
                                                      fill_alpha=0.4, visible=False)
             items.append(LegendItem(label=f"measured: {trace_name}", renderers=[trace_line]))
-            residual_fig = figure(width=PLOT_WIDTH, height=150, x_range=self.x_range,
+            residual_fig = figure(width=PLOT_WIDTH, height=150, sizing_mode="stretch_width", x_range=self.x_range,
                                   tools="xpan,xwheel_zoom,box_zoom,reset,save", active_scroll="xwheel_zoom",
                                   title="Residual: measured - model (total)")
             self._style(residual_fig, unit)
@@ -237,10 +248,10 @@ class Plots:
             residual = ColumnDataSource({"t": [], "y": []})
             self.sources["residual"] = residual
             residual_fig.scatter("t", "y", source=residual, size=3, color="#b03a2e")
-            residual_fig.add_layout(Legend(items=[], visible=False), "right")
+            residual_fig.add_layout(Legend(items=[], visible=False), "below")
             self.residual_figure = residual_fig
-        self.legend = Legend(items=items, location="top_left", click_policy="none")
-        fig.add_layout(self.legend, "right")
+        self.legend = Legend(items=items, click_policy="none", orientation="horizontal", ncols=3, **_LEGEND)
+        fig.add_layout(self.legend, "below")
         self.response_figure = fig
 
     # -- filling ------------------------------------------------------------------------------

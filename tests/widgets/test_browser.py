@@ -190,7 +190,7 @@ def _write_notebook(lab, name: str, source: str) -> str:
 
 
 @contextlib.contextmanager
-def _notebook_page(lab, name: str, source: str):
+def _notebook_page(lab, name: str, source: str, viewport: tuple[int, int] = (1500, 1300), **context):
     """A one-cell notebook, run in JupyterLab in a fresh Chromium page: yields the page and
     its page errors; on failure a full-page screenshot goes to build/."""
     from playwright.sync_api import sync_playwright
@@ -198,7 +198,7 @@ def _notebook_page(lab, name: str, source: str):
     notebook = _write_notebook(lab, name, source)
     with sync_playwright() as playwright:
         browser = playwright.chromium.launch(executable_path=lab["chromium"], args=CHROMIUM_ARGS)
-        page = browser.new_page(viewport={"width": 1500, "height": 1300})
+        page = browser.new_page(viewport={"width": viewport[0], "height": viewport[1]}, **context)
         messages: list[str] = []
         page.on("pageerror", lambda error: messages.append(f"pageerror: {error}"))
         try:
@@ -422,3 +422,163 @@ class TestHostileNamesInBrowser:
                 assert not blocked, blocked[:5]
             finally:
                 browser.close()
+
+
+# -- the Bench as an engineer uses it: layout, clicks, zooms, undo, export -------------------------
+#: A switched fixture with a tolerance and a sample delay: every legend entry and mark drawn.
+_TOUR_CELL = """import firstorder as fo
+
+fx = fo.Fixture()
+fx.voltage_source("vdac", "drv", "gnd")
+fx.resistor("rs", "drv", "a", "1k")
+fx.switch("k1", "a", "b", r_on="0.2")
+fx.capacitor("ch", "b", "gnd", "100n")
+fx.resistor("rin", "b", "gnd", "10M")
+fx.probe("i_rs", through="rs")
+drive = fo.Drive([0, "1m", "2m", "3m"], end="5m", vdac=[0, 2.5, 2.5, -1.2], k1=[1, 1, 0, 1])
+bench = fo.Bench(fx, drive, tolerance=fo.Tolerance.lsb(bits=16, span=5.0), sample_delay="0.8m")
+bench.overlays["natural"].value = True
+bench
+"""
+
+#: 10,000 changes: drawn as min/max bands until zoomed in.
+_LONG_CELL = """import numpy as np
+import firstorder as fo
+
+rng = np.random.default_rng(3)
+times = np.arange(10_000) * 1e-4
+drive = fo.Drive(times, end=1.0, vin=rng.choice([0.0, 5.0], 10_000))
+bench = fo.Bench(fo.Fixture.rc(r="1k", c="10n"), drive)
+bench
+"""
+
+#: Every element of the Bench (shadow roots too) that reaches past the output area, but for
+#: what a scrolling box inside the Bench holds (the user scrolls to it): a part cut off by a
+#: box that hides its overflow counts, as it is as lost as one past the edge.
+_OUTSIDE = """() => {
+    const bench = document.querySelector('.fo-bench');
+    const area = bench.closest('.jp-OutputArea-output').getBoundingClientRect();
+    const out = [];
+    const visit = (root) => {
+        for (const el of root.querySelectorAll('*')) {
+            if (el.shadowRoot) visit(el.shadowRoot);
+            let r = el.getBoundingClientRect();
+            if (r.width < 1 || r.height < 1) continue;
+            const own = getComputedStyle(el).overflowX;
+            // A box inside the Bench that must be scrolled sideways to see all of it (a drive
+            // table with many columns may: its rows are data, not layout).
+            if ((own === 'auto' || own === 'scroll') && el.scrollWidth > el.clientWidth + 1
+                    && !el.classList.contains('slick-viewport')) {
+                out.push(`scrolls: ${el.tagName.toLowerCase()}.${[...el.classList].join('.')} ${el.scrollWidth} > ${el.clientWidth}`);
+            }
+            let left = r.left, right = r.right;
+            for (let a = el.parentNode || el.host; a && a !== bench; a = a.parentNode || a.host) {
+                if (!(a instanceof Element)) continue;
+                const style = getComputedStyle(a);
+                if (style.overflowX === 'auto' || style.overflowX === 'scroll') {
+                    const c = a.getBoundingClientRect();
+                    left = Math.max(left, c.left); right = Math.min(right, c.right);
+                }
+            }
+            if (right - left < 1) continue;
+            if (right > area.right + 1 || left < area.left - 1) {
+                out.push(`${el.tagName.toLowerCase()}.${[...el.classList].join('.')} ${left.toFixed(0)}..${right.toFixed(0)}`);
+            }
+        }
+    };
+    visit(bench);
+    return {area: {left: area.left, right: area.right, width: area.width}, outside: out.slice(0, 12),
+            count: out.length};
+}"""
+
+#: The plot toolbars and legends (BokehJS's own views), in page coordinates.
+_TOOLBARS_AND_LEGENDS = """() => {
+    const views = [...Bokeh.index.query((v) => true)];
+    const type = (v) => v.model.type || v.model.constructor.__name__;
+    const toolbars = views.filter((v) => type(v) === 'Toolbar' && v.el).map((v) => {
+        const r = v.el.getBoundingClientRect();
+        return {left: r.left, right: r.right, top: r.top, bottom: r.bottom,
+                buttons: v.el.shadowRoot ? v.el.shadowRoot.querySelectorAll('.bk-tool-icon').length : -1};
+    });
+    const legends = views.filter((v) => type(v) === 'Legend' && v.model.items.length).map((v) => {
+        const canvas = v.parent.canvas_view.el.getBoundingClientRect();
+        const b = v.bbox;
+        return {left: canvas.left + b.x0, right: canvas.left + b.x1, top: canvas.top + b.y0,
+                bottom: canvas.top + b.y1, canvas_right: canvas.right, canvas_bottom: canvas.bottom,
+                labels: v.model.items.filter((i) => i.visible).map((i) => i.label.value)};
+    });
+    return {toolbars, legends};
+}"""
+
+#: Buttons of the Bench whose label does not fit them (cut with an ellipsis).
+_CUT_LABELS = """() => [...document.querySelectorAll('.fo-bench button, .fo-bench .widget-label')]
+    .filter((b) => b.offsetParent !== null && b.scrollWidth > b.clientWidth + 1).map((b) => b.textContent.trim())"""
+
+
+def _open_file_browser(page) -> None:
+    """The left sidebar's file browser open, as a user has it."""
+    browser = page.locator("#filebrowser")
+    if not browser.is_visible():
+        page.locator(".jp-SideBar.jp-mod-left [data-id='filebrowser']").first.click()
+    browser.wait_for(state="visible", timeout=20_000)
+
+
+def _bench_ready(page) -> None:
+    page.locator(".fo-bench canvas").first.wait_for(timeout=RUN_SECONDS * 1000)
+    # BokehJS has drawn every plot: its views exist and the response has data.
+    page.wait_for_function("() => window.Bokeh && [...Bokeh.index.query((v) => (v.model.type || '') === 'Toolbar')]"
+                           ".length >= 2", timeout=60_000)
+
+
+def _response_canvas(page) -> dict:
+    """The response plot's frame (the tallest plot) in page coordinates."""
+    return page.evaluate("""() => {
+        const views = [...Bokeh.index.query((v) => v.model.title && v.model.title.text === 'Response')];
+        const view = views[0];
+        const c = view.canvas_view.el.getBoundingClientRect();
+        const f = view.frame.bbox;
+        return {x: c.left + f.x0, y: c.top + f.y0, width: f.width, height: f.height,
+                start: view.model.x_range.start, end: view.model.x_range.end};
+    }""")
+
+
+def _tab(page, title: str) -> None:
+    page.locator(".fo-bench .lm-TabBar-tab", has_text=title).first.click()
+
+
+class TestBenchAsUsed:
+    @pytest.mark.parametrize("width", [1400, 900])
+    def test_fits_the_output_area_with_the_file_browser_open(self, lab, width):
+        from playwright.sync_api import TimeoutError as PlaywrightTimeout
+
+        with _notebook_page(lab, f"layout_{width}.ipynb", _TOUR_CELL, viewport=(width, 1000)) as (page, messages):
+            _open_file_browser(page)
+            _bench_ready(page)
+            # The plots follow the width they are given: wait until they have settled on it
+            # (or time out, and say below what lies outside).
+            with contextlib.suppress(PlaywrightTimeout):
+                page.wait_for_function(f"() => ({_OUTSIDE})().count === 0", timeout=20_000)
+            page.screenshot(path=str(BUILD / f"bench-layout-{width}.png"))
+            page.locator(".fo-bench").screenshot(path=str(BUILD / f"bench-layout-{width}-whole.png"))
+            found = page.evaluate(_OUTSIDE)
+            assert found["count"] == 0, found
+            boxes = page.evaluate(_TOOLBARS_AND_LEGENDS)
+            area = found["area"]
+            assert len(boxes["toolbars"]) >= 2
+            for bar in boxes["toolbars"]:
+                assert area["left"] - 1 <= bar["left"] and bar["right"] <= area["right"] + 1, (bar, area)
+                assert bar["right"] - bar["left"] > 10 and bar["bottom"] - bar["top"] > 10, bar
+            labels = [label for legend in boxes["legends"] for label in legend["labels"]]
+            assert {"tolerance band", "sample instants", "vdac"} <= set(labels), labels
+            for legend in boxes["legends"]:
+                # The whole legend on its canvas, and the canvas in the output area: no label cut.
+                assert legend["right"] <= legend["canvas_right"] + 1 and legend["bottom"] <= legend["canvas_bottom"] + 1
+                assert legend["right"] <= area["right"] + 1, (legend, area)
+            assert page.evaluate(_CUT_LABELS) == []
+            for title in ("Generators", "Export"):
+                _tab(page, title)
+                page.wait_for_timeout(300)  # a tab switch is a class change: one frame
+                assert page.evaluate(_OUTSIDE)["count"] == 0, (title, page.evaluate(_OUTSIDE))
+                assert page.evaluate(_CUT_LABELS) == [], title
+                page.locator(".fo-bench").screenshot(path=str(BUILD / f"bench-layout-{width}-{title.lower()}.png"))
+            assert not messages, messages
