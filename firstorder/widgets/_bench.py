@@ -148,6 +148,7 @@ class Bench(widgets.VBox):
         self.table_source.on_change("data", self._on_table)
         self.table_source.selected.on_change("indices", self._on_table_selection)
         self.status, self.info, self.cautions_panel = widgets.HTML(), widgets.HTML(), widgets.HTML()
+        self.info.add_class("fo-info")
         self.derivation, self.settling_panel = widgets.HTMLMath(value=""), widgets.HTML(value="")
         self.tabs = panels.tab_panel([editor.box, generators.box, self.derivation, self.settling_panel, export.box])
         self.tabs.observe(lambda change: self._refresh(), names="selected_index")

@@ -51,7 +51,7 @@ def download_html(path: Any) -> str:
     kind = _TYPES.get(written.suffix.lower()) or mimetypes.guess_type(written.name)[0] or "application/octet-stream"
     data = base64.b64encode(written.read_bytes()).decode("ascii")
     return (f"{shown}<br><a class='fo-download' download=\"{html.escape(written.name)}\" "
-            f"href=\"data:{kind};base64,{data}\" style='font-weight:600'>⬇ Download {html.escape(written.name)}</a>")
+            f"href=\"data:{kind};base64,{data}\" style='font-weight:600;color:#1a5fb4;text-decoration:underline'>⬇ Download {html.escape(written.name)}</a>")
 
 
 @dataclass(frozen=True)

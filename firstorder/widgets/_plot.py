@@ -193,6 +193,7 @@ class Plots:
         tolerance_renderer = fig.quad(left="left", right="right", bottom="bottom", top="top", source=tolerance,
                                       fill_color=TOLERANCE_COLOUR, fill_alpha=0.35, line_alpha=0)
         items = [LegendItem(label="tolerance band", renderers=[tolerance_renderer])]
+        self.mark_items = {"tolerance": items[0]}  # shown in the legend only while drawn
         for name in curve_names:
             colour = COMPONENT_COLOURS.get(name)
             if colour is None:
@@ -224,14 +225,16 @@ class Plots:
                                 tooltips=[("sample at", "@t{custom}"), ("taken", "@when"), ("value", "@y{custom}"),
                                           ("error", "@error{custom}")],
                                 formatters={"@t": _hover("s"), "@y": sample_value, "@error": sample_error}))
-        items.append(LegendItem(label="sample instants", renderers=[sample_renderer]))
+        self.mark_items["samples"] = LegendItem(label="sample instants", renderers=[sample_renderer])
+        items.append(self.mark_items["samples"])
         settle = ColumnDataSource({"t": [], "y": []})
         self.sources["settle"] = settle
         settle_renderer = fig.scatter("t", "y", source=settle, size=10, marker="triangle", fill_color="#f8f9f9",
                                       line_color="#0f7b6c", line_width=2)
         fig.add_tools(HoverTool(renderers=[settle_renderer], tooltips=[("settled at", "@t{custom}")],
                                 formatters={"@t": _hover("s")}))
-        items.append(LegendItem(label="settled", renderers=[settle_renderer]))
+        self.mark_items["settle"] = LegendItem(label="settled", renderers=[settle_renderer])
+        items.append(self.mark_items["settle"])
         if trace_name is not None:
             trace = ColumnDataSource(_empty_curve())
             self.sources["trace"] = trace
@@ -385,9 +388,11 @@ class Plots:
             at = response.evaluate(inside, ("total", "forced"), probe)
             samples = {"t": instants, "y": at["total"], "colour": [SAMPLE_NEUTRAL] * instants.size,
                        "error": at["total"] - at["forced"], **_sample_kinds(delays, response.drive.durations[rows])}
-        _assign(self.sources["tolerance"], band)
-        _assign(self.sources["samples"], samples)
-        _assign(self.sources["settle"], settle)
+        for name, data in (("tolerance", band), ("samples", samples), ("settle", settle)):
+            _assign(self.sources[name], data)
+            shown = len(next(iter(data.values()))) > 0
+            if self.mark_items[name].visible != shown:
+                self.mark_items[name].visible = shown
 
     def update_trace(self, times: np.ndarray, values: np.ndarray, residual_times: np.ndarray,
                      residual: np.ndarray, view: View) -> None:

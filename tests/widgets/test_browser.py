@@ -582,3 +582,113 @@ class TestBenchAsUsed:
                 assert page.evaluate(_CUT_LABELS) == [], title
                 page.locator(".fo-bench").screenshot(path=str(BUILD / f"bench-layout-{width}-{title.lower()}.png"))
             assert not messages, messages
+
+    def test_clicking_a_segment_shows_its_derivation(self, lab):
+        with _notebook_page(lab, "click_segment.ipynb", _TOUR_CELL, viewport=(1400, 1000)) as (page, messages):
+            _bench_ready(page)
+            _tab(page, "Derivation")
+            heading = page.locator(".fo-bench h4", has_text="Segment")
+            heading.first.wait_for(timeout=60_000)
+            assert heading.first.inner_text().startswith("Segment 0:")
+            page.locator(".fo-bench canvas").first.scroll_into_view_if_needed()
+            frame = _response_canvas(page)
+            # Segment 2 lasts from 2 ms to 3 ms of the 5 ms drive: click at 2.5 ms, by position
+            # (bokeh draws on layered canvases in a shadow DOM, there is no element to click).
+            x = frame["x"] + frame["width"] * (2.5e-3 - frame["start"]) / (frame["end"] - frame["start"])
+            page.mouse.click(x, frame["y"] + frame["height"] * 0.5)
+            page.locator(".fo-bench h4", has_text="Segment 2:").first.wait_for(timeout=30_000)
+            panel = page.locator(".fo-bench .widget-htmlmath").first.inner_text()
+            assert "k1 open" in panel, panel  # segment 2 holds: its own configuration's derivation
+            page.locator(".fo-bench").screenshot(path=str(BUILD / "bench-browser-clicked-segment.png"))
+            assert not messages, messages
+
+    def test_box_zoom_on_a_long_drive_draws_single_segments(self, lab):
+        with _notebook_page(lab, "zoom_long.ipynb", _LONG_CELL, viewport=(1400, 1000)) as (page, messages):
+            _bench_ready(page)
+            info = page.locator(".fo-bench .fo-info", has_text="plot: min/max per pixel")
+            info.first.wait_for(timeout=30_000)
+            page.locator(".fo-bench canvas").first.scroll_into_view_if_needed()
+            # The response plot's own box-zoom button, pressed as a user does.
+            button = page.evaluate("""() => {
+                const views = [...Bokeh.index.query((v) => true)];
+                const plot = views.find((v) => v.model.title && v.model.title.text === 'Response');
+                const bar = views.find((v) => v.model === plot.model.toolbar && v.el);
+                const el = [...bar.el.shadowRoot.querySelectorAll('[title]')]
+                    .find((b) => b.getAttribute('title').startsWith('Box Zoom'));
+                const r = el.getBoundingClientRect();
+                return {x: r.left + r.width / 2, y: r.top + r.height / 2};
+            }""")
+            page.mouse.click(button["x"], button["y"])
+            # Three box zooms, each to a fifth of the view: 8 ms of the 1 s drive, 80 of its
+            # 10,000 segments (one zoom that far would be a box a few pixels wide).
+            for zoom in range(3):
+                frame = _response_canvas(page)
+                y = frame["y"] + frame["height"] * 0.5
+                page.mouse.move(frame["x"] + frame["width"] * 0.4, y)
+                page.mouse.down()
+                page.mouse.move(frame["x"] + frame["width"] * 0.5, y, steps=5)
+                page.mouse.move(frame["x"] + frame["width"] * 0.6, y, steps=5)
+                page.mouse.up()
+                page.wait_for_function("(span) => { const v = [...Bokeh.index.query((v) => v.model.title && "
+                                       "v.model.title.text === 'Response')][0]; "
+                                       "return v.model.x_range.end - v.model.x_range.start < span * 0.5; }",
+                                       arg=frame["end"] - frame["start"], timeout=30_000)
+            page.locator(".fo-bench .fo-info", has_text="plot: every segment drawn").first.wait_for(timeout=30_000)
+            after = _response_canvas(page)
+            assert after["end"] - after["start"] < 0.01, after
+            page.locator(".fo-bench").screenshot(path=str(BUILD / "bench-browser-zoomed.png"))
+            assert not messages, messages
+
+    def test_undo_pressed_twice_goes_two_steps_back(self, lab):
+        with _notebook_page(lab, "undo_twice.ipynb", _TOUR_CELL, viewport=(1400, 1000)) as (page, messages):
+            _bench_ready(page)
+            field = page.locator(".fo-bench .fo-part-rs input")
+            status = page.locator(".fo-bench .fo-info")
+
+            def edit(text: str) -> str:
+                before = status.inner_text()
+                field.fill(text)
+                field.press("Enter")
+                page.wait_for_function("(old) => document.querySelector('.fo-bench .fo-info').innerText !== old",
+                                       arg=before, timeout=30_000)
+                return status.inner_text()
+
+            first = edit("2.2k")
+            edit("3.3k")
+            edit("4.7k")
+            undo = page.locator(".fo-bench button", has_text="Undo last edit")
+            for expected in ("3.3k", "2.2k"):
+                undo.click()
+                page.wait_for_function("(text) => document.querySelector('.fo-bench .fo-part-rs input').value === text",
+                                       arg=expected, timeout=30_000)
+            page.wait_for_function("(text) => document.querySelector('.fo-bench .fo-info').innerText === text",
+                                   arg=first, timeout=30_000)
+            assert field.input_value() == "2.2k"
+            assert not messages, messages
+
+    def test_export_hands_the_report_to_the_browser(self, lab):
+        import firstorder as fo
+
+        with _notebook_page(lab, "export_report.ipynb", _TOUR_CELL, viewport=(1400, 1000),
+                            accept_downloads=True) as (page, messages):
+            _bench_ready(page)
+            _tab(page, "Export")
+            title = page.locator(".fo-bench .fo-export-title input")
+            title.fill("Channel 3 hold capacitor")
+            title.press("Tab")
+            page.locator(".fo-bench button", has_text="Report (HTML)").click()
+            link = page.locator(".fo-bench a.fo-download")
+            link.wait_for(timeout=60_000)
+            written = page.locator(".fo-bench .fo-written").inner_text()
+            assert Path(written).is_absolute() and written.endswith("bench_report.html"), written
+            assert Path(written) == lab["root"] / "notebooks" / "bench_report.html"
+            page.locator(".fo-bench").screenshot(path=str(BUILD / "bench-browser-export.png"))
+            with page.expect_download(timeout=60_000) as download:
+                link.click()
+            saved = BUILD / "bench-browser-download.html"
+            download.value.save_as(saved)
+            assert download.value.suggested_filename == "bench_report.html"
+            assert saved.read_bytes() == Path(written).read_bytes()
+            analysis = fo.Analysis.load(saved)
+            assert analysis.title == "Channel 3 hold capacitor" and analysis.sample_delay == "0.8m"
+            assert not messages, messages
