@@ -382,7 +382,12 @@ def export_panel(actions: list[tuple[str, str, Callable[[str], str]]], title: st
         load_message.value = on_load(path, content)
 
     load_button.on_click(lambda _: load(load_path.value.strip(), None))
-    upload.observe(lambda change: change["new"] and load(None, bytes(change["new"][0]["content"])), names="value")
+    def uploaded(change) -> None:
+        if change["new"]:
+            load(None, bytes(change["new"][0]["content"]))
+            upload.value = ()  # so the same file uploaded again loads again
+
+    upload.observe(uploaded, names="value")
     hint = widgets.HTML(f"<span style='{_HINT_STYLE}'>Files are written in the notebook's folder; each also "
                         "downloads from the link shown. Loading puts an analysis's part values, drive and setup "
                         "into this Bench (undo takes it back).</span>")

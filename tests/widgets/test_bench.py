@@ -483,13 +483,23 @@ class TestLoadAnalysis:
         np.testing.assert_array_equal(bench.response.boundary, saved.response.boundary)
         assert bench.undo() and bench.drive == before
 
-    def test_an_uploaded_report_loads(self, tmp_path):
+    def test_an_uploaded_report_loads_and_the_same_file_loads_again(self, tmp_path):
+        import datetime
+
         saved = switched_bench(tolerance=fo.Tolerance.absolute("2m"))
         saved.edit_cell(1, "vdac", "1.25")
-        content = saved.report(tmp_path / "r.html")
+        path = saved.report(tmp_path / "r.html")
         bench = switched_bench()
-        bench._on_load(None, (tmp_path / "r.html").read_bytes())
-        assert bench.drive == saved.drive and content
+        original = bench.drive
+        upload = {"name": "r.html", "type": "text/html", "size": Path(path).stat().st_size,
+                  "content": memoryview(Path(path).read_bytes()), "last_modified": datetime.datetime.now()}
+        bench.export.upload.value = (upload,)  # as the browser's upload sets it
+        assert bench.drive == saved.drive and "loaded: <code>the uploaded file" in bench.export.load_message.value
+        assert bench.export.upload.value == ()
+        bench.undo()
+        assert bench.drive == original
+        bench.export.upload.value = (upload,)
+        assert bench.drive == saved.drive
 
     def test_another_fixture_is_refused_naming_the_way_to_open_it(self, tmp_path):
         path = rc_bench().save_analysis(tmp_path / "rc.json")
