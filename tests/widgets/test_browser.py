@@ -691,4 +691,9 @@ class TestBenchAsUsed:
             assert saved.read_bytes() == Path(written).read_bytes()
             analysis = fo.Analysis.load(saved)
             assert analysis.title == "Channel 3 hold capacitor" and analysis.sample_delay == "0.8m"
+            # The downloaded report opens offline, titled as typed, its plots drawn.
+            page.goto(saved.as_uri())
+            page.locator("canvas").first.wait_for(timeout=60_000)
+            assert "Channel 3 hold capacitor" in page.title() + page.locator("h1").first.inner_text()
+            page.screenshot(path=str(BUILD / "bench-browser-downloaded-report.png"), full_page=True)
             assert not messages, messages
