@@ -53,7 +53,7 @@ LAYERS = [
     "analysis",
     "plotting.palette", "plotting.format", "plotting.sampling", "plotting.error_view", "plotting",
     "report.tables", "report.mathml", "report.markdown", "report.figure", "report.html", "report",
-    "widgets._loader", "widgets._drive_table", "widgets._plot", "widgets._session", "widgets._panels",
+    "widgets._loader", "widgets._drive_table", "widgets._generators", "widgets._files", "widgets._plot", "widgets._session", "widgets._panels",
     "widgets._bench", "widgets",
     "cli", "__main__",
     "",  # the package itself: it re-exports everything

@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from ..units import format_value
+from ..units import format_value, parse_value
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -85,6 +85,8 @@ def summary_rows(analysis: "Analysis") -> list[tuple[str, str]]:
                       f"{format_value(max(delay), 's')} after the change")
     else:
         delay_text = f"{delay!r} after every change"
+        if (drive.durations < parse_value(delay, field="sample_delay", unit="s")).any():
+            delay_text += "; a segment shorter than that is sampled at its end"
     rows.append(("sample delay", delay_text))
     return rows
 

@@ -109,26 +109,31 @@ def constant_probe(segments: Any, probe: str) -> np.ndarray:
 
 
 def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sample_delay", what: str = "segment",
-                  ends: np.ndarray | None = None, past_end: str = "refuse") -> np.ndarray:
+                  ends: np.ndarray | None = None, past_end: str | None = None) -> np.ndarray:
     """Delays after each change (s), one per segment, checked against their segments.
 
     The one rule for a sample delay, wherever one is given (settling tables, plans,
     analysis files, the Bench): one value for every segment, or one per segment;
-    each a finite time >= 0 after its change.  A delay past its segment's end by
-    no more than the rounding of the instants (a few units in the last place of
-    `ends`) is taken as the end: a drive stores instants, so its durations can
-    differ by that much from the dwells it was built from.  Past that,
-    ``past_end="refuse"`` raises naming the segment; ``past_end="end"`` samples
-    such a segment at its end.
+    each a finite time >= 0 after its change.
+
+    One delay for every segment is the converter's fixed delay after each
+    change: a segment that ends before it (a short dwell) is sampled at its
+    end, the last instant it holds, and its ``sample_time`` in the settling
+    table is then its ``end`` (the Bench marks it so).  A delay given per
+    segment is meant for that segment: past its end it is refused, naming the
+    segment, except by no more than the rounding of the instants (a few units
+    in the last place of `ends`), taken as the end: a drive stores instants,
+    so its durations can differ by that much from the dwells it was built
+    from.  `past_end` overrides the choice: ``"refuse"`` or ``"end"``.
 
     Examples
     --------
-    >>> sample_delays("2m", np.array([1e-3, 5e-3]), past_end="end")
-    array([0.001, 0.002])
     >>> sample_delays("2m", np.array([1e-3, 5e-3]))
+    array([0.001, 0.002])
+    >>> sample_delays(["2m", "2m"], np.array([1e-3, 5e-3]))
     Traceback (most recent call last):
     ...
-    firstorder.errors.InputError: sample_delay: '2m' is past the end of segment 0, which lasts 1 ms; a sample must fall inside its segment, from 0 to 1 ms after the change
+    firstorder.errors.InputError: sample_delay[0]: '2m' is past the end of segment 0, which lasts 1 ms; a sample must fall inside its segment, from 0 to 1 ms after the change
     """
     n = durations.size
     if isinstance(sample_delay, (str, int, float, np.number)) and not isinstance(sample_delay, bool):
@@ -156,6 +161,8 @@ def sample_delays(sample_delay: Any, durations: np.ndarray, *, field: str = "sam
             else parse_value(item, field=f"{field}[{k}]", unit="s", allow_infinite=True)
             for k, item in enumerate(typed)
         ], dtype=np.float64)
+    if past_end is None:
+        past_end = "end" if typed is None else "refuse"
     late = delays > durations
     if late.any():
         if past_end == "end":
@@ -308,9 +315,8 @@ def settling_table(response: Any, tolerance: Tolerance, sample_delay: Any = None
     >>> import firstorder as fo
     >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive.steps([(0, 0.0), ("1m", 5.0)], end="15m"))
     >>> table = settling_table(res, fo.Tolerance.lsb(bits=12, span=5.0), sample_delay="12m", probe=None)
-    Traceback (most recent call last):
-    ...
-    firstorder.errors.InputError: sample_delay: '12m' is past the end of segment 0, which lasts 1 ms; a sample must fall inside its segment, from 0 to 1 ms after the change
+    >>> [fo.format_value(t, "s") for t in table["sample_time"]]   # segment 0 lasts 1 ms: read at its end
+    ['1 ms', '13 ms']
     >>> table = settling_table(res, fo.Tolerance.lsb(bits=12, span=5.0), sample_delay=[0.0, "12m"])
     >>> round(float(table.loc[1, "settle_time"]) / 1e-3, 3)    # (12 + 1) ln 2 time constants
     9.011

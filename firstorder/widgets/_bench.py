@@ -8,6 +8,8 @@ each part at most once whatever number of traits the edit replaced.
 
 from __future__ import annotations
 
+import html
+from pathlib import Path
 from typing import Any
 
 import ipywidgets as widgets
@@ -21,6 +23,8 @@ from ..io.atomic import write_atomic
 from ..settling.tolerance import Tolerance
 from . import _panels as panels
 from ._loader import live_kernel_cell, publish_bokehjs
+from ._files import loaded_inputs
+from ._generators import column_defaults
 from ._plot import Plots, View
 from ._session import SETUP_KEYS, BenchSession, part_fields
 
@@ -112,6 +116,8 @@ class Bench(widgets.VBox):
         self.plots.drive_figure.on_event(Tap, self._on_tap)
         self.plots.response_figure.on_event(RangesUpdate, self._on_ranges)
         self.plot_view = BokehModel(self.plots.layout, combine_events=True)
+        # The plots take the width left beside the side panel, and go under it when too little is left.
+        self.plot_view.layout = widgets.Layout(flex="1 1 460px", min_width="0", width="auto")
         self.sources["handles"].on_change("data", self._on_handles)
 
         parts = panels.parts_panel(part_fields(fixture), self._on_field)
@@ -119,11 +125,16 @@ class Bench(widgets.VBox):
         view = panels.view_panel(fixture, session.curve_names, session.curves, session.probe, self._on_probe,
                                  self._on_overlay, self.undo)
         editor = panels.drive_editor(session.table, self._on_row, self._on_end, lambda _: self._refresh())
-        generators = panels.generators_panel(sources, self._generate)
+        table = session.table
+        generators = panels.generators_panel(table.names, table.switches, table.units,
+                                             column_defaults(session.drive, table.switches, table.units), self._generate)
+        storage = fixture.storage
         export = panels.export_panel([
             ("Plotted components (CSV)", "_components.csv", self.export_components),
-            ("Drive (CSV)", "_drive.csv", self.export_drive), ("Analysis (JSON)", "_analysis.json", self.save_analysis),
-            ("Report (HTML)", "_report.html", self.report)])
+            ("Drive (CSV)", "_drive.csv", self.export_drive),
+            ("Analysis (JSON)", "_analysis.json", lambda path: self.save_analysis(path, *self._title_notes())),
+            ("Report (HTML)", "_report.html", lambda path: self.report(path, *self._title_notes()))],
+            f"{storage.kind.capitalize()} '{storage.name}': settling", self._on_load)
         self._panels = (parts, setup, view, editor)
         self.fields, self.setup_fields = parts.fields, setup.fields
         self._field_errors = {**parts.errors, **setup.errors}
@@ -131,21 +142,25 @@ class Bench(widgets.VBox):
         self.table_source, self.drive_table, self.table_view = editor.table_source, editor.drive_table, editor.table_view
         self.end_field, self.row_field, self.drag_column, self.drive_error = (
             editor.end_field, editor.row_field, editor.drag_column, editor.error)
-        self.pulse_fields, self.stair_fields = generators.pulse_fields, generators.stair_fields
+        self.generators = generators
         self.generator_error = generators.error
+        self.export = export
         self.export_name, self.export_message = export.name, export.message
         self.table_source.on_change("data", self._on_table)
         self.table_source.selected.on_change("indices", self._on_table_selection)
         self.status, self.info, self.cautions_panel = widgets.HTML(), widgets.HTML(), widgets.HTML()
+        self.info.add_class("fo-info")
         self.derivation, self.settling_panel = widgets.HTMLMath(value=""), widgets.HTML(value="")
         self.error_view = widgets.VBox()
         self.tabs = panels.tab_panel([editor.box, generators.box, self.derivation, self.settling_panel, export.box,
                                       self.error_view])
         self.tabs.observe(lambda change: self._refresh(), names="selected_index")
-        left = widgets.VBox([parts.box, setup.box, view.box], layout=widgets.Layout(width="320px", min_width="320px"))
+        left = widgets.VBox([parts.box, setup.box, view.box], layout=widgets.Layout(flex="0 0 320px", width="320px"))
         self.header = widgets.HTML()
-        super().__init__([self.header, self.status, self.cautions_panel,
-                          widgets.HBox([left, self.plot_view]), self.info, self.tabs])
+        top = widgets.HBox([left, self.plot_view], layout=widgets.Layout(flex_flow="row wrap", width="100%"))
+        super().__init__([self.header, self.status, self.cautions_panel, top, self.info, self.tabs],
+                         layout=widgets.Layout(width="100%", max_width="100%"))
+        self.add_class("fo-bench")
         session.observe(self._refresh, names=_WATCHED)
         self._refresh()
         # Shown inside another widget (a dashboard's VBox or Tab), the Bench is never asked
@@ -261,9 +276,25 @@ class Bench(widgets.VBox):
     def _on_end(self, text: str) -> None:
         self._typed_edit({}, end=text)
 
-    def _generate(self, kind: str) -> None:
-        fields = self.pulse_fields if kind == "pulses" else self.stair_fields
-        self.session.generate(kind, {key: widget.value for key, widget in fields.items()})
+    def _generate(self) -> None:
+        self.session.generate(*self.generators.values())
+
+    def generate(self, kind: str, column: str, columns: dict[str, str] | None = None, **fields: str) -> bool:
+        """Fill the Generators tab and press its button: `kind` ``"pattern"``, ``"staircase"``
+        or ``"ramp"`` on source `column`, its `fields` as text (those not given keep what the tab
+        shows), `columns` the other columns' text.  False (and an error there) when refused."""
+        panel = self.generators
+        if kind not in panel.fields:
+            raise InputError(f"generate: kind {kind!r} is not one of {list(panel.fields)}")
+        unknown = set(fields) - set(panel.fields[kind]) or set(columns or {}) - set(panel.columns)
+        if unknown:
+            raise InputError(f"generate: {sorted(unknown)} are not fields of {kind!r}")
+        panel.kind.value, panel.column.value = kind, column
+        for key, text in fields.items():
+            panel.fields[kind][key].value = str(text)
+        for name, text in (columns or {}).items():
+            panel.columns[name].value = str(text)
+        return self.session.generate(*panel.values())
 
     def _on_handles(self, attr, old, new) -> None:
         if self._syncing:
@@ -368,6 +399,52 @@ class Bench(widgets.VBox):
         if "drive" in self._drawn.get("errors", ({},))[0] and "drive" not in errors and not self._typed:
             self._drawn.pop("table", None)
 
+    # -- files ----------------------------------------------------------------------------------------
+    @classmethod
+    def from_analysis(cls, analysis, trace: Any = None) -> "Bench":
+        """A Bench for an :class:`~firstorder.Analysis` (from :meth:`Analysis.load`): its fixture,
+        drive, start, tolerance and sample delay, its title and notes in the Export tab."""
+        delay = analysis.sample_delay
+        if isinstance(delay, list):
+            raise InputError("Bench.from_analysis: the analysis has one sample delay per segment; the Bench's "
+                             "'sample at' takes one delay for every segment")
+        bench = cls(analysis.fixture, analysis.drive, analysis.initial, analysis.tolerance, delay, trace)
+        bench.export.title.value, bench.export.notes.value = analysis.title or bench.export.title.value, analysis.notes
+        return bench
+
+    def load_analysis(self, source: Any) -> None:
+        """Put an analysis into this Bench (undoable): an :class:`~firstorder.Analysis`, or the
+        path of an analysis file or report.  It must be of a fixture with the same parts and
+        probes (other values are fine); else open it with :meth:`from_analysis`."""
+        from ..analysis import Analysis
+
+        analysis = source if isinstance(source, Analysis) else Analysis.load(source)
+        loaded = loaded_inputs(analysis, self.fixture, lambda fx: {f.key: f.text for f in part_fields(fx)})
+        self.session.load(loaded.fixture, loaded.drive, loaded.initial, loaded.tolerance, loaded.sample_delay,
+                          loaded.texts)
+        if loaded.title:
+            self.export.title.value = loaded.title
+        self.export.notes.value = loaded.notes
+
+    def _on_load(self, path: str | None, content: bytes | None) -> str:
+        from ..analysis import Analysis
+
+        try:
+            if path is not None:
+                if not path:
+                    return panels.error_html("load: type the path of an analysis (.json) or report (.html) file")
+                self.load_analysis(path)
+                where = str(Path(path).resolve())
+            else:
+                self.load_analysis(Analysis.from_json(content, source="uploaded file"))
+                where = "the uploaded file"
+        except (OSError, ValueError) as error:
+            return panels.error_html(str(error))
+        return f"loaded: <code>{html.escape(where)}</code>"
+
+    def _title_notes(self) -> tuple[str, str]:
+        return self.export.title.value.strip(), self.export.notes.value
+
     # -- export --------------------------------------------------------------------------------------------------
     def components_table(self):
         """The plotted curves as a pandas DataFrame (time, then each shown component).
@@ -389,8 +466,8 @@ class Bench(widgets.VBox):
     def analysis(self, title: str = "", notes: str = ""):
         """The last good fixture, drive, start, tolerance and sample delay as an :class:`~firstorder.Analysis`.
 
-        A sample delay longer than some segments is kept per segment, cut to
-        each segment's length (as the settling table here judges them).
+        The sample delay is kept as typed, one for every segment; a segment
+        shorter than it is sampled at its end, in the analysis as here.
         """
         return self.session.analysis(title, notes)
 

@@ -20,23 +20,26 @@ import numpy as np
 from bokeh.models import ColumnDataSource, DataTable, SelectEditor, StringEditor, TableColumn
 from jupyter_bokeh import BokehModel
 
-from ..netlist import SOURCE_UNITS
+from ..netlist import GROUND, SOURCE_UNITS
 from ..plotting.palette import component_label
 from ..report.tables import margin_rows
 from ..units import format_value
 from ._drive_table import DriveText
+from ._files import download_html
+from ._generators import GENERATORS
 from ._plot import MAX_HANDLES
 from ._session import BenchSession, PartField
 
 __all__ = ["DriveEditor", "ERROR_VIEW_SEGMENTS", "ExportPanel", "FieldsPanel", "GeneratorsPanel", "TAB_TITLES",
-           "ViewPanel", "cautions_html", "derivation_html", "drive_editor", "error_html", "error_view_children", "export_panel", "generators_panel",
-           "header_html", "info_html", "parts_panel", "settling_html", "setup_panel", "status_html", "tab_panel",
+           "ViewPanel", "cautions_html", "derivation_html", "drive_editor", "error_html", "error_view_children",
+           "export_panel", "generators_panel", "header_html", "info_html", "parts_panel", "probe_label", "settling_html",
+           "setup_panel", "status_html", "tab_panel",
            "value_label", "view_panel"]
 
 #: Tabs under the plot, in order.
 TAB_TITLES = ("Drive table", "Generators", "Derivation", "Settling", "Export", "Error view")
 _ERROR_STYLE = "color:#b03a2e;font-size:0.85em"
-_HINT_STYLE = "color:#566573;font-size:0.85em"
+_HINT_STYLE = "color:#566573;font-size:0.85em;line-height:1.25;display:inline-block"
 
 
 def _label(text: str, width: str = "78px") -> widgets.HTML:
@@ -126,12 +129,34 @@ class ViewPanel:
             button.value = name in curves
 
 
+def probe_label(probe) -> str:
+    """What a probe watches in plain words: ``voltage at out``, ``voltage sup → drain``,
+    ``current through coil``.
+
+    Examples
+    --------
+    >>> from firstorder.netlist import Probe
+    >>> probe_label(Probe("v", node="sup", reference="drain")), probe_label(Probe("i", through="coil"))
+    ('voltage sup → drain', 'current through coil')
+    """
+    if probe.node is None:
+        return f"current through {probe.through}"
+    return f"voltage at {probe.node}" if probe.reference == GROUND else f"voltage {probe.node} → {probe.reference}"
+
+
 def value_label(fixture, probe: str | None = None) -> str:
     """What the response panel's value axis shows: the probe, or the storage element's state."""
     if probe:
-        return probe
+        return f"{probe}: {probe_label(next(p for p in fixture.probes if p.name == probe))}"
     storage = fixture.storage
     return f"voltage across {storage.name}" if storage.kind == "capacitor" else f"current through {storage.name}"
+
+
+def _look_on_or_off(button: widgets.ToggleButton) -> None:
+    """A shown curve's button filled with a tick, a hidden one plain with an empty box: told
+    apart at a glance, not by a slightly darker grey."""
+    button.button_style = "info" if button.value else ""
+    button.icon = "check-square" if button.value else "square-o"
 
 
 def view_panel(fixture, curve_names: tuple[str, ...], shown: tuple[str, ...], probe: str | None,
@@ -139,7 +164,7 @@ def view_panel(fixture, curve_names: tuple[str, ...], shown: tuple[str, ...], pr
                on_undo: Callable[[], None]) -> ViewPanel:
     """The quantity watched (the state or a probe), a toggle per curve, and undo."""
     storage = fixture.storage
-    options = [(f"state {value_label(fixture)}", "")] + [(f"{p.name}: {p.describe()}", p.name) for p in fixture.probes]
+    options = [(f"state: {value_label(fixture)}", "")] + [(value_label(fixture, p.name), p.name) for p in fixture.probes]
     selector = widgets.Dropdown(options=options, value=probe or "", layout=widgets.Layout(width="300px"))
     selector.observe(lambda change: on_probe(change["new"]), names="value")
     overlays = {}
@@ -147,6 +172,8 @@ def view_panel(fixture, curve_names: tuple[str, ...], shown: tuple[str, ...], pr
         label = component_label(name)
         button = widgets.ToggleButton(value=name in shown, description=label, layout=widgets.Layout(width="146px"))
         button.tooltip = f"show or hide the {label} curve"
+        _look_on_or_off(button)
+        button.observe(lambda change: _look_on_or_off(change["owner"]), names="value")
         button.observe(lambda change, name=name: on_overlay(name, change["new"]), names="value")
         overlays[name] = button
     grid = widgets.GridBox(list(overlays.values()), layout=widgets.Layout(grid_template_columns="repeat(2, 150px)"))
@@ -204,6 +231,7 @@ def drive_editor(table: DriveText, on_row: Callable[[str, int], None], on_end: C
                             editor=SelectEditor(options=["closed", "open"]))
                 for name in table.names if name in table.switches]
     grid = DataTable(source=source, columns=columns, editable=True, index_position=None, width=620,
+                     sizing_mode="stretch_width",
                      height=min(260, 34 + 26 * len(table)), selectable=True)
     end = widgets.Text(value=table.end, description="end", continuous_update=False, layout=widgets.Layout(width="200px"))
     end.observe(lambda change: on_end(change["new"]), names="value")
@@ -224,71 +252,152 @@ def drive_editor(table: DriveText, on_row: Callable[[str, int], None], on_end: C
         "engineering notation, switches closed/open). On the drive plot, drag a square handle: sideways "
         f"moves the change, up or down sets the level (up to {MAX_HANDLES} changes).</span>")
     view = BokehModel(grid, combine_events=True)
-    box = widgets.VBox([widgets.HBox([end, row, *buttons]), widgets.HBox([drag]), error, view, hint])
+    view.layout = widgets.Layout(width="100%")
+    box = widgets.VBox([widgets.HBox([end, row, *buttons], layout=widgets.Layout(flex_flow="row wrap")), widgets.HBox([drag]), error, view, hint])
     return DriveEditor(box, source, grid, view, end, row, drag, error)
 
 
 @dataclass(frozen=True)
 class GeneratorsPanel:
     box: widgets.VBox
-    pulse_fields: dict[str, widgets.Widget]
-    stair_fields: dict[str, widgets.Widget]
+    kind: widgets.ToggleButtons
+    column: widgets.Dropdown
+    fields: dict[str, dict[str, widgets.Text]]  # generator key -> its fields
+    columns: dict[str, widgets.Text]  # every column's own levels or states
+    button: widgets.Button
     error: widgets.HTML
 
+    def values(self) -> tuple[str, str, dict[str, str], dict[str, str]]:
+        """What `on_generate` needs: the generator, the source it makes, its fields and every column's."""
+        kind = self.kind.value
+        return (kind, self.column.value, {key: w.value for key, w in self.fields[kind].items()},
+                {name: w.value for name, w in self.columns.items()})
 
-def generators_panel(source_names: tuple[str, ...], on_generate: Callable[[str], None]) -> GeneratorsPanel:
-    """Pulse-train and staircase fields; `on_generate("pulses" or "staircase")` on their buttons."""
-    names = list(source_names) or [""]
 
-    def text(value: str, label: str, width: str = "160px") -> widgets.Text:
-        return widgets.Text(value=value, description=label, layout=widgets.Layout(width=width))
+def generators_panel(names: tuple[str, ...], switches: frozenset[str], units: dict[str, str],
+                     defaults: dict[str, str], on_generate: Callable[[], None]) -> GeneratorsPanel:
+    """A repeated pattern, a staircase or a ramp of steps on one source, and a field for every
+    other column (nothing kept from the drive it replaces); `on_generate()` on the button."""
+    sources = [name for name in names if name not in switches] or [""]
+    kind = widgets.ToggleButtons(options=[(g.title, g.key) for g in GENERATORS], value=GENERATORS[0].key,
+                                 style={"button_width": "140px"})
+    column = widgets.Dropdown(options=sources, value=sources[0], description="source",
+                              layout=widgets.Layout(width="200px"))
+    fields: dict[str, dict[str, widgets.Text]] = {}
+    boxes = {}
+    for generator in GENERATORS:
+        fields[generator.key] = {}
+        rows = []
+        for key, label, text, hint in generator.fields:
+            field = widgets.Text(value=text, description=label, placeholder=hint, tooltip=hint,
+                                 layout=widgets.Layout(width="230px"))
+            field.add_class(f"fo-gen-{generator.key}-{key}")
+            fields[generator.key][key] = field
+            rows.append(field)
+        boxes[generator.key] = widgets.HBox(rows, layout=widgets.Layout(flex_flow="row wrap"))
+    shown = widgets.Box([boxes[kind.value]])
+    kind.observe(lambda change: setattr(shown, "children", [boxes[change["new"]]]), names="value")
+    columns: dict[str, widgets.Text] = {}
+    for name in names:
+        label = f"{name} (switch)" if name in switches else f"{name} ({units.get(name, '')})"
+        field = widgets.Text(value=defaults.get(name, ""), description=label, style={"description_width": "initial"},
+                             tooltip="one value, or one per level of the pattern (closed/open for a switch)",
+                             layout=widgets.Layout(width="230px"))
+        field.add_class("fo-gen-column-" + re.sub(r"[^A-Za-z0-9_-]", "-", name))
+        columns[name] = field
 
-    def column() -> widgets.Dropdown:
-        return widgets.Dropdown(options=names, value=names[0], description="source", layout=widgets.Layout(width="180px"))
+    def mark_generated(change=None) -> None:
+        # The generated source's own field is the generator's: shown, but not typed in.
+        for name, field in columns.items():
+            field.disabled = name == column.value
+            field.placeholder = "made by the generator" if field.disabled else ""
 
-    pulses = {"column": column(), "period": text("1m", "period"), "duty": text("0.5", "duty"),
-              "high": text("1", "high"), "low": text("0", "low"), "count": text("4", "count")}
-    stairs = {"column": column(), "levels": text("0, 1, 2, 3", "levels", "260px"), "dwell": text("1m", "dwell")}
-    pulse_button = widgets.Button(description="Make pulse train", layout=widgets.Layout(width="160px"))
-    pulse_button.on_click(lambda _: on_generate("pulses"))
-    stair_button = widgets.Button(description="Make staircase", layout=widgets.Layout(width="160px"))
-    stair_button.on_click(lambda _: on_generate("staircase"))
+    mark_generated()
+    column.observe(mark_generated, names="value")
+    button = widgets.Button(description="Make drive", icon="magic", button_style="primary",
+                            layout=widgets.Layout(width="160px"))
+    button.on_click(lambda _: on_generate())
     error = widgets.HTML()
-    note = widgets.HTML(f"<span style='{_HINT_STYLE}'>A generator replaces the drive; other "
-                        "columns keep the level they had at each new instant. Undo takes it back.</span>")
-    box = widgets.VBox([widgets.HTML("<b>Pulse train</b>"), widgets.HBox(list(pulses.values())), pulse_button,
-                        widgets.HTML("<b>Staircase</b>"), widgets.HBox(list(stairs.values())), stair_button,
-                        error, note])
-    return GeneratorsPanel(box, pulses, stairs, error)
+    note = widgets.HTML(f"<span style='{_HINT_STYLE}'>A generator replaces the whole drive: the source above "
+                        "takes the generator's levels; every other column takes the value beside it (one value, "
+                        "or one per level of the pattern; closed/open for a switch). Undo takes it back.</span>")
+    column_box = widgets.HBox(list(columns.values()), layout=widgets.Layout(flex_flow="row wrap"))
+    box = widgets.VBox([kind, widgets.HBox([column]), shown, widgets.HTML("<b>Every other column</b>"), column_box,
+                        button, error, note])
+    return GeneratorsPanel(box, kind, column, fields, columns, button, error)
 
 
 @dataclass(frozen=True)
 class ExportPanel:
     box: widgets.VBox
     name: widgets.Text
+    title: widgets.Text
+    notes: widgets.Textarea
     message: widgets.HTML
+    load_path: widgets.Text
+    load_button: widgets.Button
+    upload: widgets.FileUpload
+    load_message: widgets.HTML
 
 
-def export_panel(actions: list[tuple[str, str, Callable[[str], str]]]) -> ExportPanel:
-    """A file stem and a button per `(label, suffix, write)`: ``write(stem + suffix)`` returns
-    the path written, shown under the buttons (or the error that stopped it)."""
-    name = widgets.Text(value="bench", description="file stem", layout=widgets.Layout(width="260px"))
+def export_panel(actions: list[tuple[str, str, Callable[[str], str]]], title: str,
+                 on_load: Callable[[str | None, bytes | None], str]) -> ExportPanel:
+    """A file stem, the report's title and notes, a button per `(label, suffix, write)`, and
+    loading an analysis file.  ``write(stem + suffix)`` returns the path written, shown in
+    full with a link that downloads it (or the error that stopped it); ``on_load(path, None)``
+    or ``on_load(None, content)`` loads one and returns what to show."""
+    wide = widgets.Layout(width="95%", max_width="460px")
+    name = widgets.Text(value="bench", description="file stem", layout=wide)
+    name.add_class("fo-export-stem")
+    title_field = widgets.Text(value=title, description="title", placeholder="the report's title", layout=wide)
+    title_field.add_class("fo-export-title")
+    notes = widgets.Textarea(value="", description="notes", placeholder="notes at the top of the report and in "
+                             "the analysis file", layout=widgets.Layout(width="95%", max_width="460px", height="60px"))
+    notes.add_class("fo-export-notes")
     message = widgets.HTML()
+    message.add_class("fo-export-message")
 
     def run(suffix: str, write: Callable[[str], str]) -> None:
         try:
             written = write((name.value.strip() or "bench") + suffix)
+            message.value = download_html(written)
         except (OSError, ValueError) as error:
             message.value = error_html(str(error))
-            return
-        message.value = f"written: <code>{html.escape(written)}</code>"
 
     buttons = []
     for label, suffix, write in actions:
-        button = widgets.Button(description=label, layout=widgets.Layout(width="190px"))
+        # Wide enough for its whole label: a cut "Plotted components (CS…" says nothing.
+        button = widgets.Button(description=label, icon="download", layout=widgets.Layout(width="auto"))
+        button.add_class("fo-export-" + suffix.strip("_").replace(".", "-"))
         button.on_click(lambda _, suffix=suffix, write=write: run(suffix, write))
         buttons.append(button)
-    return ExportPanel(widgets.VBox([name, widgets.HBox(buttons), message]), name, message)
+    load_path = widgets.Text(description="file", placeholder="path to an analysis (.json) or report (.html)",
+                             layout=widgets.Layout(width="95%", max_width="460px"))
+    load_path.add_class("fo-load-path")
+    load_button = widgets.Button(description="Load", icon="folder-open", layout=widgets.Layout(width="auto"))
+    upload = widgets.FileUpload(accept=".json,.html", multiple=False, description="Upload")
+    load_message = widgets.HTML()
+    load_message.add_class("fo-load-message")
+
+    def load(path: str | None, content: bytes | None) -> None:
+        load_message.value = on_load(path, content)
+
+    load_button.on_click(lambda _: load(load_path.value.strip(), None))
+    def uploaded(change) -> None:
+        if change["new"]:
+            load(None, bytes(change["new"][0]["content"]))
+            upload.value = ()  # so the same file uploaded again loads again
+
+    upload.observe(uploaded, names="value")
+    hint = widgets.HTML(f"<span style='{_HINT_STYLE}'>Files are written in the notebook's folder; each also "
+                        "downloads from the link shown. Loading puts an analysis's part values, drive and setup "
+                        "into this Bench (undo takes it back).</span>")
+    box = widgets.VBox([
+        widgets.HTML("<b>Export</b>"), name, title_field, notes,
+        widgets.HBox(buttons, layout=widgets.Layout(flex_flow="row wrap")), message,
+        widgets.HTML("<b>Load an analysis</b>"), widgets.HBox([load_path, load_button, upload], layout=widgets.Layout(flex_flow="row wrap")),
+        load_message, hint])
+    return ExportPanel(box, name, title_field, notes, message, load_path, load_button, upload, load_message)
 
 
 def tab_panel(children: list[widgets.Widget]) -> widgets.Tab:
@@ -323,11 +432,26 @@ def status_html(errors: dict[str, str]) -> str:
 
 
 def cautions_html(cautions: list) -> str:
+    """The cautions, compact: each one's finding on one line, what to do folded under it, and
+    the reminder every caution ends with said once."""
     if not cautions:
         return ""
-    items = "".join(f"<li>{html.escape(str(c))}</li>" for c in cautions)
-    return ("<div style='background:#fef5e7;border-left:4px solid #d68910;padding:4px 8px'>"
-            f"<b>⚠ Cautions</b><ul style='margin:2px 0'>{items}</ul></div>")
+    items, reminders = [], []
+    for caution in cautions:
+        text = str(caution)
+        # A caution's first sentence says what was found; the rest is advice.
+        finding, _, advice = text.partition(". ")
+        reminder = advice.find("These are reminders")
+        if reminder >= 0:
+            advice, tail = advice[:reminder].rstrip(), advice[reminder:]
+            if tail not in reminders:
+                reminders.append(tail)
+        folded = (f"<details style='display:inline'><summary style='display:inline;cursor:pointer;"
+                  f"color:#7e5109'> more</summary>{html.escape(advice)}</details>" if advice else "")
+        items.append(f"<div>⚠ <b>{html.escape(finding.rstrip('.'))}.</b>{folded}</div>")
+    note = "".join(f"<div style='{_HINT_STYLE}'>{html.escape(r)}</div>" for r in reminders)
+    return ("<div class='fo-cautions' style='background:#fef5e7;border-left:4px solid #d68910;padding:2px 8px'>"
+            + "".join(items) + note + "</div>")
 
 
 def info_html(session: BenchSession, mode: str) -> str:
@@ -358,8 +482,12 @@ def settling_html(session: BenchSession) -> str:
     body = "".join(
         "<tr>" + "".join(f"<td style='padding:1px 8px'>{html.escape(cell)}</td>" for cell in [str(k), *cells]) + "</tr>"
         for k, cells, _ in rows)
-    note = ("<p style='color:#566573'>Segments shorter than the sample delay are judged at their end.</p>"
-            if session.samples_at_end else "")
+    short = session.short_segments
+    listed = ", ".join(str(k) for k in short[:8]) + (f" and {short.size - 8} more" if short.size > 8 else "")
+    note = (f"<p style='color:#566573'>{'Segment' if short.size == 1 else 'Segments'} {listed} "
+            f"{'is' if short.size == 1 else 'are'} shorter than the sample delay "
+            f"({html.escape(format_value(session.sample_delay, 's'))}): sampled at {'its' if short.size == 1 else 'their'} "
+            "end (a square on the plot).</p>" if short.size else "")
     return (session.summary._repr_html_() + note + f"<p><b>Settling, {html.escape(caption)}</b></p>"
             f"<table style='font-size:0.9em'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
 

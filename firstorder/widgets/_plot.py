@@ -29,8 +29,14 @@ __all__ = ["MAX_HANDLES", "PIXELS", "Plots", "View"]
 
 #: Drag handles are offered up to this many changes (beyond it, edit the table).
 MAX_HANDLES = 400
-PLOT_WIDTH = 720
+PLOT_WIDTH = 720  # the first width; the figures then take the width the page gives them
+#: The narrowest the figures get (the Bench puts them under the side panel before that).
+MIN_PLOT_WIDTH = 460
 PIXELS = 520  # the plot area without axes, for sampling
+
+
+_LEGEND = {"label_text_font_size": "11px", "glyph_width": 18, "spacing": 12, "padding": 4, "margin": 4,
+           "label_standoff": 4, "border_line_alpha": 0}
 
 
 def _formatter(unit: str) -> CustomJSTickFormatter:
@@ -96,23 +102,26 @@ class Plots:
         figures = [self.drive_figure, self.response_figure]
         if trace_name is not None:
             figures.append(self.residual_figure)
-        self.layout = column(*figures)
+        self.layout = column(*figures, sizing_mode="stretch_width")
 
     # -- building -----------------------------------------------------------------------
     def _style(self, fig, y_unit: str) -> None:
         fig.xaxis.formatter = _formatter("s")
         fig.yaxis.formatter = _formatter(y_unit)
         fig.toolbar.logo = None
+        fig.toolbar_location = "above"  # a row has room for every tool; a short plot's column hides some
         fig.background_fill_color = "#fbfbf8"
         fig.grid.grid_line_color = "#e4e4dc"
         fig.outline_line_color = "#c8c8bd"
         fig.min_border_left = 70
+        fig.min_border_right = 70  # room for the switch lanes' axis, so the time axes line up
+        fig.min_width = MIN_PLOT_WIDTH
 
     def _build_drive_figure(self, names, units, switches) -> None:
         distinct_units = sorted({units.get(n, "") for n in names})
         unit = distinct_units[0] if len(distinct_units) == 1 else ""
-        fig = figure(width=PLOT_WIDTH, height=190, x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap",
-                     active_scroll="xwheel_zoom", title="Drive: source levels; switch lanes shaded where closed")
+        fig = figure(width=PLOT_WIDTH, height=210, sizing_mode="stretch_width", x_range=self.x_range, tools="xpan,xwheel_zoom,box_zoom,reset,tap,save",
+                     active_scroll="xwheel_zoom", title="Drive")
         self._style(fig, unit)
         fig.yaxis.axis_label = "level"  # the tick labels carry the unit
         fig.xaxis.axis_label = None
@@ -155,7 +164,9 @@ class Plots:
         fig.toolbar.active_drag = self.point_draw
         fig.toolbar.active_tap = self.point_draw
         self._add_selection(fig)
-        fig.add_layout(Legend(items=items, location="center", click_policy="none"), "right")
+        # Legends under the plots, in columns: a legend beside a plot takes its width, and one
+        # wider than the page is cut ("tolerance ba").
+        fig.add_layout(Legend(items=items, click_policy="none", orientation="horizontal", ncols=4, **_LEGEND), "below")
         self.drive_figure = fig
 
     def _add_selection(self, fig) -> None:
@@ -170,8 +181,8 @@ class Plots:
         # The value axis is Python's: fitted to what is drawn in view (fit_values), so a zoom
         # or a new probe never leaves it on another quantity's span; box zoom picks a time span.
         self.y_range = Range1d(0.0, 1.0)
-        fig = figure(width=PLOT_WIDTH, height=330, x_range=self.x_range, y_range=self.y_range,
-                     tools="xpan,xwheel_zoom,xbox_zoom,reset,tap", active_scroll="xwheel_zoom", title="Response")
+        fig = figure(width=PLOT_WIDTH, height=380, sizing_mode="stretch_width", x_range=self.x_range, y_range=self.y_range,
+                     tools="xpan,xwheel_zoom,xbox_zoom,reset,tap,save", active_scroll="xwheel_zoom", title="Response")
         self._style(fig, unit)
         fig.xaxis.axis_label = "time"
         fig.yaxis.axis_label = label
@@ -182,6 +193,7 @@ class Plots:
         tolerance_renderer = fig.quad(left="left", right="right", bottom="bottom", top="top", source=tolerance,
                                       fill_color=TOLERANCE_COLOUR, fill_alpha=0.35, line_alpha=0)
         items = [LegendItem(label="tolerance band", renderers=[tolerance_renderer])]
+        self.mark_items = {"tolerance": items[0]}  # shown in the legend only while drawn
         for name in curve_names:
             colour = COMPONENT_COLOURS.get(name)
             if colour is None:
@@ -202,23 +214,27 @@ class Plots:
             fig.add_tools(HoverTool(renderers=[line], tooltips=[(text, "@y{custom}"), ("at", "@t{custom}")],
                                     formatters={"@y": value_hover, "@t": _hover("s")}))
             fig.add_tools(_band_hover(band, text, value_hover))
-        samples = ColumnDataSource({"t": [], "y": [], "colour": [], "error": []})
+        samples = ColumnDataSource({"t": [], "y": [], "colour": [], "error": [], "marker": [], "when": []})
         self.sources["samples"] = samples
-        sample_renderer = fig.scatter("t", "y", source=samples, size=8, marker="diamond", fill_color="colour",
+        # A segment shorter than the sample delay is sampled at its end: a square there, a diamond elsewhere.
+        sample_renderer = fig.scatter("t", "y", source=samples, size=8, marker="marker", fill_color="colour",
                                       line_color="#17324d")
         sample_value, sample_error = _hover(unit), _hover(unit)
         self.value_formatters += [sample_value, sample_error]
         fig.add_tools(HoverTool(renderers=[sample_renderer],
-                                tooltips=[("sample at", "@t{custom}"), ("value", "@y{custom}"), ("error", "@error{custom}")],
+                                tooltips=[("sample at", "@t{custom}"), ("taken", "@when"), ("value", "@y{custom}"),
+                                          ("error", "@error{custom}")],
                                 formatters={"@t": _hover("s"), "@y": sample_value, "@error": sample_error}))
-        items.append(LegendItem(label="sample instants", renderers=[sample_renderer]))
+        self.mark_items["samples"] = LegendItem(label="sample instants", renderers=[sample_renderer])
+        items.append(self.mark_items["samples"])
         settle = ColumnDataSource({"t": [], "y": []})
         self.sources["settle"] = settle
         settle_renderer = fig.scatter("t", "y", source=settle, size=10, marker="triangle", fill_color="#f8f9f9",
                                       line_color="#0f7b6c", line_width=2)
         fig.add_tools(HoverTool(renderers=[settle_renderer], tooltips=[("settled at", "@t{custom}")],
                                 formatters={"@t": _hover("s")}))
-        items.append(LegendItem(label="settled", renderers=[settle_renderer]))
+        self.mark_items["settle"] = LegendItem(label="settled", renderers=[settle_renderer])
+        items.append(self.mark_items["settle"])
         if trace_name is not None:
             trace = ColumnDataSource(_empty_curve())
             self.sources["trace"] = trace
@@ -227,18 +243,18 @@ class Plots:
             self.band_renderers["trace"] = fig.varea("t", "low", "high", source=trace, fill_color="#7f8c8d",
                                                      fill_alpha=0.4, visible=False)
             items.append(LegendItem(label=f"measured: {trace_name}", renderers=[trace_line]))
-            residual_fig = figure(width=PLOT_WIDTH, height=150, x_range=self.x_range,
-                                  tools="xpan,xwheel_zoom,box_zoom,reset", active_scroll="xwheel_zoom",
+            residual_fig = figure(width=PLOT_WIDTH, height=150, sizing_mode="stretch_width", x_range=self.x_range,
+                                  tools="xpan,xwheel_zoom,box_zoom,reset,save", active_scroll="xwheel_zoom",
                                   title="Residual: measured - model (total)")
             self._style(residual_fig, unit)
             residual_fig.yaxis.axis_label = "residual"
             residual = ColumnDataSource({"t": [], "y": []})
             self.sources["residual"] = residual
             residual_fig.scatter("t", "y", source=residual, size=3, color="#b03a2e")
-            residual_fig.add_layout(Legend(items=[], visible=False), "right")
+            residual_fig.add_layout(Legend(items=[], visible=False), "below")
             self.residual_figure = residual_fig
-        self.legend = Legend(items=items, location="top_left", click_policy="none")
-        fig.add_layout(self.legend, "right")
+        self.legend = Legend(items=items, click_policy="none", orientation="horizontal", ncols=3, **_LEGEND)
+        fig.add_layout(self.legend, "below")
         self.response_figure = fig
 
     # -- filling ------------------------------------------------------------------------------
@@ -346,7 +362,7 @@ class Plots:
             sample_delay, response.drive.durations[rows], ends=response.ends[rows], past_end="end")
         sampled = None if delays is None else slice(None)
         band = {"left": empty, "right": empty, "bottom": empty, "top": empty}
-        samples = {"t": empty, "y": empty, "colour": [], "error": empty}
+        samples = {"t": empty, "y": empty, "colour": [], "error": empty, "marker": [], "when": []}
         settle = {"t": empty, "y": empty}
         if crowded:
             pass
@@ -358,7 +374,8 @@ class Plots:
                 value = table["value_at_sample"].to_numpy()[rows][sampled]
                 ok = table["ok"].to_numpy()[rows][sampled]
                 samples = {"t": table["sample_time"].to_numpy()[rows][sampled], "y": value,
-                           "colour": np.where(ok, SAMPLE_PASS, SAMPLE_FAIL).tolist(), "error": value - final[sampled]}
+                           "colour": np.where(ok, SAMPLE_PASS, SAMPLE_FAIL).tolist(), "error": value - final[sampled],
+                           **_sample_kinds(delays, response.drive.durations[rows])}
             settle_time = table["settle_time"].to_numpy()[rows]
             marked = np.isfinite(settle_time) & (settle_time > 0)
             # At its settle time a segment's error has fallen to its limit, on the side it came from.
@@ -370,10 +387,12 @@ class Plots:
             inside = np.where(delays >= response.drive.durations[rows], np.nextafter(instants, -np.inf), instants)
             at = response.evaluate(inside, ("total", "forced"), probe)
             samples = {"t": instants, "y": at["total"], "colour": [SAMPLE_NEUTRAL] * instants.size,
-                       "error": at["total"] - at["forced"]}
-        _assign(self.sources["tolerance"], band)
-        _assign(self.sources["samples"], samples)
-        _assign(self.sources["settle"], settle)
+                       "error": at["total"] - at["forced"], **_sample_kinds(delays, response.drive.durations[rows])}
+        for name, data in (("tolerance", band), ("samples", samples), ("settle", settle)):
+            _assign(self.sources[name], data)
+            shown = len(next(iter(data.values()))) > 0
+            if self.mark_items[name].visible != shown:
+                self.mark_items[name].visible = shown
 
     def update_trace(self, times: np.ndarray, values: np.ndarray, residual_times: np.ndarray,
                      residual: np.ndarray, view: View) -> None:
@@ -422,6 +441,14 @@ class Plots:
             _assign(self.sources["selection"], {"left": [], "right": []})
         else:
             self.sources["selection"].data = {"left": [float(drive.times[segment])], "right": [float(drive.ends[segment])]}
+
+
+def _sample_kinds(delays: np.ndarray, durations: np.ndarray) -> dict[str, list[str]]:
+    """Each sample's marker and how it was taken: at the delay, or at the end of a segment
+    shorter than the delay (a square, so the engineer sees which readings those are)."""
+    at_end = delays >= durations
+    return {"marker": np.where(at_end, "square", "diamond").tolist(),
+            "when": np.where(at_end, "at the segment's end (shorter than the delay)", "after the delay").tolist()}
 
 
 def _runs(starts, ends, closed, plan, view) -> tuple[np.ndarray, np.ndarray]:

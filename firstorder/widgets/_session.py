@@ -27,20 +27,17 @@ from ..errors import InputError
 from ..fixture import Fixture
 from ..netlist import PART_UNITS, SOURCE_UNITS
 from ..response import COMPONENTS, Response, read_initial
-from ..settling.table import SettlingSummary, sample_delays, table_summary
+from ..settling.table import SettlingSummary, table_summary
 from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
 from ..units import format_value, parse_value
 from ._drive_table import DriveText
+from ._generators import generated_drive
 
 __all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS", "TOLERANCE_UNIT", "UNDO_DEPTH",
            "part_fields"]
 
 #: How many edits `undo` can take back.
 UNDO_DEPTH = 50
-#: The most changes a generator may make in the Bench.  Every edit redraws the whole drive
-#: (benchmarks/bench.py: about 40 ms at 100,000 changes), so ten times that keeps an edit
-#: under about half a second; longer drives are built in code and shown whole.
-MAX_GENERATED_CHANGES = 1_000_000
 #: The setup fields, by key.
 SETUP_KEYS = ("initial", "tolerance", "sample_delay")
 #: Each setup field's label on screen: its errors begin with it.
@@ -237,7 +234,9 @@ class BenchSession(traitlets.HasTraits):
         texts = {field.key: field.text for field in part_fields(fixture)}
         texts.update(initial=initial if isinstance(initial, str) else format_value(start, unit, digits=6),
                      tolerance=tolerance_text(tolerance),
-                     sample_delay="" if delay is None else format_value(delay, "s", digits=6))
+                     # As typed: the saved analysis keeps the text the field shows.
+                     sample_delay="" if delay is None else sample_delay.strip() if isinstance(sample_delay, str)
+                     else format_value(delay, "s", digits=6))
         with self.hold_trait_notifications():
             for name, value in dict(fixture=fixture, table=table, drive=drive, initial=start, tolerance=tolerance,
                                     sample_delay=delay, response=response, texts=texts).items():
@@ -289,7 +288,14 @@ class BenchSession(traitlets.HasTraits):
     @property
     def samples_at_end(self) -> bool:
         """True when some segments are shorter than the sample delay: those are judged at their end."""
-        return self.sample_delay is not None and bool((self.drive.durations < self.sample_delay).any())
+        return self.short_segments.size > 0
+
+    @property
+    def short_segments(self) -> np.ndarray:
+        """The segments shorter than the sample delay, each sampled at its end (none without a delay)."""
+        if self.sample_delay is None:
+            return np.zeros(0, dtype=np.intp)
+        return np.flatnonzero(self.drive.durations < self.sample_delay)
 
     @property
     def curve_names(self) -> tuple[str, ...]:
@@ -352,34 +358,21 @@ class BenchSession(traitlets.HasTraits):
         return self._edit("drive", lambda: {"table": DriveText.from_drive(drive, table.names, table.switches,
                                                                           table.units)}, reset_view=True)
 
-    def generate(self, kind: str, fields: dict[str, str]) -> bool:
-        """Replace the drive by a pulse train (``kind="pulses"``: column, period, duty, high,
-        low, count) or a staircase (``"staircase"``: column, levels, dwell), given as text."""
+    def generate(self, kind: str, column: str, fields: dict[str, str], columns: dict[str, str]) -> bool:
+        """Replace the drive by a generated one (:func:`._generators.generated_drive`):
+        ``kind`` ``"pattern"`` (levels, dwells, repeats), ``"staircase"`` (levels, dwell) or
+        ``"ramp"`` (from, to, steps, dwell, and back) on source `column`; every other column
+        from its own text in `columns` (one value, or one per level), none inherited."""
+        table = self.table
         try:
-            if kind == "pulses":
-                count = fields["count"].strip()
-                # ASCII digits only: str.isdigit also accepts '²' and other digits int() refuses.
-                if not (count.isascii() and count.isdigit()) or int(count) < 1:
-                    raise InputError(f"pulses.count: {count!r} must be a whole number >= 1")
-                if 2 * int(count) > MAX_GENERATED_CHANGES:
-                    raise InputError(
-                        f"pulses.count: {count} pulses make {2 * int(count):,} changes; the Bench takes at most "
-                        f"{MAX_GENERATED_CHANGES:,} ({MAX_GENERATED_CHANGES // 2:,} pulses); build longer drives "
-                        f"in code with Drive.pulses")
-                made = Drive.pulses(period=fields["period"], duty=parse_value(fields["duty"], field="pulses.duty"),
-                                    high=fields["high"], low=fields["low"], count=int(count), name=fields["column"],
-                                    start=self.drive.start)
-            elif kind == "staircase":
-                levels = [item.strip() for item in fields["levels"].split(",") if item.strip()]
-                made = Drive.staircase(levels, dwell=fields["dwell"], name=fields["column"], start=self.drive.start)
-            else:
-                raise InputError(f"generate: kind {kind!r} is not 'pulses' or 'staircase'")
-            table = self.table.merged(made)
+            made = generated_drive(kind, column, fields, columns, table.names, table.switches, table.units,
+                                   float(self.drive.start))
+            made_table = DriveText.from_drive(made, table.names, table.switches, table.units)
         except ValueError as error:
             self._set_error("generator", str(error))
             return False
         self._set_error("generator", None)
-        return self._edit("drive", lambda: {"table": table}, reset_view=True)
+        return self._edit("drive", lambda: {"table": made_table}, reset_view=True)
 
     def drag(self, column: str, times: Any, levels: Any) -> bool:
         """Drag handles moved to (`times`, `levels`) on `column`; False (and the drive as it
@@ -425,17 +418,25 @@ class BenchSession(traitlets.HasTraits):
     def analysis(self, title: str = "", notes: str = ""):
         """The last good fixture, drive, start, tolerance and sample delay as an :class:`~firstorder.Analysis`.
 
-        A sample delay longer than some segments is kept per segment, cut to
-        each segment's length (as the settling table here judges them).
+        The sample delay is kept as typed (``"800u"``), one for every segment: a
+        segment shorter than it is sampled at its end, in the analysis as here
+        (:func:`~firstorder.settling.table.sample_delays`, the one rule).
         """
         from ..analysis import Analysis
 
         tolerance = self.judged(self.tolerance, None)  # an analysis judges the state
-        delay: Any = self.sample_delay
-        if self.samples_at_end:
-            delay = sample_delays(delay, self.drive.durations, ends=self.drive.ends, past_end="end").tolist()
-        return Analysis(self.fixture, self.drive, initial=self.initial, tolerance=tolerance,
+        typed = self.texts.get("sample_delay", "").strip()
+        delay: Any = None if self.sample_delay is None else (typed or self.sample_delay)
+        initial = self.texts.get("initial", "").strip() or self.initial  # as typed, too
+        return Analysis(self.fixture, self.drive, initial=initial, tolerance=tolerance,
                         sample_delay=delay, title=title, notes=notes)
+
+    def load(self, fixture: Fixture, drive: Drive, initial: float | str, tolerance: Tolerance | None,
+             sample_delay: float | None, texts: dict[str, str]) -> None:
+        """Every input at once (an analysis file read back, :mod:`._files` checks it); undoable."""
+        table = DriveText.from_drive(drive, self.table.names, self.table.switches, self.table.units)
+        snapshot = _Snapshot(fixture, table, {**self.texts, **texts}, initial, tolerance, sample_delay)
+        self._restore(snapshot, history=(*self.history, self._snapshot())[-UNDO_DEPTH:])
 
     # -- the one path of an edit ----------------------------------------------------------------------
     def _edit(self, key: str, make: Callable[[], dict[str, Any]], texts: dict[str, str] | None = None,
@@ -487,9 +488,8 @@ class BenchSession(traitlets.HasTraits):
             tolerance, mismatch = None, str(error)
         if tolerance is not None:
             try:
-                delays = None if sample_delay is None else sample_delays(
-                    sample_delay, response.drive.durations, ends=response.ends, past_end="end")
-                table = response.settling(tolerance, sample_delay=delays, probe=probe)
+                # One delay for every segment: a shorter segment is sampled at its end (sample_delays).
+                table = response.settling(tolerance, sample_delay=sample_delay, probe=probe)
                 summary = table_summary(table)
             except ValueError as error:
                 problem = str(error)

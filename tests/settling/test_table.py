@@ -228,7 +228,7 @@ class TestSettlingTable:
 
     @pytest.mark.parametrize("delay, message", [
         (-1e-6, "segment 0"),
-        ("2m", "segment 0"),
+        ("inf", "segment 0"),
         ([0.0, "1.5m"], "segment 1"),
         ([0.0, math.nan], "segment 1"),
         ([math.inf, 0.0], "segment 0"),
@@ -240,6 +240,15 @@ class TestSettlingTable:
         res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0, "1m"], end="2m", vin=[1.0, 0.0]))
         with pytest.raises(ValueError, match=message):
             res.settling(fo.Tolerance.absolute("1m"), sample_delay=delay)
+
+    def test_one_delay_past_a_short_dwell_samples_it_at_its_end(self):
+        # One delay for every segment: the 1 ms segment is read at its end, the 3 ms one after
+        # 2 ms; the value there is the handbook step response 1 - exp(-t/RC) (common practice).
+        res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0, "1m"], end="4m", vin=[1.0, 0.0]))
+        table = res.settling(fo.Tolerance.absolute("1m"), sample_delay="2m")
+        np.testing.assert_allclose(table["sample_time"].to_numpy(), [1e-3, 3e-3], rtol=1e-15)
+        v1 = 1.0 - math.exp(-1.0)
+        np.testing.assert_allclose(table["value_at_sample"].to_numpy(), [v1, v1 * math.exp(-2.0)], rtol=1e-12)
 
     def test_unknown_probe_is_rejected(self):
         res = switched_fixture().respond(fo.Drive([0], end="1m", vdac=[1.0], k1=[1]))

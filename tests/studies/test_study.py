@@ -227,7 +227,7 @@ class TestBadArguments:
         with pytest.raises(InputError, match="in A"):
             study.settling(fo.Tolerance.absolute("1 mA"))
         with pytest.raises(InputError, match="sample_delay"):
-            study.settling(HALF_LSB_16, sample_delay="30m")
+            study.settling(HALF_LSB_16, sample_delay="-30m")
         fx = fo.Fixture.rc("10k", "100n")
         with pytest.raises(InputError, match="drive: "):
             fx.study([0, 1], Spread({"c": "1%"}), units=5, seed=1)

@@ -7,6 +7,7 @@ and tau = L / R for a coil; series and parallel resistance.
 from __future__ import annotations
 
 import math
+from pathlib import Path
 import subprocess
 import sys
 
@@ -16,6 +17,7 @@ import pytest
 
 import firstorder as fo
 from firstorder.widgets import Bench
+from firstorder.widgets._panels import settling_html
 
 from benches import charging, rc_bench, switched_bench
 
@@ -237,22 +239,33 @@ class TestDriveTable:
         bench.delete_row(9)
         assert "row 9" in bench.error
 
-    def test_generators(self):
-        bench = rc_bench()
-        bench.pulse_fields["period"].value = "2m"
-        bench.pulse_fields["duty"].value = "0.25"
-        bench.pulse_fields["high"].value = "5"
-        bench.pulse_fields["count"].value = "3"
-        bench._generate("pulses")
-        expected = fo.Drive.pulses(period="2m", duty=0.25, high=5, count=3)
+    def test_generators_make_the_whole_drive_and_keep_nothing_silently(self):
+        bench = switched_bench()
+        # The old drive has k1 closed at its first change and vdac at 0 V; the pattern says
+        # otherwise for k1 (closed while high, open while low): that is what the drive gets.
+        assert bench.generate("pattern", "vdac", levels="0, 2.5", dwells="1m, 3m", repeats="3",
+                              columns={"k1": "open, closed"})
+        expected = fo.Drive(np.array([0, 1, 4, 5, 8, 9]) * 1e-3, 12e-3, vdac=[0, 2.5] * 3, k1=[0, 1] * 3)
         assert bench.drive == expected
-        bench.stair_fields["levels"].value = "0, 1, 2"
-        bench.stair_fields["dwell"].value = "1m"
-        bench._generate("staircase")
-        assert bench.drive == fo.Drive.staircase([0, 1, 2], dwell="1m")
-        bench.pulse_fields["duty"].value = "2"
-        bench._generate("pulses")
-        assert "duty" in bench.error
+        assert bench.generate("staircase", "vdac", levels="0, 1, 2", dwell="1m", columns={"k1": "closed"})
+        assert bench.drive == fo.Drive([0, 1e-3, 2e-3], 3e-3, vdac=[0, 1, 2], k1=[1, 1, 1])
+        assert bench.generate("ramp", "vdac", first="0", last="2", steps="4", dwell="500u", back="yes")
+        np.testing.assert_array_equal(bench.drive.levels("vdac"), [0, 0.5, 1, 1.5, 2, 1.5, 1, 0.5, 0])
+        np.testing.assert_allclose(bench.drive.times, np.arange(9) * 0.5e-3, rtol=0, atol=1e-18)
+        assert len(bench.drive) == 9 and "9-change drive" in bench.header.value
+        assert not bench.generate("pattern", "vdac", dwells="1m, 2m, 3m", levels="0, 1")
+        assert "repeated pattern: dwells: 3 dwells for 2 levels" in bench.error
+        assert not bench.generate("pattern", "vdac", dwells="1m", columns={"k1": "open, closed, open"})
+        assert "k1 (switch): 3 values for a pattern of 2 levels" in bench.error
+        assert not bench.generate("ramp", "vdac", steps="0")
+        assert "ramp of steps: steps: '0' must be a whole number >= 1" in bench.error
+        assert len(bench.drive) == 9  # refused: the drive stays
+
+    def test_the_generated_source_field_is_the_generators(self):
+        bench = switched_bench()
+        columns = bench.generators.columns
+        assert columns["vdac"].disabled and not columns["k1"].disabled
+        assert columns["k1"].value == "closed"  # the old drive's first state, shown, to be changed
 
     def test_drag_a_handle(self):
         bench = rc_bench()
@@ -295,8 +308,7 @@ class TestDriveTable:
     def test_the_header_counts_the_changes_of_the_drive_shown(self):
         bench = rc_bench()
         assert "3-change drive" in bench.header.value
-        bench.pulse_fields["count"].value = "3"
-        bench._generate("pulses")
+        bench.generate("pattern", "vin", levels="0, 5", dwells="1m", repeats="3")
         assert len(bench.drive) == 6 and "6-change drive" in bench.header.value
 
 
@@ -386,18 +398,125 @@ class TestAnalysisExport:
         assert again.fixture.part_map["rs"].value == 2200.0
         assert again.drive == bench.drive
         assert again.tolerance == fo.Tolerance.lsb(16, 5.0)
-        assert again.sample_delay == 0.8e-3
+        assert again.sample_delay == "0.8m"  # as typed
         np.testing.assert_allclose(again.response.boundary, bench.response.boundary, rtol=0, atol=0)
 
-    def test_long_delay_is_kept_per_segment(self, tmp_path):
+    def test_long_delay_is_kept_as_typed_and_judged_alike(self, tmp_path):
+        # Segment 0 lasts 1 ms, shorter than the 2 ms typed: the Bench, the saved analysis and
+        # its report sample it at its end, and the file keeps the delay as typed.
         bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"), sample_delay="2m")
-        analysis = bench.analysis()
-        np.testing.assert_allclose(analysis.sample_delay, [1e-3, 2e-3, 2e-3])
+        bench.setup_fields["sample_delay"].value = "1.5m"
+        analysis = fo.Analysis.load(bench.save_analysis(tmp_path / "a.json"))
+        assert analysis.sample_delay == "1.5m"
+        for column in ("sample_time", "error_at_sample", "ok"):
+            np.testing.assert_array_equal(analysis.settling()[column].to_numpy(), bench.settling[column].to_numpy())
+        assert bench.settling["sample_time"].to_numpy()[0] == 1e-3  # the end of segment 0
+        samples = bench.sources["samples"].data
+        assert list(samples["marker"]) == ["square", "diamond", "diamond"]
+        assert "Segment 0 is shorter than the sample delay (1.5 ms): sampled at its end" in settling_html(bench.session)
+        html = bench.analysis().to_html()
+        assert "a segment shorter than that is sampled at its end" in html
 
     def test_report_is_written(self, tmp_path):
         bench = rc_bench(tolerance=fo.Tolerance.absolute("10m"))
         path = bench.report(tmp_path / "r.html")
         assert fo.Analysis.load(path).drive == bench.drive
+
+
+def _click(bench, label: str) -> None:
+    button = next(b for b in bench.export.box.children[4].children if b.description == label)
+    button.click()
+
+
+class TestExportTab:
+    def test_each_file_is_written_shown_in_full_and_offered_as_a_download(self, tmp_path, monkeypatch):
+        import base64
+        import re
+
+        monkeypatch.chdir(tmp_path)
+        bench = switched_bench(tolerance=fo.Tolerance.lsb(16, 5.0), sample_delay="0.8m")
+        bench.export.title.value = "Channel 3 hold capacitor"
+        bench.export.notes.value = "relay K1 from lot 7"
+        for label, suffix in [("Plotted components (CSV)", "_components.csv"), ("Drive (CSV)", "_drive.csv"),
+                              ("Analysis (JSON)", "_analysis.json"), ("Report (HTML)", "_report.html")]:
+            _click(bench, label)
+            message = bench.export.message.value
+            path = tmp_path / f"bench{suffix}"
+            assert f"<code class='fo-written'>{path.resolve()}</code>" in message  # the full path
+            link = re.search(r'download="([^"]+)" href="data:([^;]+);base64,([^"]+)"', message)
+            assert link and link.group(1) == path.name
+            assert base64.b64decode(link.group(3)) == path.read_bytes()  # the file itself, to the browser
+        analysis = fo.Analysis.load(tmp_path / "bench_analysis.json")
+        assert (analysis.title, analysis.notes) == ("Channel 3 hold capacitor", "relay K1 from lot 7")
+        report = (tmp_path / "bench_report.html").read_text(encoding="utf-8")
+        assert "Channel 3 hold capacitor" in report and "relay K1 from lot 7" in report
+        assert "<title>firstorder analysis" not in report
+
+    def test_labels_are_whole(self):
+        bench = rc_bench()
+        for button in bench.export.box.children[4].children:
+            assert button.layout.width == "auto", button.description  # never cut to a fixed width
+
+    def test_plots_carry_a_save_tool(self):
+        from bokeh.models import SaveTool
+
+        bench = rc_bench()
+        for fig in (bench.plots.drive_figure, bench.plots.response_figure):
+            assert any(isinstance(tool, SaveTool) for tool in fig.toolbar.tools)
+
+
+class TestLoadAnalysis:
+    def test_a_saved_analysis_loads_back_and_undo_takes_it_back(self, tmp_path):
+        saved = switched_bench(tolerance=fo.Tolerance.absolute("2m"), sample_delay="0.5m", initial="0.3")
+        saved.fields["rs"].value = "2.2k"
+        saved.edit_cell(3, "vdac", "-1.5")
+        saved.export.title.value = "after rework"
+        path = saved.save_analysis(tmp_path / "a.json", *saved._title_notes())
+        bench = switched_bench()
+        before = bench.drive
+        bench.export.load_path.value = str(path)
+        bench.export.load_button.click()
+        assert "loaded:" in bench.export.load_message.value and str(Path(path).resolve()) in bench.export.load_message.value
+        assert bench.drive == saved.drive and bench.fields["rs"].value == "2.2 kΩ"
+        assert bench.setup_fields["sample_delay"].value == "0.5m" and bench.setup_fields["initial"].value == "0.3"
+        assert bench.tolerance == fo.Tolerance.absolute("2m") and bench.export.title.value == "after rework"
+        np.testing.assert_array_equal(bench.response.boundary, saved.response.boundary)
+        assert bench.undo() and bench.drive == before
+
+    def test_an_uploaded_report_loads_and_the_same_file_loads_again(self, tmp_path):
+        import datetime
+
+        saved = switched_bench(tolerance=fo.Tolerance.absolute("2m"))
+        saved.edit_cell(1, "vdac", "1.25")
+        path = saved.report(tmp_path / "r.html")
+        bench = switched_bench()
+        original = bench.drive
+        upload = {"name": "r.html", "type": "text/html", "size": Path(path).stat().st_size,
+                  "content": memoryview(Path(path).read_bytes()), "last_modified": datetime.datetime.now()}
+        bench.export.upload.value = (upload,)  # as the browser's upload sets it
+        assert bench.drive == saved.drive and "loaded: <code>the uploaded file" in bench.export.load_message.value
+        assert bench.export.upload.value == ()
+        bench.undo()
+        assert bench.drive == original
+        bench.export.upload.value = (upload,)
+        assert bench.drive == saved.drive
+
+    def test_another_fixture_is_refused_naming_the_way_to_open_it(self, tmp_path):
+        path = rc_bench().save_analysis(tmp_path / "rc.json")
+        bench = switched_bench()
+        drive = bench.drive
+        bench.export.load_path.value = str(path)
+        bench.export.load_button.click()
+        assert "another fixture" in bench.export.load_message.value
+        assert "Bench.from_analysis" in bench.export.load_message.value and bench.drive is drive
+        again = Bench.from_analysis(fo.Analysis.load(path))
+        assert again.drive == rc_bench().drive
+
+    def test_a_missing_file_is_an_error_there(self, tmp_path):
+        bench = rc_bench()
+        bench.export.load_path.value = str(tmp_path / "none.json")
+        bench.export.load_button.click()
+        assert "none.json" in bench.export.load_message.value
 
 
 class TestInductorBench:

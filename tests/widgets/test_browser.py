@@ -190,7 +190,7 @@ def _write_notebook(lab, name: str, source: str) -> str:
 
 
 @contextlib.contextmanager
-def _notebook_page(lab, name: str, source: str):
+def _notebook_page(lab, name: str, source: str, viewport: tuple[int, int] = (1500, 1300), **context):
     """A one-cell notebook, run in JupyterLab in a fresh Chromium page: yields the page and
     its page errors; on failure a full-page screenshot goes to build/."""
     from playwright.sync_api import sync_playwright
@@ -198,7 +198,7 @@ def _notebook_page(lab, name: str, source: str):
     notebook = _write_notebook(lab, name, source)
     with sync_playwright() as playwright:
         browser = playwright.chromium.launch(executable_path=lab["chromium"], args=CHROMIUM_ARGS)
-        page = browser.new_page(viewport={"width": 1500, "height": 1300})
+        page = browser.new_page(viewport={"width": viewport[0], "height": viewport[1]}, **context)
         messages: list[str] = []
         page.on("pageerror", lambda error: messages.append(f"pageerror: {error}"))
         try:
@@ -422,3 +422,278 @@ class TestHostileNamesInBrowser:
                 assert not blocked, blocked[:5]
             finally:
                 browser.close()
+
+
+# -- the Bench as an engineer uses it: layout, clicks, zooms, undo, export -------------------------
+#: A switched fixture with a tolerance and a sample delay: every legend entry and mark drawn.
+_TOUR_CELL = """import firstorder as fo
+
+fx = fo.Fixture()
+fx.voltage_source("vdac", "drv", "gnd")
+fx.resistor("rs", "drv", "a", "1k")
+fx.switch("k1", "a", "b", r_on="0.2")
+fx.capacitor("ch", "b", "gnd", "100n")
+fx.resistor("rin", "b", "gnd", "10M")
+fx.probe("i_rs", through="rs")
+drive = fo.Drive([0, "1m", "2m", "3m"], end="5m", vdac=[0, 2.5, 2.5, -1.2], k1=[1, 1, 0, 1])
+bench = fo.Bench(fx, drive, tolerance=fo.Tolerance.lsb(bits=16, span=5.0), sample_delay="0.8m")
+bench.overlays["natural"].value = True
+bench
+"""
+
+#: 10,000 changes: drawn as min/max bands until zoomed in.
+_LONG_CELL = """import numpy as np
+import firstorder as fo
+
+rng = np.random.default_rng(3)
+times = np.arange(10_000) * 1e-4
+drive = fo.Drive(times, end=1.0, vin=rng.choice([0.0, 5.0], 10_000))
+bench = fo.Bench(fo.Fixture.rc(r="1k", c="10n"), drive)
+bench
+"""
+
+#: Every element of the Bench (shadow roots too) that reaches past the output area, but for
+#: what a scrolling box inside the Bench holds (the user scrolls to it): a part cut off by a
+#: box that hides its overflow counts, as it is as lost as one past the edge.
+_OUTSIDE = """() => {
+    const bench = document.querySelector('.fo-bench');
+    const area = bench.closest('.jp-OutputArea-output').getBoundingClientRect();
+    const out = [];
+    const visit = (root) => {
+        for (const el of root.querySelectorAll('*')) {
+            if (el.shadowRoot) visit(el.shadowRoot);
+            let r = el.getBoundingClientRect();
+            if (r.width < 1 || r.height < 1) continue;
+            const own = getComputedStyle(el).overflowX;
+            // A box inside the Bench that must be scrolled sideways to see all of it (a drive
+            // table with many columns may: its rows are data, not layout).
+            if ((own === 'auto' || own === 'scroll') && el.scrollWidth > el.clientWidth + 1
+                    && !el.classList.contains('slick-viewport')) {
+                out.push(`scrolls: ${el.tagName.toLowerCase()}.${[...el.classList].join('.')} ${el.scrollWidth} > ${el.clientWidth}`);
+            }
+            let left = r.left, right = r.right;
+            for (let a = el.parentNode || el.host; a && a !== bench; a = a.parentNode || a.host) {
+                if (!(a instanceof Element)) continue;
+                const style = getComputedStyle(a);
+                if (style.overflowX === 'auto' || style.overflowX === 'scroll') {
+                    const c = a.getBoundingClientRect();
+                    left = Math.max(left, c.left); right = Math.min(right, c.right);
+                }
+            }
+            if (right - left < 1) continue;
+            if (right > area.right + 1 || left < area.left - 1) {
+                out.push(`${el.tagName.toLowerCase()}.${[...el.classList].join('.')} ${left.toFixed(0)}..${right.toFixed(0)}`);
+            }
+        }
+    };
+    visit(bench);
+    return {area: {left: area.left, right: area.right, width: area.width}, outside: out.slice(0, 12),
+            count: out.length};
+}"""
+
+#: The plot toolbars and legends (BokehJS's own views), in page coordinates.
+_TOOLBARS_AND_LEGENDS = """() => {
+    const views = [...Bokeh.index.query((v) => true)];
+    const type = (v) => v.model.type || v.model.constructor.__name__;
+    const toolbars = views.filter((v) => type(v) === 'Toolbar' && v.el).map((v) => {
+        const r = v.el.getBoundingClientRect();
+        return {left: r.left, right: r.right, top: r.top, bottom: r.bottom,
+                buttons: v.el.shadowRoot ? v.el.shadowRoot.querySelectorAll('.bk-tool-icon').length : -1};
+    });
+    const legends = views.filter((v) => type(v) === 'Legend' && v.model.items.length).map((v) => {
+        const canvas = v.parent.canvas_view.el.getBoundingClientRect();
+        const b = v.bbox;
+        return {left: canvas.left + b.x0, right: canvas.left + b.x1, top: canvas.top + b.y0,
+                bottom: canvas.top + b.y1, canvas_right: canvas.right, canvas_bottom: canvas.bottom,
+                labels: v.model.items.filter((i) => i.visible).map((i) => i.label.value)};
+    });
+    return {toolbars, legends};
+}"""
+
+#: Buttons of the Bench whose label does not fit them (cut with an ellipsis).
+_CUT_LABELS = """() => [...document.querySelectorAll('.fo-bench button, .fo-bench .widget-label')]
+    .filter((b) => b.offsetParent !== null && b.scrollWidth > b.clientWidth + 1).map((b) => b.textContent.trim())"""
+
+
+def _open_file_browser(page) -> None:
+    """The left sidebar's file browser open, as a user has it."""
+    browser = page.locator("#filebrowser")
+    if not browser.is_visible():
+        page.locator(".jp-SideBar.jp-mod-left [data-id='filebrowser']").first.click()
+    browser.wait_for(state="visible", timeout=20_000)
+
+
+def _bench_ready(page) -> None:
+    page.locator(".fo-bench canvas").first.wait_for(timeout=RUN_SECONDS * 1000)
+    # BokehJS has drawn every plot: its views exist and the response has data.
+    page.wait_for_function("() => window.Bokeh && [...Bokeh.index.query((v) => (v.model.type || '') === 'Toolbar')]"
+                           ".length >= 2", timeout=60_000)
+
+
+def _response_canvas(page) -> dict:
+    """The response plot's frame (the tallest plot) in page coordinates."""
+    return page.evaluate("""() => {
+        const views = [...Bokeh.index.query((v) => v.model.title && v.model.title.text === 'Response')];
+        const view = views[0];
+        const c = view.canvas_view.el.getBoundingClientRect();
+        const f = view.frame.bbox;
+        return {x: c.left + f.x0, y: c.top + f.y0, width: f.width, height: f.height,
+                start: view.model.x_range.start, end: view.model.x_range.end};
+    }""")
+
+
+def _tab(page, title: str) -> None:
+    page.locator(".fo-bench .lm-TabBar-tab", has_text=title).first.click()
+
+
+class TestBenchAsUsed:
+    @pytest.mark.parametrize("width", [1400, 900])
+    def test_fits_the_output_area_with_the_file_browser_open(self, lab, width):
+        from playwright.sync_api import TimeoutError as PlaywrightTimeout
+
+        with _notebook_page(lab, f"layout_{width}.ipynb", _TOUR_CELL, viewport=(width, 1000)) as (page, messages):
+            _open_file_browser(page)
+            _bench_ready(page)
+            # The plots follow the width they are given: wait until they have settled on it
+            # (or time out, and say below what lies outside).
+            with contextlib.suppress(PlaywrightTimeout):
+                page.wait_for_function(f"() => ({_OUTSIDE})().count === 0", timeout=20_000)
+            page.screenshot(path=str(BUILD / f"bench-layout-{width}.png"))
+            page.locator(".fo-bench").screenshot(path=str(BUILD / f"bench-layout-{width}-whole.png"))
+            found = page.evaluate(_OUTSIDE)
+            assert found["count"] == 0, found
+            boxes = page.evaluate(_TOOLBARS_AND_LEGENDS)
+            area = found["area"]
+            assert len(boxes["toolbars"]) >= 2
+            for bar in boxes["toolbars"]:
+                assert area["left"] - 1 <= bar["left"] and bar["right"] <= area["right"] + 1, (bar, area)
+                assert bar["right"] - bar["left"] > 10 and bar["bottom"] - bar["top"] > 10, bar
+            labels = [label for legend in boxes["legends"] for label in legend["labels"]]
+            assert {"tolerance band", "sample instants", "vdac"} <= set(labels), labels
+            for legend in boxes["legends"]:
+                # The whole legend on its canvas, and the canvas in the output area: no label cut.
+                assert legend["right"] <= legend["canvas_right"] + 1 and legend["bottom"] <= legend["canvas_bottom"] + 1
+                assert legend["right"] <= area["right"] + 1, (legend, area)
+            assert page.evaluate(_CUT_LABELS) == []
+            for title in ("Generators", "Export"):
+                _tab(page, title)
+                page.wait_for_timeout(300)  # a tab switch is a class change: one frame
+                assert page.evaluate(_OUTSIDE)["count"] == 0, (title, page.evaluate(_OUTSIDE))
+                assert page.evaluate(_CUT_LABELS) == [], title
+                page.locator(".fo-bench").screenshot(path=str(BUILD / f"bench-layout-{width}-{title.lower()}.png"))
+            assert not messages, messages
+
+    def test_clicking_a_segment_shows_its_derivation(self, lab):
+        with _notebook_page(lab, "click_segment.ipynb", _TOUR_CELL, viewport=(1400, 1000)) as (page, messages):
+            _bench_ready(page)
+            _tab(page, "Derivation")
+            heading = page.locator(".fo-bench h4", has_text="Segment")
+            heading.first.wait_for(timeout=60_000)
+            assert heading.first.inner_text().startswith("Segment 0:")
+            page.locator(".fo-bench canvas").first.scroll_into_view_if_needed()
+            frame = _response_canvas(page)
+            # Segment 2 lasts from 2 ms to 3 ms of the 5 ms drive: click at 2.5 ms, by position
+            # (bokeh draws on layered canvases in a shadow DOM, there is no element to click).
+            x = frame["x"] + frame["width"] * (2.5e-3 - frame["start"]) / (frame["end"] - frame["start"])
+            page.mouse.click(x, frame["y"] + frame["height"] * 0.5)
+            page.locator(".fo-bench h4", has_text="Segment 2:").first.wait_for(timeout=30_000)
+            panel = page.locator(".fo-bench .widget-htmlmath").first.inner_text()
+            assert "k1 open" in panel, panel  # segment 2 holds: its own configuration's derivation
+            page.locator(".fo-bench").screenshot(path=str(BUILD / "bench-browser-clicked-segment.png"))
+            assert not messages, messages
+
+    def test_box_zoom_on_a_long_drive_draws_single_segments(self, lab):
+        with _notebook_page(lab, "zoom_long.ipynb", _LONG_CELL, viewport=(1400, 1000)) as (page, messages):
+            _bench_ready(page)
+            info = page.locator(".fo-bench .fo-info", has_text="plot: min/max per pixel")
+            info.first.wait_for(timeout=30_000)
+            page.locator(".fo-bench canvas").first.scroll_into_view_if_needed()
+            # The response plot's own box-zoom button, pressed as a user does.
+            button = page.evaluate("""() => {
+                const views = [...Bokeh.index.query((v) => true)];
+                const plot = views.find((v) => v.model.title && v.model.title.text === 'Response');
+                const bar = views.find((v) => v.model === plot.model.toolbar && v.el);
+                const el = [...bar.el.shadowRoot.querySelectorAll('[title]')]
+                    .find((b) => b.getAttribute('title').startsWith('Box Zoom'));
+                const r = el.getBoundingClientRect();
+                return {x: r.left + r.width / 2, y: r.top + r.height / 2};
+            }""")
+            page.mouse.click(button["x"], button["y"])
+            # Three box zooms, each to a fifth of the view: 8 ms of the 1 s drive, 80 of its
+            # 10,000 segments (one zoom that far would be a box a few pixels wide).
+            for zoom in range(3):
+                frame = _response_canvas(page)
+                y = frame["y"] + frame["height"] * 0.5
+                page.mouse.move(frame["x"] + frame["width"] * 0.4, y)
+                page.mouse.down()
+                page.mouse.move(frame["x"] + frame["width"] * 0.5, y, steps=5)
+                page.mouse.move(frame["x"] + frame["width"] * 0.6, y, steps=5)
+                page.mouse.up()
+                page.wait_for_function("(span) => { const v = [...Bokeh.index.query((v) => v.model.title && "
+                                       "v.model.title.text === 'Response')][0]; "
+                                       "return v.model.x_range.end - v.model.x_range.start < span * 0.5; }",
+                                       arg=frame["end"] - frame["start"], timeout=30_000)
+            page.locator(".fo-bench .fo-info", has_text="plot: every segment drawn").first.wait_for(timeout=30_000)
+            after = _response_canvas(page)
+            assert after["end"] - after["start"] < 0.01, after
+            page.locator(".fo-bench").screenshot(path=str(BUILD / "bench-browser-zoomed.png"))
+            assert not messages, messages
+
+    def test_undo_pressed_twice_goes_two_steps_back(self, lab):
+        with _notebook_page(lab, "undo_twice.ipynb", _TOUR_CELL, viewport=(1400, 1000)) as (page, messages):
+            _bench_ready(page)
+            field = page.locator(".fo-bench .fo-part-rs input")
+            status = page.locator(".fo-bench .fo-info")
+
+            def edit(text: str) -> str:
+                before = status.inner_text()
+                field.fill(text)
+                field.press("Enter")
+                page.wait_for_function("(old) => document.querySelector('.fo-bench .fo-info').innerText !== old",
+                                       arg=before, timeout=30_000)
+                return status.inner_text()
+
+            first = edit("2.2k")
+            edit("3.3k")
+            edit("4.7k")
+            undo = page.locator(".fo-bench button", has_text="Undo last edit")
+            for expected in ("3.3k", "2.2k"):
+                undo.click()
+                page.wait_for_function("(text) => document.querySelector('.fo-bench .fo-part-rs input').value === text",
+                                       arg=expected, timeout=30_000)
+            page.wait_for_function("(text) => document.querySelector('.fo-bench .fo-info').innerText === text",
+                                   arg=first, timeout=30_000)
+            assert field.input_value() == "2.2k"
+            assert not messages, messages
+
+    def test_export_hands_the_report_to_the_browser(self, lab):
+        import firstorder as fo
+
+        with _notebook_page(lab, "export_report.ipynb", _TOUR_CELL, viewport=(1400, 1000),
+                            accept_downloads=True) as (page, messages):
+            _bench_ready(page)
+            _tab(page, "Export")
+            title = page.locator(".fo-bench .fo-export-title input")
+            title.fill("Channel 3 hold capacitor")
+            title.press("Tab")
+            page.locator(".fo-bench button", has_text="Report (HTML)").click()
+            link = page.locator(".fo-bench a.fo-download")
+            link.wait_for(timeout=60_000)
+            written = page.locator(".fo-bench .fo-written").inner_text()
+            assert Path(written).is_absolute() and written.endswith("bench_report.html"), written
+            assert Path(written) == lab["root"] / "notebooks" / "bench_report.html"
+            page.locator(".fo-bench").screenshot(path=str(BUILD / "bench-browser-export.png"))
+            with page.expect_download(timeout=60_000) as download:
+                link.click()
+            saved = BUILD / "bench-browser-download.html"
+            download.value.save_as(saved)
+            assert download.value.suggested_filename == "bench_report.html"
+            assert saved.read_bytes() == Path(written).read_bytes()
+            analysis = fo.Analysis.load(saved)
+            assert analysis.title == "Channel 3 hold capacitor" and analysis.sample_delay == "0.8m"
+            # The downloaded report opens offline, titled as typed, its plots drawn.
+            page.goto(saved.as_uri())
+            page.locator("canvas").first.wait_for(timeout=60_000)
+            assert "Channel 3 hold capacitor" in page.title() + page.locator("h1").first.inner_text()
+            page.screenshot(path=str(BUILD / "bench-browser-downloaded-report.png"), full_page=True)
+            assert not messages, messages

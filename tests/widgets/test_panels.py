@@ -110,10 +110,34 @@ class TestCautionsPanel:
         fixture = fo.Fixture.rc(r="1k", c="10u")
         bench = Bench(fixture, fo.Drive.steps([(0, 0.0), ("1m", 100.0)], end="100m"))
         # 100 V is above the 60 V DC limit the cautions use (from memory of safety practice)
-        assert "Cautions" in bench.cautions_panel.value
+        assert "fo-cautions" in bench.cautions_panel.value
         assert "60 V" in bench.cautions_panel.value
         bench.edit_cell(1, "vin", "5")
         assert bench.cautions_panel.value == ""
+
+
+    def test_cautions_are_compact_and_the_reminder_is_said_once(self):
+        # 100 V on 10 µF: a voltage caution and (½CV² = 0.05 J, below 0.35 J) no energy one;
+        # 400 V on 10 µF: both (½CV² = 0.8 J), each ending with the same reminder.
+        bench = Bench(fo.Fixture.rc(r="1k", c="10u"), fo.Drive.steps([(0, 0.0), ("1m", 400.0)], end="200m"))
+        assert len(bench.response.cautions) == 2
+        text = bench.cautions_panel.value
+        assert text.count("These are reminders") == 1
+        assert text.count("<details") == 2  # the advice folded, one line per finding shown
+        assert all(str(c).split(". ")[0] in html.unescape(text) for c in bench.response.cautions)
+
+
+class TestCurveButtons:
+    def test_shown_and_hidden_curves_look_different_and_follow_a_click(self):
+        bench = rc_bench()
+        on, off = bench.overlays["total"], bench.overlays["natural"]
+        assert on.value and not off.value
+        assert (on.button_style, on.icon) != (off.button_style, off.icon)
+        assert on.button_style and not off.button_style
+        off.value = True
+        assert (off.button_style, off.icon) == (on.button_style, on.icon)
+        bench.session.curves = ("forced",)  # set elsewhere (a linked widget): the buttons follow
+        assert not bench.overlays["total"].button_style and bench.overlays["forced"].button_style
 
 
 class TestHostileNamesStayText:
@@ -246,3 +270,21 @@ class TestErrorViewTab:
         bench = Bench(fo.Fixture.rc(r="1k", c="1u"), fo.Drive([0, "1m"], end="3m", vin=[1.0, 0.0]))
         bench.tabs.selected_index = panels.TAB_TITLES.index("Error view")
         assert "Give a tolerance" in bench.error_view.children[0].value
+
+
+class TestPlainLabels:
+    def test_probes_read_in_plain_words_in_show_and_on_the_axis(self):
+        fixture = fo.Fixture()
+        fixture.voltage_source("vsup", "sup", "gnd")
+        fixture.inductor("coil", "sup", "mid", "200m")
+        fixture.resistor("rcoil", "mid", "drain", "400")
+        fixture.resistor("rdrv", "drain", "gnd", "10")
+        fixture.probe("v_coil", node="sup", reference="drain")
+        fixture.probe("v_drain", node="drain")
+        fixture.probe("i_r", through="rcoil")
+        bench = Bench(fixture, fo.Drive.steps([(0, 0.0), ("1m", 24.0)], end="5m", name="vsup"))
+        labels = [label for label, _ in bench.probe_selector.options]
+        assert labels == ["state: current through coil", "v_coil: voltage sup → drain", "v_drain: voltage at drain",
+                          "i_r: current through rcoil"]
+        bench.probe_selector.value = "v_coil"
+        assert bench.plots.response_figure.yaxis[0].axis_label == "v_coil: voltage sup → drain"

@@ -136,3 +136,18 @@ class TestTrace:
     def test_trace_must_have_fields(self):
         with pytest.raises(ValueError, match="times"):
             rc_bench(trace=SimpleNamespace(values=[1.0], name="x"))
+
+
+class TestLegend:
+    def test_marks_are_in_the_legend_only_while_drawn(self):
+        from benches import rc_bench
+        import firstorder as fo
+
+        bench = rc_bench()
+        items = {item.label.value: item.visible for item in bench.plots.legend.items}
+        assert not items["tolerance band"] and not items["sample instants"] and not items["settled"]
+        bench.setup_fields["tolerance"].value = "300m"  # 5 V e^-3 = 249 mV: both steps settle
+        bench.setup_fields["sample_delay"].value = "0.5m"
+        items = {item.label.value: item.visible for item in bench.plots.legend.items}
+        assert items["tolerance band"] and items["sample instants"] and items["settled"]
+        assert isinstance(bench.tolerance, fo.Tolerance)

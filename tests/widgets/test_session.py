@@ -93,30 +93,31 @@ class TestValidation:
 
 
 class TestGenerators:
-    """Pulse counts are read as the field shows them, and sized before anything is built."""
+    """Counts are read as the field shows them, and sized before anything is built."""
 
-    FIELDS = {"column": "vin", "period": "1m", "duty": "0.5", "high": "1", "low": "0"}
+    FIELDS = {"levels": "0, 1", "dwells": "1m"}
 
     @pytest.mark.parametrize("count", ["\u00b2", "\u0663", "0", "-3", "4.0", "1e3", ""])
     def test_a_count_that_is_no_whole_number_is_refused_beside_the_field(self, count):
         session = rc_session()
         drive = session.drive
-        assert not session.generate("pulses", dict(self.FIELDS, count=count))
-        assert "pulses.count" in session.errors["generator"] and "whole number" in session.errors["generator"]
+        assert not session.generate("pattern", "vin", dict(self.FIELDS, repeats=count), {})
+        assert "repeated pattern: repeats" in session.errors["generator"]
+        assert "whole number" in session.errors["generator"]
         assert session.drive is drive
 
     @pytest.mark.parametrize("count", ["2000000", "100000000", "9" * 400])
     def test_a_count_past_the_benchs_size_is_refused_before_any_work(self, count, monkeypatch):
         session = rc_session()
         called = []
-        monkeypatch.setattr(fo.Drive, "pulses", classmethod(lambda cls, **kwargs: called.append(kwargs)))
-        assert not session.generate("pulses", dict(self.FIELDS, count=count))
+        monkeypatch.setattr("firstorder.widgets._generators.Drive", lambda *args, **kwargs: called.append(kwargs))
+        assert not session.generate("pattern", "vin", dict(self.FIELDS, repeats=count), {})
         assert "at most 1,000,000" in session.errors["generator"] and not called
 
     def test_a_count_within_the_size_is_generated(self):
         session = rc_session()
-        assert session.generate("pulses", dict(self.FIELDS, count="3"))
-        assert len(session.drive) >= 6 and "generator" not in session.errors
+        assert session.generate("pattern", "vin", dict(self.FIELDS, repeats="3"), {})
+        assert len(session.drive) == 6 and "generator" not in session.errors
 
 
 class TestUndo:
