@@ -74,7 +74,8 @@ CASES = [
     (lambda: study(numerical_tolerance=0.01), "numerical_tolerance", "0.01"),
     (lambda: study(units="adaptive", numerical_tolerance="x", tolerance=HALF_LSB_16), "numerical_tolerance", "'x'"),
     (lambda: study(units="adaptive", numerical_tolerance=0.01, tolerance=HALF_LSB_16, batch=0), "batch", "0"),
-    (lambda: study(tolerance=HALF_LSB_16, sample_delay="9m"), "sample_delay", "9m"),
+    # One delay for every segment samples a shorter one at its end; one per segment must lie inside it.
+    (lambda: study(tolerance=HALF_LSB_16, sample_delay=["1m", "9m"]), "sample_delay", "9m"),
     (lambda: study(tolerance=HALF_LSB_16, probe="v_x"), "probe", "'v_x'"),
     (lambda: study(tolerance=HALF_LSB_16, target="x"), "target", "'x'"),
     (lambda: study().settling(HALF_LSB_16, fractions=(0.5, 2.0)), "fractions[1]", "2.0"),
