@@ -319,8 +319,11 @@ class Fixture:
 
         return derive(self, self.switch_states(**switch_states))
 
-    def study(self, drive: "Drive", spread: Any, *, units: Any, seed: Any, initial: Any = 0.0) -> "Study":
-        """A tolerance study: `units` units drawn from `spread` (seeded by `seed`) under `drive`.
+    def study(self, drive: "Drive", spread: Any, *, units: Any, seed: Any, initial: Any = 0.0,
+              **options: Any) -> "Study":
+        """A tolerance study: `units` units drawn from `spread` (seeded by `seed`) under `drive`;
+        `options` (``keep``, ``chunk``, ``progress``, ``tolerance``, ``numerical_tolerance``,
+        ...) as for :class:`~firstorder.studies.Study`.
 
         See Also
         --------
@@ -328,7 +331,7 @@ class Fixture:
         """
         from .studies import Study
 
-        return Study(self, drive, spread, units=units, seed=seed, initial=initial)
+        return Study(self, drive, spread, units=units, seed=seed, initial=initial, **options)
 
     def worst_case(self, drive: "Drive", spread: Any, tol: Any, sample_delay: Any = None, probe: str | None = None,
                    initial: Any = 0.0):

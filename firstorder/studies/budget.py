@@ -337,20 +337,9 @@ def numerical_tolerance(u: float, digits: int = DIGITS) -> float:
 
 def _monte_carlo(study: "Study", segment: int, output: str, tolerance: Any, sample_delay: Any,
                  probe: str | None) -> tuple[np.ndarray, str]:
-    """Every unit's output in `segment`, and its unit."""
-    if output == "tau":
-        rate = study._rate[:, segment]
-        return np.where(rate > 0, 1.0 / np.where(rate > 0, rate, 1.0), np.inf), "s"
-    if output == "final":
-        unit, _, _, final = study._watched(probe)
-        return np.array(final[:, segment]), unit
-    if output == "settle_time":
-        # The time each unit needs, even past the segment's end (as Study.delay_for): a
-        # settle time cut off at the end would leave no spread to budget.
-        lot = study.columns(tolerance, None, probe, within_segment=False)
-        return np.array(lot.settle_time[:, segment]), "s"
-    lot = study.columns(tolerance, sample_delay, probe)
-    return np.array(lot.error_at_sample[:, segment]), lot.unit
+    """Every unit's output in `segment`, and its unit (a settle time even past the segment's
+    end, as ``Study.delay_for``: one cut off at the end would leave no spread to budget)."""
+    return study.segment_values(segment, output, tolerance, sample_delay, probe)
 
 
 def _unit_output(study: "Study", lot: Lot, draw: Draw, segment: int, output: str, tolerance: Any,

@@ -1,15 +1,18 @@
-"""Tolerance studies: every unit of a lot at once, and the per-segment answers for the lot.
+"""Tolerance studies: the units of a lot a chunk at a time, and the per-segment answers.
 
-A :class:`Study` draws units of a fixture from a spread (:class:`~.lot.Lot`), reduces
-each unit's network, and runs the engine over (units, segments) at once: the decay
-factors, the scan for the state at every change, and the settling columns.  Each unit's
-row is bit for bit what that unit alone gives (:meth:`Study.unit` builds it by hand), as
-the engine's operations work element by element and its scan blocks by the number of
-segments only.
+A :class:`Study` draws units of a fixture from a spread (:class:`~.lot.Lot`) and runs
+them through the engine a chunk of units at a time (:class:`~.run.UnitsRun`: every unit's
+network reduced in one batched solve, the decay factors, the scan and the settling
+columns over (units, segments) at once).  Each unit's row is bit for bit what that unit
+alone gives (:meth:`Study.unit` builds it by hand), so no number depends on the chunks.
 
-Fractions of units are exact order statistics of the drawn units: the settle time "met
-by 99.9 % of units" is the ``ceil(0.999 * units)``-th smallest, never an interpolation.
-A unit whose segment ends before it settles counts as not meeting any time there.
+A study holds one chunk's (units, segments) arrays at a time, unless it is asked to keep
+them (``keep=True``) or has only one chunk; each question then runs the chunks again and
+merges their small summaries (:mod:`.summary`).  Fractions of units are exact order
+statistics of the drawn units: the settle time "met by 99.9 % of units" is the
+``ceil(0.999 * units)``-th smallest, never an interpolation; a summary keeps per segment
+the few largest (or smallest) values that rank needs.  A unit whose segment ends before
+it settles counts as not meeting any time there.
 """
 
 from __future__ import annotations
@@ -23,12 +26,13 @@ import numpy as np
 from .. import engine
 from ..drive import MEMORY_BUDGET
 from ..errors import InputError
-from ..response import COMPONENTS, read_initial
-from ..segments import Segments
-from ..settling.table import check_tolerance, check_unit, sample_delays, watched
-from ..units import format_value, parse_array, parse_value, shown
+from ..response import COMPONENTS
+from ..settling.table import check_tolerance, check_unit, watched
+from ..units import parse_array, parse_value, shown
 from .lot import Lot
+from .run import LotSettling, Request, UnitsRun, read_delays
 from .spread import Spread
+from .summary import Ranked, SettlingSummary, merge_all, sides
 
 if TYPE_CHECKING:
     from ..drive import Drive
@@ -36,11 +40,18 @@ if TYPE_CHECKING:
     from ..response import Response
     from ..settling.tolerance import Tolerance
 
-__all__ = ["LotSettling", "Passing", "Study", "order_statistic", "order_statistics", "rank"]
+__all__ = ["CHUNK_ELEMENTS", "LotSettling", "Passing", "Study", "order_statistic", "order_statistics", "rank"]
 
 #: Bytes a study holds per unit and segment (rates, factors, finals, the scan, a probe's
-#: values and the settling columns), for the memory check before anything is drawn.
+#: values and the settling columns), for the memory check of a kept study.
 BYTES_PER_UNIT_SEGMENT = 12 * 8
+
+#: Unit-segments per chunk when a study does not keep its units (about 400 MB of arrays at
+#: most, at BYTES_PER_UNIT_SEGMENT); a size of the drive, never of threads or workers.
+CHUNK_ELEMENTS = 2 ** 22
+
+#: A study of at least this many unit-segments over several chunks shows a progress bar.
+PROGRESS_ELEMENTS = 2 ** 24
 
 
 def rank(fraction: float, count: int) -> int:
@@ -109,31 +120,6 @@ class Passing:
                 f"{self.confidence:.0%} interval {self.low:.4%} to {self.high:.4%} (Clopper-Pearson)")
 
 
-@dataclass(frozen=True)
-class LotSettling:
-    """Per unit and segment: the settling columns of a study (each row is one unit's table).
-
-    Attributes
-    ----------
-    settle_time, error_at_sample, limit : ndarray, shape (units, n)
-        NaN settle time where the segment ends first.
-    ok : ndarray of bool, shape (units, n)
-        ``error_at_sample <= limit``.
-    sample_time : ndarray, shape (n,)
-        The sampling instants (each segment's end when no sample delay is given).
-    unit, label : str
-        The watched quantity's unit and name.
-    """
-
-    settle_time: np.ndarray
-    error_at_sample: np.ndarray
-    limit: np.ndarray
-    ok: np.ndarray
-    sample_time: np.ndarray
-    unit: str
-    label: str
-
-
 class Study:
     """A lot of units of `fixture` under `drive`, drawn from `spread`; see the module docstring.
 
@@ -144,13 +130,33 @@ class Study:
     fixture : Fixture
     drive : Drive
     spread : Spread
-    units : int
-        How many units to draw (1 or more).
+    units : int or "adaptive"
+        How many units to draw (1 or more), or ``"adaptive"``: batches of `batch` units
+        until every figure is within `numerical_tolerance` (JCGM 101, 7.9; see
+        :mod:`.adaptive`), which needs `tolerance`.
     seed : int
         Unit k's values depend only on (seed, k).
     initial : float, str
         The starting state of every unit, ``"settled"`` (each unit settled to its own first
         final value) or ``"periodic"`` (each unit's own periodic start).
+    keep : bool
+        Keep every unit's (units, segments) arrays (faster repeated questions, memory
+        proportional to units x segments); by default a study holds one chunk of
+        :data:`CHUNK_ELEMENTS` unit-segments at a time and runs the chunks again for each
+        question.  The numbers are the same either way, bit for bit.
+    chunk : int, optional
+        Units per chunk (default: as many as fit :data:`CHUNK_ELEMENTS`); it changes memory
+        and speed, never a number.
+    progress : bool
+        Show a progress bar (tqdm) while a long study runs its chunks; False silences it.
+    tolerance, sample_delay, probe, target, fractions
+        The figures the study is about: what its notebook display shows, and what
+        ``units="adaptive"`` holds within `numerical_tolerance` (as for :meth:`settling`).
+    numerical_tolerance : float or str
+        With ``units="adaptive"``: the relative numerical tolerance of each figure
+        (``0.01`` or ``"1%"``).
+    batch : int
+        With ``units="adaptive"``: units per batch (JCGM 101 7.9.4 takes 10^4).
 
     Examples
     --------
@@ -168,39 +174,53 @@ class Study:
     """
 
     def __init__(self, fixture: "Fixture", drive: "Drive", spread: Spread, *, units: Any, seed: Any,
-                 initial: Any = 0.0) -> None:
+                 initial: Any = 0.0, keep: Any = False, chunk: Any = None, progress: Any = True,
+                 tolerance: Any = None, sample_delay: Any = None, probe: str | None = None, target: Any = "final",
+                 fractions: Any = (0.5, 0.99, 0.999), numerical_tolerance: Any = None, batch: Any = 10_000) -> None:
         from ..drive import Drive
 
         if not isinstance(drive, Drive):
             raise InputError(f"drive: {shown(drive)} is not a firstorder Drive")
-        count = _count(units, len(drive))
-        self.fixture = fixture
-        self.drive = drive
-        self.spread = spread
-        self.units = count
-        self.seed = seed
+        for name, flag in (("keep", keep), ("progress", progress)):
+            if not isinstance(flag, (bool, np.bool_)):
+                raise InputError(f"{name}: {shown(flag)} is not allowed; give True or False")
+        adaptive = isinstance(units, str) and units == "adaptive"
+        if numerical_tolerance is not None and not adaptive:
+            raise InputError(f"numerical_tolerance: {shown(numerical_tolerance)} is given, but units is "
+                             f"{shown(units)}; a numerical tolerance goes with units='adaptive'")
+        self.fixture, self.drive, self.spread, self.seed = fixture, drive, spread, seed
+        self.keep, self.progress = bool(keep), bool(progress)
         self.nominal: "Response" = fixture.respond(drive, initial)
         self._initial = initial
         self._lot = Lot(fixture, spread, seed)
-        self._draw = self._lot.draw(0, count)
-        # Every unit's network at once, each unit bit for bit its own (Segments.of_lot).
-        self._segments = Segments.of_lot(fixture, drive, *self._lot.unit_values(drive, self._draw))
-        # Everything below runs over (units, segments) at once.
-        self._rate = self._segments.rate
-        self._holds = self._rate == 0.0
-        source_final = self._segments.final
-        durations = np.broadcast_to(drive.durations, self._rate.shape)
-        self._decay, self._growth = engine.decay_factors(durations.ravel(), self._rate.ravel())
-        self._decay = self._decay.reshape(self._rate.shape)
-        self._growth = self._growth.reshape(self._rate.shape)
-        self._source_final = source_final
-        self._start = self._starts(initial, source_final)
-        self._boundary = engine.relaxation_scan(self._decay, self._growth, source_final, self._start)
-        self._final = np.where(self._holds, self._boundary[:, :-1], source_final)
-        self._probes: dict[str, tuple[np.ndarray, np.ndarray, str]] = {}
-        self._tau: np.ndarray | None = None
-        self._durations: np.ndarray | None = None
-        self._scans: dict[str, tuple[np.ndarray, np.ndarray]] = {"total": (self._boundary[:, :-1], self._final)}
+        self._figures = None
+        if tolerance is not None:
+            self._figures = (tolerance, sample_delay, probe, target, _fractions(fractions))
+            self._read(tolerance, sample_delay, probe, target)  # checked now, not at the first display
+        self._chunk_units = _chunk(chunk)
+        self._runs: dict[tuple[int, int], UnitsRun] = {}
+        self._cache = False
+        self._shown: dict[str, Any] = {}
+        self.adaptive = None
+        if adaptive:
+            from .adaptive import run_adaptive
+
+            if tolerance is None:
+                raise InputError("tolerance: units='adaptive' needs the tolerance of the figures it holds within "
+                                 "numerical_tolerance, such as fo.Tolerance.lsb(16, 5.0)")
+            self.units = 0  # while the batches run
+            self.adaptive = run_adaptive(self, numerical_tolerance, batch)
+            self.units = self.adaptive.units
+        else:
+            self.units = _count(units, len(drive), self.keep)
+        chunks = self._chunks()
+        for first, size in chunks:
+            self._lot.unit_values(drive, self._lot.draw(first, size))  # refuses a bad unit now, naming it
+        # Held: every unit when kept, else the one chunk of a study that has only one.
+        self._cache = self.keep or len(chunks) == 1
+        if self._cache:
+            for first, size in chunks:
+                self._run(first, size)
 
     # -- the units --------------------------------------------------------------------------
     @property
@@ -209,9 +229,10 @@ class Study:
         (SI units; a gain as a fraction) and the temperature (°C) when the spread has a range."""
         import pandas as pd
 
-        columns = {key: self._draw.values[:, j] for j, key in enumerate(self._lot.keys)}
-        if self._draw.temperature is not None:
-            columns["temperature"] = self._draw.temperature
+        draws = [self._lot.draw(first, size) for first, size in self._chunks()]
+        columns = {key: np.concatenate([d.values[:, j] for d in draws]) for j, key in enumerate(self._lot.keys)}
+        if self.spread.temperature is not None:
+            columns["temperature"] = np.concatenate([d.temperature for d in draws])
         return pd.DataFrame(columns, index=pd.RangeIndex(self.units, name="unit"))
 
     def unit(self, k: Any) -> "Response":
@@ -219,19 +240,21 @@ class Study:
         sources' gain and offset, and ``respond``."""
         if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or not 0 <= k < self.units:
             raise InputError(f"unit: {shown(k)} is not a unit of this study; units are 0 to {self.units - 1}")
-        fixture = self._lot.unit_fixture(self._draw, int(k))
-        return fixture.respond(self._lot.unit_drive(self.drive, self._draw, int(k)), self._initial)
+        draw = self._lot.draw(int(k), 1)
+        return self._lot.unit_fixture(draw, 0).respond(self._lot.unit_drive(self.drive, draw, 0), self._initial)
 
     @property
     def boundary(self) -> np.ndarray:
-        """(units, n + 1): every unit's state at every change and at the end."""
-        return self._boundary
+        """(units, n + 1): every unit's state at every change and at the end (every unit's
+        row at once, whether kept or not)."""
+        return np.concatenate([run.boundary for run in self._each_run()])
 
     # -- settling ---------------------------------------------------------------------------
     def columns(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
                 target: Any = "final", within_segment: bool = True) -> LotSettling:
         """Every unit's settling columns (its settling table's ``settle_time``,
-        ``error_at_sample``, ``tolerance`` and ``ok``), as (units, n) arrays.
+        ``error_at_sample``, ``tolerance`` and ``ok``), as (units, n) arrays (every unit at
+        once, whether kept or not; the other questions hold a chunk at a time).
 
         `target` is what the error is taken from: ``"final"`` (each unit's own final value:
         settling alone; each row then equals that unit's settling table), ``"nominal"``
@@ -243,37 +266,153 @@ class Study:
         may run past its segment's end (the time the unit would need were the segment to
         hold on), rather than NaN there.
         """
-        check_tolerance(tolerance)
-        unit, label, start, final = self._watched(probe)
-        check_unit(tolerance, unit, label)
-        value, relative = tolerance._scale()
-        shape = self._rate.shape
-        if sample_delay is None:
-            delays, sample_time = self.drive.durations, self.drive.ends
-        else:
-            delays = sample_delays(sample_delay, self.drive.durations, field="sample_delay", what="segment",
-                                   ends=self.drive.ends)
-            sample_time = self.drive.times + delays
-        if isinstance(target, str) and target == "final":
-            # The table's `ends - times` is each segment's duration, exactly (Drive.durations
-            # is that difference), so a zero start and the durations give the same columns.
-            size = shape[0] * shape[1]
-            times = np.broadcast_to(0.0, (size,))
-            ends = self._flat_durations() if within_segment else np.broadcast_to(np.inf, (size,))
-            limit, settle, _, residual = engine.settling_columns(
-                start.ravel(), final.ravel(), self._flat_tau(), self._decay.ravel(), times, ends, value, relative)
-            limit = np.broadcast_to(limit, (shape[0] * shape[1],)).reshape(shape)
-            if sample_delay is None:
-                error = residual.reshape(shape)
+        delays, aim = self._read(tolerance, sample_delay, probe, target)
+        parts = [run.columns(tolerance, delays, probe, aim, within_segment) for run in self._each_run()]
+        first = parts[0]
+        return LotSettling(*(np.concatenate([getattr(p, name) for p in parts])
+                             for name in ("settle_time", "error_at_sample", "limit", "ok")),
+                           first.sample_time, first.unit, first.label)
+
+    def summary(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
+                target: Any = "final", fractions: Any = (0.5, 0.99, 0.999), within_segment: bool = True,
+                units: int | None = None, first: int = 0) -> SettlingSummary:
+        """The merged :class:`~.summary.SettlingSummary` of units ``first .. first + units - 1``
+        (default: every unit from `first`), keeping per segment what the `fractions` and the
+        largest need (a chunk of units at a time)."""
+        count = self.units - first if units is None else units
+        delays, aim = self._read(tolerance, sample_delay, probe, target)
+        ranks = [rank(f, count) for f in _fractions(fractions)] + [count - 1]
+        keep = sides(ranks, count)
+        need = 2 * sum(keep) * len(self.drive) * 8 * 3  # both columns; a merge holds three summaries
+        if need > MEMORY_BUDGET:
+            raise InputError(f"fractions: {shown(fractions)} of {count:,} units keep {sum(keep):,} values per "
+                             f"segment, about {need / 2**30:.1f} GiB; the budget is {MEMORY_BUDGET / 2**30:.0f} GiB: "
+                             f"ask fractions nearer 0 or 1, or study fewer units")
+        request = Request(tolerance, delays, probe, aim, within_segment, keep, keep)
+        return merge_all(run.summary(request) for run in self._each_run(first, count))
+
+    def settling(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
+                 target: Any = "final", fractions: Any = (0.5, 0.99, 0.999), units: int | None = None,
+                 first: int = 0):
+        """Per segment, for the lot: the nominal settle time, the settle time met by each
+        fraction of units and the longest, the error at the sample at each fraction and the
+        largest, the fraction of units inside tolerance at the sample (``yield``) and the
+        worst unit (the largest error relative to its limit; of equals, the lowest unit).
+        A pandas DataFrame.
+
+        The sample is at `sample_delay` after each change, or at each segment's end;
+        `target` as in :meth:`columns`.  `first` and `units` take a range of the units.
+        """
+        import pandas as pd
+
+        chosen = _fractions(fractions)
+        merged = self.summary(tolerance, sample_delay, probe, target, chosen, units=units, first=first)
+        count = merged.count
+        nominal = self.nominal.settling(tolerance, sample_delay=sample_delay, probe=probe)
+        delays = read_delays(sample_delay, self.drive)
+        data: dict[str, Any] = {"start": self.drive.times,
+                                "sample_time": self.drive.ends if delays is None else self.drive.times + delays,
+                                "nominal_settle_time": nominal["settle_time"].to_numpy()}
+        for fraction in chosen:
+            data[f"settle_time_{_percent(fraction)}"] = _never_as_nan(merged.settle.at(rank(fraction, count)))
+        data["settle_time_max"] = _never_as_nan(merged.settle.at(count - 1))
+        for fraction in chosen:
+            data[f"error_{_percent(fraction)}"] = merged.error.at(rank(fraction, count))
+        data["error_max"] = merged.error.at(count - 1)
+        data["yield"] = merged.inside / count
+        data["worst_unit"] = merged.worst.unit
+        table = pd.DataFrame(data, index=pd.RangeIndex(len(self.drive), name="segment"))
+        unit = self.nominal.state_unit if probe is None else self.nominal.segments.probe(probe).unit
+        table.attrs.update(tolerance=str(tolerance), unit=unit, watched=_label(self.nominal, probe), units=count,
+                           target=target, seed=self.seed, spread=str(self.spread), passing=merged.passing)
+        return table
+
+    def passing(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
+                target: Any = "final", confidence: Any = 0.95) -> Passing:
+        """The fraction of units whose every sample is inside tolerance, with its
+        Clopper-Pearson interval at `confidence`."""
+        level = _fraction(confidence, "confidence", open_top=True)
+        passing = self.summary(tolerance, sample_delay, probe, target, (1.0,)).passing
+        low, high = clopper_pearson(passing, self.units, level)
+        return Passing(passing / self.units, low, high, passing, self.units, level)
+
+    def delay_for(self, tolerance: "Tolerance", fraction: Any = 0.999, probe: str | None = None,
+                  target: Any = "final") -> np.ndarray:
+        """Per segment, the sample delay that `fraction` of units needs after the change:
+        the exact order statistic of each unit's own settle time, which may run past the
+        segment's end (the dwell must then grow; each unit starts from where this drive
+        leaves it), NaN where that many units never settle (a final value outside the limit
+        of the target, or a held state outside it)."""
+        chosen = _fraction(fraction, "fraction")
+        merged = self.summary(tolerance, None, probe, target, (chosen,), within_segment=False)
+        return _never_as_nan(merged.settle.at(rank(chosen, self.units)))
+
+    def segment_values(self, segment: int, quantity: str, tolerance: Any = None, sample_delay: Any = None,
+                       probe: str | None = None) -> tuple[np.ndarray, str]:
+        """Every unit's `quantity` in one `segment` (``"tau"``, ``"final"``, ``"settle_time"``
+        (past the segment's end too) or ``"error_at_sample"``), and its unit; a chunk at a time."""
+        parts, unit = [], "s"
+        if quantity in ("settle_time", "error_at_sample"):
+            delays, aim = self._read(tolerance, sample_delay if quantity == "error_at_sample" else None, probe, "final")
+        for run in self._each_run():
+            if quantity == "tau":
+                parts.append(run.tau()[:, segment])
+            elif quantity == "final":
+                unit, _, _, final = run.watched(probe)
+                parts.append(np.array(final[:, segment]))
             else:
-                # As the settling table forms it: the step times the decay to the sample.
-                error = np.abs(final - start) * engine.exp_in_place(-delays * self._rate)
-            settle = settle.reshape(shape)
-        else:
-            aim = self._target(target, probe, unit)
-            durations = self.drive.durations if within_segment else np.full(shape[1], np.inf)
-            limit, settle, error = _against_target(start, final, aim, self._rate, durations, delays, value, relative)
-        return LotSettling(settle, error, limit, error <= limit, sample_time, unit, label)
+                lot = run.columns(tolerance, delays, probe, aim, within_segment=quantity == "error_at_sample")
+                column = lot.settle_time if quantity == "settle_time" else lot.error_at_sample
+                parts.append(np.array(column[:, segment]))
+                unit = "s" if quantity == "settle_time" else lot.unit
+        return np.concatenate(parts), unit
+
+    # -- curves -----------------------------------------------------------------------------
+    def evaluate(self, t: Any, component: str = "total", probe: str | None = None) -> np.ndarray:
+        """(units, len(t)): every unit's `component` (of the state, or of `probe`) at times
+        `t`, each row what ``study.unit(k).evaluate(t, (component,), probe)`` gives."""
+        times, flat, segment = self._times(t, component, self.units)
+        values = np.concatenate([run.evaluate(segment, flat, component, probe) for run in self._each_run()])
+        return values.reshape((self.units,) + times.shape)
+
+    def envelope(self, t: Any, fraction: Any = 0.998, component: str = "total",
+                 probe: str | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """``(low, high)`` at times `t`: the band holding the central `fraction` of units
+        (at least that many units lie within it at every time; each edge an exact order
+        statistic of the units), a chunk of units at a time."""
+        chosen = _fraction(fraction, "fraction")
+        times, flat, segment = self._times(t, component, self._chunk_size())
+        tail = math.floor((1.0 - chosen) / 2.0 * self.units + 1e-9 * self.units)
+        low, high = sides([tail, self.units - 1 - tail], self.units)
+        merged = merge_all(Ranked.of(run.evaluate(segment, flat, component, probe), low, high)
+                           for run in self._each_run())
+        return merged.at(tail).reshape(times.shape), merged.at(self.units - 1 - tail).reshape(times.shape)
+
+    # -- display ----------------------------------------------------------------------------
+    def __repr__(self) -> str:
+        return (f"<Study: {self.units} units, seed {self.seed}, {len(self.drive)} segments; "
+                f"spread {self.spread}>")
+
+    def _repr_html_(self) -> str:
+        from .display import study_html
+
+        return study_html(self)
+
+    def _repr_markdown_(self) -> str:
+        from .display import study_markdown
+
+        return study_markdown(self)
+
+    # -- inside -----------------------------------------------------------------------------
+    def _read(self, tolerance: Any, sample_delay: Any, probe: str | None, target: Any):
+        """The sample delays (None: at each end) and the target (None: each unit's own final)
+        of a question, checked once for the whole study."""
+        check_tolerance(tolerance)
+        unit = self.nominal.state_unit if probe is None else self.nominal.segments.probe(probe).unit
+        check_unit(tolerance, unit, _label(self.nominal, probe))
+        delays = read_delays(sample_delay, self.drive)
+        aim = None if isinstance(target, str) and target == "final" else self._target(target, probe, unit)
+        return delays, aim
 
     def _target(self, target: Any, probe: str | None, unit: str) -> np.ndarray:
         """The target of every segment, (n,), from what `target` names."""
@@ -302,189 +441,55 @@ class Study:
                              f"or one per segment")
         return values
 
-    def settling(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
-                 target: Any = "final", fractions: Any = (0.5, 0.99, 0.999)):
-        """Per segment, for the lot: the nominal settle time, the settle time met by each
-        fraction of units and the longest, the error at the sample at each fraction and the
-        largest, the fraction of units inside tolerance at the sample (``yield``) and the
-        worst unit (the largest error relative to its limit).  A pandas DataFrame.
-
-        The sample is at `sample_delay` after each change, or at each segment's end;
-        `target` as in :meth:`columns`.
-        """
-        import pandas as pd
-
-        chosen = _fractions(fractions)
-        lot = self.columns(tolerance, sample_delay, probe, target)
-        nominal = self.nominal.settling(tolerance, sample_delay=sample_delay, probe=probe)
-        settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
-        data: dict[str, Any] = {"start": self.drive.times, "sample_time": lot.sample_time,
-                                "nominal_settle_time": nominal["settle_time"].to_numpy()}
-        at, largest = order_statistics(settle, chosen)
-        for fraction, values in zip(chosen, at):
-            data[f"settle_time_{_percent(fraction)}"] = _never_as_nan(values)
-        data["settle_time_max"] = _never_as_nan(largest)
-        at, largest = order_statistics(lot.error_at_sample, chosen)
-        for fraction, values in zip(chosen, at):
-            data[f"error_{_percent(fraction)}"] = values
-        data["error_max"] = largest
-        data["yield"] = lot.ok.mean(axis=0)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(lot.limit > 0, lot.error_at_sample / lot.limit, np.inf)
-        data["worst_unit"] = np.argmax(ratio, axis=0)
-        table = pd.DataFrame(data, index=pd.RangeIndex(len(self.drive), name="segment"))
-        table.attrs.update(tolerance=str(tolerance), unit=lot.unit, watched=lot.label, units=self.units, target=target,
-                           seed=self.seed, spread=str(self.spread))
-        return table
-
-    def passing(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
-                target: Any = "final", confidence: Any = 0.95) -> Passing:
-        """The fraction of units whose every sample is inside tolerance, with its
-        Clopper-Pearson interval at `confidence`."""
-        level = _fraction(confidence, "confidence", open_top=True)
-        lot = self.columns(tolerance, sample_delay, probe, target)
-        passing = int(lot.ok.all(axis=1).sum())
-        low, high = clopper_pearson(passing, self.units, level)
-        return Passing(passing / self.units, low, high, passing, self.units, level)
-
-    def delay_for(self, tolerance: "Tolerance", fraction: Any = 0.999, probe: str | None = None,
-                  target: Any = "final") -> np.ndarray:
-        """Per segment, the sample delay that `fraction` of units needs after the change:
-        the exact order statistic of each unit's own settle time, which may run past the
-        segment's end (the dwell must then grow; each unit starts from where this drive
-        leaves it), NaN where that many units never settle (a final value outside the limit
-        of the target, or a held state outside it)."""
-        chosen = _fraction(fraction, "fraction")
-        lot = self.columns(tolerance, None, probe, target, within_segment=False)
-        settle = np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time)
-        return _never_as_nan(order_statistic(settle, chosen))
-
-    # -- curves -----------------------------------------------------------------------------
-    def evaluate(self, t: Any, component: str = "total", probe: str | None = None) -> np.ndarray:
-        """(units, len(t)): every unit's `component` (of the state, or of `probe`) at times
-        `t`, each row what ``study.unit(k).evaluate(t, (component,), probe)`` gives."""
+    def _times(self, t: Any, component: str, units: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         if component not in COMPONENTS:
             raise InputError(f"component: {shown(component)} is not one of {list(COMPONENTS)}")
         times = self.nominal.read_times(t)
         flat = times.reshape(-1)
-        need = self.units * flat.size * 4 * 8
+        need = units * flat.size * 4 * 8
         if need > MEMORY_BUDGET:
-            raise InputError(f"t: {flat.size:,} times for {self.units:,} units would need about "
+            raise InputError(f"t: {flat.size:,} times for {units:,} units would need about "
                              f"{need / 2**30:.1f} GiB; the budget is {MEMORY_BUDGET / 2**30:.0f} GiB")
         segment = engine.SegmentLocator(flat, self.drive.times, self.nominal.segments.rate, within=True).segment
-        decay = self.drive.times[segment] - flat
-        decay = decay * self._rate[:, segment]  # (s - t) * r, the exponents of every path
-        engine.exp_in_place(decay, nonpositive=True)
-        key = "total" if component in ("forced", "natural") else component
-        start, final = self._component_scan(key)
-        forced = final[:, segment]
-        if component == "forced":
-            values = forced.copy()
-        else:
-            values = (start - final)[:, segment]
-            values *= decay
-            values += forced
-            if component == "natural":
-                values -= forced
-        if probe is not None:
-            gain, offset, _ = self._probe_rows(probe)
-            values *= gain[:, segment]
-            if component in ("total", "zero_state", "forced"):
-                values += offset[:, segment]
-        return values.reshape((self.units,) + times.shape)
+        return times, flat, segment
 
-    def envelope(self, t: Any, fraction: Any = 0.998, component: str = "total",
-                 probe: str | None = None) -> tuple[np.ndarray, np.ndarray]:
-        """``(low, high)`` at times `t`: the band holding the central `fraction` of units
-        (at least that many units lie within it at every time; each edge an exact order
-        statistic of the units)."""
-        chosen = _fraction(fraction, "fraction")
-        values = self.evaluate(t, component, probe)
-        flat = values.reshape(self.units, -1)
-        tail = math.floor((1.0 - chosen) / 2.0 * self.units + 1e-9 * self.units)
-        by_time = np.ascontiguousarray(flat.T)
-        by_time.partition(sorted({tail, self.units - 1 - tail}), axis=1)
-        shape = values.shape[1:]
-        return by_time[:, tail].reshape(shape), by_time[:, self.units - 1 - tail].reshape(shape)
+    def _chunk_size(self) -> int:
+        if self.keep and self.units:
+            return self.units
+        return self._chunk_units or max(1, CHUNK_ELEMENTS // max(len(self.drive), 1))
 
-    # -- display ----------------------------------------------------------------------------
-    def __repr__(self) -> str:
-        return (f"<Study: {self.units} units, seed {self.seed}, {len(self.drive)} segments; "
-                f"spread {self.spread}>")
+    def _chunks(self, first: int = 0, count: int | None = None) -> list[tuple[int, int]]:
+        """``(first, size)`` of every chunk of units ``first .. first + count - 1``; chunks
+        start at multiples of the chunk size, so held runs of the whole study are reused."""
+        count = self.units - first if count is None else count
+        size, stop = self._chunk_size(), first + count
+        return [(max(a, first), min(a + size, stop) - max(a, first)) for a in range(first - first % size, stop, size)]
 
-    def _repr_html_(self) -> str:
-        from html import escape
+    def _run(self, first: int, size: int) -> UnitsRun:
+        """The run of units ``first .. first + size - 1`` (held when the study holds its runs)."""
+        run = self._runs.get((first, size))
+        if run is None:
+            run = UnitsRun(self._lot, self.drive, self._lot.draw(first, size), self._initial, self.nominal)
+            if self._cache:
+                self._runs[(first, size)] = run
+        return run
 
-        rows = [("units", str(self.units)), ("seed", str(self.seed)), ("spread", str(self.spread)),
-                ("segments", str(len(self.drive))),
-                ("nominal time constant", format_value(float(np.min(self.nominal.tau)), "s"))]
-        body = "".join(f"<tr><th style='text-align:left'>{escape(k)}</th><td>{escape(v)}</td></tr>" for k, v in rows)
-        return f"<table><caption>Tolerance study</caption>{body}</table>"
+    def _each_run(self, first: int = 0, count: int | None = None):
+        """Every chunk's run in turn, with a progress bar on a long study."""
+        chunks = self._chunks(first, count)
+        bar = None
+        if self.progress and len(chunks) > 1 and sum(n for _, n in chunks) * len(self.drive) >= PROGRESS_ELEMENTS:
+            from tqdm.auto import tqdm
 
-    # -- inside -----------------------------------------------------------------------------
-    def _starts(self, initial: Any, source_final: np.ndarray) -> np.ndarray:
-        """Every unit's starting state, read as :meth:`Response` reads it, one per unit."""
-        start = read_initial(initial, self.nominal.state_unit)
-        if start == "settled":
-            if (self._rate[:, 0] == 0.0).any():
-                raise InputError("initial: 'settled' needs a first segment that settles, but segment 0 holds its "
-                                 "state (no resistive path); give the starting state as a number")
-            return source_final[:, 0].copy()
-        if start == "periodic":
-            # Each unit's own periodic start, from its own response (the one reading of it).
-            return np.array([self.unit(u).initial for u in range(self.units)])
-        return np.full(self.units, float(start))
-
-    def _watched(self, probe: str | None) -> tuple[str, str, np.ndarray, np.ndarray]:
-        """The watched quantity of every unit: unit, label, start and final (units, n)."""
-        state_start = self._boundary[:, :-1]
-        if probe is None:
-            segments = self.nominal.segments
-            return (segments.state_unit, f"the state of {segments.storage_kind} '{segments.storage_name}'",
-                    state_start, self._final)
-        gain, offset, unit = self._probe_rows(probe)
-        start = gain * state_start + offset
-        # A probe is c*x + offset within a segment: it moves by c times the state's step.
-        final = start + gain * (self._final - state_start)
-        return unit, f"probe '{probe}'", start, final
-
-
-    def _flat_tau(self) -> np.ndarray:
-        """Every unit's tau of every segment, flat (as Segments.tau forms it), made once."""
-        if self._tau is None:
-            rate = self._rate.ravel()
-            self._tau = np.where(rate > 0, 1.0 / np.where(rate > 0, rate, 1.0), np.inf)
-        return self._tau
-
-    def _flat_durations(self) -> np.ndarray:
-        """Every segment's duration for every unit, flat, made once."""
-        if self._durations is None:
-            self._durations = np.tile(self.drive.durations, self.units)
-        return self._durations
-
-    def _probe_rows(self, probe: str) -> tuple[np.ndarray, np.ndarray, str]:
-        """(units, n) each: the probe's state coefficient and its offset from the sources,
-        and its unit (the probe is ``gain * x + offset`` within a segment)."""
-        if probe not in self._probes:
-            the_probe = self.nominal.segments.probe(probe)  # an InputError naming the probes
-            rows = self._segments.probe_rows(probe)  # (units, n, 1 + m)
-            levels = self._segments.unit_levels
-            # Each unit's offset as Response forms it (one einsum per unit, the same sums).
-            offsets = np.stack([np.einsum("ij,ij->i", rows[u, :, 1:], levels[u]) for u in range(self.units)])
-            self._probes[probe] = (rows[:, :, 0], offsets, the_probe.unit)
-        return self._probes[probe]
-
-    def _component_scan(self, key: str) -> tuple[np.ndarray, np.ndarray]:
-        """(units, n) each: the state component `key` just after each change, and the value
-        it heads for in each segment (its held value where the segment holds)."""
-        if key not in self._scans:
-            if key == "zero_input":  # from the start, every source at zero
-                target, start = np.zeros_like(self._source_final), self._start
-            else:  # zero_state: from rest, the sources as scheduled
-                target, start = self._source_final, np.zeros(self.units)
-            boundary = engine.relaxation_scan(self._decay, self._growth, target, start)
-            self._scans[key] = (boundary[:, :-1], np.where(self._holds, boundary[:, :-1], target))
-        return self._scans[key]
+            bar = tqdm(total=len(chunks), desc="study chunks", unit="chunk", leave=False)
+        try:
+            for a, n in chunks:
+                yield self._run(a, n)
+                if bar is not None:
+                    bar.update(1)
+        finally:
+            if bar is not None:
+                bar.close()
 
     # -- budget -----------------------------------------------------------------------------
     def budget(self, segment: Any, quantity: Any = "settle_time", tolerance: Any = None, sample_delay: Any = None,
@@ -502,27 +507,11 @@ class Study:
         return budget(self, segment, quantity, tolerance, sample_delay, probe, interval)
 
 
-def _against_target(start: np.ndarray, final: np.ndarray, aim: np.ndarray, rate: np.ndarray, durations: np.ndarray,
-                    delays: np.ndarray, value: float, relative: bool) -> tuple[np.ndarray, ...]:
-    """``(limit, settle_time, error_at_sample)`` of the error from `aim` (one per segment).
-
-    Within a segment the value is ``final + s x`` with ``s = start - final`` and ``x =
-    exp(-t / tau)`` falling from 1 to 0, so it moves monotonically and the times it lies
-    within ``aim +- limit`` form one interval: a unit settles only if its final value is
-    inside (``|d| <= limit`` with ``d = final - aim``), and then from 0 if its start is
-    inside too, else from where it crosses the band's edge on its side, ``x = (limit -
-    sign(s) d) / |s|``, at ``t = tau ln(|s| / (limit - sign(s) d))``.
-    """
-    d = final - aim
-    s = start - final
-    limit = value * np.abs(aim - start) if relative else np.full(start.shape, value)
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        crossing = np.log(np.abs(s) / (limit - np.sign(s) * d)) / rate
-    inside_at_start = np.abs(start - aim) <= limit
-    settle = np.where(inside_at_start, 0.0, crossing)
-    settle = np.where((np.abs(d) <= limit) & (settle <= durations), settle, np.nan)
-    error = np.abs(d + s * engine.exp_in_place(-delays * rate))
-    return limit, settle, error
+def _label(nominal: "Response", probe: str | None) -> str:
+    if probe is None:
+        segments = nominal.segments
+        return f"the state of {segments.storage_kind} '{segments.storage_name}'"
+    return f"probe '{probe}'"
 
 
 def clopper_pearson(passing: int, units: int, confidence: float) -> tuple[float, float]:
@@ -542,15 +531,25 @@ def clopper_pearson(passing: int, units: int, confidence: float) -> tuple[float,
     return low, high
 
 
-def _count(units: Any, segments: int) -> int:
+def _count(units: Any, segments: int, keep: bool) -> int:
     if isinstance(units, bool) or not isinstance(units, (int, np.integer)) or units < 1:
-        raise InputError(f"units: {shown(units)} is not allowed; give a whole number of units >= 1")
+        raise InputError(f"units: {shown(units)} is not allowed; give a whole number of units >= 1, or 'adaptive'")
     need = int(units) * segments * BYTES_PER_UNIT_SEGMENT
-    if need > MEMORY_BUDGET:
+    if keep and need > MEMORY_BUDGET:
         raise InputError(
-            f"units: {int(units):,} units of {segments:,} segments would need about {need / 2**30:.1f} GiB; the "
-            f"budget is {MEMORY_BUDGET / 2**30:.0f} GiB: study fewer units or a shorter drive")
+            f"units: {int(units):,} units of {segments:,} segments kept (keep=True) would need about "
+            f"{need / 2**30:.1f} GiB; the budget is {MEMORY_BUDGET / 2**30:.0f} GiB: leave keep=False (a chunk at a "
+            f"time), or study fewer units or a shorter drive")
     return int(units)
+
+
+def _chunk(chunk: Any) -> int | None:
+    if chunk is None:
+        return None
+    if isinstance(chunk, bool) or not isinstance(chunk, (int, np.integer)) or chunk < 1:
+        raise InputError(f"chunk: {shown(chunk)} is not allowed; give a whole number of units per chunk >= 1, "
+                         f"or leave it out")
+    return int(chunk)
 
 
 def _fraction(value: Any, field: str, open_top: bool = False) -> float:

@@ -7,8 +7,9 @@ bounded at ±3 standard deviations (:data:`NORMAL_SPAN`; the table's ``attrs`` s
 The search, per segment and for each of the two results:
 
 1. every corner of the box (at most 2**16), in batches of :data:`BATCH` units run through
-   the engine at once, each built as a unit of a study is (``Lot.unit_fixture``,
-   ``Lot.unit_drive``, ``Segments.of_drive``);
+   the engine at once as the units of a study are (:class:`~.run.UnitsRun`: every
+   corner's network in one batched solve, ``Segments.of_lot``; each bit for bit the unit
+   built by hand with ``Lot.unit_fixture`` and ``Lot.unit_drive``);
 2. from the worst corner, each quantity on its own across the box at :data:`LINE` points:
    where the result is not monotonic along it, its influence is not monotonic;
 3. over those quantities only (the others stay at the corner), a bounded local search
@@ -27,14 +28,13 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .. import engine
 from ..errors import InputError
 from ..response import read_initial
-from ..segments import Segments
 from ..settling.table import check_tolerance, check_unit, sample_delays
 from ..units import shown
 from .budget import unit_draw
-from .lot import Lot
+from .lot import Draw, Lot
+from .run import UnitsRun
 from .spread import Normal, Spread, _number
 
 if TYPE_CHECKING:
@@ -93,7 +93,7 @@ class _Runner:
             unit, label = self.nominal.segments.probe(probe).unit, f"probe '{probe}'"
         check_unit(tolerance, unit, label)
         self.unit, self.label = unit, label
-        self.scale = tolerance._scale()
+        self.tolerance = tolerance
         self.delays = None if sample_delay is None else sample_delays(
             sample_delay, drive.durations, field="sample_delay", what="segment", ends=drive.ends)
 
@@ -104,48 +104,15 @@ class _Runner:
         return tuple(np.concatenate(parts) for parts in zip(*out))  # type: ignore[return-value]
 
     def _batch(self, points: np.ndarray):
-        drive, lot = self.drive, self.lot
-        draws = [unit_draw(lot, p) for p in points]
-        segments = [Segments.of_drive(lot.unit_fixture(d, 0), lot.unit_drive(drive, d, 0)) for d in draws]
-        rate = np.stack([np.asarray(s.rate) for s in segments])
-        holds = rate == 0.0
-        source_final = np.stack([np.asarray(s.final) for s in segments])
-        shape = rate.shape
-        decay, growth = engine.decay_factors(np.broadcast_to(drive.durations, shape).ravel(), rate.ravel())
-        decay, growth = decay.reshape(shape), growth.reshape(shape)
-        if self.initial == "settled":
-            start = source_final[:, 0].copy()
-        elif self.initial == "periodic":
-            start = np.array([lot.unit_fixture(d, 0).respond(lot.unit_drive(drive, d, 0), "periodic").initial
-                              for d in draws])
-        else:
-            start = np.full(len(points), float(self.initial))
-        boundary = engine.relaxation_scan(decay, growth, source_final, start)
-        state_start = boundary[:, :-1]
-        final = np.where(holds, state_start, source_final)
-        if self.probe is not None:
-            gains, offsets = [], []
-            for s in segments:
-                rows = s.probe_rows(self.probe)
-                gains.append(rows[:, 0])
-                offsets.append(np.einsum("ij,ij->i", rows[:, 1:], s.levels))
-            gain, offset = np.stack(gains), np.stack(offsets)
-            watched_start = gain * state_start + offset
-            final = watched_start + gain * (final - state_start)
-            state_start = watched_start
-        value, relative = self.scale
-        tau = np.where(rate > 0, 1.0 / np.where(rate > 0, rate, 1.0), np.inf)
-        times = np.broadcast_to(drive.times, shape).ravel()
-        ends = np.broadcast_to(drive.ends, shape).ravel()
-        limit, settle, _, residual = engine.settling_columns(
-            state_start.ravel(), final.ravel(), tau.ravel(), decay.ravel(), times, ends, value, relative)
-        limit = np.array(np.broadcast_to(limit, (shape[0] * shape[1],)).reshape(shape))
-        if self.delays is None:
-            error = residual.reshape(shape)
-        else:
-            error = np.abs(final - state_start) * engine.exp_in_place(-self.delays * rate)
-        settle = settle.reshape(shape)
-        return np.where(np.isnan(settle), np.inf, settle), np.array(error), limit
+        """Every point as a unit of one batched run (Segments.of_lot, each unit bit for bit its
+        own hand-built response)."""
+        draws = [unit_draw(self.lot, p) for p in points]
+        temperature = None if draws[0].temperature is None else np.concatenate([d.temperature for d in draws])
+        draw = Draw(0, np.concatenate([d.values for d in draws]), temperature)
+        run = UnitsRun(self.lot, self.drive, draw, self.raw_initial, self.nominal)
+        lot = run.columns(self.tolerance, self.delays, self.probe, None)
+        return np.where(np.isnan(lot.settle_time), np.inf, lot.settle_time), np.array(lot.error_at_sample), \
+            np.array(lot.limit)
 
 
 def worst_case(fixture: "Fixture", drive: "Drive", spread: Spread, tolerance: Any, sample_delay: Any = None,

@@ -179,3 +179,30 @@ class TestTheBox:
         spread = Spread({f"r{k}": "1%" for k in range(17)})
         with pytest.raises(InputError, match=r"spread: 17 varied quantities make 2\^17 corners"):
             fx.worst_case(fo.Drive([0], end="20m", vin=[1.0]), spread, HALF_LSB_16)
+
+
+@pytest.mark.parametrize("probe, initial", [(None, 0.25), ("v_b", "periodic")])
+def test_every_corner_of_the_batch_is_its_unit_built_by_hand(probe, initial):
+    """The corners run as one batched lot (Segments.of_lot); each must be, bit for bit, the
+    unit built by hand (its fixture and drive, respond, settling)."""
+    from builders import general_drive, general_fixture
+    from firstorder.studies.budget import unit_draw
+    from firstorder.studies.lot import Lot
+    from firstorder.studies.worst import _Runner, box
+
+    fx, drive = general_fixture(), general_drive()
+    spread = Spread({"rs": "1%", "ch": Normal("3%", within="9%"), "k1.r_on": Uniform("50m", "300m"),
+                     "vdac.gain": "0.05%"}, temperature=(0, 50), tempco={"ch": "-750ppm"})
+    lot = Lot(fx, spread, 0)
+    keys, lows, highs, _ = box(lot)
+    bits = (np.arange(2 ** len(keys))[:, None] >> np.arange(len(keys))[None, :]) & 1
+    corners = np.where(bits == 1, highs, lows)
+    tolerance, delays = fo.Tolerance.absolute("1m"), 0.6 * drive.durations
+    settle, error, limit = _Runner(fx, drive, lot, tolerance, delays, probe, initial).run(corners)
+    for k, corner in enumerate(corners):
+        draw = unit_draw(lot, corner)
+        table = lot.unit_fixture(draw, 0).respond(lot.unit_drive(drive, draw, 0), initial).settling(
+            tolerance, sample_delay=delays, probe=probe)
+        assert np.array_equal(settle[k], np.where(np.isnan(table["settle_time"]), np.inf, table["settle_time"])), k
+        assert np.array_equal(error[k], table["error_at_sample"].to_numpy()), k
+        assert np.array_equal(limit[k], table["tolerance"].to_numpy()), k
