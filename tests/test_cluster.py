@@ -166,3 +166,62 @@ class TestBadClient:
         fixture, drive, spread, _, _ = CASES["rc"]
         with pytest.raises(InputError, match=r"^client: .* is not a dask\.distributed\.Client; give Client\(\)"):
             fixture.study(drive, spread, units=10, seed=1, client=client)
+
+
+@pytest.fixture(scope="module")
+def scheduler(tmp_path_factory):
+    """A scheduler and a worker started with dask's own commands on 127.0.0.1, stopped at the end."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    folder = tmp_path_factory.mktemp("dask")
+    info = folder / "scheduler.json"
+    root = str(Path(__file__).resolve().parents[1])
+    environment = dict(os.environ, PYTHONPATH=root)
+    dask = [sys.executable, "-m", "distributed.cli.dask_scheduler"]
+    processes = [subprocess.Popen([*dask, "--host", "127.0.0.1", "--port", "0", "--no-dashboard",
+                                   "--scheduler-file", str(info)], env=environment, cwd=folder,
+                                  stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)]
+    try:
+        deadline = time.monotonic() + 60
+        while not info.exists() and time.monotonic() < deadline:
+            time.sleep(0.1)
+        address = json.loads(info.read_text())["address"]
+        processes.append(subprocess.Popen(
+            [sys.executable, "-m", "distributed.cli.dask_worker", address, "--nworkers", "1", "--nthreads", "1",
+             "--no-dashboard", "--host", "127.0.0.1"], env=environment, cwd=folder,
+            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL))
+        with distributed.Client(address, timeout="30s") as probe:
+            probe.wait_for_workers(1, timeout=60)
+        yield address
+    finally:
+        for process in reversed(processes):
+            process.terminate()
+        for process in processes:
+            process.wait(timeout=30)
+
+
+class TestCommandLine:
+    """``firstorder study --scheduler`` against a scheduler and a worker started with dask's own
+    commands (as the README shows), on 127.0.0.1, stopped at the end."""
+
+    def test_the_same_json_as_in_process(self, scheduler, tmp_path, capsys):
+        from firstorder import cli
+
+        fixture, drive, spread, tolerance, delay = CASES["relay"]
+        path = fo.Analysis(fixture, drive, initial=0.25, tolerance=tolerance, spread=spread, units=1500,
+                           seed=4).save(tmp_path / "lot.json")
+        assert cli.main(["study", str(path), "--format", "json"]) == 0
+        here = capsys.readouterr().out
+        assert cli.main(["study", str(path), "--format", "json", "--scheduler", scheduler]) == 0
+        assert capsys.readouterr().out == here
+
+    def test_an_unreachable_scheduler_is_one_line(self, tmp_path, capsys):
+        from firstorder import cli
+
+        path = fo.Analysis(*CASES["rc"][:2], tolerance=CASES["rc"][3], spread=CASES["rc"][2]).save(tmp_path / "a.json")
+        assert cli.main(["study", str(path), "--scheduler", "tcp://127.0.0.1:9"]) == 2
+        error = capsys.readouterr().err
+        assert error.startswith("firstorder study: cannot reach a scheduler at 'tcp://127.0.0.1:9'") and \
+            error.count("\n") == 1
