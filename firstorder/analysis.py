@@ -235,8 +235,9 @@ class Analysis:
         """``{"spread", "units", "seed", "fractions"}`` of the study, or None."""
         return None if self._study is None else dict(self._study)
 
-    def study(self, client: Any = None) -> "Study":
-        """The tolerance study the analysis describes (its spread, units and seed).
+    def study(self, **options: Any) -> "Study":
+        """The tolerance study the analysis describes (its spread, units and seed); `options`
+        (``client``, ``progress``, ``keep``, ...) as for :class:`~firstorder.studies.Study`.
 
         Examples
         --------
@@ -249,7 +250,6 @@ class Analysis:
         if self._study is None:
             raise InputError("spread: this analysis has no spread; give Analysis(..., spread=...) for a study")
         settings = self._study
-        options = {} if client is None else {"client": client}
         return self._fixture.study(self._drive, settings["spread"], units=settings["units"], seed=settings["seed"],
                                    initial=self._initial, **options)
 

@@ -5,7 +5,7 @@
     firstorder report A.json -o R.html
     firstorder settle A.json [--format table|csv|json]
     firstorder derive A.json [--format markdown|latex]
-    firstorder study A.json [--units N] [--seed S] [--format table|csv|json] [--require F]
+    firstorder study A.json [--units N] [--seed S] [--scheduler ADDRESS] [--format table|csv|json] [--require F]
     firstorder demo [-o DIR]
 
 Every command reads an analysis file (or a report, which carries its analysis).
@@ -105,6 +105,9 @@ def _build_parser() -> argparse.ArgumentParser:
                        help="units to draw (default: the file's, else 1000)")
     study.add_argument("--seed", type=_whole_number("--seed", 0), default=None, metavar="S",
                        help="seed of the draws (default: the file's, else 1)")
+    study.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                       help="run the chunks on the dask.distributed cluster whose scheduler is at ADDRESS "
+                            "(tcp://host:8786); default: in this process")
     study.add_argument("--format", choices=("table", "csv", "json"), default="table",
                        help="table (for reading, the default), csv or json (for other programs)")
     study.add_argument("--require", type=_fraction_argument, default=None, metavar="F",
@@ -239,7 +242,33 @@ def _study(arguments: argparse.Namespace) -> int:
     if changes:
         analysis = analysis.replace(**changes)
     settings = analysis.study_settings
-    study = analysis.study()
+    client = _client(arguments.scheduler)
+    try:
+        # Progress on stderr, which is where tqdm writes (stdout keeps only the table).
+        study = analysis.study(client=client, progress=sys.stderr.isatty())
+        return _print_study(arguments, analysis, settings, study)
+    finally:
+        if client is not None:
+            client.close()
+
+
+def _client(address: str | None):
+    """A client of the scheduler at `address`, or None to run in this process."""
+    if address is None:
+        return None
+    try:
+        from distributed import Client
+    except ImportError:
+        raise _UsageError(f"{_PROGRAM} study: --scheduler needs dask.distributed; "
+                          f"pip install 'firstorder[cluster]'") from None
+    try:
+        return Client(address, timeout="10s")
+    except (OSError, TimeoutError, ValueError) as error:
+        raise _UsageError(f"{_PROGRAM} study: cannot reach a scheduler at {address!r} ({_one_line(str(error))})") \
+            from None
+
+
+def _print_study(arguments: argparse.Namespace, analysis, settings: dict, study) -> int:
     tolerance, delay = analysis.tolerance, analysis.sample_delay
     table = study.settling(tolerance, sample_delay=delay, fractions=settings["fractions"])
     passing = study.passing(tolerance, sample_delay=delay)

@@ -51,6 +51,7 @@ LAYERS = [
     "traces.trace", "traces.statistics", "traces.result", "traces.fitting", "traces",
     "io.analysis_format", "io.schema", "io",
     "analysis",
+    "cluster",
     "plotting.palette", "plotting.format", "plotting.sampling", "plotting.error_view", "plotting",
     "report.tables", "report.mathml", "report.markdown", "report.figure", "report.html", "report",
     "widgets._loader", "widgets._drive_table", "widgets._generators", "widgets._files", "widgets._plot", "widgets._session", "widgets._panels",
@@ -72,6 +73,8 @@ SHORTCUTS = {
     ("analysis", "Analysis.to_html"): {"report.html"},
     ("analysis", "Analysis.markdown"): {"report.markdown"},
     ("analysis", "Analysis._repr_html_"): {"report.tables"},
+    ("studies.study", "Study.__init__"): {"cluster"},
+    ("studies.study", "Study.summary"): {"cluster"},
     ("", "__getattr__"): {"widgets"},
 }
 

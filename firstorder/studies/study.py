@@ -163,7 +163,8 @@ class Study:
     def __init__(self, fixture: "Fixture", drive: "Drive", spread: Spread, *, units: Any, seed: Any,
                  initial: Any = 0.0, keep: Any = False, chunk: Any = None, progress: Any = True,
                  tolerance: Any = None, sample_delay: Any = None, probe: str | None = None, target: Any = "final",
-                 fractions: Any = (0.5, 0.99, 0.999), numerical_tolerance: Any = None, batch: Any = 10_000) -> None:
+                 fractions: Any = (0.5, 0.99, 0.999), numerical_tolerance: Any = None, batch: Any = 10_000,
+                 client: Any = None) -> None:
         from ..drive import Drive
 
         if not isinstance(drive, Drive):
@@ -176,6 +177,11 @@ class Study:
             raise InputError(f"numerical_tolerance: {shown(numerical_tolerance)} is given, but units is "
                              f"{shown(units)}; a numerical tolerance goes with units='adaptive'")
         self.fixture, self.drive, self.spread, self.seed = fixture, drive, spread, seed
+        self._client = None
+        if client is not None:
+            from ..cluster import check_client
+
+            self._client = check_client(client)
         self.keep, self.progress = bool(keep), bool(progress)
         self.nominal: "Response" = fixture.respond(drive, initial)
         self._initial = initial
@@ -275,7 +281,17 @@ class Study:
                              f"segment, about {need / 2**30:.1f} GiB; the budget is {MEMORY_BUDGET / 2**30:.0f} GiB: "
                              f"ask fractions nearer 0 or 1, or study fewer units")
         request = Request(tolerance, delays, probe, aim, within_segment, keep, keep)
+        if self._client is not None and not self._cache:
+            # Each chunk a task on the cluster; only its summary comes back.
+            from ..cluster import summary_on
+
+            return summary_on(self._client, self, request, self._chunks(first, count), self.progress)
         return merge_all(run.summary(request) for run in self._each_run(first, count))
+
+    @property
+    def initial(self) -> Any:
+        """The starting state of every unit, as given."""
+        return self._initial
 
     def settling(self, tolerance: "Tolerance", sample_delay: Any = None, probe: str | None = None,
                  target: Any = "final", fractions: Any = (0.5, 0.99, 0.999), units: int | None = None,
