@@ -24,7 +24,7 @@ from .. import engine
 from ..errors import InputError
 from ..response import read_initial
 from ..segments import Segments
-from ..settling.table import check_tolerance, check_unit, sample_delays
+from ..settling.table import check_tolerance, check_unit, hold_segments, sample_delays
 from .lot import Draw, Lot
 from .summary import Ranked, SettlingSummary, Worst
 
@@ -112,6 +112,7 @@ class UnitsRun:
         self.final = np.where(self.holds, self.boundary[:, :-1], self.source_final)
         self._probes: dict[str, tuple[np.ndarray, np.ndarray, str]] = {}
         self._tau: np.ndarray | None = None
+        self._holds: np.ndarray | None = None
         self._durations: np.ndarray | None = None
         self._scans: dict[str, tuple[np.ndarray, np.ndarray]] = {"total": (self.boundary[:, :-1], self.final)}
 
@@ -150,12 +151,36 @@ class UnitsRun:
                 np.abs(error, out=error)
                 error *= engine.exp_in_place(np.multiply(-delays, self.rate))
             settle = settle.reshape(shape)
+            hold = self.holds_judged_as_droop()
+            if hold.any():
+                limit, settle, error = self._droop(hold, start, final, limit, settle, error, delays, value, relative)
         else:
             durations = drive.durations if within_segment else np.full(shape[1], np.inf)
             step_delays = drive.durations if delays is None else delays
             limit, settle, error = against_target(start, final, aim, self.rate, durations, step_delays, value,
                                                   relative)
         return LotSettling(settle, error, limit, error <= limit, sample_time, unit, label)
+
+    def holds_judged_as_droop(self) -> np.ndarray:
+        """(n,): the segments in which the capacitor holds, cut off from every source
+        (:func:`~firstorder.settling.table.hold_segments`, structural: the same for every unit)."""
+        if self._holds is None:
+            self._holds = hold_segments(self.nominal)
+        return self._holds
+
+    def _droop(self, hold, start, final, limit, settle, error, delays, value, relative):
+        """The settling table's rule for holds, on every unit at once: droop from the held
+        value, ``|start - final| (1 - e^(-d/tau))``, against the limit (relative: of the
+        held value); the same operations as the table, so each row is its unit's table."""
+        step = np.abs(start - final)
+        droop_end = step * -np.expm1(-self.drive.durations * self.rate)
+        if relative:
+            limit = np.where(hold, value * np.abs(start), limit)
+        within = droop_end <= limit
+        # A hold that stays inside is settled at once; one that droops out never settles.
+        settle = np.where(hold, np.where(within, 0.0, np.nan), settle)
+        droop = droop_end if delays is None else step * -np.expm1(-delays * self.rate)
+        return limit, settle, np.where(hold, droop, error)
 
     def summary(self, request: Request) -> SettlingSummary:
         """This run's :class:`SettlingSummary` for `request`."""

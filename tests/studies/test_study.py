@@ -57,6 +57,28 @@ class TestEveryUnitIsItsOwnResponse:
             assert np.array_equal(lot.error_at_sample[k], table["error_at_sample"].to_numpy()), k
             assert np.array_equal(lot.ok[k], table["ok"].to_numpy()), k
 
+    @pytest.mark.parametrize("tolerance", [fo.Tolerance.absolute("1m"), fo.Tolerance.relative(1e-3)])
+    @pytest.mark.parametrize("delay", [None, "150u"])
+    def test_holds_are_judged_as_droop_as_each_units_table_judges_them(self, tolerance, delay):
+        # The demo's last segment opens the relay: the capacitor holds, drooping into the
+        # meter. Each unit's row is its own settling table's, hold rule included.
+        from firstorder.cli import demo_analysis
+
+        demo = demo_analysis()
+        study = demo.fixture.study(demo.drive, demo.spread, units=60, seed=3, initial=demo.initial)
+        lot = study.columns(tolerance, sample_delay=delay)
+        for k in range(0, 60, 7):
+            table = study.unit(k).settling(tolerance, sample_delay=delay)
+            assert table["hold"].tolist() == [False] * 4 + [True]
+            error = table["error_at_sample"] if delay is not None else table["residual_at_end"]
+            assert np.array_equal(lot.error_at_sample[k], error.to_numpy()), k
+            assert np.array_equal(lot.settle_time[k], table["settle_time"].to_numpy(), equal_nan=True), k
+            assert np.array_equal(lot.limit[k], np.broadcast_to(table["tolerance"].to_numpy(), (5,))), k
+        settling = study.settling(tolerance, sample_delay=delay)
+        # A held -2 V drooping through the meter (10 MΩ ± 1 %, 10 nF ± 10 % and its tempco) for at
+        # most 600 µs: below 2.1 V (1 - e^(-600 µs / tau_min)) (handbook exponential decay).
+        assert 0 < settling["error_max"].iloc[-1] < 2.1 * -math.expm1(-600e-6 / (0.99 * 10e6 * 0.9 * 10e-9 * 0.95))
+
     def test_the_drawn_values_are_the_units_values(self, study):
         values = study.values
         assert list(values.columns) == ["rs", "ch", "k1.r_on", "rm", "vdac.gain", "vdac.offset", "ibias.gain",
