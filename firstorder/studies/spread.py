@@ -357,7 +357,7 @@ class Spread:
     def __str__(self) -> str:
         entries = [f"{key} {band}" for key, band in self._bands.items()]
         if self._temperature is not None:
-            entries.append(f"temperature {self._temperature[0]:g} .. {self._temperature[1]:g}")
+            entries.append(f"temperature {_exact(self._temperature[0])} .. {_exact(self._temperature[1])}")
         entries += [f"tempco {key} {text}" for key, text in self._tempco_text.items()]
         return "; ".join(entries)
 
@@ -443,6 +443,12 @@ class Spread:
             raise InputError(f"spread tempco: {unknown} do not vary; give each a band too (a tempco applies to "
                              f"a varied quantity)")
         return tuple(resolved)
+
+
+def _exact(number: float) -> str:
+    """The shortest text that reads back as exactly `number` ("0", "47.25", "-12.3456789")."""
+    text = repr(float(number))
+    return text[:-2] if text.endswith(".0") else text
 
 
 def band_from_text(text: str, key: str) -> Uniform | Normal | _Symmetric:

@@ -32,6 +32,11 @@ class TestText:
                                "vdac.offset ±1m; temperature 0 .. 50; tempco r_filter 25ppm; tempco c_filter -750ppm")
         assert Spread.from_text(str(spread)) == spread
 
+    @pytest.mark.parametrize("low, high", [(-12.3456789, 47.25), (1e-9, 0.1 + 0.2), (-273.15, 1e5 / 3)])
+    def test_a_temperature_range_reads_back_exactly(self, low, high):
+        spread = Spread({"r_filter": "1%"}, temperature=(low, high))
+        assert Spread.from_text(str(spread)).temperature == (low, high)
+
     def test_lines_and_truncated_normals(self):
         spread = Spread.from_text("c_hold -20% .. +80%\nr normal 2m within 6m\n\ntemperature -10 .. 60 °C")
         assert spread.band("c_hold") == Uniform("-20%", "+80%")
