@@ -3,11 +3,10 @@ round trip, version 1 files still load, and malformed study fields are refused b
 
 from __future__ import annotations
 
-import copy
 import json
 
 import pytest
-from builders import general_analysis, write_json
+from builders import general_analysis, with_value_at, write_json
 
 import firstorder as fo
 from firstorder.analysis import Analysis
@@ -22,13 +21,7 @@ def study_data() -> dict:
     return json.loads(general_analysis(spread=SPREAD, units=200, seed=9, fractions=(0.5, 0.999)).to_json())
 
 
-def _set(data: dict, path: list, value) -> dict:
-    data = copy.deepcopy(data)
-    target = data
-    for step in path[:-1]:
-        target = target[step]
-    target[path[-1]] = value
-    return data
+_set = with_value_at
 
 
 class TestRoundTrip:
