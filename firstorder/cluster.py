@@ -23,8 +23,10 @@ version as the client.
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import json
+import sys
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
@@ -135,7 +137,10 @@ def summary_on(client: Any, study: "Study", request: "Request", chunks: list[tup
     futures = [client.submit(chunk_task, text, first, count, question, pure=False,
                              key=f"firstorder-chunk-{first}-{count}-{id(request)}") for first, count in chunks]
     if progress and len(futures) > 1:
-        dask_progress(futures, notebook=None)  # dask's own bar (a widget in a notebook, text elsewhere)
+        # dask's own bar: a widget in a notebook; elsewhere a text bar that waits for the
+        # tasks, sent to stderr as tqdm's is (stdout keeps only the results).
+        with contextlib.redirect_stdout(sys.stderr):
+            dask_progress(futures, notebook=None)
     merged = None
     for future in as_completed(futures):
         summary = future.result()

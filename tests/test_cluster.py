@@ -160,6 +160,18 @@ class TestWorkers:
                                                                    request)
 
 
+class TestProgress:
+    def test_the_text_bar_goes_to_stderr_and_the_numbers_are_the_same(self, client, capsys):
+        fixture, drive, spread, tolerance, _ = CASES["rc"]
+        quiet = fixture.study(drive, spread, units=500, seed=7, chunk=100, progress=False, client=client)
+        shown = fixture.study(drive, spread, units=500, seed=7, chunk=100, progress=True, client=client)
+        table = quiet.settling(tolerance)
+        capsys.readouterr()
+        assert shown.settling(tolerance).equals(table)
+        out, err = capsys.readouterr()
+        assert out == "" and "100% Completed" in err
+
+
 class TestClientMemory:
     def test_the_client_holds_summaries_not_units(self, client):
         # 40,000 units x 1,000 segments would be 320 MB per float column in process; the client
