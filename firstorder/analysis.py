@@ -489,8 +489,11 @@ class Analysis:
 
         The page holds the title and notes, the parts, the drive (in full when
         short, summarised when long), an interactive plot (bokeh, with its
-        JavaScript inline), the derivations as MathML, the settling table, the
-        cautions, the package version and date, and the analysis itself, so
+        JavaScript inline), the derivations as MathML, the settling table, with a
+        spread the tolerance study (the spread, the passing fraction, the per-segment
+        study table, a histogram and the yield against the sample delay of the worst
+        segment, its budget, the worst unit), the cautions, the package version and
+        date, and the analysis itself, so
         that :meth:`load` can read the report back.  Needs bokeh
         (``pip install firstorder[widgets]``).
 

@@ -355,7 +355,7 @@ def yield_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, heig
                                "percent": fractions * 100}, name="yield")
     panel.step(x * factor, y * 100, mode="after", line_width=2, color=COMPONENT_COLOURS["total"],
                legend_label="units inside")
-    points = panel.scatter("x", "percent", source=source, size=0.1, alpha=0)  # the hover's anchors
+    points = panel.scatter("x", "percent", source=source, size=8, alpha=0)  # invisible: the hover's anchors
     panel.add_tools(HoverTool(renderers=[points], tooltips=[(f"delay ({unit})", "@x{0.000}"),
                                                             ("units inside", "@percent{0.000}%")]))
     for location, colour, dash, label in ((section.sample_delay, SAMPLE_FAIL, "dashed", "sample delay"),

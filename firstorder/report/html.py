@@ -155,7 +155,7 @@ def _study_html(analysis: "Analysis", section: ToleranceSection | None) -> tuple
         "are shaded.</p>",
         _rows_html(*section.sample),
         f"<h3>Worst segment: {worst}</h3>",
-        f"<p>Segment {worst} (the least yield) from {escape(format_value(float(section.table['start'].iloc[worst]), 's'))}: "
+        f"<p>Segment {worst} (the least yield; of equal yields the largest error at the sample) from {escape(format_value(float(section.table['start'].iloc[worst]), 's'))}: "
         f"{escape(_histogram_caption(section))} The curve is the share of units inside tolerance if the sample "
         f"were taken that long after the change, from each unit's own settle time; past the segment's end "
         f"(dotted) it is the dwell the segment would need.</p>",

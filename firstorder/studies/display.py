@@ -53,7 +53,10 @@ def study_rows(study: "Study") -> list[tuple[str, str]]:
     settled = study._shown["table"]
     tolerance = figures[0]
     passing = settled.attrs["passing"]
-    rows.append(("tolerance", str(tolerance) + ("" if figures[1] is None else f", sample delay {figures[1]}")))
+    delay = figures[1]
+    if delay is not None and not isinstance(delay, (str, int, float)):
+        delay = "one per segment"  # not a list of a million numbers
+    rows.append(("tolerance", str(tolerance) + ("" if delay is None else f", sample delay {delay}")))
     rows.append(("passing yield", f"{passing:,} of {study.units:,} units ({passing / study.units:.4%}) have every "
                                   f"sample inside"))
     worst = worst_segment(settled)
