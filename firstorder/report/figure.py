@@ -310,8 +310,6 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None, 
 def histogram_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, height: int = 260):
     """The histogram of the worst segment's units (settle times, or errors at the sample),
     with the sample delay (or the limit) marked; its bins in a source named ``"histogram"``."""
-    from bokeh.models import Span
-
     histogram, unit = section.histogram, section.value_unit
     edges = histogram.edges
     span = float(np.max(np.abs(edges))) if edges.size else 1.0
@@ -329,9 +327,12 @@ def histogram_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, 
     panel.add_tools(HoverTool(renderers=[bars], tooltips=[(f"from ({axis_unit})", "@x0{0.0000}"),
                                                           (f"to ({axis_unit})", "@x1{0.0000}"), ("units", "@count")]))
     mark = section.sample_delay if settle else section.limit
-    panel.add_layout(Span(location=mark * factor, dimension="height", line_color=SAMPLE_FAIL, line_width=2,
-                          line_dash="dashed"))
+    top = max(int(histogram.counts.max(initial=0)), 1)
+    # A line, not a Span: it then has a legend entry, and it widens the axis when it lies off the bins.
+    panel.line([mark * factor] * 2, [0, top], line_color=SAMPLE_FAIL, line_width=2, line_dash="dashed",
+               legend_label="sample delay" if settle else "limit (nominal unit)")
     panel.y_range.start = 0
+    panel.add_layout(panel.legend[0], "right")
     panel.toolbar.autohide = True
     return panel
 
@@ -340,8 +341,6 @@ def yield_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, heig
     """The fraction of the worst segment's units inside tolerance against the sample delay
     (:func:`~firstorder.report.tables.yield_curve`), with the sample delay and the segment's
     end marked; the step in a source named ``"yield"`` (delays in seconds)."""
-    from bokeh.models import Span
-
     delays, fractions = section.delays, section.fractions
     right = max(float(delays[-1]), section.duration, section.sample_delay) * 1.05
     factor, unit = time_scale(right)
@@ -360,10 +359,9 @@ def yield_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, heig
                                                             ("units inside", "@percent{0.000}%")]))
     for location, colour, dash, label in ((section.sample_delay, SAMPLE_FAIL, "dashed", "sample delay"),
                                           (section.duration, "#5a6877", "dotted", "segment ends")):
-        panel.add_layout(Span(location=location * factor, dimension="height", line_color=colour, line_width=2,
-                              line_dash=dash))
-        panel.line([], [], color=colour, line_dash=dash, line_width=2, legend_label=label)  # a legend entry
-    panel.legend.location = "bottom_right"
+        panel.line([location * factor] * 2, [0, 100], color=colour, line_dash=dash, line_width=2,
+                   legend_label=label)
+    panel.add_layout(panel.legend[0], "right")  # beside the plot: inside it would hide the step
     panel.toolbar.autohide = True
     return panel
 

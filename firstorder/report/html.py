@@ -18,8 +18,8 @@ import numpy as np
 from ..units import format_value
 from .mathml import mathml
 from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, ToleranceSection, drive_rows, drive_summary_rows,
-                     part_rows, probe_rows, settling_rows, spread_rows, states_text, summary_rows, temperature_text,
-                     study_section, timestamp, version)
+                     needed_text, part_rows, probe_rows, settling_rows, spread_rows, states_text, study_section,
+                     summary_rows, temperature_text, timestamp, version)
 
 if TYPE_CHECKING:
     from ..analysis import Analysis
@@ -159,6 +159,7 @@ def _study_html(analysis: "Analysis", section: ToleranceSection | None) -> tuple
         f"{escape(_histogram_caption(section))} The curve is the share of units inside tolerance if the sample "
         f"were taken that long after the change, from each unit's own settle time; past the segment's end "
         f"(dotted) it is the dwell the segment would need.</p>",
+        f"<p>{escape(needed_text(section))}</p>",
     ]
     bottom = [f"<h3>Uncertainty budget of segment {worst}</h3>"]
     if section.budget is None:

@@ -4,11 +4,10 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any
 
-import numpy as np
 
 from ..units import format_value
 from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, drive_rows, drive_summary_rows, part_rows,
-                     probe_rows, settling_rows, spread_rows, states_text, study_section, summary_rows,
+                     needed_text, probe_rows, settling_rows, spread_rows, states_text, study_section, summary_rows,
                      temperature_text, timestamp, version)
 
 if TYPE_CHECKING:
@@ -88,10 +87,8 @@ def _study_markdown(analysis: "Analysis") -> list[str]:
     if section.left_out:
         out.append(f"{section.left_out} segments of higher yield are left out.")
     worst = section.worst_segment
-    inside = section.fractions[np.searchsorted(section.delays, section.sample_delay, side="right") - 1]
     out.append(f"### Worst segment: {worst}")
-    out.append(f"At its sample delay ({format_value(section.sample_delay, 's')}) {inside:.4%} of units are inside "
-               f"tolerance (from each unit's own settle time).")
+    out.append(needed_text(section))
     if section.budget is None:
         out.append(f"No uncertainty budget: {_md_text(section.budget_error)}")
     else:

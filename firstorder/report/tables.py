@@ -27,7 +27,7 @@ if TYPE_CHECKING:
 __all__ = ["FULL_DRIVE_ROWS", "FULL_SETTLING_ROWS", "HEAD_ROWS", "MARGIN_ROWS", "MAX_DERIVATIONS", "TAIL_ROWS",
            "drive_rows", "drive_summary_rows", "hold_cells", "margin_rows", "part_rows", "probe_rows", "row_scales", "settling_cell",
            "settling_rows", "states_text", "summary_rows", "timestamp", "version",
-           "HISTOGRAM_BINS", "Histogram", "ToleranceSection", "histogram", "passing_rows", "quantity_cell",
+           "HISTOGRAM_BINS", "Histogram", "ToleranceSection", "histogram", "needed_delays", "needed_text", "passing_rows", "quantity_cell",
            "sample_delay_text", "spread_rows", "study_rows", "study_section", "temperature_text",
            "tolerance_section", "unit_rows", "yield_curve"]
 
@@ -339,11 +339,26 @@ def yield_curve(settle_times: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return delays, fractions
 
 
+def needed_delays(settle_times: np.ndarray, fractions: Any) -> list[tuple[float, float]]:
+    """Per fraction, the delay that many of the units need: the order statistic of rank
+    ``ceil(fraction * units) - 1`` of their settle times (NaN, never settling, sorts last).
+
+    Examples
+    --------
+    >>> needed_delays(np.array([3.0, 1.0, 2.0, np.nan]), (0.5, 0.75, 1.0))
+    [(0.5, 2.0), (0.75, 3.0), (1.0, nan)]
+    """
+    from ..studies.summary import rank
+
+    ordered = np.sort(np.asarray(settle_times, dtype=np.float64))
+    return [(float(f), float(ordered[rank(float(f), ordered.size)])) for f in fractions]
+
+
 def quantity_cell(value: float, field: str, unit: str) -> str:
     """A varied quantity's value as text: a gain (error) in %, a temperature in °C, else
     engineering notation in its unit."""
     if field == "gain":
-        return f"{value * 100:+.6g} %"
+        return f"{value * 100:+.6g} %" if value else "0 %"
     if field == "temperature":
         return f"{value:.6g} °C"
     return format_value(float(value), unit, digits=6)
@@ -450,6 +465,10 @@ class ToleranceSection:
         Every unit's settle time in the worst segment, past its end too (NaN: never).
     delays, fractions : ndarray
         The yield against the sample delay (:func:`yield_curve` of `settle_times`).
+    needed : list of (fraction, float)
+        Per fraction of units, the sample delay after the change that many need in the worst
+        segment (the exact order statistic of `settle_times`, as :meth:`Study.delay_for`; NaN
+        where that many never settle).
     sample_delay, duration, limit : float
         The worst segment's sample delay (after its change), its length, and the nominal
         unit's limit there.
@@ -478,6 +497,7 @@ class ToleranceSection:
     settle_times: np.ndarray
     delays: np.ndarray
     fractions: np.ndarray
+    needed: list[tuple[float, float]]
     sample_delay: float
     duration: float
     limit: float
@@ -534,11 +554,20 @@ def tolerance_section(study: Any, tolerance: Any, sample_delay: Any = None,
         settings=settings, passing=passing, passing_rows=passing_rows(passing), table=table,
         settle=settle, sample=sample, left_out=left_out, worst_segment=worst, worst_unit=worst_unit,
         quantity=quantity, value_unit=value_unit, values=values, histogram=histogram(values),
-        settle_times=settle_times, delays=delays, fractions=shares,
+        settle_times=settle_times, delays=delays, fractions=shares, needed=needed_delays(settle_times, fractions),
         sample_delay=float(table["sample_time"].iloc[worst]) - start,
         duration=float(study.drive.ends[worst]) - start, limit=float(nominal["tolerance"].iloc[worst]),
         budget=budget, budget_error=budget_error,
         unit_values=unit_rows(study.values.loc[worst_unit], quantities, study.spread))
+
+
+def needed_text(section: ToleranceSection) -> str:
+    """The worst segment's needed delays in words ("how long must I wait for 99.9 %")."""
+    parts = [f"{f * 100:g} % after {format_value(d, 's', digits=5)}" if math.isfinite(d)
+             else f"{f * 100:g} % never (some units do not settle)" for f, d in section.needed]
+    return (f"Sample delay the units of segment {section.worst_segment} need: {', '.join(parts)}; it is sampled "
+            f"{format_value(section.sample_delay, 's', digits=5)} after its change and lasts "
+            f"{format_value(section.duration, 's', digits=5)}.")
 
 
 def study_section(analysis: "Analysis") -> ToleranceSection | None:

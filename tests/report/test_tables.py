@@ -157,6 +157,13 @@ class TestToleranceSection:
         for d, following, f in zip(delays[:-1], delays[1:], fractions[:-1]):
             assert np.mean(settle <= (d + following) / 2) == f
 
+    def test_the_needed_delays_are_the_studys_delay_for(self, made):
+        analysis, study, section = made
+        for fraction, delay in section.needed:
+            expected = study.delay_for(analysis.tolerance, fraction)[section.worst_segment]
+            assert delay == expected or (np.isnan(delay) and np.isnan(expected))
+        assert [f for f, _ in section.needed] == list(analysis.study_settings["fractions"])
+
     def test_the_budget_is_the_studys(self, made):
         analysis, study, section = made
         delay = analysis.sample_delay if section.quantity == "error_at_sample" else None
