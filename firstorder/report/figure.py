@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from bokeh.embed import file_html
 from bokeh.layouts import column
-from bokeh.models import ColumnDataSource, HoverTool
+from bokeh.models import ColumnDataSource, HoverTool, Range1d
 from bokeh.plotting import figure
 from bokeh.resources import INLINE
 
@@ -327,10 +327,17 @@ def histogram_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, 
     panel.add_tools(HoverTool(renderers=[bars], tooltips=[(f"from ({axis_unit})", "@x0{0.0000}"),
                                                           (f"to ({axis_unit})", "@x1{0.0000}"), ("units", "@count")]))
     mark = section.sample_delay if settle else section.limit
+    label = "sample delay" if settle else "limit (nominal unit)"
+    low, high = float(edges[0]), float(edges[-1])
+    width = high - low
+    if not low - width / 2 <= mark <= high + width / 2:
+        # Far off the bins: drawn, it would squeeze them into a corner; the legend says where it is.
+        panel.x_range = Range1d((low - 0.05 * width) * factor, (high + 0.05 * width) * factor)
+        label += f" {format_value(mark, unit, digits=4)}, {'left' if mark < low else 'right'} of the plot"
     top = max(int(histogram.counts.max(initial=0)), 1)
-    # A line, not a Span: it then has a legend entry, and it widens the axis when it lies off the bins.
+    # A line, not a Span: it then has a legend entry.
     panel.line([mark * factor] * 2, [0, top], line_color=SAMPLE_FAIL, line_width=2, line_dash="dashed",
-               legend_label="sample delay" if settle else "limit (nominal unit)")
+               legend_label=label)
     panel.y_range.start = 0
     panel.add_layout(panel.legend[0], "right")
     panel.toolbar.autohide = True
