@@ -330,16 +330,17 @@ def histogram_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, 
     label = "sample delay" if settle else "limit (nominal unit)"
     low, high = float(edges[0]), float(edges[-1])
     width = high - low
-    if not low - width / 2 <= mark <= high + width / 2:
-        # Far off the bins: drawn, it would squeeze them into a corner; the legend says where it is.
+    if low - width / 2 <= mark <= high + width / 2:
+        top = max(int(histogram.counts.max(initial=0)), 1)
+        # A line, not a Span: it then has a legend entry.
+        panel.line([mark * factor] * 2, [0, top], line_color=SAMPLE_FAIL, line_width=2, line_dash="dashed",
+                   legend_label=label)
+        panel.add_layout(panel.legend[0], "right")
+    else:  # far off the bins: drawn, it would squeeze them into a corner; the title says where it is
         panel.x_range = Range1d((low - 0.05 * width) * factor, (high + 0.05 * width) * factor)
-        label += f" {format_value(mark, unit, digits=4)}, {'left' if mark < low else 'right'} of the plot"
-    top = max(int(histogram.counts.max(initial=0)), 1)
-    # A line, not a Span: it then has a legend entry.
-    panel.line([mark * factor] * 2, [0, top], line_color=SAMPLE_FAIL, line_width=2, line_dash="dashed",
-               legend_label=label)
+        panel.title.text += (f"; {label} {format_value(mark, unit, digits=4)}, "
+                             f"{'left' if mark < low else 'right'} of the plot")
     panel.y_range.start = 0
-    panel.add_layout(panel.legend[0], "right")
     panel.toolbar.autohide = True
     return panel
 

@@ -148,7 +148,8 @@ def _study_html(analysis: "Analysis", section: ToleranceSection | None) -> tuple
         _html_table(None, [list(r) for r in section.passing_rows]),
         "<h3>Per segment</h3>",
         f"<p>Settle time after the change: of the nominal unit, met by each fraction of units, and of the "
-        f"slowest unit (\"ends first\": the segment ends before that many settle).{left_out}</p>",
+        f"slowest unit (\"ends first\": the segment ends before that many settle; a hold that droops out of "
+        f"the tolerance never settles).{left_out}</p>",
         _rows_html(*section.settle),
         "<p>At the sample: the error met by each fraction of units and the largest, the yield (units inside "
         "at this sample) and the worst unit (the largest error against its limit). Rows where a unit fails "
@@ -183,11 +184,13 @@ def _histogram_caption(section: ToleranceSection) -> str:
     missing = section.histogram.missing
     if section.quantity == "settle_time":
         text = (f"the histogram counts the units' settle times, with the sample delay "
-                f"({format_value(section.sample_delay, 's')}) dashed.")
+                f"({format_value(section.sample_delay, 's')}) dashed, or named in the title when it lies far "
+                f"off the bins.")
     else:
         never = int((~np.isfinite(section.settle_times)).sum())
         text = (f"the histogram counts the units' errors at the sample, with the nominal unit's limit "
-                f"({format_value(section.limit, section.value_unit)}) dashed ({never:,} units never settle "
+                f"({format_value(section.limit, section.value_unit)}) dashed, or named in the title when it lies "
+                f"far off the bins ({never:,} units never settle "
                 f"within the tolerance here, so their settle times cannot be counted).")
     return text + (f" {missing:,} units have no value." if missing else "")
 

@@ -563,11 +563,14 @@ def tolerance_section(study: Any, tolerance: Any, sample_delay: Any = None,
 
 def needed_text(section: ToleranceSection) -> str:
     """The worst segment's needed delays in words ("how long must I wait for 99.9 %")."""
+    timing = (f"it is sampled {format_value(section.sample_delay, 's', digits=5)} after its change and lasts "
+              f"{format_value(section.duration, 's', digits=5)}.")
+    if not np.isfinite(section.settle_times).any():
+        return (f"No unit settles within the tolerance in segment {section.worst_segment}, whatever the sample "
+                f"delay; {timing}")
     parts = [f"{f * 100:g} % after {format_value(d, 's', digits=5)}" if math.isfinite(d)
-             else f"{f * 100:g} % never (some units do not settle)" for f, d in section.needed]
-    return (f"Sample delay the units of segment {section.worst_segment} need: {', '.join(parts)}; it is sampled "
-            f"{format_value(section.sample_delay, 's', digits=5)} after its change and lasts "
-            f"{format_value(section.duration, 's', digits=5)}.")
+             else f"{f * 100:g} % never (fewer settle)" for f, d in section.needed]
+    return (f"Sample delay the units of segment {section.worst_segment} need: {', '.join(parts)}; {timing}")
 
 
 def study_section(analysis: "Analysis") -> ToleranceSection | None:

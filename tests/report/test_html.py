@@ -279,12 +279,14 @@ class TestPrint:
     """The report prints on A4 and Letter with nothing cut (Chromium's print media and PDF)."""
 
     @pytest.mark.parametrize("paper", ["A4", "Letter"])
-    @pytest.mark.parametrize("which", ["demo", "relay"])
+    @pytest.mark.parametrize("which", ["demo", "relay", "study"])
     def test_nothing_overflows_the_printable_width(self, tmp_path, paper, which):
+        from builders import study_analysis
+
         from firstorder.cli import demo_analysis
 
         sync_playwright = _browser_or_skip()
-        analysis = demo_analysis() if which == "demo" else relay_analysis()
+        analysis = {"demo": demo_analysis, "relay": relay_analysis, "study": study_analysis}[which]()
         url = analysis.report(tmp_path / "report.html").resolve().as_uri()
         width = int(PRINTABLE_WIDTH[paper])
         with sync_playwright() as playwright:
