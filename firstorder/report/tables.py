@@ -519,7 +519,7 @@ def tolerance_section(study: Any, tolerance: Any, sample_delay: Any = None,
     ...                  units=200, seed=7)
     >>> section = tolerance_section(study, fo.Tolerance.lsb(bits=16, span=5.0), "12m")
     >>> section.passing_rows[0][1], section.quantity, int(section.histogram.counts.sum())
-    ('103 of 200 have every sample inside (51.5000%)', 'settle_time', 200)
+    ('117 of 200 have every sample inside (58.5000%)', 'settle_time', 200)
     """
     from ..studies.display import worst_segment
 
