@@ -19,7 +19,7 @@ from ..units import format_value
 from .mathml import mathml
 from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, ToleranceSection, drive_rows, drive_summary_rows,
                      needed_text, part_rows, probe_rows, settling_rows, spread_rows, states_text, study_section,
-                     summary_rows, temperature_text, timestamp, version)
+                     summary_rows, temperature_text, timestamp, version, worst_unit_text)
 
 if TYPE_CHECKING:
     from ..analysis import Analysis
@@ -174,8 +174,7 @@ def _study_html(analysis: "Analysis", section: ToleranceSection | None) -> tuple
                                   numeric=frozenset({1, 3, 4, 6, 7})))
         bottom.append(_html_table(None, [list(r) for r in budget.lines()]))
     bottom.append(f"<h3>Worst unit: {unit}</h3>")
-    bottom.append(f"<p>The part values unit {unit} drew (it has the largest error against its limit in "
-                  f"segment {worst}); <code>study.unit({unit})</code> rebuilds it.</p>")
+    bottom.append(f"<p>{escape(worst_unit_text(section))}</p>")
     bottom.append(_html_table(["quantity", "nominal", f"unit {unit}", "deviation"], section.unit_values, 1))
     return "".join(top), "".join(bottom)
 

@@ -8,7 +8,7 @@ from typing import TYPE_CHECKING, Any
 from ..units import format_value
 from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, drive_rows, drive_summary_rows, part_rows,
                      needed_text, probe_rows, settling_rows, spread_rows, states_text, study_section, summary_rows,
-                     temperature_text, timestamp, version)
+                     temperature_text, timestamp, version, worst_unit_text)
 
 if TYPE_CHECKING:
     from ..analysis import Analysis
@@ -82,8 +82,12 @@ def _study_markdown(analysis: "Analysis") -> list[str]:
         return out + [f"Temperature: {_md_text(temperature_text(analysis.spread))}.",
                       "No tolerance was given, so the units are not judged."]
     out += [_md_table(["", ""], [list(r) for r in section.settings + section.passing_rows])]
-    for header, rows in (section.settle, section.sample):
-        out.append(_md_table(header, [[str(k), *cells] for k, cells, _ in rows]))
+    captions = ("Settle time after the change: of the nominal unit, met by each fraction of units, of the slowest "
+                "unit (\"ends first\": the segment ends before that many settle).",
+                "At the sample: the error met by each fraction of units and the largest, the yield (units inside "
+                "at this sample) and the worst unit (the largest error against its limit).")
+    for caption, (header, rows) in zip(captions, (section.settle, section.sample)):
+        out += [caption, _md_table(header, [[str(k), *cells] for k, cells, _ in rows])]
     if section.left_out:
         out.append(f"{section.left_out} segments of higher yield are left out.")
     worst = section.worst_segment
@@ -97,6 +101,6 @@ def _study_markdown(analysis: "Analysis") -> list[str]:
                 _md_table(list(budget.HEADER), [budget.cells(r) for r in budget.rows]),
                 _md_table(["", ""], [list(r) for r in budget.lines()])]
     unit = section.worst_unit
-    out += [f"### Worst unit: {unit}", _md_table(["quantity", "nominal", f"unit {unit}", "deviation"],
+    out += [f"### Worst unit: {unit}", _md_text(worst_unit_text(section)), _md_table(["quantity", "nominal", f"unit {unit}", "deviation"],
                                                  section.unit_values)]
     return out

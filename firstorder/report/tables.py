@@ -29,7 +29,7 @@ __all__ = ["FULL_DRIVE_ROWS", "FULL_SETTLING_ROWS", "HEAD_ROWS", "MARGIN_ROWS", 
            "settling_rows", "states_text", "summary_rows", "timestamp", "version",
            "HISTOGRAM_BINS", "Histogram", "ToleranceSection", "histogram", "needed_delays", "needed_text", "passing_rows", "quantity_cell",
            "sample_delay_text", "spread_rows", "study_rows", "study_section", "temperature_text",
-           "tolerance_section", "unit_rows", "yield_curve"]
+           "tolerance_section", "unit_rows", "worst_unit_text", "yield_curve"]
 
 #: A drive with at most this many changes is shown in full; longer ones are summarised.
 FULL_DRIVE_ROWS = 40
@@ -543,7 +543,7 @@ def tolerance_section(study: Any, tolerance: Any, sample_delay: Any = None,
     except ValueError as error:  # an InputError, or numbers a budget cannot take
         budget_error = str(error)
     start = float(study.drive.times[worst])
-    nominal = study.nominal.settling(tolerance, sample_delay=_seconds(sample_delay))
+    nominal = study.nominal.settling(tolerance, sample_delay=sample_delay)
     quantities = study.spread.quantities(study.fixture)
     settings = [("units", f"{study.units:,}"), ("seed", str(study.seed)),
                 ("fractions of units", ", ".join(f"{f * 100:g} %" for f in fractions)),
@@ -573,6 +573,15 @@ def needed_text(section: ToleranceSection) -> str:
     return (f"Sample delay the units of segment {section.worst_segment} need: {', '.join(parts)}; {timing}")
 
 
+def worst_unit_text(section: ToleranceSection) -> str:
+    """What the worst unit's table shows, in words."""
+    unit = section.worst_unit
+    warm = (" at its own temperature (tempcos applied, so a value may lie outside its band)"
+            if any(row[3] != "—" for row in section.spread) else "")
+    return (f"The values unit {unit} drew{warm}: it has the largest error against its limit in segment "
+            f"{section.worst_segment}; study.unit({unit}) rebuilds it.")
+
+
 def study_section(analysis: "Analysis") -> ToleranceSection | None:
     """The tolerance section of `analysis` (its own study), or None without a spread or a tolerance."""
     settings = analysis.study_settings
@@ -580,10 +589,3 @@ def study_section(analysis: "Analysis") -> ToleranceSection | None:
         return None
     study = analysis.study(progress=False)
     return tolerance_section(study, analysis.tolerance, analysis.sample_delay, settings["fractions"])
-
-
-def _seconds(delay: Any) -> Any:
-    """A sample delay as given to an analysis, in the form a settling table takes."""
-    if delay is None or not isinstance(delay, (list, tuple)):
-        return delay
-    return np.asarray(delay, dtype=np.float64)

@@ -183,3 +183,13 @@ class TestStudyPieces:
     def test_gains_in_percent_and_values_in_their_unit(self):
         assert report_tables.quantity_cell(2e-4, "gain", "") == "+0.02 %"
         assert report_tables.quantity_cell(1.05e-8, "value", "F") == "10.5 nF"
+
+    def test_a_sample_delay_per_segment(self):
+        from builders import study_analysis
+
+        delays = [0.5e-3, 0.9e-3, 1e-3]
+        analysis = study_analysis(sample_delay=delays)
+        section = report_tables.study_section(analysis)
+        assert np.array_equal(section.table["sample_time"], analysis.drive.times + np.array(delays))
+        assert section.sample_delay == delays[section.worst_segment]
+        assert section.settings[4] == ("sample delay", "one per segment, 500 µs to 1 ms after the change")
