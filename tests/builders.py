@@ -193,3 +193,15 @@ def with_value_at(data: dict, path: list, value) -> dict:
         target = target[step]
     target[path[-1]] = value
     return data
+
+
+def study_analysis(**changes) -> Analysis:
+    """:func:`relay_analysis` with a lot: 5 % hold capacitors, 1 % resistors, relay contacts of
+    50 to 300 mΩ, 0 to 50 °C (an invented scenario); 400 units."""
+    from firstorder.studies import Spread, Uniform
+
+    arguments = dict(spread=Spread({"ch": "5%", "rs": "1%", "rm": "1%", "k1.r_on": Uniform("50m", "300m")},
+                                   temperature=(0, 50), tempco={"ch": "-750ppm"}),
+                     units=400, seed=11)
+    arguments.update(changes)
+    return relay_analysis(**arguments)
