@@ -144,7 +144,7 @@ def opened(request, tmp_path_factory):
         try:
             page = browser.new_page(viewport={"width": 1400, "height": 1100})
             notes = {"errors": [], "blocked": [], "console": []}
-            page.on("pageerror", lambda error: notes["errors"].append(str(error)))
+            page.on("pageerror", lambda error: notes["errors"].append(f"{error}\n{error.stack}"))
             page.on("console", lambda message: notes["console"].append(f"{message.type}: {message.text}"))
             # Nothing may come from the network: refuse (and record) any request off this machine.
             page.route("**/*", lambda route: route.continue_() if route.request.url.startswith(LOCAL) else (
@@ -159,9 +159,20 @@ def opened(request, tmp_path_factory):
                 page.wait_for_timeout(1000)  # a frame or two for the plots to take their width
             yield name, page, notes
         finally:
-            (SHOTS / f"{name}-console.log").write_text("\n".join(notes["console"] + notes["blocked"]),
+            (SHOTS / f"{name}-console.log").write_text("\n".join(notes["console"] + notes["blocked"] + notes["errors"]),
                                                        encoding="utf-8")
             browser.close()
+
+
+def _ours(errors: list[str]) -> list[str]:
+    """The page errors but one of Notebook 7's own: its keyboard-shortcut settings code reads
+    the schema of a plugin it holds no settings for, on opening a plain notebook too (no Bench)."""
+    def notebook7_own(error: str) -> bool:
+        lines = error.splitlines()
+        top = next((line for line in lines if line.strip().startswith("at ")), "")
+        return "reading 'schema'" in lines[0] and "/static/notebook/notebook_core." in top
+
+    return [error for error in errors if not notebook7_own(error)]
 
 
 def _tau_shown(page) -> float:
@@ -188,7 +199,7 @@ class TestBenchInOtherFrontEnds:
             assert frame["width"] > 300 and frame["height"] > 100, frame
             ours = [url for url in notes["blocked"] if "fontawesome" not in url]
             assert not ours, f"requests left the machine: {ours[:5]}"
-            assert not notes["errors"], notes["errors"]
+            assert not _ours(notes["errors"]), notes["errors"]
 
     def test_typed_part_value_redraws(self, opened):
         name, page, notes = opened
@@ -216,7 +227,7 @@ class TestBenchInOtherFrontEnds:
             assert len(points) > 20, after
             for t, y in points:
                 assert y == pytest.approx(V_REF * gain * (1 - math.exp(-t / tau)), rel=1e-9, abs=1e-12), t
-            assert not notes["errors"], notes["errors"]
+            assert not _ours(notes["errors"]), notes["errors"]
 
     def test_clicked_segment_reaches_python(self, opened):
         name, page, notes = opened
@@ -236,4 +247,4 @@ class TestBenchInOtherFrontEnds:
             page.locator(".fo-bench").screenshot(path=str(SHOTS / f"{name}-clicked.png"))
             panel = page.locator(".fo-bench .widget-htmlmath").first.inner_text()
             assert "mux open" in panel, panel  # segment 1 holds: its own configuration's derivation
-            assert not notes["errors"], notes["errors"]
+            assert not _ours(notes["errors"]), notes["errors"]
