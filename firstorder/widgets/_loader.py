@@ -64,14 +64,16 @@ def publish_bokehjs() -> None:
 
 
 def in_voila() -> bool:
-    """True in a kernel that Voilà started (it names itself in the kernel's environment).
+    """True in a kernel that Voilà started (it marks the kernel's environment).
 
     Examples
     --------
     >>> in_voila()  # a plain interpreter
     False
     """
-    return "VOILA_KERNEL_ID" in os.environ or os.environ.get("SERVER_SOFTWARE", "").startswith("voila/")
+    # Voilà sets VOILA_PREHEAT in every kernel it starts ("True" for a kernel kept warm for
+    # the next page), and VOILA_KERNEL_ID before the notebook's first cell.
+    return "VOILA_PREHEAT" in os.environ or "VOILA_KERNEL_ID" in os.environ
 
 
 def live_kernel_cell() -> int | None:
