@@ -13,7 +13,9 @@ Python skills opens the Bench as a page).  In each:
   response curve BokehJS draws follow the new value (both against the handbook
   formula for the RC low-pass);
 * a click on a segment of the response plot reaches Python: the Derivation tab
-  shows that segment.
+  shows that segment;
+* the Export tab writes the report into the notebook's folder and hands it to the
+  browser as a download.
 
 Screenshots go to build/frontends/.  Skipped without chromium or Playwright,
 failed instead with FIRSTORDER_REQUIRE_BROWSER=1 (set by .ci/run).
@@ -143,7 +145,7 @@ def opened(request, tmp_path_factory):
         browser = playwright.chromium.launch(executable_path=browser_path, args=CHROMIUM_ARGS)
         try:
             page = browser.new_page(viewport={"width": 1400, "height": 1100})
-            notes = {"errors": [], "blocked": [], "console": []}
+            notes = {"errors": [], "blocked": [], "console": [], "root": root}
             page.on("pageerror", lambda error: notes["errors"].append(f"{error}\n{error.stack}"))
             page.on("console", lambda message: notes["console"].append(f"{message.type}: {message.text}"))
             # Nothing may come from the network: refuse (and record) any request off this machine.
@@ -247,4 +249,27 @@ class TestBenchInOtherFrontEnds:
             page.locator(".fo-bench").screenshot(path=str(SHOTS / f"{name}-clicked.png"))
             panel = page.locator(".fo-bench .widget-htmlmath").first.inner_text()
             assert "mux open" in panel, panel  # segment 1 holds: its own configuration's derivation
+            assert not _ours(notes["errors"]), notes["errors"]
+
+    def test_export_writes_the_report_and_hands_it_to_the_browser(self, opened):
+        import firstorder as fo
+
+        name, page, notes = opened
+        with _on_failure_shot(page, name):
+            page.locator(".fo-bench .lm-TabBar-tab", has_text="Export").first.click()
+            page.locator(".fo-bench button", has_text="Report (HTML)").click()
+            link = page.locator(".fo-bench a.fo-download")
+            link.wait_for(timeout=60_000)
+            written = Path(page.locator(".fo-bench .fo-written").inner_text())
+            # The kernel runs in the notebook's folder, on the machine that serves the page.
+            assert written == notes["root"] / "bench_report.html", written
+            page.locator(".fo-bench").screenshot(path=str(SHOTS / f"{name}-export.png"))
+            with page.expect_download(timeout=60_000) as download:
+                link.click()
+            saved = SHOTS / f"{name}-report.html"
+            download.value.save_as(saved)
+            assert download.value.suggested_filename == "bench_report.html"
+            assert saved.read_bytes() == written.read_bytes()
+            analysis = fo.Analysis.load(saved)  # the report carries its analysis
+            assert analysis.sample_delay == "0.4m" and len(analysis.drive) == 4
             assert not _ours(notes["errors"]), notes["errors"]
