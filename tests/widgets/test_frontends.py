@@ -66,7 +66,7 @@ def _closed_tau_and_gain(rf: float) -> tuple[float, float]:
     return C_F * series * R_ADC / (series + R_ADC), R_ADC / (series + R_ADC)
 
 
-def _notebook7(root: Path, home: Path, name: str):
+def _notebook7(root: Path, name: str):
     port, token = free_port(), secrets.token_hex(16)
     command = [str(BIN / "jupyter"), "notebook", "--no-browser", "--ServerApp.ip=127.0.0.1",
                f"--ServerApp.port={port}", "--ServerApp.port_retries=0", f"--IdentityProvider.token={token}",
@@ -81,7 +81,7 @@ def _notebook7(root: Path, home: Path, name: str):
     return command, ready, f"http://127.0.0.1:{port}/notebooks/{name}?token={token}"
 
 
-def _voila(root: Path, home: Path, name: str):
+def _voila(root: Path, name: str):
     port, token = free_port(), secrets.token_hex(16)
     command = [str(BIN / "voila"), "--no-browser", "--Voila.ip=127.0.0.1", f"--port={port}",
                "--Voila.port_retries=0", f"--token={token}", "--show_tracebacks=True", str(root / name)]
@@ -138,7 +138,7 @@ def opened(request, tmp_path_factory):
     root = tmp_path_factory.mktemp(name)
     home = tmp_path_factory.mktemp(f"{name}-home")
     write_notebook(root / "channel_filter.ipynb", BENCH_CELL)
-    command, ready, url = FRONT_ENDS[name](root, home, "channel_filter.ipynb")
+    command, ready, url = FRONT_ENDS[name](root, "channel_filter.ipynb")
     SHOTS.mkdir(parents=True, exist_ok=True)
     with server(command, cwd=root, env=jupyter_env(home, ROOT), log=SHOTS / f"{name}-server.log", ready=ready), \
             sync_playwright() as playwright:
