@@ -17,7 +17,6 @@ import json
 import os
 import secrets
 import shutil
-import socket
 import subprocess
 import sys
 import time
@@ -26,10 +25,12 @@ from pathlib import Path
 
 import pytest
 
+from browser_helpers import CHROMIUM_ARGS
+from browser_helpers import chromium as _chromium
+from browser_helpers import free_port as _free_port
+
 ROOT = Path(__file__).resolve().parents[2]
 BUILD = ROOT / "build"
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-                 "--disable-component-update", "--disable-sync", "--no-first-run"]
 #: The notebook that ends with a Bench (the tour stands in until the quickstart has one).
 NOTEBOOKS = ("01_quickstart.ipynb", "06_bench_tour.ipynb")
 STARTUP_SECONDS = 90
@@ -42,29 +43,6 @@ def _notebook_with_bench() -> Path | None:
         if path.exists() and "fo.Bench(" in path.read_text(encoding="utf-8"):
             return path
     return None
-
-
-def _need(reason: str):
-    if os.environ.get("FIRSTORDER_REQUIRE_BROWSER") == "1":
-        pytest.fail(f"browser test required (FIRSTORDER_REQUIRE_BROWSER=1) but {reason}")
-    pytest.skip(reason)
-
-
-def _chromium() -> str:
-    found = shutil.which("chromium") or ("/usr/bin/chromium" if Path("/usr/bin/chromium").exists() else None)
-    if found is None:
-        _need("no chromium on this machine (Debian: apt-get install chromium)")
-    try:
-        import playwright.sync_api  # noqa: F401
-    except ImportError:
-        _need("the playwright Python package is not installed (pip install playwright)")
-    return found
-
-
-def _free_port() -> int:
-    with socket.socket() as probe:
-        probe.bind(("127.0.0.1", 0))
-        return probe.getsockname()[1]
 
 
 @pytest.fixture(scope="module")
