@@ -17,6 +17,7 @@ from bokeh.models import (
     ColumnDataSource, CustomJSHover, CustomJSTickFormatter, HoverTool, Legend, LegendItem,
     LinearAxis, PointDrawTool, Range1d, FixedTicker,
 )
+from bokeh.core.properties import value as fixed
 from bokeh.plotting import figure
 
 from ..plotting.format import HOVER_CODE, TICK_CODE
@@ -436,8 +437,9 @@ class Plots:
         _assign(self.sources["envelope"], band)
         _assign(self.sources["worst"], curve)
         items = self.mark_items
-        items["envelope"].update(visible=band["t"].size > 0, label=f"{fraction * 100:g} % of units")
-        items["worst"].update(visible=curve["t"].size > 0, label=worst_label or "worst unit")
+        # fixed(): a plain string set on a legend item would be read as a column's name.
+        items["envelope"].update(visible=band["t"].size > 0, label=fixed(f"{fraction * 100:g} % of units"))
+        items["worst"].update(visible=curve["t"].size > 0, label=fixed(worst_label or "worst unit"))
         self.line_renderers["worst"].visible = curve["t"].size > 0 and mode == "line"
         self.band_renderers["worst"].visible = curve["t"].size > 0 and mode == "envelope"
 

@@ -439,7 +439,8 @@ class BenchSession(traitlets.HasTraits):
             changed_response = bool({"fixture", "drive", "initial"} & inputs.keys())
             response = fixture.respond(drive, initial) if changed_response else self.response
             lot, study, study_error = inputs.get("lot", self.lot), self.study, None
-            if changed_response or "lot" in inputs:
+            rebuilt = changed_response or "lot" in inputs
+            if rebuilt:
                 # A Spread field the study cannot take is refused; another edit is kept, the study's error shown.
                 study, study_error = _study_of(fixture, drive, initial, lot, refuse="lot" in inputs)
         except ValueError as error:
@@ -449,7 +450,7 @@ class BenchSession(traitlets.HasTraits):
         changes.update(self._results(response, inputs.get("tolerance", self.tolerance),
                                      inputs.get("sample_delay", self.sample_delay), self.probe,
                                      residual=changed_response, study=study, fractions=lot.fractions,
-                                     errors={k: v for k, v in self.errors.items() if k not in (key, "study")}))
+                                     errors={k: v for k, v in self.errors.items() if k != key and not (rebuilt and k == "study")}))
         if study_error:
             changes["errors"] = {**changes["errors"], "study": study_error}
         changes["texts"] = {**self.texts, **(texts or {})}

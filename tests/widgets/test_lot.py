@@ -91,10 +91,10 @@ class TestSpreadFields:
 
     def test_a_bench_without_a_spread_gets_one_from_its_fields(self):
         bench = Bench(rc_fixture(), rc_drive(), tolerance=TOLERANCE)
-        assert bench.session.study is None and bench.sources["envelope"].data["t"].size == 0
+        assert bench.session.study is None and len(bench.sources["envelope"].data["t"]) == 0
         bench.spread_fields["band c"].value = "10%"
         assert bench.error == "" and bench.session.study.units == 1000  # an analysis's default
-        assert bench.sources["envelope"].data["t"].size > 0
+        assert len(bench.sources["envelope"].data["t"]) > 0
         bench.spread_fields["band c"].value = ""
         assert bench.session.study is None and len(bench.sources["envelope"].data["t"]) == 0
 
@@ -117,7 +117,7 @@ class TestSpreadFields:
         study, envelope = bench.session.study, bench.sources["envelope"].data["high"]
         bench.spread_fields[key].value = text
         beside = bench._field_errors[key].value
-        assert named in beside and "'" in beside, beside
+        assert named in beside, beside
         assert bench.error.startswith(named)
         assert bench.session.study is study  # the last good study stays
         assert bench.sources["envelope"].data["high"] is envelope
@@ -135,7 +135,7 @@ class TestSpreadFields:
         bench.fields["r"].value = "1.5k"  # the part edit is taken; the band would reach below 0
         assert bench.fixture.part_map["r"].value == 1.5e3
         assert bench.session.study is None and "spread r" in bench.session.errors["study"]
-        assert bench.sources["envelope"].data["t"].size == 0
+        assert len(bench.sources["envelope"].data["t"]) == 0
         bench.fields["r"].value = "10k"
         assert "study" not in bench.session.errors and bench.session.study is not None
 
@@ -233,22 +233,25 @@ class TestHistogramAndYield:
         np.testing.assert_array_equal(bench.study_sources["yield"].data["delay"][1:], np.sort(values))
 
     def test_yield_against_delay_counts_the_units_inside(self):
-        bench = self.bench(sample_delay="3m")
+        # 0.25 V of a 5 V step: about 3 time constants (ln 20), some 3 ms, spread by the lot.
+        tolerance = fo.Tolerance.absolute("0.25")
+        bench = self.bench(sample_delay="2.9m", tolerance=tolerance)
         bench.select_segment(1)
         study, table = bench.session.study, bench.session.study_table
         curve = bench.study_sources["yield"].data
         delay, fraction = np.asarray(curve["delay"]), np.asarray(curve["fraction"])
-        settle = handbook_settle(study, 1, 1e-3)
-        for d in (0.5e-3, 1e-3, 1.5e-3, 2.9e-3):
+        settle = handbook_settle(study, 1, 0.25)
+        assert 0.05 < np.mean(settle <= 2.9e-3) < 0.95  # the delay cuts through the lot
+        for d in (2.5e-3, 2.9e-3, 3.1e-3, 3.5e-3, 5e-3):
             # The step curve at d: the last step at or before it.
             at = fraction[np.searchsorted(delay, d, side="right") - 1]
             assert at == pytest.approx(np.mean(settle <= d), abs=1.5 / UNITS)
-        # At the sample delay (3 ms, within the 3 ms segment's end): the table's yield.
-        at = fraction[np.searchsorted(delay, 3e-3, side="right") - 1]
+        # At the sample delay: the table's yield, the units inside at the sample.
+        at = fraction[np.searchsorted(delay, 2.9e-3, side="right") - 1]
         assert at == table["yield"].iloc[1]
         # The marks: the delay each of the study's fractions needs (Study.delay_for).
         marks = bench.study_sources["yield marks"].data
-        needed = study.delay_for(TOLERANCE, 0.999)[1]
+        needed = study.delay_for(tolerance, 0.999)[1]
         assert marks["delay"][-1] == needed and "99.9 %" in marks["label"][-1]
 
     def test_a_unit_that_never_settles_never_counts(self):
@@ -260,7 +263,7 @@ class TestHistogramAndYield:
 class TestWorstUnit:
     def test_on_demand_the_worst_units_own_curve(self):
         bench = lot_bench(sample_delay="1m")
-        assert bench.sources["worst"].data["t"].size == 0
+        assert len(bench.sources["worst"].data["t"]) == 0
         bench.select_segment(1)
         bench.spread_panel.worst.value = True
         study, table = bench.session.study, bench.session.study_table
@@ -270,7 +273,7 @@ class TestWorstUnit:
         np.testing.assert_array_equal(data["y"], expected)
         np.testing.assert_allclose(data["y"], handbook_units(study, np.asarray(data["t"]))[unit], rtol=1e-12,
                                    atol=1e-12)
-        assert f"({unit}, segment 1)" in bench.plots.mark_items["worst"].label["value"]
+        assert f"({unit}, segment 1)" in bench.plots.mark_items["worst"].label.value
         bench.spread_panel.worst.value = False
         assert len(bench.sources["worst"].data["t"]) == 0
 
