@@ -48,7 +48,13 @@ HISTOGRAM_BINS = 40
 
 
 def is_lot_key(key: str) -> bool:
-    """True for a key of the Spread panel's fields."""
+    """True for a key of the Spread panel's fields.
+
+    Examples
+    --------
+    >>> is_lot_key("band k1.r_on"), is_lot_key("lot units"), is_lot_key("r")
+    (True, True, False)
+    """
     return key.startswith(BAND_PREFIX) or key in LOT_KEYS
 
 
@@ -96,7 +102,13 @@ def lot_texts(fixture: Fixture, spread: Spread | None, units: int) -> dict[str, 
 
 
 def read_units(text: str) -> int:
-    """The number of units as typed (through the units layer): a whole number, 1 to :data:`MAX_UNITS`."""
+    """The number of units as typed (through the units layer): a whole number, 1 to :data:`MAX_UNITS`.
+
+    Examples
+    --------
+    >>> read_units("2k"), read_units(" 500 ")
+    (2000, 500)
+    """
     value = parse_value(text, field="units")
     if not (value == int(value) and 1 <= value <= MAX_UNITS):
         raise InputError(f"units: {shown(text)} is not allowed; give a whole number of units from 1 to "
@@ -115,11 +127,15 @@ def _band(key: str, text: str):
         raise InputError(message if message.startswith(f"spread {key}") else f"spread {key}: {message}") from None
 
 
-def read_lot(texts: dict[str, str], fixture: Fixture, seed: int, fractions: tuple[float, ...]) -> LotInputs:
+def read_lot(texts: dict[str, str], fixture: Fixture, seed: int, fractions: tuple[float, ...],
+             order: tuple[str, ...] = ()) -> LotInputs:
     """The study's inputs from the Spread fields' `texts`, checked against `fixture`
-    (an InputError naming the field otherwise)."""
+    (an InputError naming the field otherwise).  The quantities in `order` (the last
+    spread's keys) keep their places, then the others in the fields' order: the order of
+    the draws, so a unit's values do not change when another field is typed."""
+    keys = quantity_keys(fixture)
     bands = {}
-    for key in quantity_keys(fixture):
+    for key in [k for k in order if k in keys] + [k for k in keys if k not in order]:
         text = texts.get(BAND_PREFIX + key, "").strip()
         if text:
             bands[key] = _band(key, text)
@@ -187,7 +203,13 @@ def shown_segment(table, segment: int | None) -> int:
 
 
 def histogram(values: np.ndarray, bins: int = HISTOGRAM_BINS) -> dict[str, np.ndarray]:
-    """Counts of the finite `values` in `bins` equal bins (``left``, ``right``, ``count``)."""
+    """Counts of the finite `values` in `bins` equal bins (``left``, ``right``, ``count``).
+
+    Examples
+    --------
+    >>> histogram(np.array([1.0, 2.0, 2.0, np.nan]), bins=2)["count"].tolist()
+    [1.0, 2.0]
+    """
     finite = values[np.isfinite(values)]
     if finite.size == 0:
         empty = np.zeros(0)
@@ -202,7 +224,14 @@ def histogram(values: np.ndarray, bins: int = HISTOGRAM_BINS) -> dict[str, np.nd
 def yield_curve(settle_times: np.ndarray) -> dict[str, np.ndarray]:
     """The fraction of units inside against the sample delay: each unit is inside from its
     own settle time on, so the curve steps up by 1/units at every settle time (sorted), from
-    0 at no delay.  A unit that never settles (NaN) never counts.  ``delay``, ``fraction``."""
+    0 at no delay.  A unit that never settles (NaN) never counts.  ``delay``, ``fraction``.
+
+    Examples
+    --------
+    >>> curve = yield_curve(np.array([2e-3, 0.0, np.nan, 1e-3]))
+    >>> curve["delay"].tolist(), curve["fraction"].tolist()
+    ([0.0, 0.0, 0.001, 0.002], [0.25, 0.25, 0.5, 0.75])
+    """
     count = settle_times.size
     finite = np.sort(settle_times[np.isfinite(settle_times)])
     delay = np.concatenate([[0.0], finite])

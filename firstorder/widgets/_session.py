@@ -302,8 +302,9 @@ class BenchSession(traitlets.HasTraits):
             raise InputError(f"edit_spread: {key!r} is not a Spread field; fields are "
                              f"{[k for k in self.texts if is_lot_key(k)]}")
         lot = self.lot
+        order = () if lot.spread is None else lot.spread.keys  # the draws' order stays
         return self._edit(key, lambda: {"lot": read_lot({**self.texts, key: text}, self.fixture, lot.seed,
-                                                        lot.fractions)}, texts={key: text})
+                                                        lot.fractions, order)}, texts={key: text})
 
     def edit_table(self, columns: dict[str, list], end: str | None = None) -> bool:
         """The drive table's text as typed (only the cells that changed are read again)."""

@@ -80,6 +80,17 @@ class TestSpreadFields:
         bench.spread_fields["lot units"].value = "200"  # read again from every field's text
         assert bench.error == "" and bench.session.study.spread == lot and bench.session.study.units == 200
 
+    def test_typing_keeps_the_order_of_the_draws(self):
+        lot = fo.Spread({"c": "3%", "r": "5%"})  # c drawn first
+        bench = lot_bench(spread=lot)
+        values = bench.session.study.values
+        bench.spread_fields["band r"].value = "10%"
+        again = bench.session.study
+        assert list(again.spread.keys) == ["c", "r"]
+        # The same draws: c as it was, r twice as far from nominal (a uniform band scales).
+        np.testing.assert_array_equal(again.values["c"], values["c"])
+        np.testing.assert_allclose(again.values["r"] - 10e3, 2 * (values["r"] - 10e3), rtol=1e-9, atol=1e-9)
+
     def test_a_band_typed_runs_the_study_again(self):
         bench = lot_bench()
         study = bench.session.study
