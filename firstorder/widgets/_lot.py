@@ -191,7 +191,10 @@ def make_study(fixture: Fixture, drive: Drive, initial: Any, lot: LotInputs | No
         raise InputError(f"units: {lot.units:,} units of {len(drive):,} segments are more than the Bench studies on "
                          f"every edit ({CHUNK_ELEMENTS:,} unit-segments); give fewer units, or study this drive with "
                          f"fx.study")
-    return fixture.study(drive, lot.spread, units=lot.units, seed=lot.seed, initial=initial, progress=False)
+    # Kept: one chunk either way (the cap above), and questions then size their memory by the
+    # study's units, not by a whole chunk's worth of them.
+    return fixture.study(drive, lot.spread, units=lot.units, seed=lot.seed, initial=initial, keep=True,
+                         progress=False)
 
 
 def shown_segment(table, segment: int | None) -> int:

@@ -181,7 +181,8 @@ class TestEnvelope:
         bench.fields["c"].value = "200n"
         study = bench.session.study
         assert study.fixture.part_map["c"].value == 200e-9
-        fresh = rc_fixture().with_values(c="200n").study(rc_drive(), spread(), units=UNITS, seed=SEED)
+        # keep=True: an unkept study sizes envelope memory by a whole chunk of units, not its own 300.
+        fresh = rc_fixture().with_values(c="200n").study(rc_drive(), spread(), units=UNITS, seed=SEED, keep=True)
         t = np.asarray(bench.sources["envelope"].data["t"])
         np.testing.assert_array_equal(bench.sources["envelope"].data["high"], fresh.envelope(t, 0.999)[1])
 
