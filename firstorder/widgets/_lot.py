@@ -33,7 +33,7 @@ from ..units import parse_value, shown
 from ._fields import part_fields
 
 __all__ = ["BAND_PREFIX", "HISTOGRAM_BINS", "LOT_KEYS", "LotInputs", "MAX_UNITS", "TEMPCO", "TEMPERATURE", "UNITS",
-           "histogram", "is_lot_key", "lot_inputs", "lot_texts", "make_study", "quantity_keys", "read_lot", "shown_segment",
+           "histogram", "is_lot_key", "lot_inputs", "lot_texts", "make_study", "quantity_keys", "quantity_units", "read_lot", "shown_segment",
            "yield_curve"]
 
 #: A band field's key in the session's texts and errors: ``"band r"``, ``"band k1.r_on"``.
@@ -69,22 +69,19 @@ class LotInputs:
     fractions: tuple[float, ...]
 
 
-def quantity_keys(fixture: Fixture) -> tuple[str, ...]:
-    """Every quantity of `fixture` that can vary: part values, switches' on and off
-    resistances, then each source's gain and offset."""
-    keys = [field.key for field in part_fields(fixture)]
+def quantity_units(fixture: Fixture) -> dict[str, str]:
+    """Every quantity of `fixture` that can vary, to the unit of an absolute band of it
+    (``""`` for a gain): part values, switches' on and off resistances, then each source's
+    gain and offset (a name's own dots are kept: the key is built, never split)."""
+    units = {field.key: field.unit for field in part_fields(fixture)}
     for source in fixture.sources:
-        keys += [f"{source.name}.gain", f"{source.name}.offset"]
-    return tuple(keys)
+        units.update({f"{source.name}.gain": "", f"{source.name}.offset": SOURCE_UNITS[source.kind]})
+    return units
 
 
-def quantity_unit(fixture: Fixture, key: str) -> str:
-    """The unit an absolute band of `key` is in ("" for a gain)."""
-    name, _, field = key.partition(".")
-    part = fixture.part_map[name]
-    if part.is_source:
-        return "" if field == "gain" else SOURCE_UNITS[part.kind]
-    return next(f.unit for f in part_fields(fixture) if f.key == key)
+def quantity_keys(fixture: Fixture) -> tuple[str, ...]:
+    """The keys of :func:`quantity_units`, in order."""
+    return tuple(quantity_units(fixture))
 
 
 def lot_texts(fixture: Fixture, spread: Spread | None, units: int) -> dict[str, str]:

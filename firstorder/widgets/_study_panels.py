@@ -23,8 +23,7 @@ from ..plotting.palette import COMPONENT_COLOURS, LOT_COLOUR, SAMPLE_FAIL
 from ..report.tables import settling_cell
 from ..studies.summary import rank
 from ..units import format_value
-from ._lot import BAND_PREFIX, MAX_UNITS, TEMPCO, TEMPERATURE, UNITS, histogram, quantity_keys, quantity_unit, \
-    yield_curve
+from ._lot import BAND_PREFIX, MAX_UNITS, TEMPCO, TEMPERATURE, UNITS, histogram, quantity_units, yield_curve
 from ._panels import FieldsPanel, error_html
 
 __all__ = ["HISTOGRAM_QUANTITIES", "SpreadPanel", "StudyFigures", "TABLE_ROWS", "spread_panel", "status_html",
@@ -65,7 +64,7 @@ def spread_panel(fixture, texts: dict[str, str], fractions: tuple[float, ...], o
         "<code>-20% .. +80%</code>, <code>50m .. 300m</code> (absolute), <code>normal 3%</code>, "
         "<code>normal 3% within 9%</code>; empty: it does not vary. No band: no study. Every edit runs the "
         "study again.</span>")]
-    specs = [(BAND_PREFIX + key, key, quantity_unit(fixture, key) or "gain") for key in quantity_keys(fixture)]
+    specs = [(BAND_PREFIX + key, key, unit or "gain") for key, unit in quantity_units(fixture).items()]
     specs += [(TEMPERATURE, "temperature", "°C: low .. high, e.g. 0 .. 50"),
               (TEMPCO, "tempco", "per K from 25 °C: r 25ppm; c -750ppm"),
               (UNITS, "units", f"1 to {MAX_UNITS:,}")]
