@@ -147,6 +147,8 @@ class TestSpreadFields:
         assert bench.fixture.part_map["r"].value == 1.5e3
         assert bench.session.study is None and "spread r" in bench.session.errors["study"]
         assert len(bench.sources["envelope"].data["t"]) == 0
+        bench.setup_fields["tolerance"].value = "2m"  # an edit that builds no study keeps its error
+        assert bench.session.study is None and "spread r" in bench.session.errors["study"]
         bench.fields["r"].value = "10k"
         assert "study" not in bench.session.errors and bench.session.study is not None
 
