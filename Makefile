@@ -40,6 +40,10 @@ bench: install-test
 	$(BIN)/python benchmarks/small.py
 	$(BIN)/python benchmarks/derive.py
 	$(BIN)/python benchmarks/bench.py
+	$(BIN)/python benchmarks/configurations.py
+	$(BIN)/python benchmarks/study.py
+	$(BIN)/python benchmarks/plan.py
+	$(BIN)/python benchmarks/cluster.py
 
 # Re-execute every notebook in place, stored without widget state (see tools/run_notebooks.py).
 notebooks: install-test

@@ -44,7 +44,7 @@ from ._version import __version__
 from .io.atomic import write_atomic
 from .settling.table import sample_delays
 from .settling.tolerance import Tolerance
-from .studies.spread import Spread
+from .studies.spread import Spread, band_from_text
 from .units import parse_value, shown
 
 if TYPE_CHECKING:
@@ -236,22 +236,29 @@ class Analysis:
         return None if self._study is None else dict(self._study)
 
     def study(self, **options: Any) -> "Study":
-        """The tolerance study the analysis describes (its spread, units and seed); `options`
-        (``client``, ``progress``, ``keep``, ...) as for :class:`~firstorder.studies.Study`.
+        """The tolerance study the analysis describes (its spread, units and seed), about the
+        analysis's tolerance, sample delay and fractions (so its display shows the yield);
+        `options` (``client``, ``progress``, ``keep``, ...) as for :class:`~firstorder.studies.Study`,
+        and may replace those.
 
         Examples
         --------
         >>> import firstorder as fo
         >>> a = fo.Analysis(fo.Fixture.rc("1k", "1u"), fo.Drive([0], end="5m", vin=[1.0]),
-        ...                 spread=fo.Spread({"c": "10%"}), units=100, seed=4)
+        ...                 tolerance=fo.Tolerance.relative(0.01), spread=fo.Spread({"c": "10%"}), units=100, seed=4)
         >>> a.study().units
         100
+        >>> "passing yield" in a.study()._repr_html_()
+        True
         """
         if self._study is None:
             raise InputError("spread: this analysis has no spread; give Analysis(..., spread=...) for a study")
         settings = self._study
+        figures: dict[str, Any] = {"fractions": settings["fractions"]}
+        if self._tolerance is not None:
+            figures.update(tolerance=self._tolerance, sample_delay=self._sample_delay)
         return self._fixture.study(self._drive, settings["spread"], units=settings["units"], seed=settings["seed"],
-                                   initial=self._initial, **options)
+                                   initial=self._initial, **{**figures, **options})
 
     @property
     def response(self) -> "Response":
@@ -431,12 +438,10 @@ class Analysis:
     def _spread_of(model: Any, source: str) -> Spread | None:
         if model is None:
             return None
-        text = [f"{key} {band}" for key, band in model.bands.items()]
-        if model.temperature is not None:
-            low, high = model.temperature
-            text.append(f"temperature {low} .. {high}")
-        text += [f"tempco {key} {value}" for key, value in model.tempco.items()]
-        return Spread.from_text("\n".join(text))
+        # Each band read on its own, never a line of text: a key may hold spaces ("r in 1").
+        bands = {key: band_from_text(text, key) for key, text in model.bands.items()}
+        temperature = None if model.temperature is None else tuple(model.temperature)
+        return Spread(bands, temperature=temperature, tempco=dict(model.tempco) or None)
 
     # -- files -----------------------------------------------------------------------------------------
     def save(self, path: str | os.PathLike[str]) -> Path:
@@ -484,8 +489,11 @@ class Analysis:
 
         The page holds the title and notes, the parts, the drive (in full when
         short, summarised when long), an interactive plot (bokeh, with its
-        JavaScript inline), the derivations as MathML, the settling table, the
-        cautions, the package version and date, and the analysis itself, so
+        JavaScript inline), the derivations as MathML, the settling table, with a
+        spread the tolerance study (the spread, the passing fraction, the per-segment
+        study table, a histogram and the yield against the sample delay of the worst
+        segment, its budget, the worst unit), the cautions, the package version and
+        date, and the analysis itself, so
         that :meth:`load` can read the report back.  Needs bokeh
         (``pip install firstorder[widgets]``).
 

@@ -66,7 +66,8 @@ def _build_parser() -> argparse.ArgumentParser:
     report = commands.add_parser(
         "report", help="write a self-contained HTML report of an analysis",
         description="Write one self-contained, offline HTML report: parts, drive, interactive plot, "
-                    "derivations, settling table, cautions, and the analysis itself.",
+                    "derivations, settling table, with a spread the tolerance study, cautions, and the "
+                    "analysis itself.",
     )
     report.add_argument("analysis", help="analysis file (.json, or a report .html)")
     report.add_argument("-o", "--output",

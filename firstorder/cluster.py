@@ -23,8 +23,10 @@ version as the client.
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import json
+import sys
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
@@ -121,17 +123,29 @@ def chunk_task(text: str, first: int, count: int, question: dict[str, Any]) -> "
 
 def summary_on(client: Any, study: "Study", request: "Request", chunks: list[tuple[int, int]],
                progress: bool) -> "SettlingSummary":
-    """The merged summary of `chunks` of `study`, each a task on `client`'s cluster
-    (merged in chunk order as they come; the merges are exact, so the order is moot)."""
-    from distributed import progress as dask_progress
+    """The merged summary of `chunks` of `study`, each a task on `client`'s cluster.
 
-    from .studies.summary import merge_all
+    Summaries are merged as they arrive and each is let go at once, so the client holds
+    the running merge and one summary, not every chunk's (the merges are exact and
+    order-free, so the arrival order changes no number).
+    """
+    from distributed import as_completed
+    from distributed import progress as dask_progress
 
     text = client.scatter(plain_study(study), broadcast=True, hash=False)  # one copy per worker, not per task
     question = plain_question(request)
-    futures = [client.submit(chunk_task, text, first, count, question, pure=False, key=f"firstorder-chunk-{first}-"
-                             f"{count}-{id(request)}") for first, count in chunks]
+    futures = [client.submit(chunk_task, text, first, count, question, pure=False,
+                             key=f"firstorder-chunk-{first}-{count}-{id(request)}") for first, count in chunks]
     if progress and len(futures) > 1:
-        dask_progress(futures, notebook=None)  # dask's own bar (a widget in a notebook, text elsewhere)
-    summaries = client.gather(futures)
-    return merge_all(summaries)
+        # dask's own bar: a widget in a notebook; elsewhere a text bar that waits for the
+        # tasks, sent to stderr as tqdm's is (stdout keeps only the results).
+        with contextlib.redirect_stdout(sys.stderr):
+            dask_progress(futures, notebook=None)
+    merged = None
+    for future in as_completed(futures):
+        summary = future.result()
+        future.release()
+        merged = summary if merged is None else merged.merge(summary)
+        del summary
+    futures.clear()
+    return merged

@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 
 from functools import cached_property
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 

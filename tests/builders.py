@@ -168,3 +168,40 @@ def assert_inert(page: str, hostile: str = HOSTILE) -> None:
     parser.close()
     assert not found, f"user text became HTML: {found[:3]}"
     assert hostile not in page, "the hostile name appears unescaped"
+
+
+def scanner() -> fo.Fixture:
+    """Three channels with different source resistances behind a multiplexer into an RC
+    filter (our own scenario)."""
+    fx = fo.Fixture()
+    for j, rs in enumerate(["100", "2.2k", "10k"]):
+        fx.voltage_source(f"v{j}", f"s{j}", "gnd")
+        fx.resistor(f"rs{j}", f"s{j}", f"m{j}", rs)
+        fx.switch(f"k{j}", f"m{j}", "mux", r_on="50")
+    fx.resistor("rf", "mux", "adc", "500")
+    fx.capacitor("cf", "adc", "gnd", "10n")
+    return fx
+
+
+def with_value_at(data: dict, path: list, value) -> dict:
+    """A deep copy of `data` with the item at `path` (keys and indices) set to `value`."""
+    import copy
+
+    data = copy.deepcopy(data)
+    target = data
+    for step in path[:-1]:
+        target = target[step]
+    target[path[-1]] = value
+    return data
+
+
+def study_analysis(**changes) -> Analysis:
+    """:func:`relay_analysis` with a lot: 5 % hold capacitors, 1 % resistors, relay contacts of
+    50 to 300 mΩ, 0 to 50 °C (an invented scenario); 400 units."""
+    from firstorder.studies import Spread, Uniform
+
+    arguments = dict(spread=Spread({"ch": "5%", "rs": "1%", "rm": "1%", "k1.r_on": Uniform("50m", "300m")},
+                                   temperature=(0, 50), tempco={"ch": "-750ppm"}),
+                     units=400, seed=11)
+    arguments.update(changes)
+    return relay_analysis(**arguments)

@@ -60,6 +60,10 @@ def _cases():
 CASES = _cases()
 
 
+def _chunk_tasks(stream) -> int:
+    return sum("firstorder-chunk" in str(task["key"]) for task in stream.data)
+
+
 def _figures(study, tolerance, delay):
     table = study.settling(tolerance, sample_delay=delay)
     passing = study.passing(tolerance, sample_delay=delay)
@@ -73,7 +77,9 @@ class TestSameNumbersAsInProcess:
         here = fixture.study(drive, spread, units=900, seed=5, chunk=128, progress=False)
         there = fixture.study(drive, spread, units=900, seed=5, chunk=128, progress=False, client=client)
         table_here, passing_here, delay_here = _figures(here, tolerance, delay)
-        table_there, passing_there, delay_there = _figures(there, tolerance, delay)
+        with distributed.get_task_stream(client) as stream:
+            table_there, passing_there, delay_there = _figures(there, tolerance, delay)
+        assert _chunk_tasks(stream) == 3 * 8  # three questions, eight chunks each, on the workers
         assert table_there.equals(table_here)
         assert passing_there == passing_here
         np.testing.assert_array_equal(delay_there, delay_here)
@@ -96,6 +102,18 @@ class TestSameNumbersAsInProcess:
         there = fixture.study(drive, spread, client=client, **options)
         assert there.units == here.units
         assert there.settling(tolerance).equals(here.settling(tolerance))
+
+
+class TestSweep:
+    def test_a_sweep_on_the_cluster_is_the_sweep_in_process(self, client):
+        fixture, drive, spread, tolerance, _ = CASES["rc"]
+        options = dict(tol=tolerance, units=600, seed=3, fractions=(0.5, 0.99), chunk=100, progress=False)
+        here = fo.sweep(fixture, drive, spread, {"c": ["100n", "150n"]}, **options)
+        # Six chunks a point (one chunk would be held in process, whatever the client).
+        with distributed.get_task_stream(client) as stream:
+            there = fo.sweep(fixture, drive, spread, {"c": ["100n", "150n"]}, client=client, **options)
+        assert there.equals(here)
+        assert _chunk_tasks(stream) >= 12  # the chunks really ran on the workers
 
 
 class TestWorkers:
@@ -140,6 +158,18 @@ class TestWorkers:
 
         assert chunk_task(text, 20, 40, question) == chunk_summary(fixture, drive, spread, 1, study.initial, 20, 40,
                                                                    request)
+
+
+class TestProgress:
+    def test_the_text_bar_goes_to_stderr_and_the_numbers_are_the_same(self, client, capsys):
+        fixture, drive, spread, tolerance, _ = CASES["rc"]
+        quiet = fixture.study(drive, spread, units=500, seed=7, chunk=100, progress=False, client=client)
+        shown = fixture.study(drive, spread, units=500, seed=7, chunk=100, progress=True, client=client)
+        table = quiet.settling(tolerance)
+        capsys.readouterr()
+        assert shown.settling(tolerance).equals(table)
+        out, err = capsys.readouterr()
+        assert out == "" and "100% Completed" in err
 
 
 class TestClientMemory:

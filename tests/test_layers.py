@@ -278,7 +278,7 @@ class TestPackage:
         assert [name for name in LAYERS if name not in modules] == []
 
     @pytest.mark.parametrize("library", ["sympy", "ipywidgets", "bokeh", "scipy", "numba", "pandas", "dask",
-                                         "pydantic", "jupyter_bokeh", "tqdm"])
+                                         "pydantic", "jupyter_bokeh", "tqdm", "distributed"])
     def test_import_firstorder_loads_no_heavy_library(self, library, fresh_import):
         assert library not in fresh_import
 

@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from bokeh.embed import file_html
 from bokeh.layouts import column
-from bokeh.models import ColumnDataSource, HoverTool
+from bokeh.models import ColumnDataSource, HoverTool, Range1d
 from bokeh.plotting import figure
 from bokeh.resources import INLINE
 
@@ -33,15 +33,19 @@ from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, SAMPLE_FAIL, SAMPL
 from ..plotting.sampling import envelope, plan_samples, step_envelope
 
 if TYPE_CHECKING:
+    from ..report.tables import ToleranceSection
     from ..response import Response
     from ..settling.tolerance import Tolerance
 
-__all__ = ["error_figure", "response_figure", "standalone_page", "time_scale", "MAX_DETAILED_SEGMENTS"]
+__all__ = ["error_figure", "histogram_figure", "response_figure", "standalone_page", "time_scale", "value_scale",
+           "yield_figure", "MAX_DETAILED_SEGMENTS", "STUDY_ROOT"]
 
 MAX_DETAILED_SEGMENTS = 2_000
 POINTS_PER_SEGMENT = 24
 ENVELOPE_COLUMNS = 1_500
 _FRAME_WIDTH = 640
+#: The name of the tolerance section's plots: the page puts them in that section.
+STUDY_ROOT = "tolerance-study"
 
 # The page around the plot; bokeh's own file template supplies <head> and the
 # inline BokehJS bundle, and we fill its blocks.  Every variable is HTML made
@@ -53,8 +57,12 @@ _TEMPLATE = """
 {{ report_top }}
 <section id=plot><h2>Response</h2>
 {{ plot_caption }}
-<div class=plots>{% for doc in docs %}{% for root in doc.roots %}<div class=plot>{{ embed(root) }}</div>{% endfor %}{% endfor %}</div>
+<div class=plots>{% for doc in docs %}{% for root in doc.roots if root.name != study_root %}<div class=plot>{{ embed(root) }}</div>{% endfor %}{% endfor %}</div>
 </section>
+{{ report_middle }}
+{% if study_top %}<section id=tolerance>{{ study_top }}
+<div class=plots>{% for doc in docs %}{% for root in doc.roots if root.name == study_root %}<div class=plot>{{ embed(root) }}</div>{% endfor %}{% endfor %}</div>
+{{ study_bottom }}</section>{% endif %}
 {{ report_bottom }}
 {% endblock %}
 """
@@ -62,10 +70,21 @@ _TEMPLATE = """
 
 def time_scale(span: float) -> tuple[float, str]:
     """A factor and unit that put `span` seconds between 1 and 1000 on the axis."""
-    for factor, unit in ((1.0, "s"), (1e3, "ms"), (1e6, "µs"), (1e9, "ns"), (1e12, "ps")):
+    return value_scale(span, "s")
+
+
+def value_scale(span: float, unit: str) -> tuple[float, str]:
+    """A factor and prefixed `unit` that put `span` (in `unit`) between 1 and 1000 on an axis.
+
+    Examples
+    --------
+    >>> value_scale(2.5e-4, "V")
+    (1000000.0, 'µV')
+    """
+    for factor, prefix in ((1.0, ""), (1e3, "m"), (1e6, "µ"), (1e9, "n"), (1e12, "p")):
         if span * factor >= 1.0:
-            return factor, unit
-    return 1e12, "ps"
+            return factor, prefix + unit
+    return 1e12, "p" + unit
 
 
 def _detailed_times(response: "Response") -> np.ndarray:
@@ -288,6 +307,73 @@ def response_figure(response: "Response", tolerance: "Tolerance | None" = None, 
     return column(*panels), caption
 
 
+def histogram_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, height: int = 260):
+    """The histogram of the worst segment's units (settle times, or errors at the sample),
+    with the sample delay (or the limit) marked; its bins in a source named ``"histogram"``."""
+    histogram, unit = section.histogram, section.value_unit
+    edges = histogram.edges
+    span = float(np.max(np.abs(edges))) if edges.size else 1.0
+    factor, axis_unit = value_scale(span, unit)
+    settle = section.quantity == "settle_time"
+    what = "settle times after the change" if settle else "errors at the sample"
+    panel = figure(height=height, frame_width=width, name=STUDY_ROOT, tools="pan,xwheel_zoom,box_zoom,reset,save",
+                   title=f"Segment {section.worst_segment}: {what}, {section.values.size:,} units",
+                   x_axis_label=f"{'settle time' if settle else '|error| at the sample'} ({axis_unit})",
+                   y_axis_label="units")
+    source = ColumnDataSource({"left": edges[:-1], "right": edges[1:], "count": histogram.counts,
+                               "x0": edges[:-1] * factor, "x1": edges[1:] * factor}, name="histogram")
+    bars = panel.quad(left="x0", right="x1", bottom=0, top="count", source=source,
+                      fill_color=COMPONENT_COLOURS["total"], fill_alpha=0.7, line_color="white")
+    panel.add_tools(HoverTool(renderers=[bars], tooltips=[(f"from ({axis_unit})", "@x0{0.0000}"),
+                                                          (f"to ({axis_unit})", "@x1{0.0000}"), ("units", "@count")]))
+    mark = section.sample_delay if settle else section.limit
+    label = "sample delay" if settle else "limit (nominal unit)"
+    low, high = float(edges[0]), float(edges[-1])
+    width = high - low
+    if low - width / 2 <= mark <= high + width / 2:
+        top = max(int(histogram.counts.max(initial=0)), 1)
+        # A line, not a Span: it then has a legend entry.
+        panel.line([mark * factor] * 2, [0, top], line_color=SAMPLE_FAIL, line_width=2, line_dash="dashed",
+                   legend_label=label)
+        panel.add_layout(panel.legend[0], "right")
+    else:  # far off the bins: drawn, it would squeeze them into a corner; the title says where it is
+        panel.x_range = Range1d((low - 0.05 * width) * factor, (high + 0.05 * width) * factor)
+        panel.title.text += (f"; {label} {format_value(mark, unit, digits=4)}, "
+                             f"{'left' if mark < low else 'right'} of the plot")
+    panel.y_range.start = 0
+    panel.toolbar.autohide = True
+    return panel
+
+
+def yield_figure(section: "ToleranceSection", *, width: int = _FRAME_WIDTH, height: int = 260):
+    """The fraction of the worst segment's units inside tolerance against the sample delay
+    (:func:`~firstorder.report.tables.yield_curve`), with the sample delay and the segment's
+    end marked; the step in a source named ``"yield"`` (delays in seconds)."""
+    delays, fractions = section.delays, section.fractions
+    right = max(float(delays[-1]), section.duration, section.sample_delay) * 1.05
+    factor, unit = time_scale(right)
+    x = np.append(delays, right)
+    y = np.append(fractions, fractions[-1])
+    panel = figure(height=height, frame_width=width, name=STUDY_ROOT, tools="pan,xwheel_zoom,box_zoom,reset,save",
+                   title=f"Segment {section.worst_segment}: units inside tolerance against the sample delay",
+                   x_axis_label=f"sample delay after the change ({unit})", y_axis_label="units inside (%)",
+                   y_range=(0, 101))
+    source = ColumnDataSource({"delay": delays, "fraction": fractions, "x": delays * factor,
+                               "percent": fractions * 100}, name="yield")
+    panel.step(x * factor, y * 100, mode="after", line_width=2, color=COMPONENT_COLOURS["total"],
+               legend_label="units inside")
+    points = panel.scatter("x", "percent", source=source, size=8, alpha=0)  # invisible: the hover's anchors
+    panel.add_tools(HoverTool(renderers=[points], tooltips=[(f"delay ({unit})", "@x{0.000}"),
+                                                            ("units inside", "@percent{0.000}%")]))
+    for location, colour, dash, label in ((section.sample_delay, SAMPLE_FAIL, "dashed", "sample delay"),
+                                          (section.duration, "#5a6877", "dotted", "segment ends")):
+        panel.line([location * factor] * 2, [0, 100], color=colour, line_dash=dash, line_width=2,
+                   legend_label=label)
+    panel.add_layout(panel.legend[0], "right")  # beside the plot: inside it would hide the step
+    panel.toolbar.autohide = True
+    return panel
+
+
 def standalone_page(
     response: "Response",
     *,
@@ -298,25 +384,38 @@ def standalone_page(
     caption_html_for: Any,
     tolerance: "Tolerance | None" = None,
     table: Any = None,
+    middle_html: str = "",
+    study: "ToleranceSection | None" = None,
+    study_top_html: str = "",
+    study_bottom_html: str = "",
 ) -> str:
     """One self-contained HTML page: the given HTML around the figure, BokehJS inline.
 
     `title` is plain text (escaped by bokeh's template); the ``*_html``
     arguments are HTML already escaped by the caller, and
-    `caption_html_for` turns the figure's plain-text caption into HTML.
+    `caption_html_for` turns the figure's plain-text caption into HTML.  The page is
+    `top_html`, the response plots, `middle_html`, with a `study` its tolerance section
+    (`study_top_html`, the histogram and yield plots, `study_bottom_html`), then `bottom_html`.
     """
     layout, caption = response_figure(response, tolerance, table)
+    roots = list(layout.children)
+    if study is not None:
+        roots += [histogram_figure(study), yield_figure(study)]
     # One root per plot (they share one document, so the time axes stay linked): each is
     # then a block of its own that a printed page does not cut in two.
     return file_html(
-        list(layout.children),
+        roots,
         resources=INLINE,
         title=title,
         template=_TEMPLATE,
         template_variables={
             "report_head": head_html,
             "report_top": top_html,
+            "report_middle": middle_html,
             "report_bottom": bottom_html,
             "plot_caption": caption_html_for(caption),
+            "study_root": STUDY_ROOT,
+            "study_top": study_top_html if study is not None else "",
+            "study_bottom": study_bottom_html,
         },
     )

@@ -13,10 +13,13 @@ from __future__ import annotations
 from html import escape
 from typing import TYPE_CHECKING
 
+import numpy as np
+
 from ..units import format_value
 from .mathml import mathml
-from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, drive_rows, drive_summary_rows, part_rows,
-                     probe_rows, settling_rows, states_text, summary_rows, timestamp, version)
+from .tables import (HEAD_ROWS, MAX_DERIVATIONS, TAIL_ROWS, ToleranceSection, drive_rows, drive_summary_rows,
+                     needed_text, part_rows, probe_rows, settling_rows, spread_rows, states_text, study_section,
+                     summary_rows, temperature_text, timestamp, version, worst_unit_text)
 
 if TYPE_CHECKING:
     from ..analysis import Analysis
@@ -71,14 +74,15 @@ _CSS = """
 """
 
 
-def _html_table(header: list[str] | None, rows: list[list[str]], numeric_from: int | None = None) -> str:
+def _html_table(header: list[str] | None, rows: list[list[str]], numeric_from: int | None = None,
+                numeric: frozenset[int] | None = None) -> str:
+    """An escaped table; columns from `numeric_from` on (or those in `numeric`) right-aligned, unbroken."""
     head = "<thead><tr>" + "".join(f"<th>{escape(h)}</th>" for h in header) + "</tr></thead>" if header else ""
     body = []
+    columns = set(numeric or ()) | set(range(numeric_from, max(map(len, rows), default=0))
+                                        if numeric_from is not None else ())
     for row in rows:
-        cells = "".join(
-            f"<td{' class=num' if numeric_from is not None and i >= numeric_from else ''}>{escape(str(c))}</td>"
-            for i, c in enumerate(row)
-        )
+        cells = "".join(f"<td{' class=num' if i in columns else ''}>{escape(str(c))}</td>" for i, c in enumerate(row))
         body.append(f"<tr>{cells}</tr>")
     return f"<table class=fo>{head}<tbody>{''.join(body)}</tbody></table>"
 
@@ -109,6 +113,85 @@ def _settling_html(analysis: "Analysis") -> str:
     note = f" {left_out} rows that settled are left out; the CLI's <code>settle</code> lists them all." if left_out else ""
     return (f"<p>Tolerance {escape(str(analysis.tolerance))}. {escape(verdict)}{note}</p>"
             f"<table class=fo><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
+
+
+def _rows_html(header: list[str], rows: list[tuple[int, list[str], bool]]) -> str:
+    """A table of (segment, cells, bad) rows, numbers right-aligned, bad rows marked."""
+    head = "".join(f"<th>{escape(h)}</th>" for h in header)
+    body = "".join(f"<tr{' class=bad' if bad else ''}><td>{k}</td>"
+                   + "".join(f"<td class=num>{escape(c)}</td>" for c in cells) + "</tr>" for k, cells, bad in rows)
+    return f"<table class=fo><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+_SPREAD_HEADER = ["quantity", "nominal", "band", "tempco"]
+
+
+def _study_html(analysis: "Analysis", section: ToleranceSection | None) -> tuple[str, str]:
+    """The tolerance section's HTML before its plots and after them."""
+    spread = analysis.spread
+    spread_table = _html_table(_SPREAD_HEADER, spread_rows(spread, analysis.fixture))
+    if section is None:  # a spread but no tolerance to judge the units by
+        return ("<h2>Tolerance study</h2>" + spread_table
+                + f"<p>Temperature: {escape(temperature_text(spread))}.</p><p>No tolerance was given, so the "
+                  f"units are not judged. Give one with <code>tolerance=fo.Tolerance.lsb(bits=16, span=5.0)</code> "
+                  f"(for example).</p>", "")
+    worst, unit = section.worst_segment, section.worst_unit
+    left_out = (f" The {len(section.settle[1])} segments of least yield are listed of {len(section.table)}; "
+                f"<code>firstorder study</code> lists them all." if section.left_out else "")
+    top = [
+        "<h2>Tolerance study</h2>",
+        "<p>The lot: every unit draws each quantity from its band (and its temperature once); a unit is judged "
+        "like the nominal fixture above, by the same tolerance at the same sample instants.</p>",
+        spread_table,
+        _html_table(None, [list(r) for r in section.settings]),
+        "<h3>Passing</h3>",
+        _html_table(None, [list(r) for r in section.passing_rows]),
+        "<h3>Per segment</h3>",
+        f"<p>Settle time after the change: of the nominal unit, met by each fraction of units, and of the "
+        f"slowest unit (\"ends first\": the segment ends before that many settle; a hold that droops out of "
+        f"the tolerance never settles).{left_out}</p>",
+        _rows_html(*section.settle),
+        "<p>At the sample: the error met by each fraction of units and the largest, the yield (units inside "
+        "at this sample) and the worst unit (the largest error against its limit). Rows where a unit fails "
+        "are shaded.</p>",
+        _rows_html(*section.sample),
+        f"<h3>Worst segment: {worst}</h3>",
+        f"<p>Segment {worst} (the least yield; of equal yields the largest error at the sample) from {escape(format_value(float(section.table['start'].iloc[worst]), 's'))}: "
+        f"{escape(_histogram_caption(section))} The curve is the share of units inside tolerance if the sample "
+        f"were taken that long after the change, from each unit's own settle time; past the segment's end "
+        f"(dotted) it is the dwell the segment would need.</p>",
+        f"<p>{escape(needed_text(section))}</p>",
+    ]
+    bottom = [f"<h3>Uncertainty budget of segment {worst}</h3>"]
+    if section.budget is None:
+        bottom.append(f"<p>No budget: {escape(section.budget_error)}</p>")
+    else:
+        budget = section.budget
+        bottom.append(f"<p>JCGM 100 budget of the {escape(budget.output.replace('_', ' '))}, beside the "
+                      f"Monte Carlo result of the study's units (JCGM 101).</p>")
+        # Distribution and method are words that may wrap; the numbers are not.
+        bottom.append(_html_table(list(budget.HEADER), [budget.cells(r) for r in budget.rows],
+                                  numeric=frozenset({1, 3, 4, 6, 7})))
+        bottom.append(_html_table(None, [list(r) for r in budget.lines()]))
+    bottom.append(f"<h3>Worst unit: {unit}</h3>")
+    bottom.append(f"<p>{escape(worst_unit_text(section))}</p>")
+    bottom.append(_html_table(["quantity", "nominal", f"unit {unit}", "deviation"], section.unit_values, 1))
+    return "".join(top), "".join(bottom)
+
+
+def _histogram_caption(section: ToleranceSection) -> str:
+    missing = section.histogram.missing
+    if section.quantity == "settle_time":
+        text = (f"the histogram counts the units' settle times, with the sample delay "
+                f"({format_value(section.sample_delay, 's')}) dashed, or named in the title when it lies far "
+                f"off the bins.")
+    else:
+        never = int((~np.isfinite(section.settle_times)).sum())
+        text = (f"the histogram counts the units' errors at the sample, with the nominal unit's limit "
+                f"({format_value(section.limit, section.value_unit)}) dashed, or named in the title when it lies "
+                f"far off the bins ({never:,} units never settle "
+                f"within the tolerance here, so their settle times cannot be counted).")
+    return text + (f" {missing:,} units have no value." if missing else "")
 
 
 def _cautions_html(analysis: "Analysis") -> str:
@@ -172,7 +255,7 @@ def html_report(analysis: "Analysis", now: str | None = None) -> str:
             f"report: needs bokeh for its plot ({error}); install it with "
             f"pip install 'firstorder[widgets]'"
         ) from None
-    from ..io.analysis_format import EMBED_ID
+    from ..io.analysis_format import EMBED_ID, FORMAT_VERSION
 
     stamp = now or timestamp()
     title = analysis.title or "firstorder analysis"
@@ -193,12 +276,17 @@ def html_report(analysis: "Analysis", now: str | None = None) -> str:
         top.append("<h3>Probes</h3>" + _html_table(["name", "watches"], probe_rows(fixture)))
     top.append("</section>")
     top.append(f"<section id=drive><h2>Drive</h2>{_drive_html(analysis.drive)}</section>")
+    middle = f"<section id=settling><h2>Settling</h2>{_settling_html(analysis)}</section>"
+    section = study_section(analysis)
+    study_top, study_bottom = _study_html(analysis, section) if analysis.spread is not None else ("", "")
+    if section is None and study_top:  # no plots to put between: the section in one piece
+        middle += f"<section id=tolerance>{study_top}</section>"
     bottom = [
-        f"<section id=settling><h2>Settling</h2>{_settling_html(analysis)}</section>",
         f"<section id=cautions><h2>Cautions</h2>{_cautions_html(analysis)}</section>",
         f"<section id=derivations><h2>Derivations</h2>{_derivations_html(analysis)}</section>",
         f"<footer>firstorder {escape(version())} · report written {escape(stamp)} · the analysis "
-        f"below this line is the whole input, in the firstorder-analysis JSON format, version 1.</footer>",
+        f"below this line is the whole input, in the firstorder-analysis JSON format, version "
+        f"{FORMAT_VERSION}.</footer>",
         f'<script type="application/json" id="{EMBED_ID}">{analysis.embedded_json()}</script>',
     ]
     return standalone_page(
@@ -210,4 +298,8 @@ def html_report(analysis: "Analysis", now: str | None = None) -> str:
         caption_html_for=lambda caption: f"<p class=meta>{escape(caption)}</p>",
         tolerance=analysis.tolerance,
         table=analysis.settling() if analysis.tolerance is not None else None,
+        middle_html=middle,
+        study=section,
+        study_top_html=study_top,
+        study_bottom_html=study_bottom,
     )

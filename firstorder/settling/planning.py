@@ -135,7 +135,7 @@ def _renamed(sample_delay: Any, hold_after: Any) -> tuple[Any, str]:
     warnings.warn(
         "plan_dwells: sample_delay= here meant the time each step holds after its sample; that is now "
         "hold_after= (sample_delay means the time from a change to its sample everywhere else, and will "
-        "mean it here in the next release); taken as hold_after for now", FutureWarning, stacklevel=3)
+        "mean it here in the next release); taken as hold_after for now", FutureWarning, stacklevel=4)
     return sample_delay, "sample_delay"
 
 
@@ -402,14 +402,8 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
     >>> (ticked.durations / 1e-3).round(6)
     array([10., 10.,  9.])
     """
-    hold_after, field = _renamed(sample_delay, hold_after)
-    sample_delay = field  # from here on, only the name the user gave the hold
-    if spread is not None:
-        return _for_the_lot(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after,
-                            margin, clock, method, spread, units, seed, fraction)[0]
-    _no_lot(units, seed)
-    return _plan(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after, margin,
-                 clock, method, table=False)[0]
+    return _planned(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after, margin,
+                    clock, method, spread, units, seed, fraction, table=False)[0]
 
 
 def plan_table(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 0.0, min_dwell: Any = 0.0,
@@ -454,14 +448,22 @@ def plan_table(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 0
     >>> round(table.attrs["total_time"], 6)
     0.019034
     """
+    return _planned(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after, margin,
+                    clock, method, spread, units, seed, fraction, table=True)[1]
+
+
+def _planned(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after, margin, clock,
+             method, spread, units, seed, fraction, table: bool):
+    """(drive, table) of :func:`plan_dwells` and :func:`plan_table`: the old name of the hold
+    read, then the lot's plan or the one unit's (the table made only when asked)."""
     hold_after, field = _renamed(sample_delay, hold_after)
     sample_delay = field  # from here on, only the name the user gave the hold
     if spread is not None:
         return _for_the_lot(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after,
-                            margin, clock, method, spread, units, seed, fraction)[1]
+                            margin, clock, method, spread, units, seed, fraction)
     _no_lot(units, seed)
     return _plan(fixture, levels, tolerance, initial, min_dwell, start, sample_delay, probe, hold_after, margin,
-                 clock, method)[1]
+                 clock, method, table=table)
 
 
 def _no_lot(units: Any, seed: Any) -> None:

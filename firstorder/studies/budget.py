@@ -134,7 +134,8 @@ class Budget:
         frame.attrs.update({k: getattr(self, k) for k in Budget.__dataclass_fields__ if k != "rows"})
         return frame
 
-    def _lines(self) -> list[tuple[str, str]]:
+    def lines(self) -> list[tuple[str, str]]:
+        """The totals as ``(label, text)``: estimate, u_c, U, the Monte Carlo result, the check."""
         u = self.unit
         return [
             ("output", f"{self.output} of segment {self.segment}"),
@@ -151,18 +152,20 @@ class Budget:
              f"{'yes' if self.linear_holds else 'no'} (end points within {format_value(self.numerical_tolerance, u)})"),
         ]
 
-    def _cells(self, row: BudgetRow) -> list[str]:
+    def cells(self, row: BudgetRow) -> list[str]:
+        """One input's row as text, under :attr:`HEADER`."""
         return [row.key, format_value(row.estimate, row.unit), row.distribution,
                 format_value(row.standard_uncertainty, row.unit), f"{row.sensitivity:.6g}", row.method,
                 format_value(row.contribution, self.unit), f"{row.share:.1%}"]
 
-    _HEADER = ("input", "estimate", "distribution", "u(x)", "c", "c from", "|c| u(x)", "share")
+    #: The headings of :meth:`cells`.
+    HEADER = ("input", "estimate", "distribution", "u(x)", "c", "c from", "|c| u(x)", "share")
 
     def __str__(self) -> str:
-        cells = [list(self._HEADER)] + [self._cells(r) for r in self.rows]
-        widths = [max(len(c[i]) for c in cells) for i in range(len(self._HEADER))]
+        cells = [list(self.HEADER)] + [self.cells(r) for r in self.rows]
+        widths = [max(len(c[i]) for c in cells) for i in range(len(self.HEADER))]
         table = ["  ".join(c.ljust(w) for c, w in zip(row, widths)).rstrip() for row in cells]
-        return "\n".join(table + [f"{k}: {v}" for k, v in self._lines()])
+        return "\n".join(table + [f"{k}: {v}" for k, v in self.lines()])
 
     def _repr_html_(self) -> str:
         from html import escape
@@ -170,8 +173,8 @@ class Budget:
         from .._html import table
 
         summary = "".join(f"<tr><th style='text-align:left'>{escape(k)}</th><td>{escape(v)}</td></tr>"
-                          for k, v in self._lines())
-        return (table(self._HEADER, [self._cells(r) for r in self.rows], caption="Uncertainty budget (JCGM 100)")
+                          for k, v in self.lines())
+        return (table(self.HEADER, [self.cells(r) for r in self.rows], caption="Uncertainty budget (JCGM 100)")
                 + f"<table>{summary}</table>")
 
 

@@ -17,7 +17,22 @@ from ..units import format_value
 if TYPE_CHECKING:
     from .study import Study
 
-__all__ = ["study_html", "study_markdown", "study_rows"]
+__all__ = ["study_html", "study_markdown", "study_rows", "worst_segment"]
+
+
+def worst_segment(table) -> int:
+    """The worst segment of a study's settling table (:meth:`Study.settling`): the least
+    yield; of equal yields, the largest error at the sample (the worst unit's); of equals,
+    the first.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> worst_segment(pd.DataFrame({"yield": [1.0, 0.0, 0.0], "error_max": [1e-6, 2e-3, 5e-3]}))
+    2
+    """
+    order = np.lexsort((-table["error_max"].to_numpy(dtype=float), table["yield"].to_numpy(dtype=float)))
+    return int(order[0])
 
 
 def study_rows(study: "Study") -> list[tuple[str, str]]:
@@ -38,10 +53,13 @@ def study_rows(study: "Study") -> list[tuple[str, str]]:
     settled = study._shown["table"]
     tolerance = figures[0]
     passing = settled.attrs["passing"]
-    rows.append(("tolerance", str(tolerance) + ("" if figures[1] is None else f", sample delay {figures[1]}")))
+    delay = figures[1]
+    if delay is not None and not isinstance(delay, (str, int, float)):
+        delay = "one per segment"  # not a list of a million numbers
+    rows.append(("tolerance", str(tolerance) + ("" if delay is None else f", sample delay {delay}")))
     rows.append(("passing yield", f"{passing:,} of {study.units:,} units ({passing / study.units:.4%}) have every "
                                   f"sample inside"))
-    worst = int(np.argmin(settled["yield"].to_numpy()))
+    worst = worst_segment(settled)
     row = settled.iloc[worst]
     rows.append(("worst segment", f"segment {worst} (from {format_value(float(row['start']), 's')}): yield "
                                   f"{float(row['yield']):.4%}, largest error "

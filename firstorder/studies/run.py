@@ -171,16 +171,20 @@ class UnitsRun:
     def _droop(self, hold, start, final, limit, settle, error, delays, value, relative):
         """The settling table's rule for holds, on every unit at once: droop from the held
         value, ``|start - final| (1 - e^(-d/tau))``, against the limit (relative: of the
-        held value); the same operations as the table, so each row is its unit's table."""
-        step = np.abs(start - final)
-        droop_end = step * -np.expm1(-self.drive.durations * self.rate)
+        held value); the same operations as the table, so each row is its unit's table.
+        Only the hold segments' columns are formed (and written into `settle` and `error`)."""
+        columns = np.flatnonzero(hold)
+        held, rate = start[:, columns], self.rate[:, columns]
+        step = np.abs(held - final[:, columns])
+        droop_end = step * -np.expm1(-self.drive.durations[columns] * rate)
         if relative:
-            limit = np.where(hold, value * np.abs(start), limit)
-        within = droop_end <= limit
+            limit = np.array(limit)  # a broadcast of the fixed part until now
+            limit[:, columns] = value * np.abs(held)
+        within = droop_end <= limit[:, columns]
         # A hold that stays inside is settled at once; one that droops out never settles.
-        settle = np.where(hold, np.where(within, 0.0, np.nan), settle)
-        droop = droop_end if delays is None else step * -np.expm1(-delays * self.rate)
-        return limit, settle, np.where(hold, droop, error)
+        settle[:, columns] = np.where(within, 0.0, np.nan)
+        error[:, columns] = droop_end if delays is None else step * -np.expm1(-delays[columns] * rate)
+        return limit, settle, error
 
     def summary(self, request: Request) -> SettlingSummary:
         """This run's :class:`SettlingSummary` for `request`."""

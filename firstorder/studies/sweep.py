@@ -80,7 +80,7 @@ def _grid(fixture: "Fixture", over: Any) -> tuple[list[str], list[tuple[Any, ...
 
 def sweep(fixture: "Fixture", drive: "Drive", spread: Any, over: Any, *, tol: "Tolerance", units: Any, seed: Any,
           fractions: Sequence[float] = (0.999,), sample_delay: Any = None, probe: str | None = None,
-          target: Any = "final", initial: Any = 0.0, client: Any = None) -> "pd.DataFrame":
+          target: Any = "final", initial: Any = 0.0, client: Any = None, **options: Any) -> "pd.DataFrame":
     """One study per design point of `over`, as a tidy table: a row per point and segment.
 
     Parameters
@@ -100,6 +100,8 @@ def sweep(fixture: "Fixture", drive: "Drive", spread: Any, over: Any, *, tol: "T
         As for :meth:`Study.settling <firstorder.studies.study.Study.settling>`.
     client : dask.distributed.Client, optional
         Run each point's chunks on a cluster (see :meth:`Fixture.study`).
+    **options
+        ``chunk``, ``keep``, ``progress``: as for :class:`~firstorder.studies.study.Study`.
 
     Returns
     -------
@@ -131,7 +133,7 @@ def sweep(fixture: "Fixture", drive: "Drive", spread: Any, over: Any, *, tol: "T
     if not isinstance(spread, Spread):
         spread = Spread(spread)
     chosen = [_fraction(f, "fractions") for f in fractions]
-    study_options = {} if client is None else {"client": client}
+    study_options = dict(options) if client is None else {**options, "client": client}
     frames = []
     for index, point in enumerate(points):
         seed_here = point_seed(seed, index)

@@ -13,6 +13,7 @@ import pytest
 from builders import (
     general_analysis,
     valid_data,
+    with_value_at,
     write_json,
 )
 
@@ -21,13 +22,7 @@ from firstorder.analysis import MAX_FILE_BYTES, Analysis
 from firstorder.io.analysis_format import path_text
 
 
-def _set(data: dict, path: list, value) -> dict:
-    data = copy.deepcopy(data)
-    target = data
-    for step in path[:-1]:
-        target = target[step]
-    target[path[-1]] = value
-    return data
+_set = with_value_at
 
 
 def _without(data: dict, path: list) -> dict:

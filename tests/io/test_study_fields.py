@@ -3,11 +3,10 @@ round trip, version 1 files still load, and malformed study fields are refused b
 
 from __future__ import annotations
 
-import copy
 import json
 
 import pytest
-from builders import general_analysis, write_json
+from builders import general_analysis, with_value_at, write_json
 
 import firstorder as fo
 from firstorder.analysis import Analysis
@@ -22,13 +21,7 @@ def study_data() -> dict:
     return json.loads(general_analysis(spread=SPREAD, units=200, seed=9, fractions=(0.5, 0.999)).to_json())
 
 
-def _set(data: dict, path: list, value) -> dict:
-    data = copy.deepcopy(data)
-    target = data
-    for step in path[:-1]:
-        target = target[step]
-    target[path[-1]] = value
-    return data
+_set = with_value_at
 
 
 class TestRoundTrip:
@@ -49,6 +42,25 @@ class TestRoundTrip:
         tol = fo.Tolerance.lsb(bits=16, span=5.0)
         assert loaded.study().settling(tol).equals(analysis.study().settling(tol))
         assert loaded.to_json() == analysis.to_json()
+
+    def test_the_study_is_about_the_analysiss_tolerance_delay_and_fractions(self):
+        analysis = general_analysis(spread=SPREAD, units=200, seed=9, fractions=(0.5, 0.999))
+        study = analysis.study(progress=False)
+        passing = study.passing(analysis.tolerance, analysis.sample_delay)
+        shown = study._repr_html_()
+        assert f"{passing.passing:,} of 200 units" in shown and "0.4m" in shown
+        assert analysis.study(progress=False, fractions=(0.9,)).units == 200  # options replace them
+
+    def test_keys_with_spaces_round_trip(self, tmp_path):
+        fx = fo.Fixture()
+        fx.voltage_source("v in", "a", "gnd")
+        fx.resistor("r in 1", "a", "b", "1k")
+        fx.capacitor("c hold", "b", "gnd", "1u")
+        spread = Spread({"r in 1": "1%", "c hold": Uniform("-5%", "+10%"), "v in.offset": "1m"}, temperature=(0, 40),
+                        tempco={"c hold": "100ppm"})
+        analysis = Analysis(fx, fo.Drive([0], end="5m", **{"v in": [1.0]}), spread=spread, units=10)
+        loaded = Analysis.load(analysis.save(tmp_path / "a.json"))
+        assert loaded.spread == spread and loaded.spread.keys == spread.keys
 
     def test_no_spread_writes_no_study_fields(self):
         data = json.loads(general_analysis().to_json())

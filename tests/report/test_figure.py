@@ -79,3 +79,48 @@ class TestHoldsAndErrorView:
         np.testing.assert_array_equal(samples.data_source.data["error"],
                                       np.maximum(table["error_at_sample"].to_numpy(), floor))
         assert "log scale" in caption
+
+
+class TestToleranceFigures:
+    """The tolerance section's histogram and yield curve draw the worst segment's units, recomputed
+    here from ``Study.segment_values`` (numpy's histogram; the share of units with settle <= d)."""
+
+    @pytest.fixture(scope="class")
+    @staticmethod
+    def made():
+        from firstorder.cli import demo_analysis
+        from firstorder.report.tables import study_section
+
+        analysis = demo_analysis()
+        return analysis, analysis.study(progress=False), study_section(analysis)
+
+    @staticmethod
+    def source(panel, name):
+        from bokeh.models import ColumnDataSource
+
+        (found,) = [s for s in panel.select(type=ColumnDataSource) if s.name == name]
+        return {key: np.asarray(value) for key, value in found.data.items()}
+
+    def test_the_histogram_bins_every_unit(self, made):
+        from firstorder.report.figure import STUDY_ROOT, histogram_figure
+
+        analysis, study, section = made
+        panel = histogram_figure(section)
+        data = self.source(panel, "histogram")
+        values, _ = study.segment_values(section.worst_segment, section.quantity, analysis.tolerance,
+                                         analysis.sample_delay if section.quantity == "error_at_sample" else None)
+        counts, edges = np.histogram(values, bins=40)
+        assert np.array_equal(data["count"], counts)
+        assert np.array_equal(data["left"], edges[:-1]) and np.array_equal(data["right"], edges[1:])
+        assert panel.name == STUDY_ROOT and f"Segment {section.worst_segment}" in panel.title.text
+
+    def test_the_yield_curve_is_the_share_of_units_settled_by_each_delay(self, made):
+        from firstorder.report.figure import yield_figure
+
+        analysis, study, section = made
+        data = self.source(yield_figure(section), "yield")
+        settle, _ = study.segment_values(section.worst_segment, "settle_time", analysis.tolerance)
+        assert data["delay"].size >= 2
+        for d, f in zip(data["delay"], data["fraction"]):
+            assert f == np.mean(settle <= d)
+        assert data["fraction"][-1] == np.mean(np.isfinite(settle))

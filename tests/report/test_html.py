@@ -279,12 +279,14 @@ class TestPrint:
     """The report prints on A4 and Letter with nothing cut (Chromium's print media and PDF)."""
 
     @pytest.mark.parametrize("paper", ["A4", "Letter"])
-    @pytest.mark.parametrize("which", ["demo", "relay"])
+    @pytest.mark.parametrize("which", ["demo", "relay", "study"])
     def test_nothing_overflows_the_printable_width(self, tmp_path, paper, which):
+        from builders import study_analysis
+
         from firstorder.cli import demo_analysis
 
         sync_playwright = _browser_or_skip()
-        analysis = demo_analysis() if which == "demo" else relay_analysis()
+        analysis = {"demo": demo_analysis, "relay": relay_analysis, "study": study_analysis}[which]()
         url = analysis.report(tmp_path / "report.html").resolve().as_uri()
         width = int(PRINTABLE_WIDTH[paper])
         with sync_playwright() as playwright:
@@ -308,3 +310,129 @@ class TestPrint:
         assert found["width"] == width and found["scroll"] <= width, found
         assert found["over"] == [], found["over"][:10]
         assert found["toolbars"] == []  # the plot tools are not printed
+
+
+def _section(html: str, name: str) -> str:
+    return html.split(f"<section id={name}>")[1].split("</section>")[0]
+
+
+class TestToleranceSection:
+    """A report of an analysis with a spread has a tolerance section of the Study's numbers."""
+
+    @pytest.fixture(scope="class")
+    @staticmethod
+    def made():
+        from builders import study_analysis
+
+        analysis = study_analysis()
+        return analysis, analysis.study(progress=False), analysis.to_html()
+
+    def test_the_section_sits_after_the_settling_table(self, made):
+        html = made[2]
+        assert html.index("<section id=settling>") < html.index("<section id=tolerance>") \
+            < html.index("<section id=cautions>")
+        section = _section(html, "tolerance")
+        for heading in ("Tolerance study", "Passing", "Per segment", "Worst segment", "Uncertainty budget",
+                        "Worst unit"):
+            assert heading in section
+
+    def test_the_numbers_are_the_studys(self, made):
+        analysis, study, html = made
+        section = _section(html, "tolerance")
+        passing = study.passing(analysis.tolerance, analysis.sample_delay)
+        assert f"{passing.passing:,} of {passing.units:,} have every sample inside ({passing.fraction:.4%})" in section
+        assert f"{passing.low:.4%} to {passing.high:.4%}" in section
+        table = study.settling(analysis.tolerance, analysis.sample_delay)
+        for k in range(len(table)):
+            yield_cell = f"{table['yield'][k]:.2%}"
+            worst = str(table["worst_unit"][k])
+            assert f"<td class=num>{yield_cell}</td><td class=num>{worst}</td></tr>" in section
+            nominal = report_tables.settling_cell("nominal_settle_time", table["nominal_settle_time"][k], "V")
+            assert f"<td>{k}</td><td class=num>{fo.format_value(table['start'][k], 's', digits=5)}</td>" \
+                   f"<td class=num>{nominal}</td>" in section
+        for key in analysis.spread.keys:
+            assert f"<td>{key}</td>" in section
+        assert "0 to 50 °C" in section and "<td>units</td><td>400</td>" in section and "<td>seed</td><td>11</td>" in section
+
+    def test_two_plots_in_the_section(self, made):
+        from firstorder.report.figure import STUDY_ROOT
+
+        section = made[2].split("<section id=tolerance>")[1].split("</section>")[0]
+        assert section.count("<div class=plot>") == 2
+        assert STUDY_ROOT in made[2]
+
+    def test_the_report_loads_back_with_its_spread(self, made, tmp_path):
+        analysis, _, html = made
+        path = tmp_path / "r.html"
+        path.write_text(html, encoding="utf-8")
+        again = Analysis.load(path)
+        assert again.spread == analysis.spread and again.study_settings == analysis.study_settings
+        assert again.to_json() == analysis.to_json()
+
+    def test_without_a_spread_there_is_no_section(self, report_html):
+        assert "<section id=tolerance>" not in report_html and "Tolerance study" not in report_html
+
+    def test_a_spread_without_a_tolerance_shows_the_spread_and_says_why_no_units_are_judged(self):
+        from builders import study_analysis
+
+        section = _section(study_analysis(tolerance=None).to_html(), "tolerance")
+        assert "<td>k1.r_on</td>" in section and "No tolerance was given" in section
+
+
+#: A hostile name a spread can carry (no "." in it, which a spread key reads as part.field).
+HOSTILE_SPREAD = "<img src=x onerror=alert(1)>"
+
+
+class TestHostileNamesInTheStudy:
+    @pytest.fixture(scope="class")
+    @staticmethod
+    def analysis():
+        fx = fo.Fixture()
+        fx.voltage_source("v" + HOSTILE_SPREAD, "in", "gnd")
+        fx.resistor("r" + HOSTILE_SPREAD, "in", "out", "1k")
+        fx.capacitor("c" + HOSTILE_SPREAD, "out", "gnd", "1u")
+        spread = fo.Spread({"r" + HOSTILE_SPREAD: "1%", "c" + HOSTILE_SPREAD: "10%",
+                            "v" + HOSTILE_SPREAD + ".gain": "0.1%"}, temperature=(0, 40),
+                           tempco={"c" + HOSTILE_SPREAD: "100ppm"})
+        return Analysis(fx, fo.Drive([0, "5m"], end="10m", **{"v" + HOSTILE_SPREAD: [1.0, 0.0]}),
+                        tolerance=fo.Tolerance.absolute("1m"), sample_delay="4m", spread=spread, units=50,
+                        title="t" + HOSTILE_SPREAD)
+
+    def test_no_element_from_the_names(self, analysis):
+        from builders import assert_inert
+
+        html = analysis.to_html()
+        assert_inert(html, HOSTILE_SPREAD)
+        section = _section(html, "tolerance")
+        assert section.count("&lt;img src=x onerror=alert(1)&gt;") >= 6  # spread, budget and unit tables
+
+    def test_names_with_spaces_load_back_with_their_spread(self, analysis, tmp_path):
+        again = Analysis.load(analysis.report(tmp_path / "r.html"))
+        assert again.spread == analysis.spread and again.spread.keys == analysis.spread.keys
+
+
+class TestToleranceSectionInBrowser:
+    def test_the_section_renders_offline(self, tmp_path):
+        from builders import study_analysis
+
+        sync_playwright = _browser_or_skip()
+        path = study_analysis().report(tmp_path / "report.html")
+        url = path.resolve().as_uri()
+        requests, errors = [], []
+        with sync_playwright() as playwright:
+            browser = playwright.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_FLAGS)
+            try:
+                page = browser.new_page(viewport={"width": 1100, "height": 900})
+                page.on("request", lambda request: requests.append(request.url))
+                page.on("pageerror", lambda error: errors.append(str(error)))
+                page.goto(url)
+                page.wait_for_selector("#tolerance canvas", timeout=30_000)
+                page.wait_for_load_state("networkidle")
+                boxes = [page.locator("#tolerance div.plot").nth(i).bounding_box() for i in range(2)]
+                os.makedirs("build/reportlot", exist_ok=True)
+                page.locator("#tolerance").screenshot(path="build/reportlot/tolerance-section.png")
+            finally:
+                browser.close()
+        assert requests == [url], requests
+        assert errors == []
+        assert all(box["width"] > 300 and box["height"] > 150 for box in boxes), boxes

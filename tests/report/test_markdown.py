@@ -52,3 +52,39 @@ def test_hostile_names_stay_text_outside_the_maths():
     # Markdown passes inline HTML through to the page it becomes: the names must be entities.
     assert_inert(text)
     assert "&lt;img src=x" in text
+
+
+class TestToleranceStudy:
+    def test_the_section_with_the_studys_numbers(self):
+        from builders import study_analysis
+
+        analysis = study_analysis()
+        text = analysis.markdown(derivations=False)
+        study = analysis.study(progress=False)
+        passing = study.passing(analysis.tolerance, analysis.sample_delay)
+        table = study.settling(analysis.tolerance, analysis.sample_delay)
+        assert text.index("## Settling") < text.index("## Tolerance study") < text.index("## Cautions")
+        assert f"| passing units | {passing.passing:,} of {passing.units:,} have every sample inside" in text
+        assert f"{passing.low:.4%} to {passing.high:.4%}" in text
+        for k in range(len(table)):
+            assert f"| {table['yield'][k]:.2%} | {table['worst_unit'][k]} |" in text
+        for heading in ("### Worst segment", "### Worst unit"):
+            assert f"\n{heading}" in text
+        assert "| k1.r_on | 100 mΩ | 50m .. 300m | — |" in text and "| ch | 100 nF | ±5% | -750ppm/K |" in text
+
+    def test_without_a_spread_no_section(self):
+        assert "Tolerance study" not in relay_analysis().markdown(derivations=False)
+
+    def test_hostile_names_in_the_spread_stay_text(self):
+        from builders import assert_inert
+
+        hostile = "<img src=x onerror=alert(1)>"
+        fx2 = fo.Fixture()
+        fx2.voltage_source("vin", "in", "gnd")
+        fx2.resistor("r" + hostile, "in", "out", "1k")
+        fx2.capacitor("c", "out", "gnd", "1u")
+        analysis = Analysis(fx2, fo.Drive([0], end="10m", vin=[1.0]), tolerance=fo.Tolerance.absolute("1m"),
+                            spread=fo.Spread({"r" + hostile: "1%"}), units=20)
+        text = analysis.markdown(derivations=False)
+        assert_inert(text, hostile)
+        assert "r&lt;img src=x onerror=alert(1)&gt;" in text

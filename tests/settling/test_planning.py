@@ -7,7 +7,7 @@ import math
 
 import numpy as np
 import pytest
-from builders import switched_fixture
+from builders import scanner, switched_fixture
 
 import firstorder as fo
 from firstorder.errors import InputError
@@ -24,15 +24,7 @@ def sample_errors(fx, drive, delays, initial=0.0):
 
 class TestPlanDwells:
     def scanner(self) -> fo.Fixture:
-        """Three channels with different source resistances behind a multiplexer (our own scenario)."""
-        fx = fo.Fixture()
-        for j, rs in enumerate(["100", "2.2k", "10k"]):
-            fx.voltage_source(f"v{j}", f"s{j}", "gnd")
-            fx.resistor(f"rs{j}", f"s{j}", f"m{j}", rs)
-            fx.switch(f"k{j}", f"m{j}", "mux", r_on="50")
-        fx.resistor("rf", "mux", "adc", "500")
-        fx.capacitor("cf", "adc", "gnd", "10n")
-        return fx
+        return scanner()
 
     @pytest.mark.parametrize("seed", range(3))
     def test_every_dwell_is_minimal_shortening_by_0_1_percent_fails(self, seed):

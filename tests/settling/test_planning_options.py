@@ -9,19 +9,8 @@ import numpy as np
 import pytest
 
 import firstorder as fo
+from builders import scanner
 from firstorder.errors import InputError
-
-
-def scanner() -> fo.Fixture:
-    """Three channels behind a multiplexer into an RC filter (our own scenario)."""
-    fx = fo.Fixture()
-    for j, rs in enumerate(["100", "2.2k", "10k"]):
-        fx.voltage_source(f"v{j}", f"s{j}", "gnd")
-        fx.resistor(f"rs{j}", f"s{j}", f"m{j}", rs)
-        fx.switch(f"k{j}", f"m{j}", "mux", r_on="50")
-    fx.resistor("rf", "mux", "adc", "500")
-    fx.capacitor("cf", "adc", "gnd", "10n")
-    return fx
 
 
 LEVELS = {"v0": [1.0] * 6, "v1": [4.0] * 6, "v2": [-2.0] * 6,
