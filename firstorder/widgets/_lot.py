@@ -9,9 +9,9 @@ temperature range, the tempcos and the number of units.  Each band is read by
 :class:`~firstorder.studies.spread.Spread`, checked against the fixture; no band at all
 means no study.  Every number shown is the study's own: the envelope
 (:meth:`Study.envelope <firstorder.studies.Study.envelope>`), a segment's values
-(:meth:`Study.segment_values <firstorder.studies.Study.segment_values>`), and the yield
-against the sample delay, the fraction of units whose own settle time is at most the delay
-(exact: a step of 1/units at each unit's settle time).
+(:meth:`Study.segment_values <firstorder.studies.Study.segment_values>`), binned and
+turned into the yield against the sample delay by the report's own rules
+(:mod:`firstorder.report.tables`: ``histogram``, ``yield_curve``, ``needed_delays``).
 """
 
 from __future__ import annotations
@@ -32,9 +32,7 @@ from ..studies.study import CHUNK_ELEMENTS, Study
 from ..units import parse_value, shown
 from ._fields import part_fields
 
-__all__ = ["BAND_PREFIX", "HISTOGRAM_BINS", "LOT_KEYS", "LotInputs", "MAX_UNITS", "TEMPCO", "TEMPERATURE", "UNITS",
-           "histogram", "is_lot_key", "lot_inputs", "lot_texts", "make_study", "quantity_keys", "quantity_units", "read_lot", "shown_segment",
-           "yield_curve"]
+__all__ = ["BAND_PREFIX", "LOT_KEYS", "LotInputs", "MAX_UNITS", "TEMPCO", "TEMPERATURE", "UNITS", "is_lot_key", "lot_inputs", "lot_texts", "make_study", "quantity_keys", "quantity_units", "read_lot", "shown_segment"]
 
 #: A band field's key in the session's texts and errors: ``"band r"``, ``"band k1.r_on"``.
 BAND_PREFIX = "band "
@@ -43,8 +41,6 @@ TEMPERATURE, TEMPCO, UNITS = "lot temperature", "lot tempco", "lot units"
 LOT_KEYS = (TEMPERATURE, TEMPCO, UNITS)
 #: The most units a Bench studies: it runs the study again on every edit.
 MAX_UNITS = 100_000
-#: Bins of the Settling tab's histogram.
-HISTOGRAM_BINS = 40
 
 
 def is_lot_key(key: str) -> bool:
@@ -200,43 +196,3 @@ def shown_segment(table, segment: int | None) -> int:
     if segment is not None:
         return int(segment)
     return int(np.argmin(table["yield"].to_numpy()))
-
-
-def histogram(values: np.ndarray, bins: int = HISTOGRAM_BINS) -> dict[str, np.ndarray]:
-    """Counts of the finite `values` in `bins` equal bins (``left``, ``right``, ``count``).
-
-    Examples
-    --------
-    >>> histogram(np.array([1.0, 2.0, 2.0, np.nan]), bins=2)["count"].tolist()
-    [1.0, 2.0]
-    """
-    finite = values[np.isfinite(values)]
-    if finite.size == 0:
-        empty = np.zeros(0)
-        return {"left": empty, "right": empty, "count": empty}
-    low, high = float(finite.min()), float(finite.max())
-    if high == low:  # every unit alike: one bar of a width the axis can show
-        low, high = (low - 0.5, high + 0.5) if low == 0 else (low * (1 - 1e-3), high * (1 + 1e-3))
-    counts, edges = np.histogram(finite, bins=bins, range=(low, high))
-    return {"left": edges[:-1], "right": edges[1:], "count": counts.astype(float)}
-
-
-def yield_curve(settle_times: np.ndarray) -> dict[str, np.ndarray]:
-    """The fraction of units inside against the sample delay: each unit is inside from its
-    own settle time on, so the curve steps up by 1/units at every settle time (sorted), from
-    0 at no delay.  A unit that never settles (NaN) never counts.  ``delay``, ``fraction``.
-
-    Examples
-    --------
-    >>> curve = yield_curve(np.array([2e-3, 0.0, np.nan, 1e-3]))
-    >>> curve["delay"].tolist(), curve["fraction"].tolist()
-    ([0.0, 0.0, 0.001, 0.002], [0.25, 0.25, 0.5, 0.75])
-    """
-    count = settle_times.size
-    finite = np.sort(settle_times[np.isfinite(settle_times)])
-    delay = np.concatenate([[0.0], finite])
-    fraction = np.arange(finite.size + 1, dtype=float) / count
-    # A unit settled at once (0) counts from 0.
-    at_zero = np.searchsorted(finite, 0.0, side="right")
-    fraction[0] = at_zero / count
-    return {"delay": delay, "fraction": fraction}

@@ -20,10 +20,9 @@ from bokeh.plotting import figure
 
 from ..plotting.format import TICK_CODE
 from ..plotting.palette import COMPONENT_COLOURS, LOT_COLOUR, SAMPLE_FAIL
-from ..report.tables import settling_cell
-from ..studies.summary import rank
+from ..report.tables import histogram, needed_delays, settling_cell, yield_curve
 from ..units import format_value
-from ._lot import BAND_PREFIX, MAX_UNITS, TEMPCO, TEMPERATURE, UNITS, histogram, quantity_units, yield_curve
+from ._lot import BAND_PREFIX, MAX_UNITS, TEMPCO, TEMPERATURE, UNITS, quantity_units
 from ._panels import FieldsPanel, error_html
 
 __all__ = ["HISTOGRAM_QUANTITIES", "SpreadPanel", "StudyFigures", "TABLE_ROWS", "spread_panel", "status_html",
@@ -156,23 +155,23 @@ class StudyFigures:
                fractions: tuple[float, ...], sample_delay: float | None, segment: int) -> None:
         """Fill from one segment's `values` of `quantity` (in `unit`) and its units' own
         settle times (past the segment's end too; NaN: never)."""
-        self.sources["histogram"].data = histogram(values)
+        # The report's rules (report.tables): the same bins, curve and needed delays as its tolerance section.
+        counts = histogram(values)
+        self.sources["histogram"].data = {"left": counts.edges[:-1], "right": counts.edges[1:],
+                                          "count": counts.counts.astype(float)}
         self.histogram_axis.args = {"unit": unit}
-        never = int(np.count_nonzero(~np.isfinite(values)))
+        never = counts.missing
         self.counts.title.text = (f"Segment {segment}: {HISTOGRAM_QUANTITIES[quantity]} of {values.size:,} units"
                                   + (f" ({never:,} never settle)" if never else ""))
         self.counts.xaxis.axis_label = HISTOGRAM_QUANTITIES[quantity]
-        self.sources["yield"].data = yield_curve(settle_times)
-        count, finite = settle_times.size, np.sort(settle_times[np.isfinite(settle_times)])
+        delay, fraction = yield_curve(settle_times)
+        self.sources["yield"].data = {"delay": delay, "fraction": fraction}
         delays, shown, labels = [], [], []
-        for fraction in fractions:
-            # The study's own order statistic (Study.delay_for): the rank-th smallest settle time.
-            needed = rank(fraction, count)
-            if needed < finite.size:
-                delay = float(finite[needed])
-                delays.append(delay)
-                shown.append((needed + 1) / count)
-                labels.append(f"{fraction * 100:g} % of units inside after {format_value(delay, 's')}")
+        for share, needed in needed_delays(settle_times, fractions):
+            if np.isfinite(needed):  # that many units never settle: no delay to mark
+                delays.append(needed)
+                shown.append(float(fraction[np.searchsorted(delay, needed, side="right") - 1]))
+                labels.append(f"{share * 100:g} % of units inside after {format_value(needed, 's')}")
         self.sources["yield marks"].data = {"delay": delays, "fraction": shown, "label": labels}
         self.inside.title.text = (f"Segment {segment}: units inside against the sample delay"
                                   + (f"; {labels[-1]}" if labels else ""))
