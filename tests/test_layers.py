@@ -54,8 +54,8 @@ LAYERS = [
     "cluster",
     "plotting.palette", "plotting.format", "plotting.sampling", "plotting.error_view", "plotting",
     "report.tables", "report.mathml", "report.markdown", "report.figure", "report.html", "report",
-    "widgets._loader", "widgets._drive_table", "widgets._generators", "widgets._files", "widgets._plot", "widgets._session", "widgets._panels",
-    "widgets._bench", "widgets",
+    "widgets._loader", "widgets._drive_table", "widgets._generators", "widgets._files", "widgets._fields", "widgets._lot",
+    "widgets._plot", "widgets._session", "widgets._panels", "widgets._study_panels", "widgets._bench", "widgets",
     "cli", "__main__",
     "",  # the package itself: it re-exports everything
 ]

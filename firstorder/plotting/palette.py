@@ -7,8 +7,8 @@ level in a colour of its own.  Readable on white and in grey print.
 
 from __future__ import annotations
 
-__all__ = ["COMPONENT_COLOURS", "COMPONENT_LABELS", "LINE_DASH", "SAMPLE_FAIL", "SAMPLE_NEUTRAL", "SAMPLE_PASS",
-           "SELECTION_COLOUR", "SOURCE_COLOURS", "SWITCH_COLOURS", "TOLERANCE_COLOUR", "component_label",
+__all__ = ["COMPONENT_COLOURS", "COMPONENT_LABELS", "LINE_DASH", "LOT_COLOUR", "SAMPLE_FAIL", "SAMPLE_NEUTRAL", "SAMPLE_PASS",
+           "SELECTION_COLOUR", "SOURCE_COLOURS", "SWITCH_COLOURS", "TOLERANCE_COLOUR", "WORST_COLOUR", "component_label",
            "source_colour", "switch_colour"]
 
 #: One colour per response component.
@@ -35,6 +35,10 @@ SOURCE_COLOURS = ("#2874a6", "#ca6f1e", "#1e8449", "#884ea0", "#a93226", "#56657
 SWITCH_COLOURS = ("#5dade2", "#f5b041", "#58d68d", "#af7ac5", "#ec7063")
 #: The band of each segment's tolerance around its final value.
 TOLERANCE_COLOUR = "#82e0aa"
+#: A study's envelope (the band of the central fraction of units), behind the curves.
+LOT_COLOUR = "#a9cce3"
+#: A study's worst unit, drawn over the nominal curves.
+WORST_COLOUR = "#e91e63"
 #: The selected segment.
 SELECTION_COLOUR = "#f4d03f"
 #: A sample inside its tolerance, outside it, and with no tolerance to judge it.

@@ -22,19 +22,21 @@ from ..fixture import Fixture
 from ..io.atomic import write_atomic
 from ..settling.tolerance import Tolerance
 from . import _panels as panels
+from . import _study_panels as lot_panels
 from ._loader import live_kernel_cell, publish_bokehjs
 from ._files import loaded_inputs
 from ._generators import column_defaults
+from ._lot import is_lot_key, lot_inputs, shown_segment
 from ._plot import Plots, View
 from ._session import SETUP_KEYS, BenchSession, part_fields
 
 __all__ = ["Bench"]
 
 _DERIVATION_TAB, _SETTLING_TAB = panels.TAB_TITLES.index("Derivation"), panels.TAB_TITLES.index("Settling")
-_ERROR_TAB = panels.TAB_TITLES.index("Error view")
+_ERROR_TAB, _SPREAD_TAB = panels.TAB_TITLES.index("Error view"), panels.TAB_TITLES.index("Spread")
 #: Every session trait a drawing depends on.
 _WATCHED = ["texts", "errors", "notice", "table", "drive", "view", "probe", "response", "settling", "summary", "residual",
-            "curves", "segment"]
+            "curves", "segment", "study", "study_table"]
 
 
 def _same(old: tuple, new: tuple) -> bool:
@@ -61,6 +63,12 @@ class Bench(widgets.VBox):
     trace : object, optional
         A measured waveform with ``.times``, ``.values`` and ``.name``; drawn over
         the model with its residual in a third panel.
+    spread : Spread, optional
+        The lot's spread: a study of `units` units (default 1,000, at most 100,000) drawn
+        with `seed` (default 1), run again on every edit.  Its band of units is drawn behind
+        the curves, its table (the `fractions` of units, default 0.5, 0.99 and 0.999) and a
+        segment's histogram and yield against the sample delay are in the Settling tab;
+        the bands, temperature, tempcos and units are fields of the Spread tab.
 
     Attributes
     ----------
@@ -76,6 +84,12 @@ class Bench(widgets.VBox):
         ``"<name>.r_off"``).  Setting ``.value`` recomputes at once.
     setup_fields : dict
         ``"initial"``, ``"tolerance"`` and ``"sample_delay"`` text widgets.
+    spread_fields : dict
+        The Spread tab's text widgets: ``"band <quantity>"`` (``"band r"``, ``"band k1.r_on"``,
+        ``"band vdac.gain"``), ``"lot temperature"``, ``"lot tempco"`` and ``"lot units"``.
+    study_sources : dict
+        The Settling tab's ``"histogram"``, ``"yield"`` and ``"yield marks"`` data sources
+        (the response plot's ``sources`` hold ``"envelope"`` and ``"worst"``).
     sources : dict
         Curve name (``"total"``, ``"zero_input"``, a source name ...) to its
         bokeh ``ColumnDataSource``; also ``"drive.<column>"``, ``"switch.<name>"``,
@@ -98,8 +112,10 @@ class Bench(widgets.VBox):
     """
 
     def __init__(self, fixture: Fixture, drive: Drive, initial: Any = 0.0, tolerance: Tolerance | None = None,
-                 sample_delay: Any = None, trace: Any = None) -> None:
-        session = self.session = BenchSession(fixture, drive, initial, tolerance, sample_delay, trace)
+                 sample_delay: Any = None, trace: Any = None, spread: Any = None, units: Any = None,
+                 seed: Any = None, fractions: Any = None) -> None:
+        session = self.session = BenchSession(fixture, drive, initial, tolerance, sample_delay, trace, spread, units,
+                                              seed, fractions)
         fixture = session.fixture
         self._syncing = False  # the Bench itself is setting a control: its callback stays quiet
         self._typed = False  # the table widget already holds the text the session took
@@ -135,9 +151,11 @@ class Bench(widgets.VBox):
             ("Analysis (JSON)", "_analysis.json", lambda path: self.save_analysis(path, *self._title_notes())),
             ("Report (HTML)", "_report.html", lambda path: self.report(path, *self._title_notes()))],
             f"{storage.kind.capitalize()} '{storage.name}': settling", self._on_load)
+        lot = self.spread_panel = lot_panels.spread_panel(fixture, session.texts, session.lot.fractions,
+                                                          self._on_field, lambda: self._refresh())
         self._panels = (parts, setup, view, editor)
-        self.fields, self.setup_fields = parts.fields, setup.fields
-        self._field_errors = {**parts.errors, **setup.errors}
+        self.fields, self.setup_fields, self.spread_fields = parts.fields, setup.fields, lot.fields.fields
+        self._field_errors = {**parts.errors, **setup.errors, **lot.fields.errors}
         self.probe_selector, self.overlays, self.undo_button = view.probe_selector, view.overlays, view.undo_button
         self.table_source, self.drive_table, self.table_view = editor.table_source, editor.drive_table, editor.table_view
         self.end_field, self.row_field, self.drag_column, self.drive_error = (
@@ -152,8 +170,19 @@ class Bench(widgets.VBox):
         self.info.add_class("fo-info")
         self.derivation, self.settling_panel = widgets.HTMLMath(value=""), widgets.HTML(value="")
         self.error_view = widgets.VBox()
-        self.tabs = panels.tab_panel([editor.box, generators.box, self.derivation, self.settling_panel, export.box,
-                                      self.error_view])
+        self.study_panel = widgets.HTML(value="")
+        self.study_figures = lot_panels.StudyFigures()
+        self.study_sources = self.study_figures.sources
+        self.study_view = BokehModel(self.study_figures.layout, combine_events=True)
+        self.study_view.layout = widgets.Layout(width="100%")
+        self.histogram_of = widgets.ToggleButtons(options=[(label, key) for key, label in
+                                                           lot_panels.HISTOGRAM_QUANTITIES.items()],
+                                                  description="histogram of")
+        self.histogram_of.observe(lambda change: self._refresh(), names="value")
+        self._study_box = widgets.VBox([self.study_panel, self.histogram_of, self.study_view])
+        settling_tab = widgets.VBox([self.settling_panel, self._study_box])
+        self.tabs = panels.tab_panel([editor.box, generators.box, self.derivation, settling_tab, export.box,
+                                      self.error_view, lot.box])
         self.tabs.observe(lambda change: self._refresh(), names="selected_index")
         left = widgets.VBox([parts.box, setup.box, view.box], layout=widgets.Layout(flex="0 0 320px", width="320px"))
         self.header = widgets.HTML()
@@ -206,6 +235,7 @@ class Bench(widgets.VBox):
         # existed reached no one, so the bundle is brought up to date first.
         self.plot_view.update_from_model(self.plots.layout)
         self.table_view.update_from_model(self.drive_table)
+        self.study_view.update_from_model(self.study_figures.layout)
 
     # -- edits: each goes to the session ------------------------------------------------------------------
     def edit_cell(self, row: int, column: str, text: str) -> None:
@@ -255,7 +285,8 @@ class Bench(widgets.VBox):
 
     def _on_field(self, key: str, text: str) -> None:
         if not self._syncing:
-            (self.session.edit_setup if key in SETUP_KEYS else self.session.edit_part)(key, text)
+            s = self.session
+            (s.edit_setup if key in SETUP_KEYS else s.edit_spread if is_lot_key(key) else s.edit_part)(key, text)
 
     def _on_row(self, action: str, row: int) -> None:
         {"add": lambda: self.add_row(), "insert": lambda: self.insert_row(row),
@@ -336,7 +367,7 @@ class Bench(widgets.VBox):
         self._redraw("errors", (s.errors, s.notice), self._show_errors)
         self._redraw("header", (s.drive,), lambda: setattr(self.header, "value", panels.header_html(s.fixture, s.drive)))
         self._redraw("texts", (s.texts, s.errors), lambda: self._sync(lambda: [
-            parts.show(s.texts, s.errors), setup.show(s.texts, s.errors)]))
+            parts.show(s.texts, s.errors), setup.show(s.texts, s.errors), self.spread_panel.fields.show(s.texts, s.errors)]))
         self._redraw("table", (s.table,), lambda: self._sync(lambda: editor.show(s.table, not self._typed,
                                                                                    len(s.history))))
         self._redraw("handles", (s.drive, self.drag_column.value), lambda: self._sync(
@@ -355,8 +386,15 @@ class Bench(widgets.VBox):
         if s.trace is not None:
             self._redraw("trace", (s.residual, s.view), lambda: self.plots.update_trace(
                 s.trace.times, s.trace.values, s.residual.times, s.residual.values, view))
-        self._redraw("value axis", (s.response, s.probe, s.view, s.curves, s.settling, s.sample_delay, s.residual),
-                     self.plots.fit_values)
+        lot = self.spread_panel
+        worst = self._worst_unit() if lot.worst.value else None
+        self._redraw("lot", (s.study, s.probe, s.view, lot.fraction.value, worst),
+                     lambda: self.plots.update_lot(s.study, s.probe, view, lot.fraction.value, *(worst or (None, ""))))
+        self._redraw("lot status", (s.study, s.errors.get("study"), s.study_table, lot.worst.value),
+                     lambda: setattr(lot.status, "value", lot_panels.status_html(
+                         s.study, s.errors.get("study"), s.study_table is None and lot.worst.value)))
+        self._redraw("value axis", (s.response, s.probe, s.view, s.curves, s.settling, s.sample_delay, s.residual,
+                                    s.study, lot.fraction.value, worst), self.plots.fit_values)
         self._redraw("info", (s.response, self.plots.mode, s.residual),
                      lambda: setattr(self.info, "value", panels.info_html(s, self.plots.mode)))
         self._redraw("cautions", (s.response,), lambda: setattr(
@@ -367,11 +405,43 @@ class Bench(widgets.VBox):
         # a newly selected segment shows its derivation at once.
         self._redraw("settling panel", (s.settling, s.summary),
                      lambda: setattr(self.settling_panel, "value", panels.settling_html(s)), when=tab == _SETTLING_TAB)
+        self._redraw("study", (s.study, s.study_table, s.segment, self.histogram_of.value), self._show_study,
+                     when=tab == _SETTLING_TAB)
         self._redraw("derivation", (s.fixture, s.response, s.segment, s.probe),
                      lambda: setattr(self.derivation, "value", panels.derivation_html(s)),
                      when=tab == _DERIVATION_TAB or s.segment != shown_segment)
         self._redraw("error view", (s.response, s.settling, s.probe, s.view),
                      self._show_error_view, when=tab == _ERROR_TAB)
+
+    def _worst_unit(self):
+        """``(response, label)`` of the worst unit of the segment the Settling tab shows (None
+        without a study table); the same object while the study and segment stay."""
+        s = self.session
+        if s.study_table is None:
+            return None
+        segment = shown_segment(s.study_table, s.segment)
+        unit = int(s.study_table["worst_unit"].iloc[segment])
+        key = (s.study, unit)
+        if getattr(self, "_worst", (None, None))[0] != key:
+            self._worst = (key, (s.study.unit(unit), f"worst unit ({unit}, segment {segment})"))
+        return self._worst[1]
+
+    def _show_study(self) -> None:
+        s = self.session
+        table, study = s.study_table, s.study
+        self._study_box.layout.display = None if study is not None else "none"
+        if study is None or table is None:
+            self.study_panel.value = "" if study is None else (
+                "<p>Give a tolerance (Setup) to see the lot's settling per segment.</p>")
+            return
+        segment = shown_segment(table, s.segment)
+        self.study_panel.value = lot_panels.study_html(table, table.attrs["unit"], segment, study.units)
+        tolerance = s.judged(s.tolerance, s.probe)
+        quantity = self.histogram_of.value
+        settle, _ = study.segment_values(segment, "settle_time", tolerance, None, s.probe)
+        values, unit = (settle, "s") if quantity == "settle_time" else study.segment_values(
+            segment, quantity, tolerance, s.sample_delay, s.probe)
+        self.study_figures.update(values, unit, quantity, settle, s.lot.fractions, s.sample_delay, segment)
 
     def _show_error_view(self) -> None:
         # A new figure each time it is looked at after a change (a few ms; it is not on the edit path).
@@ -408,7 +478,8 @@ class Bench(widgets.VBox):
         if isinstance(delay, list):
             raise InputError("Bench.from_analysis: the analysis has one sample delay per segment; the Bench's "
                              "'sample at' takes one delay for every segment")
-        bench = cls(analysis.fixture, analysis.drive, analysis.initial, analysis.tolerance, delay, trace)
+        bench = cls(analysis.fixture, analysis.drive, analysis.initial, analysis.tolerance, delay, trace,
+                    **(analysis.study_settings or {}))
         bench.export.title.value, bench.export.notes.value = analysis.title or bench.export.title.value, analysis.notes
         return bench
 
@@ -420,8 +491,10 @@ class Bench(widgets.VBox):
 
         analysis = source if isinstance(source, Analysis) else Analysis.load(source)
         loaded = loaded_inputs(analysis, self.fixture, lambda fx: {f.key: f.text for f in part_fields(fx)})
+        settings = analysis.study_settings
+        lot = None if settings is None else lot_inputs(loaded.fixture, **settings)
         self.session.load(loaded.fixture, loaded.drive, loaded.initial, loaded.tolerance, loaded.sample_delay,
-                          loaded.texts)
+                          loaded.texts, lot)
         if loaded.title:
             self.export.title.value = loaded.title
         self.export.notes.value = loaded.notes
@@ -464,7 +537,8 @@ class Bench(widgets.VBox):
         return str(path)
 
     def analysis(self, title: str = "", notes: str = ""):
-        """The last good fixture, drive, start, tolerance and sample delay as an :class:`~firstorder.Analysis`.
+        """The last good fixture, drive, start, tolerance and sample delay (and the study's
+        spread, units, seed and fractions) as an :class:`~firstorder.Analysis`.
 
         The sample delay is kept as typed, one for every segment; a segment
         shorter than it is sampled at its end, in the analysis as here.

@@ -37,7 +37,7 @@ __all__ = ["DriveEditor", "ERROR_VIEW_SEGMENTS", "ExportPanel", "FieldsPanel", "
            "value_label", "view_panel"]
 
 #: Tabs under the plot, in order.
-TAB_TITLES = ("Drive table", "Generators", "Derivation", "Settling", "Export", "Error view")
+TAB_TITLES = ("Drive table", "Generators", "Derivation", "Settling", "Export", "Error view", "Spread")
 _ERROR_STYLE = "color:#b03a2e;font-size:0.85em"
 _HINT_STYLE = "color:#566573;font-size:0.85em;line-height:1.25;display:inline-block"
 

@@ -17,11 +17,13 @@ from bokeh.models import (
     ColumnDataSource, CustomJSHover, CustomJSTickFormatter, HoverTool, Legend, LegendItem,
     LinearAxis, PointDrawTool, Range1d, FixedTicker,
 )
+from bokeh.core.properties import value as fixed
 from bokeh.plotting import figure
 
 from ..plotting.format import HOVER_CODE, TICK_CODE
-from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, SAMPLE_FAIL, SAMPLE_NEUTRAL, SAMPLE_PASS, SELECTION_COLOUR,
-                                TOLERANCE_COLOUR, component_label, source_colour, switch_colour)
+from ..plotting.palette import (COMPONENT_COLOURS, LINE_DASH, LOT_COLOUR, SAMPLE_FAIL, SAMPLE_NEUTRAL, SAMPLE_PASS,
+                                SELECTION_COLOUR, TOLERANCE_COLOUR, WORST_COLOUR, component_label, source_colour,
+                                switch_colour)
 from ..settling.table import judged_from, sample_delays
 from ..plotting.sampling import envelope, plan_samples, point_envelope, segments_in_view, step_envelope
 
@@ -194,6 +196,14 @@ class Plots:
                                       fill_color=TOLERANCE_COLOUR, fill_alpha=0.35, line_alpha=0)
         items = [LegendItem(label="tolerance band", renderers=[tolerance_renderer])]
         self.mark_items = {"tolerance": items[0]}  # shown in the legend only while drawn
+        # A study's band of units, behind every curve (drawn first), and its worst unit.
+        self.sources["envelope"] = ColumnDataSource({"t": [], "low": [], "high": []})
+        lot = fig.varea("t", "low", "high", source=self.sources["envelope"], fill_color=LOT_COLOUR, fill_alpha=0.55)
+        lot_hover = _hover(unit)
+        self.value_formatters.append(lot_hover)
+        fig.add_tools(_band_hover(lot, "units", lot_hover))
+        self.mark_items["envelope"] = LegendItem(label="units", renderers=[lot], visible=False)
+        items.append(self.mark_items["envelope"])
         for name in curve_names:
             colour = COMPONENT_COLOURS.get(name)
             if colour is None:
@@ -214,6 +224,14 @@ class Plots:
             fig.add_tools(HoverTool(renderers=[line], tooltips=[(text, "@y{custom}"), ("at", "@t{custom}")],
                                     formatters={"@y": value_hover, "@t": _hover("s")}))
             fig.add_tools(_band_hover(band, text, value_hover))
+        self.sources["worst"] = ColumnDataSource(_empty_curve())
+        self.line_renderers["worst"] = fig.line("t", "y", source=self.sources["worst"], color=WORST_COLOUR,
+                                                line_width=1.6, line_dash="dotted", visible=False)
+        self.band_renderers["worst"] = fig.varea("t", "low", "high", source=self.sources["worst"],
+                                                 fill_color=WORST_COLOUR, fill_alpha=0.4, visible=False)
+        self.mark_items["worst"] = LegendItem(label="worst unit", visible=False,
+                                              renderers=[self.line_renderers["worst"], self.band_renderers["worst"]])
+        items.append(self.mark_items["worst"])
         samples = ColumnDataSource({"t": [], "y": [], "colour": [], "error": [], "marker": [], "when": []})
         self.sources["samples"] = samples
         # A segment shorter than the sample delay is sampled at its end: a square there, a diamond elsewhere.
@@ -292,7 +310,7 @@ class Plots:
 
     def fit_values(self) -> tuple[float, float]:
         """Fit the value axis to the curves, bands, samples and trace drawn (5 % margin)."""
-        columns = [self.sources[name].data.get(key, ()) for name in (*self.curve_names, "trace")
+        columns = [self.sources[name].data.get(key, ()) for name in (*self.curve_names, "trace", "envelope", "worst")
                    if name in self.sources for key in ("low", "high")]
         columns += [self.sources["tolerance"].data["bottom"], self.sources["tolerance"].data["top"],
                     self.sources["samples"].data["y"]]
@@ -393,6 +411,37 @@ class Plots:
             shown = len(next(iter(data.values()))) > 0
             if self.mark_items[name].visible != shown:
                 self.mark_items[name].visible = shown
+
+    def update_lot(self, study, probe, view: View, fraction: float, worst=None, worst_label: str = "") -> None:
+        """The band holding the central `fraction` of `study`'s units
+        (:meth:`Study.envelope <firstorder.studies.Study.envelope>`) at the view's samples
+        (crowded: per pixel column the lowest low edge and the highest high edge), and
+        `worst` (a unit's response) as a curve; nothing without a study."""
+        empty = np.zeros(0)
+        band, curve = {"t": empty, "low": empty, "high": empty}, _empty_curve()
+        mode = "line"
+        if study is not None:
+            nominal = study.nominal
+            plan = plan_samples(nominal.starts, nominal.drive.end, nominal.tau, view.start, view.end, PIXELS)
+            mode = plan.mode
+            low, high = study.envelope(plan.times, fraction, "total", probe)
+            band = ({"t": plan.times, "low": low, "high": high} if mode == "line" else
+                    {"t": plan.centres, "low": envelope(plan, low)[0], "high": envelope(plan, high)[1]})
+            if worst is not None:
+                y = worst.evaluate(plan.times, ("total",), probe)["total"]
+                if mode == "line":
+                    curve = {"t": plan.times, "y": y, "low": y, "high": y}
+                else:
+                    low, high = envelope(plan, y)
+                    curve = {"t": plan.centres, "y": 0.5 * (low + high), "low": low, "high": high}
+        _assign(self.sources["envelope"], band)
+        _assign(self.sources["worst"], curve)
+        items = self.mark_items
+        # fixed(): a plain string set on a legend item would be read as a column's name.
+        items["envelope"].update(visible=band["t"].size > 0, label=fixed(f"{fraction * 100:g} % of units"))
+        items["worst"].update(visible=curve["t"].size > 0, label=fixed(worst_label or "worst unit"))
+        self.line_renderers["worst"].visible = curve["t"].size > 0 and mode == "line"
+        self.band_renderers["worst"].visible = curve["t"].size > 0 and mode == "envelope"
 
     def update_trace(self, times: np.ndarray, values: np.ndarray, residual_times: np.ndarray,
                      residual: np.ndarray, view: View) -> None:

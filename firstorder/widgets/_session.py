@@ -25,13 +25,16 @@ import traitlets
 from ..drive import Drive
 from ..errors import InputError
 from ..fixture import Fixture
-from ..netlist import PART_UNITS, SOURCE_UNITS
+from ..netlist import SOURCE_UNITS
 from ..response import COMPONENTS, Response, read_initial
 from ..settling.table import SettlingSummary, table_summary
 from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
+from ..studies.study import Study
 from ..units import format_value, parse_value
 from ._drive_table import DriveText
+from ._fields import MeasuredTrace, PartField, Residual, part_fields
 from ._generators import generated_drive
+from ._lot import LotInputs, is_lot_key, lot_inputs, lot_texts, make_study, read_lot
 
 __all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS", "TOLERANCE_UNIT", "UNDO_DEPTH",
            "part_fields"]
@@ -45,71 +48,11 @@ SETUP_LABELS = {"initial": "start", "tolerance": "tolerance", "sample_delay": "s
 #: The error key of a tolerance whose unit is not that of the quantity shown (shown beside
 #: the tolerance field; not a refused entry, so undo does not stop at it).
 TOLERANCE_UNIT = "tolerance unit"
+#: Errors that are no refused entry (undo does not stop at them): the settling table's, the
+#: tolerance's unit, and the study's (a part edit the lot's spread cannot take, say).
+RESULT_ERRORS = frozenset({"settling", TOLERANCE_UNIT, "study"})
 #: Curves shown when a session opens; the rest are one click away.
 DEFAULT_CURVES = ("total", "forced")
-
-
-@dataclass(frozen=True)
-class PartField:
-    """One text field of a part value: a switch has two (its on and off resistance)."""
-
-    key: str  # "r_filter", or "k1.r_on" / "k1.r_off"
-    label: str
-    part: str
-    kind: str
-    unit: str
-    text: str  # the value as the field first shows it
-
-
-def part_fields(fixture: Fixture) -> list[PartField]:
-    """The part-value fields of `fixture`, in building order (sources have none)."""
-    fields = []
-    for part in fixture.parts:
-        if part.kind == "switch":
-            entries = [(f"{part.name}.r_on", part.r_on, f"{part.name} on"),
-                       (f"{part.name}.r_off", part.r_off, f"{part.name} off")]
-        elif part.kind in PART_UNITS:
-            entries = [(part.name, part.value, part.name)]
-        else:
-            continue
-        unit = PART_UNITS[part.kind]
-        fields += [PartField(key, label, part.name, part.kind, unit, format_value(value, unit, digits=6))
-                   for key, value, label in entries]
-    return fields
-
-
-@dataclass(frozen=True)
-class MeasuredTrace:
-    """A measured waveform drawn over the model, checked once."""
-
-    times: np.ndarray
-    values: np.ndarray
-    name: str
-
-    @classmethod
-    def read(cls, trace: Any) -> "MeasuredTrace":
-        """Check an object with ``.times``, ``.values`` and ``.name`` (a :class:`~firstorder.Trace`, say)."""
-        for attribute in ("times", "values", "name"):
-            if not hasattr(trace, attribute):
-                raise InputError(f"Bench trace: {trace!r} has no .{attribute}; a trace needs .times, .values and .name")
-        times = np.asarray(trace.times, dtype=float).reshape(-1)
-        values = np.asarray(trace.values, dtype=float).reshape(-1)
-        if times.size != values.size or times.size == 0:
-            raise InputError(f"Bench trace: {times.size} times and {values.size} values; give one value per time")
-        if not (np.isfinite(times).all() and np.isfinite(values).all()):
-            raise InputError("Bench trace: times and values must be finite numbers")
-        if times.size > 1 and not (np.diff(times) > 0).all():
-            raise InputError("Bench trace: times must be strictly increasing")
-        return cls(times, values, str(trace.name))
-
-
-@dataclass(frozen=True)
-class Residual:
-    """Measured minus model (total) at the trace's instants within the drive."""
-
-    times: np.ndarray
-    values: np.ndarray
-    rms: float
 
 
 # eq=False: two snapshots are the same only if they are one object (comparing their
@@ -124,6 +67,7 @@ class _Snapshot:
     initial: float | str
     tolerance: Tolerance | None
     sample_delay: float | None
+    lot: LotInputs
 
 
 def _read_delay(value: Any) -> float | None:
@@ -140,6 +84,16 @@ def _labelled(key: str, read: Callable, *args: Any) -> Any:
     except InputError as error:
         text = str(error)
         raise InputError(SETUP_LABELS[key] + text[len(key):] if text.startswith(key) else text) from None
+
+
+def _study_of(fixture: Fixture, drive: Drive, initial: Any, lot: LotInputs, refuse: bool):
+    """`(study, None)`, or `(None, its error)` (raised instead when `refuse`)."""
+    try:
+        return make_study(fixture, drive, initial, lot), None
+    except ValueError as error:
+        if refuse:
+            raise
+        return None, str(error)
 
 
 def _checked_view(start: Any, end: Any, drive: Drive) -> tuple[float, float]:
@@ -173,6 +127,10 @@ class BenchSession(traitlets.HasTraits):
         Time after each change at which the reading is taken.
     trace : object, optional
         A measured waveform with ``.times``, ``.values`` and ``.name``.
+    spread : Spread, optional
+        The lot's spread: a study of `units` units (default 1,000) drawn with `seed`
+        (default 1) is run again on every edit; `fractions` (default 0.5, 0.99, 0.999)
+        are those its table reports.
 
     Examples
     --------
@@ -212,9 +170,14 @@ class BenchSession(traitlets.HasTraits):
     segment = traitlets.Int(None, allow_none=True, help="The selected segment (None: none)")
     probe = traitlets.Unicode(None, allow_none=True, help="The probe watched (None or '': the state)")
     curves = traitlets.Tuple(help="The curves shown, in curve order")
+    lot = traitlets.Instance(LotInputs, read_only=True, help="The study's spread (None: none), units, seed, fractions")
+    study = traitlets.Instance(Study, allow_none=True, read_only=True, help="The study of the lot (None: no spread)")
+    study_table = traitlets.Any(None, allow_none=True, read_only=True,
+                                help="The study's per-segment table (Study.settling; None without a tolerance)")
 
     def __init__(self, fixture: Fixture, drive: Drive, initial: Any = 0.0, tolerance: Tolerance | None = None,
-                 sample_delay: Any = None, trace: Any = None) -> None:
+                 sample_delay: Any = None, trace: Any = None, spread: Any = None, units: Any = None,
+                 seed: Any = None, fractions: Any = None) -> None:
         super().__init__()
         if not isinstance(fixture, Fixture):
             raise InputError(f"Bench fixture: {fixture!r} is not a firstorder Fixture")
@@ -225,6 +188,7 @@ class BenchSession(traitlets.HasTraits):
         unit = fixture.state_unit
         start = read_initial(initial, unit)
         delay = _read_delay(sample_delay)
+        lot = lot_inputs(fixture, spread, units, seed, fractions)
         self.trace = None if trace is None else MeasuredTrace.read(trace)
         sources = tuple(p.name for p in fixture.sources)
         switches = tuple(p.name for p in fixture.switches)
@@ -237,16 +201,19 @@ class BenchSession(traitlets.HasTraits):
                      # As typed: the saved analysis keeps the text the field shows.
                      sample_delay="" if delay is None else sample_delay.strip() if isinstance(sample_delay, str)
                      else format_value(delay, "s", digits=6))
+        texts.update(lot_texts(fixture, lot.spread, lot.units))
+        study = make_study(fixture, drive, start, lot)
         with self.hold_trait_notifications():
             for name, value in dict(fixture=fixture, table=table, drive=drive, initial=start, tolerance=tolerance,
-                                    sample_delay=delay, response=response, texts=texts).items():
+                                    sample_delay=delay, response=response, texts=texts, lot=lot,
+                                    study=study).items():
                 self.set_trait(name, value)
             self.view = (float(drive.start), float(drive.end))
             self.curves = DEFAULT_CURVES
         if self.trace is not None and self.trace.name in {p.name for p in fixture.probes}:
             self.probe = self.trace.name  # a trace of a probe is compared with that probe
         else:
-            self._replace(self._results(response, tolerance, delay, None, residual=True, errors={}))
+            self._replace(self._results(response, tolerance, delay, None, residual=True, errors={}, study=study))
 
     # -- reading ---------------------------------------------------------------------------------
     @property
@@ -305,8 +272,8 @@ class BenchSession(traitlets.HasTraits):
     # -- edits (each returns True when accepted) -------------------------------------------------------
     def edit_part(self, key: str, text: str) -> bool:
         """A part value typed into field `key` (a switch's ``"k1.r_on"`` or ``"k1.r_off"``)."""
-        if key not in self.texts or key in SETUP_KEYS:
-            fields = [k for k in self.texts if k not in SETUP_KEYS]
+        if key not in self.texts or key in SETUP_KEYS or is_lot_key(key):
+            fields = [k for k in self.texts if k not in SETUP_KEYS and not is_lot_key(k)]
             raise InputError(f"edit_part: {key!r} is not a part field; fields are {fields}")
         name, _, which = key.partition(".")
         texts = {key: text}
@@ -327,6 +294,17 @@ class BenchSession(traitlets.HasTraits):
         if key not in readers:
             raise InputError(f"edit_setup: {key!r} is not a setup field; fields are {list(SETUP_KEYS)}")
         return self._edit(key, readers[key], texts={key: text})
+
+    def edit_spread(self, key: str, text: str) -> bool:
+        """A Spread field typed: a band (``"band r"``, ``"band k1.r_on"``, ``"band vin.gain"``;
+        empty: the quantity does not vary), ``"lot temperature"``, ``"lot tempco"`` or ``"lot units"``."""
+        if key not in self.texts or not is_lot_key(key):
+            raise InputError(f"edit_spread: {key!r} is not a Spread field; fields are "
+                             f"{[k for k in self.texts if is_lot_key(k)]}")
+        lot = self.lot
+        order = () if lot.spread is None else lot.spread.keys  # the draws' order stays
+        return self._edit(key, lambda: {"lot": read_lot({**self.texts, key: text}, self.fixture, lot.seed,
+                                                        lot.fractions, order)}, texts={key: text})
 
     def edit_table(self, columns: dict[str, list], end: str | None = None) -> bool:
         """The drive table's text as typed (only the cells that changed are read again)."""
@@ -406,7 +384,7 @@ class BenchSession(traitlets.HasTraits):
         A refused entry (one showing an error) is the last edit: undo first
         puts back the last good text; the edit before it needs another undo.
         """
-        if set(self.errors) - {TOLERANCE_UNIT, "settling"}:
+        if set(self.errors) - RESULT_ERRORS:
             self._restore(self._snapshot())
             return True
         if not self.history:
@@ -428,14 +406,20 @@ class BenchSession(traitlets.HasTraits):
         typed = self.texts.get("sample_delay", "").strip()
         delay: Any = None if self.sample_delay is None else (typed or self.sample_delay)
         initial = self.texts.get("initial", "").strip() or self.initial  # as typed, too
+        lot = self.lot
+        study = {} if lot.spread is None else dict(spread=lot.spread, units=lot.units, seed=lot.seed,
+                                                   fractions=lot.fractions)
         return Analysis(self.fixture, self.drive, initial=initial, tolerance=tolerance,
-                        sample_delay=delay, title=title, notes=notes)
+                        sample_delay=delay, title=title, notes=notes, **study)
 
     def load(self, fixture: Fixture, drive: Drive, initial: float | str, tolerance: Tolerance | None,
-             sample_delay: float | None, texts: dict[str, str]) -> None:
-        """Every input at once (an analysis file read back, :mod:`._files` checks it); undoable."""
+             sample_delay: float | None, texts: dict[str, str], lot: LotInputs | None = None) -> None:
+        """Every input at once (an analysis file read back, :mod:`._files` checks it; `lot`, its
+        study or none); undoable."""
         table = DriveText.from_drive(drive, self.table.names, self.table.switches, self.table.units)
-        snapshot = _Snapshot(fixture, table, {**self.texts, **texts}, initial, tolerance, sample_delay)
+        lot = lot or LotInputs(None, self.lot.units, self.lot.seed, self.lot.fractions)
+        texts = {**self.texts, **texts, **lot_texts(fixture, lot.spread, lot.units)}
+        snapshot = _Snapshot(fixture, table, texts, initial, tolerance, sample_delay, lot)
         self._restore(snapshot, history=(*self.history, self._snapshot())[-UNDO_DEPTH:])
 
     # -- the one path of an edit ----------------------------------------------------------------------
@@ -455,13 +439,21 @@ class BenchSession(traitlets.HasTraits):
             drive, initial = inputs.get("drive", self.drive), inputs.get("initial", self.initial)
             changed_response = bool({"fixture", "drive", "initial"} & inputs.keys())
             response = fixture.respond(drive, initial) if changed_response else self.response
+            lot, study, study_error = inputs.get("lot", self.lot), self.study, None
+            rebuilt = changed_response or "lot" in inputs
+            if rebuilt:
+                # A Spread field the study cannot take is refused; another edit is kept, the study's error shown.
+                study, study_error = _study_of(fixture, drive, initial, lot, refuse="lot" in inputs)
         except ValueError as error:
             self._set_error(key, str(error))
             return False
-        changes = dict(inputs, response=response)
+        changes = dict(inputs, response=response, study=study)
         changes.update(self._results(response, inputs.get("tolerance", self.tolerance),
                                      inputs.get("sample_delay", self.sample_delay), self.probe,
-                                     residual=changed_response, errors={k: v for k, v in self.errors.items() if k != key}))
+                                     residual=changed_response, study=study, fractions=lot.fractions,
+                                     errors={k: v for k, v in self.errors.items() if k != key and not (rebuilt and k == "study")}))
+        if study_error:
+            changes["errors"] = {**changes["errors"], "study": study_error}
         changes["texts"] = {**self.texts, **(texts or {})}
         changes["notice"] = ""
         changes["history"] = (*self.history, self._snapshot())[-UNDO_DEPTH:]
@@ -478,10 +470,12 @@ class BenchSession(traitlets.HasTraits):
         return True
 
     def _results(self, response: Response, tolerance: Tolerance | None, sample_delay: float | None,
-                 probe: str | None, residual: bool, errors: dict[str, str]) -> dict[str, Any]:
-        """The settling table and its summary (and, with `residual`, the trace's residual) for
-        these inputs, and `errors` with the settling's own error in place of the last one."""
-        table = summary = problem = mismatch = None
+                 probe: str | None, residual: bool, errors: dict[str, str], study: Study | None = None,
+                 fractions: tuple[float, ...] = ()) -> dict[str, Any]:
+        """The settling table and its summary, the study's table (with a `study`) and, with
+        `residual`, the trace's residual for these inputs, and `errors` with the settling's
+        and the study's own errors in place of the last ones."""
+        table = summary = problem = mismatch = study_table = study_problem = None
         try:
             tolerance = self.judged(tolerance, probe)
         except InputError as error:
@@ -493,12 +487,22 @@ class BenchSession(traitlets.HasTraits):
                 summary = table_summary(table)
             except ValueError as error:
                 problem = str(error)
-        errors = {k: v for k, v in errors.items() if k not in ("settling", TOLERANCE_UNIT)}
+        if study is not None and tolerance is not None and problem is None:
+            try:
+                study_table = study.settling(tolerance, sample_delay=sample_delay, probe=probe,
+                                             fractions=fractions or self.lot.fractions)
+            except ValueError as error:
+                study_problem = str(error)
+        # Without a study, a study error is that of building it (kept until the next edit).
+        errors = {k: v for k, v in errors.items()
+                  if k not in ("settling", TOLERANCE_UNIT) and not (k == "study" and study is not None)}
+        if study_problem:
+            errors["study"] = study_problem
         if problem:
             errors["settling"] = problem
         if mismatch:
             errors[TOLERANCE_UNIT] = mismatch
-        results = {"settling": table, "summary": summary, "errors": errors}
+        results = {"settling": table, "summary": summary, "errors": errors, "study_table": study_table}
         if residual:
             results["residual"] = self._residual(response, probe)
         return results
@@ -534,17 +538,22 @@ class BenchSession(traitlets.HasTraits):
         self.set_trait("errors", errors)
 
     def _snapshot(self) -> _Snapshot:
-        return _Snapshot(self.fixture, self.table, dict(self.texts), self.initial, self.tolerance, self.sample_delay)
+        return _Snapshot(self.fixture, self.table, dict(self.texts), self.initial, self.tolerance, self.sample_delay,
+                         self.lot)
 
     def _restore(self, snapshot: _Snapshot, history: tuple | None = None) -> None:
         tolerance = snapshot.tolerance
         drive = snapshot.table.to_drive()
         response = snapshot.fixture.respond(drive, snapshot.initial)
+        lot = snapshot.lot
+        study, study_error = _study_of(snapshot.fixture, drive, snapshot.initial, lot, refuse=False)
         changes = dict(fixture=snapshot.fixture, table=snapshot.table, drive=drive, initial=snapshot.initial,
                        tolerance=tolerance, sample_delay=snapshot.sample_delay, response=response,
-                       texts=dict(snapshot.texts), notice="")
+                       texts=dict(snapshot.texts), notice="", lot=lot, study=study)
         # Undo clears every refused entry: the fields go back to their last good text.
-        changes.update(self._results(response, tolerance, snapshot.sample_delay, self.probe, residual=True, errors={}))
+        changes.update(self._results(response, tolerance, snapshot.sample_delay, self.probe, residual=True,
+                                     errors={"study": study_error} if study_error else {}, study=study,
+                                     fractions=lot.fractions))
         if history is not None:
             changes["history"] = history
         changes.update(self._placed(drive, reset_view=True))
@@ -585,4 +594,4 @@ class BenchSession(traitlets.HasTraits):
     def _observe_probe(self, change) -> None:
         # The same limit, judging what is now watched if it is in the same unit (_results).
         self._replace(self._results(self.response, self.tolerance, self.sample_delay, change["new"], residual=True,
-                                    errors=self.errors))
+                                    errors=self.errors, study=self.study, fractions=self.lot.fractions))
