@@ -383,7 +383,7 @@ class Study:
         (at least that many units lie within it at every time; each edge an exact order
         statistic of the units), a chunk of units at a time."""
         chosen = _fraction(fraction, "fraction")
-        times, flat, segment = self._times(t, component, self._chunk_size())
+        times, flat, segment = self._times(t, component, min(self._chunk_size(), self.units))
         tail = math.floor((1.0 - chosen) / 2.0 * self.units + 1e-9 * self.units)
         low, high = sides([tail, self.units - 1 - tail], self.units)
         merged = merge_all(Ranked.of(run.evaluate(segment, flat, component, probe), low, high)

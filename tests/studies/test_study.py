@@ -462,3 +462,16 @@ class TestChunks:
         kept = fx.study(drive, Spread({"r": "1%", "c": "10%"}), units=units, seed=1, keep=True)
         assert table.equals(kept.settling(HALF_LSB_16, fractions=(0.99, 0.999)))
         assert passing == kept.passing(HALF_LSB_16)
+
+
+class TestEnvelopeMemory:
+    def test_a_small_unkept_study_is_sized_by_its_own_units(self):
+        # The memory check counts the units a chunk holds: a 300-unit study is never a
+        # whole default chunk (about 4 million unit-segments' worth of units).
+        fx = fo.Fixture.rc("10k", "100n")
+        study = fx.study(fo.Drive([0, "1m"], end="2m", vin=[1.0, 0.0]), Spread({"c": "10%"}), units=300, seed=1,
+                         progress=False)
+        t = np.linspace(0, 2e-3, 20_000)
+        low, high = study.envelope(t, 0.9)
+        every = study.evaluate(t)
+        assert np.all(low <= np.quantile(every, 0.5, axis=0)) and np.all(high >= np.quantile(every, 0.5, axis=0))
