@@ -40,6 +40,7 @@ bench: install-test
 	$(BIN)/python benchmarks/small.py
 	$(BIN)/python benchmarks/derive.py
 	$(BIN)/python benchmarks/bench.py
+	$(BIN)/python benchmarks/bench_lot.py
 	$(BIN)/python benchmarks/configurations.py
 	$(BIN)/python benchmarks/study.py
 	$(BIN)/python benchmarks/plan.py
