@@ -3,6 +3,7 @@ headless Chromium with no network."""
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 import re
@@ -53,6 +54,25 @@ def elements(html: str) -> _Elements:
 @pytest.fixture(scope="module")
 def report_html() -> str:
     return relay_analysis().to_html()
+
+
+@contextlib.contextmanager
+def _opened_offline(sync_playwright, url: str, ready: str):
+    """A report opened in headless Chromium once `ready` is drawn and the network is idle:
+    ``(page, requests, errors)``, every request and page error recorded; closed after."""
+    requests, errors = [], []
+    with sync_playwright() as playwright:
+        browser = playwright.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_FLAGS)
+        try:
+            page = browser.new_page(viewport={"width": 1100, "height": 900})
+            page.on("request", lambda request: requests.append(request.url))
+            page.on("pageerror", lambda error: errors.append(str(error)))
+            page.goto(url)
+            page.wait_for_selector(ready, timeout=30_000)
+            page.wait_for_load_state("networkidle")
+            yield page, requests, errors
+        finally:
+            browser.close()
 
 
 def _browser_or_skip():
@@ -187,25 +207,14 @@ class TestInBrowser:
         hostile = "</script><script>document.title='pwned'</script>"
         path = relay_analysis(notes=hostile).report(tmp_path / "report.html")
         url = path.resolve().as_uri()
-        requests, errors = [], []
-        with sync_playwright() as playwright:
-            browser = playwright.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_FLAGS)
-            try:
-                page = browser.new_page(viewport={"width": 1100, "height": 900})
-                page.on("request", lambda request: requests.append(request.url))
-                page.on("pageerror", lambda error: errors.append(str(error)))
-                page.goto(url)
-                page.wait_for_selector("canvas", timeout=30_000)
-                page.wait_for_load_state("networkidle")
-                canvases = page.locator("canvas").count()
-                plot_box = page.locator("canvas").first.bounding_box()
-                maths = page.locator("math").count()
-                math_box = page.locator("math").first.bounding_box()
-                title = page.title()
-                os.makedirs("build", exist_ok=True)
-                page.screenshot(path="build/report.png", full_page=True)
-            finally:
-                browser.close()
+        with _opened_offline(sync_playwright, url, "canvas") as (page, requests, errors):
+            canvases = page.locator("canvas").count()
+            plot_box = page.locator("canvas").first.bounding_box()
+            maths = page.locator("math").count()
+            math_box = page.locator("math").first.bounding_box()
+            title = page.title()
+            os.makedirs("build", exist_ok=True)
+            page.screenshot(path="build/report.png", full_page=True)
         assert requests == [url], requests  # nothing but the file itself: no network
         assert errors == []
         assert canvases >= 1 and plot_box["width"] > 300 and plot_box["height"] > 100
@@ -418,21 +427,10 @@ class TestToleranceSectionInBrowser:
         sync_playwright = _browser_or_skip()
         path = study_analysis().report(tmp_path / "report.html")
         url = path.resolve().as_uri()
-        requests, errors = [], []
-        with sync_playwright() as playwright:
-            browser = playwright.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_FLAGS)
-            try:
-                page = browser.new_page(viewport={"width": 1100, "height": 900})
-                page.on("request", lambda request: requests.append(request.url))
-                page.on("pageerror", lambda error: errors.append(str(error)))
-                page.goto(url)
-                page.wait_for_selector("#tolerance canvas", timeout=30_000)
-                page.wait_for_load_state("networkidle")
-                boxes = [page.locator("#tolerance div.plot").nth(i).bounding_box() for i in range(2)]
-                os.makedirs("build/reportlot", exist_ok=True)
-                page.locator("#tolerance").screenshot(path="build/reportlot/tolerance-section.png")
-            finally:
-                browser.close()
+        with _opened_offline(sync_playwright, url, "#tolerance canvas") as (page, requests, errors):
+            boxes = [page.locator("#tolerance div.plot").nth(i).bounding_box() for i in range(2)]
+            os.makedirs("build/reportlot", exist_ok=True)
+            page.locator("#tolerance").screenshot(path="build/reportlot/tolerance-section.png")
         assert requests == [url], requests
         assert errors == []
         assert all(box["width"] > 300 and box["height"] > 150 for box in boxes), boxes
