@@ -20,7 +20,7 @@ import numpy as np
 
 from ..settling.table import judged_from
 
-__all__ = ["ErrorView", "FLOOR_FRACTION", "POINTS_PER_SEGMENT", "error_view"]
+__all__ = ["ErrorView", "FLOOR_FRACTION", "LotErrors", "POINTS_PER_SEGMENT", "error_view", "lot_errors"]
 
 #: Points per segment.  Linear in time: on a log axis an exponential is then a straight line.
 POINTS_PER_SEGMENT = 48
@@ -139,3 +139,45 @@ def error_view(response: Any, table: Any, probe: str | None = None, start: float
     return ErrorView(t=t, error=error, limit_t=limit_t, limit=limit, sample_t=sample_t, sample_error=sample_error,
                      sample_limit=sample_limit, sample_ok=sample_ok, segments=inside, floor=floor,
                      unit=str(table.attrs.get("unit", "")))
+
+
+@dataclass(frozen=True)
+class LotErrors:
+    """The lot's error at each sample of the segments an :class:`ErrorView` draws: per
+    fraction of units, the error that fraction does not exceed (raised to the view's floor).
+
+    Attributes
+    ----------
+    labels : tuple of str
+        ``"50%"``, ``"99.9%"``, ``"max"``: the study table's ``error_<label>`` columns.
+    sample_t : ndarray, shape (segments,)
+    errors : ndarray, shape (len(labels), segments)
+    """
+
+    labels: tuple[str, ...]
+    sample_t: np.ndarray
+    errors: np.ndarray
+
+
+def lot_errors(view: ErrorView, study_table: Any) -> LotErrors:
+    """The study table's errors at the sample (``error_<fraction>`` and ``error_max``,
+    :meth:`Study.settling <firstorder.studies.study.Study.settling>`) of the segments in
+    `view`, so the error view shows each sample's margin for the lot, not only for the
+    nominal unit.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> import firstorder as fo
+    >>> res = fo.Fixture.rc(r="1k", c="1u").respond(fo.Drive([0, "5m"], end="10m", vin=[1.0, 0.0]))
+    >>> view = error_view(res, res.settling(fo.Tolerance.absolute("1m"), sample_delay="4m"), points=3)
+    >>> table = pd.DataFrame({"sample_time": [4e-3, 9e-3], "error_50%": [0.02, 0.0], "error_max": [0.03, 0.02]})
+    >>> lot = lot_errors(view, table)
+    >>> lot.labels, lot.errors.tolist()
+    (('50%', 'max'), [[0.02, 1e-06], [0.03, 0.02]])
+    """
+    labels = tuple(str(c)[len("error_"):] for c in study_table.columns if str(c).startswith("error_"))
+    segments = view.segments
+    errors = np.array([study_table[f"error_{label}"].to_numpy()[segments] for label in labels]).reshape(
+        len(labels), segments.size)
+    return LotErrors(labels, study_table["sample_time"].to_numpy()[segments], np.maximum(errors, view.floor))

@@ -153,7 +153,7 @@ def _drive_figure(response: "Response", factor: float, unit: str, detailed: bool
 
 
 def error_figure(view: ErrorView, factor: float, unit: str, *, width: int = _FRAME_WIDTH, height: int = 300,
-                 x_range: Any = None):
+                 x_range: Any = None, lot: Any = None):
     """The error view: each segment's error against time on a log axis, its limit, its samples.
 
     Parameters
@@ -166,6 +166,9 @@ def error_figure(view: ErrorView, factor: float, unit: str, *, width: int = _FRA
         The plot frame in pixels.
     x_range : bokeh Range, optional
         Share the time axis with another figure.
+    lot : LotErrors, optional
+        The lot's error at each sample per fraction of units
+        (:func:`~firstorder.plotting.error_view.lot_errors`), drawn as small bars.
 
     Returns
     -------
@@ -191,6 +194,15 @@ def error_figure(view: ErrorView, factor: float, unit: str, *, width: int = _FRA
         panel.add_tools(HoverTool(renderers=[samples], tooltips=[
             (f"time ({unit})", "@t{0.000000}"), (f"error ({value_unit})", "@error{0.000e}"),
             (f"limit ({value_unit})", "@limit{0.000e}"), ("limit / error", "@margin{0.00}")]))
+    if lot is not None and lot.sample_t.size:
+        # The lot's errors at each sample, a short dash per fraction of units (darker, larger).
+        shades = np.linspace(0.35, 0.9, len(lot.labels))
+        for label, errors, shade in zip(lot.labels, lot.errors, shades):
+            grey = int(255 * (1 - shade))
+            panel.scatter(lot.sample_t * factor, errors, marker="dash", size=14, line_width=3,
+                          color=f"#{grey:02x}{grey:02x}{min(255, grey + 60):02x}",
+                          legend_label=f"error at the sample: {label} of units" if label != "max" else
+                          "error at the sample: worst unit")
     panel.add_layout(panel.legend[0], "right")  # beside the plot: inside it would hide errors near the floor
     return panel
 

@@ -499,7 +499,7 @@ ERROR_VIEW_SEGMENTS = 400
 def error_view_children(session: BenchSession) -> tuple:
     """The Error view tab: each segment's error in view on a log axis, with the tolerance and
     the samples (:func:`firstorder.report.figure.error_figure`, as in the report)."""
-    from ..plotting.error_view import error_view
+    from ..plotting.error_view import error_view, lot_errors
     from ..report.figure import error_figure, time_scale
 
     table = session.settling
@@ -509,7 +509,8 @@ def error_view_children(session: BenchSession) -> tuple:
     view = error_view(session.response, table, session.probe, start=start, end=end,
                       max_segments=ERROR_VIEW_SEGMENTS)
     factor, unit = time_scale(end - start)
-    figure = error_figure(view, factor, unit, width=560, height=260)
+    lot = None if session.study_table is None else lot_errors(view, session.study_table)
+    figure = error_figure(view, factor, unit, width=560, height=260, lot=lot)
     note = (f"<p style='color:#566573;margin:2px 0'>The first {ERROR_VIEW_SEGMENTS} segments in view; zoom in for "
             f"the others.</p>" if view.segments.size == ERROR_VIEW_SEGMENTS else "")
     return (widgets.HTML(note), BokehModel(figure))

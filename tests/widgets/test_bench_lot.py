@@ -212,6 +212,36 @@ class TestStudyTable:
         assert bench.session.study_table is None and "Give a tolerance" in bench.study_panel.value
 
 
+class TestErrorViewOfTheLot:
+    def test_each_samples_error_for_each_fraction_of_units(self):
+        from bokeh.models import Scatter
+
+        bench = lot_bench(sample_delay="2m")
+        bench.tabs.selected_index = panels.TAB_TITLES.index("Error view")
+        figure = bench.error_view.children[-1]._model
+        dashes = [r for r in figure.renderers if isinstance(r.glyph, Scatter) and r.glyph.marker == "dash"]
+        # One set per fraction and the worst unit: the study's own error columns at its sample instants,
+        # checked against a study built apart.
+        fresh = rc_fixture().study(rc_drive(), spread(), units=UNITS, seed=SEED).settling(TOLERANCE, sample_delay="2m")
+        columns = [c for c in fresh.columns if c.startswith("error_")]
+        assert len(dashes) == len(columns) == 4
+        for dash, column in zip(dashes, columns):
+            drawn = np.asarray(dash.data_source.data["y"])
+            expected = fresh[column].to_numpy()
+            nonzero = expected > 1e-6  # below the view's floor (a thousandth of the limit) an error sits on it
+            np.testing.assert_array_equal(drawn[nonzero], expected[nonzero])
+            assert np.all(drawn[~nonzero] == 1e-6)
+        assert any("worst unit" in item.label["value"] for item in figure.legend[0].items)
+
+    def test_without_a_spread_no_lot_marks(self):
+        from bokeh.models import Scatter
+
+        bench = Bench(rc_fixture(), rc_drive(), tolerance=TOLERANCE, sample_delay="2m")
+        bench.tabs.selected_index = panels.TAB_TITLES.index("Error view")
+        figure = bench.error_view.children[-1]._model
+        assert not [r for r in figure.renderers if isinstance(r.glyph, Scatter) and r.glyph.marker == "dash"]
+
+
 class TestHistogramAndYield:
     def bench(self, **kwargs) -> Bench:
         bench = lot_bench(**kwargs)
