@@ -469,16 +469,20 @@ _OUTSIDE = """() => {
             count: out.length};
 }"""
 
-#: The plot toolbars and legends (BokehJS's own views), in page coordinates.
+#: The plot toolbars and legends (BokehJS's own views), in page coordinates: of the plots on
+#: screen (a plot in a tab not shown, or a study's plot not drawn, is not displayed; a
+#: toolbar squeezed to nothing on a shown plot still is, and is caught by its size).
 _TOOLBARS_AND_LEGENDS = """() => {
     const views = [...Bokeh.index.query((v) => true)];
     const type = (v) => v.model.type || v.model.constructor.__name__;
-    const toolbars = views.filter((v) => type(v) === 'Toolbar' && v.el).map((v) => {
+    const shown = (v) => v.el && v.el.checkVisibility();
+    const toolbars = views.filter((v) => type(v) === 'Toolbar' && shown(v)).map((v) => {
         const r = v.el.getBoundingClientRect();
         return {left: r.left, right: r.right, top: r.top, bottom: r.bottom,
                 buttons: v.el.shadowRoot ? v.el.shadowRoot.querySelectorAll('.bk-tool-icon').length : -1};
     });
-    const legends = views.filter((v) => type(v) === 'Legend' && v.model.items.length).map((v) => {
+    const legends = views.filter((v) => type(v) === 'Legend' && v.model.items.length
+                                 && v.parent.canvas_view.el.checkVisibility()).map((v) => {
         const canvas = v.parent.canvas_view.el.getBoundingClientRect();
         const b = v.bbox;
         return {left: canvas.left + b.x0, right: canvas.left + b.x1, top: canvas.top + b.y0,
