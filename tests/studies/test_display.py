@@ -5,7 +5,6 @@ from __future__ import annotations
 
 from html import escape
 
-import numpy as np
 
 import firstorder as fo
 from firstorder.studies import Spread
