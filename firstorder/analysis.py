@@ -74,22 +74,39 @@ def _study_settings(spread: Any, units: Any, seed: Any, fractions: Any, fixture:
     if not isinstance(spread, Spread):
         raise InputError(f"spread: expected a firstorder.Spread, got {type(spread).__name__}")
     spread.quantities(fixture)
+    units, seed, fractions = read_study_settings(
+        units, seed, fractions, most_units=file_format.MAX_UNITS,
+        units_rule=f"give a whole number of units from 1 to {file_format.MAX_UNITS:,}",
+        most_fractions=file_format.MAX_FRACTIONS,
+        fractions_rule=f"give 1 to {file_format.MAX_FRACTIONS} fractions of units, such as (0.5, 0.99, 0.999)")
+    return {"spread": spread, "units": units, "seed": seed, "fractions": fractions}
+
+
+def read_study_settings(units: Any, seed: Any, fractions: Any, *, most_units: int, units_rule: str,
+                        most_fractions: int | None, fractions_rule: str) -> tuple[int, int, tuple[float, ...]]:
+    """A study's units, seed and fractions, each checked (the study's defaults for those
+    left out): the one reading for analyses and the Bench, whose limits and advice
+    (`units_rule`, `fractions_rule`, said after "is not allowed; ") differ.
+
+    Examples
+    --------
+    >>> read_study_settings(None, 3, [0.5, 1], most_units=10**6, units_rule="", most_fractions=None, fractions_rule="")
+    (1000, 3, (0.5, 1.0))
+    """
     units = DEFAULT_UNITS if units is None else units
-    if isinstance(units, bool) or not isinstance(units, (int, np.integer)) or not 1 <= units <= file_format.MAX_UNITS:
-        raise InputError(f"units: {shown(units)} is not allowed; give a whole number of units from 1 to "
-                         f"{file_format.MAX_UNITS:,}")
+    if isinstance(units, bool) or not isinstance(units, (int, np.integer)) or not 1 <= units <= most_units:
+        raise InputError(f"units: {shown(units)} is not allowed; {units_rule}")
     seed = DEFAULT_SEED if seed is None else seed
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed < 2**63:
         raise InputError(f"seed: {shown(seed)} is not allowed; give a whole number from 0 to 2**63 - 1")
     fractions = DEFAULT_FRACTIONS if fractions is None else fractions
     if isinstance(fractions, (str, bytes)) or not hasattr(fractions, "__len__") or not (
-            1 <= len(fractions) <= file_format.MAX_FRACTIONS):
-        raise InputError(f"fractions: {shown(fractions)} is not allowed; give 1 to {file_format.MAX_FRACTIONS} "
-                         f"fractions of units, such as (0.5, 0.99, 0.999)")
+            1 <= len(fractions) <= (most_fractions or len(fractions))):
+        raise InputError(f"fractions: {shown(fractions)} is not allowed; {fractions_rule}")
     for i, fraction in enumerate(fractions):
         if isinstance(fraction, bool) or not isinstance(fraction, (int, float, np.number)) or not 0 < fraction <= 1:
             raise InputError(f"fractions[{i}]: {shown(fraction)} is not allowed; give a fraction of units in (0, 1]")
-    return {"spread": spread, "units": int(units), "seed": int(seed), "fractions": tuple(float(f) for f in fractions)}
+    return int(units), int(seed), tuple(float(f) for f in fractions)
 
 
 def _check_delay(value: Any, drive: Drive) -> Any:

@@ -122,20 +122,26 @@ def solve_pair(A_terms: list[list["ExactSum"]], B_terms: list[list["ExactSum"]],
     >>> float(high[0, 0]), abs(float(low[0, 0])) < 1e-16
     (0.3333333333333333, True)
     """
-    rows, columns, values = [], [], []
-    for i, row in enumerate(A_terms):
-        for j, entry in enumerate(row):
-            for t in entry.terms:
-                rows.append(i)
-                columns.append(j)
-                values.append(t)
+    rows, columns, values = _flat_terms(A_terms)
     # B's entries as pairs: the rounded sum and what it dropped.
     B_high = np.array([[math.fsum(entry.terms) for entry in row] for row in B_terms], dtype=float)
     B_low = np.array([[math.fsum((*entry.terms, -h)) for entry, h in zip(row, hs)]
                       for row, hs in zip(B_terms, B_high.tolist())], dtype=float).reshape(B_high.shape)
-    terms = _Terms(np.array(rows, dtype=np.intp), np.array(columns, dtype=np.intp), len(A_terms), B_high, B_low)
-    high, low = solve_batch(terms, np.array(values, dtype=float)[None, :], rounds, zeros)
+    terms = _Terms(rows, columns, len(A_terms), B_high, B_low)
+    high, low = solve_batch(terms, values[None, :], rounds, zeros)
     return high[0], low[0]
+
+
+def _flat_terms(matrix: list[list["ExactSum"]]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Every term of a matrix of exact sums, flat: its row, its column and its value."""
+    rows, columns, values = [], [], []
+    for i, row in enumerate(matrix):
+        for j, entry in enumerate(row):
+            for term in entry.terms:
+                rows.append(i)
+                columns.append(j)
+                values.append(term)
+    return np.array(rows, dtype=np.intp), np.array(columns, dtype=np.intp), np.array(values, dtype=float)
 
 
 class _Terms:
@@ -315,18 +321,11 @@ class TermPlan(_Terms):
         codes = {label: float(2 + k) for k, label in enumerate(labels)}
         A, B = stamp(layout, lambda name, key: ExactSum((codes[(name, key)],)), ExactSum(), ExactSum((1.0,)),
                      excitations)
-        rows, columns, values = [], [], []
-        for i, row in enumerate(A):
-            for j, entry in enumerate(row):
-                for code in entry.terms:
-                    rows.append(i)
-                    columns.append(j)
-                    values.append(code)
-        values_array = np.array(values, dtype=float)
+        rows, columns, values_array = _flat_terms(A)
         self.conductance = np.abs(values_array).astype(np.intp) - 2  # -1: the constant one
         self.sign = np.sign(values_array)
         B_array = np.array([[math.fsum(entry.terms) for entry in row] for row in B]).reshape(len(A), excitations)
-        super().__init__(np.array(rows, dtype=np.intp), np.array(columns, dtype=np.intp), len(A), B_array)
+        super().__init__(rows, columns, len(A), B_array)
         # The residual from branch currents (see residual): each conductance's ends and each
         # voltage branch's, as unknowns (ground: the extra unknown `size`, always 0).
         size, index = len(A), layout.node_index

@@ -22,7 +22,7 @@ from typing import Any
 
 import numpy as np
 
-from ..analysis import DEFAULT_FRACTIONS, DEFAULT_SEED, DEFAULT_UNITS
+from ..analysis import read_study_settings
 from ..drive import Drive
 from ..errors import InputError
 from ..fixture import Fixture
@@ -160,20 +160,12 @@ def lot_inputs(fixture: Fixture, spread: Any, units: Any, seed: Any, fractions: 
         raise InputError(f"spread: expected a firstorder.Spread (or None), got {type(spread).__name__}")
     if spread is not None:
         spread.quantities(fixture)
-    units = DEFAULT_UNITS if units is None else units
-    if isinstance(units, bool) or not isinstance(units, (int, np.integer)) or not 1 <= units <= MAX_UNITS:
-        raise InputError(f"units: {shown(units)} is not allowed; the Bench studies 1 to {MAX_UNITS:,} units "
-                         f"(it runs the study again on every edit; study more with fx.study)")
-    seed = DEFAULT_SEED if seed is None else seed
-    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed < 2**63:
-        raise InputError(f"seed: {shown(seed)} is not allowed; give a whole number from 0 to 2**63 - 1")
-    fractions = DEFAULT_FRACTIONS if fractions is None else fractions
-    if isinstance(fractions, (str, bytes)) or not hasattr(fractions, "__len__") or not fractions:
-        raise InputError(f"fractions: {shown(fractions)} is not allowed; give fractions of units such as (0.5, 0.99)")
-    for i, fraction in enumerate(fractions):
-        if isinstance(fraction, bool) or not isinstance(fraction, (int, float, np.number)) or not 0 < fraction <= 1:
-            raise InputError(f"fractions[{i}]: {shown(fraction)} is not allowed; give a fraction of units in (0, 1]")
-    return LotInputs(spread, int(units), int(seed), tuple(float(f) for f in fractions))
+    units, seed, fractions = read_study_settings(
+        units, seed, fractions, most_units=MAX_UNITS,
+        units_rule=f"the Bench studies 1 to {MAX_UNITS:,} units (it runs the study again on every edit; study more "
+                   f"with fx.study)",
+        most_fractions=None, fractions_rule="give fractions of units such as (0.5, 0.99)")
+    return LotInputs(spread, units, seed, fractions)
 
 
 def make_study(fixture: Fixture, drive: Drive, initial: Any, lot: LotInputs | None) -> Study | None:
