@@ -272,7 +272,7 @@ def _client(address: str | None):
 def _print_study(arguments: argparse.Namespace, analysis, settings: dict, study) -> int:
     tolerance, delay = analysis.tolerance, analysis.sample_delay
     table = study.settling(tolerance, sample_delay=delay, fractions=settings["fractions"])
-    passing = study.passing(tolerance, sample_delay=delay)
+    passing = study.passing_of(table.attrs["passing"])  # counted by the table's run of the units
     if arguments.format == "csv":
         sys.stdout.write(table.to_csv(float_format=lambda number: repr(float(number))))
     elif arguments.format == "json":

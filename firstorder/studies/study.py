@@ -334,9 +334,13 @@ class Study:
         """The fraction of units whose every sample is inside tolerance, with its
         Clopper-Pearson interval at `confidence`."""
         level = _fraction(confidence, "confidence", open_top=True)
-        passing = self.summary(tolerance, sample_delay, probe, target, (1.0,)).passing
-        low, high = clopper_pearson(passing, self.units, level)
-        return Passing(passing / self.units, low, high, passing, self.units, level)
+        return self.passing_of(self.summary(tolerance, sample_delay, probe, target, (1.0,)).passing, level)
+
+    def passing_of(self, passing: int, confidence: float = 0.95) -> Passing:
+        """:meth:`passing` from a count of passing units (``settling(...).attrs["passing"]``
+        has it, for the same question), without running the units again."""
+        low, high = clopper_pearson(passing, self.units, confidence)
+        return Passing(passing / self.units, low, high, passing, self.units, confidence)
 
     def delay_for(self, tolerance: "Tolerance", fraction: Any = 0.999, probe: str | None = None,
                   target: Any = "final") -> np.ndarray:
