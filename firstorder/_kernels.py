@@ -16,6 +16,7 @@ analyses never load it.
 
 from __future__ import annotations
 
+import math
 import os
 import types
 
@@ -326,14 +327,214 @@ def _compile():
     @jit_dividing
     def plan_instants(dwell, instants):
         """Sums of the dwells from 0, then again with each dwell padded by the spacing of
-        the first sum at it (numpy: two cumsums and np.spacing)."""
+        the first sum at it (numpy: two cumsums and np.spacing).  The spacing of a sum >= 0
+        is read from its bits (the next float up is its bits + 1), not from nextafter,
+        which numba calls out to one element at a time."""
+        n = dwell.size
+        bits = instants.view(np.int64)
+        scratch = np.empty(1)
+        scratch_bits = scratch.view(np.int64)
         plain = 0.0
+        for k in range(u(n)):
+            plain = plain + dwell[k]
+            instants[k + u(1)] = plain
         padded = 0.0
         instants[0] = 0.0
-        for k in range(dwell.size):
-            plain = plain + dwell[k]
-            padded = padded + (dwell[k] + (np.nextafter(plain, np.inf) - plain))
-            instants[k + 1] = padded
+        for k in range(u(n)):
+            scratch_bits[0] = bits[k + u(1)] + 1
+            padded = padded + (dwell[k] + (scratch[0] - instants[k + u(1)]))
+            instants[k + u(1)] = padded
+
+    # -- plans whose steps settle (settling/settled.py): the same operations as its numpy path --
+    @jit_dividing
+    def settled_steps(levels, gain, unit_gain, x0, allowed, base, allowance, aims, has_aims, hold_decay, with_hold,
+                      depth, quotient, side, codes, first, stop):
+        """Steps first:stop, each started where the step before it ends if it settles (on
+        the side it came from): ``step / aim``, the side of the start (int8) and the code
+        (0 regular, 8 the side of the step before not known within `depth` steps back, 9
+        not moving; the quotient and side of a step that is not regular are not used).
+
+        Each step's aim is ``base - allowance * gain`` (``base`` if that is not > 0),
+        capped by `aims`; its reach is ``aim / gain`` (no division with `unit_gain`: the
+        same number) times the hold's decay.  A step's side is certain where its jump
+        passes twice the reach of the step before it; else it follows from the side
+        before it (looked up at most `depth` steps back).  A first loop takes every step
+        whose step before has a certain side (the reach of each step carried to the next
+        two), a second the rest (the first two steps, from `x0`, and a few more: a look
+        back each).  Without `with_hold` or `has_aims` (or with `unit_gain`) the arrays
+        `hold_decay`, `aims` (or `gain`) hold one element, read at index 0 (an index
+        times 0, not a branch: the first loop then has none on its flags).
+        """
+        hold_on = u(1) if with_hold else u(0)
+        aims_on = u(1) if has_aims else u(0)
+        gain_on = u(0) if unit_gain else u(1)
+        reach_before = 0.0  # of step k - 1
+        reach_two = 0.0  # of step k - 2
+        begin = first - 2 if first >= 2 else 0
+        for k in range(u(begin), u(stop)):
+            c = gain[k * gain_on]
+            goal = base - allowance * c
+            if goal <= 0.0:
+                goal = base
+            cap = aims[k * aims_on]  # inf without aims
+            threshold = cap if cap < goal else allowed
+            goal = cap if cap < goal else goal
+            reach = goal if unit_gain else goal / c
+            reach = reach * hold_decay[k * hold_on]  # 1.0 without a hold
+            if k >= u(first):
+                if k < u(2):
+                    codes[k] = 7  # from x0: the second loop
+                else:
+                    jump = levels[k - u(2)] - levels[k - u(1)]
+                    # jump != 0 where it counts; copysign has no branch (random levels
+                    # would mispredict one time in two)
+                    start = levels[k - u(1)] + math.copysign(1.0, jump) * reach_before
+                    offset = start - levels[k]
+                    size_k = abs(offset) * c
+                    quotient[k] = size_k / goal
+                    side[k] = int(math.copysign(1.0, offset))
+                    codes[k] = 7 if not abs(jump) > 2.0 * reach_two else (0 if size_k > threshold else 9)
+            reach_two = reach_before
+            reach_before = reach
+        for k in range(u(first), u(stop)):
+            if codes[k] != 7:
+                continue
+            # Back to the nearest step j whose side is certain, then forward to step k - 1.
+            start = x0
+            known = True
+            if k >= u(1):
+                j = k - u(1)
+                back = 0
+                while j > u(0) and back <= depth:
+                    i = j - u(1)
+                    c = gain[i * gain_on]
+                    goal_i = base - allowance * c
+                    if goal_i <= 0.0:
+                        goal_i = base
+                    if aims[i * aims_on] < goal_i:
+                        goal_i = aims[i * aims_on]
+                    reach_i = (goal_i if unit_gain else goal_i / c) * hold_decay[i * hold_on]
+                    if abs(levels[i] - levels[j]) > 2.0 * reach_i:
+                        break
+                    back += 1
+                    j = j - u(1)
+                if back > depth:
+                    known = False
+                else:
+                    offset = x0 - levels[0] if j == u(0) else levels[j - u(1)] - levels[j]
+                    sign = 1.0 if offset > 0.0 else (-1.0 if offset < 0.0 else 0.0)
+                    while True:
+                        c = gain[j * gain_on]
+                        goal_j = base - allowance * c
+                        if goal_j <= 0.0:
+                            goal_j = base
+                        if aims[j * aims_on] < goal_j:
+                            goal_j = aims[j * aims_on]
+                        reach_j = (goal_j if unit_gain else goal_j / c) * hold_decay[j * hold_on]
+                        end = levels[j] + sign * reach_j
+                        if j + u(1) == k:
+                            start = end
+                            break
+                        offset = end - levels[j + u(1)]
+                        sign = 1.0 if offset > 0.0 else (-1.0 if offset < 0.0 else 0.0)
+                        j = j + u(1)
+            if not known:
+                quotient[k] = 1.0
+                side[k] = 0
+                codes[k] = 8
+                continue
+            c = gain[k * gain_on]
+            goal = base - allowance * c
+            if goal <= 0.0:
+                goal = base
+            threshold = allowed
+            if aims[k * aims_on] < goal:
+                goal = aims[k * aims_on]
+                threshold = aims[k * aims_on]
+            offset = start - levels[k]
+            size_k = abs(offset) * c
+            if size_k > threshold:
+                quotient[k] = size_k / goal
+                side[k] = 1 if offset > 0.0 else -1
+                codes[k] = 0
+            else:
+                quotient[k] = 1.0
+                side[k] = 0
+                codes[k] = 9
+
+    @jit_dividing
+    def settled_dwells(logarithm, rate, hold, with_hold, shortest, dwell, codes, first, stop):
+        """Steps first:stop: the settle time ``log(step / aim) / rate`` (in place of the
+        logarithm) and the dwell ``max(shortest, settle + hold)``; a regular step that
+        needs less than `shortest` gets code 9 (its end then depends on its start)."""
+        for k in range(u(first), u(stop)):
+            settle = logarithm[k] / rate[k]
+            need = settle + hold[k] if with_hold else settle
+            logarithm[k] = settle
+            dwell[k] = max(shortest, need)
+            if codes[k] == 0 and not need >= shortest:
+                codes[k] = 9
+
+    @jit_dividing
+    def settled_exponents(instants, dwell, rate, hold, with_hold, exponent, held_exponent, first, stop):
+        """Steps first:stop: ``-rate * real`` of each real dwell (``instants[k + 1] -
+        instants[k]``; with a hold also ``-rate * (real - hold)``); returns how many real
+        dwells came out shorter than planned."""
+        short = 0
+        for k in range(u(first), u(stop)):
+            real = instants[k + u(1)] - instants[k]
+            short += real < dwell[k]
+            exponent[k] = -rate[k] * real
+            if with_hold:
+                held_exponent[k] = -rate[k] * (real - hold[k])
+        return short
+
+    @jit
+    def settled_check(a, levels, width, starts, gain, gain_on, held, side, allowed, end, first, stop):
+        """Blocks first:stop of the scan ``x = a[k] x + (1 - a[k]) levels[k]`` (block_states'
+        operations with ``complement``, ``scale`` 1), each step judged from its start on
+        the way: its error at the sample ``|levels[k] - x| gain[k] held[k]`` against
+        `allowed`, and its side against `side` (0: not checked).  Returns how many fail;
+        the state after the last step goes to ``end[0]``.  Without `gain_on` (a gain of
+        1), `gain` is one element read at index 0."""
+        on = u(1) if gain_on else u(0)
+        n = a.size
+        full = min(stop, n // width)
+        w = u(width)
+        x = np.empty(lanes)
+        bad = 0
+        c0 = first
+        while c0 + lanes <= full:
+            base = u(c0) * w
+            for lane in range(lanes):
+                x[lane] = starts[c0 + lane]
+            for j in range(width):
+                row = base + u(j)
+                for lane in range(lanes):
+                    k = row + u(lane) * w
+                    distance = levels[k] - x[lane]
+                    e = abs(distance) * gain[k * on] * held[k]
+                    planned = side[k]
+                    # planned != 0 is the usual case, so this branch predicts well; the sides do not
+                    wrong = planned != 0 and not planned * distance < 0.0
+                    bad += (not e <= allowed) | wrong
+                    x[lane] = a[k] * x[lane] + (1.0 - a[k]) * (1.0 * levels[k])
+                    if k == u(n - 1):
+                        end[0] = x[lane]
+            c0 += lanes
+        for c in range(c0, stop):
+            state = starts[c]
+            k0 = u(c) * w
+            for k in range(k0, min(k0 + w, u(n))):
+                distance = levels[k] - state
+                e = abs(distance) * gain[k * on] * held[k]
+                planned = side[k]
+                wrong = planned != 0 and not planned * distance < 0.0
+                bad += (not e <= allowed) | wrong
+                state = a[k] * state + (1.0 - a[k]) * (1.0 * levels[k])
+                if k == u(n - 1):
+                    end[0] = state
+        return bad
 
     return types.SimpleNamespace(
         block_totals=block_totals,
@@ -346,4 +547,8 @@ def _compile():
         settle_times=settle_times,
         plan_round=plan_round,
         plan_instants=plan_instants,
+        settled_steps=settled_steps,
+        settled_dwells=settled_dwells,
+        settled_exponents=settled_exponents,
+        settled_check=settled_check,
     )

@@ -230,6 +230,22 @@ class Drive:
         self._end = end_value
         self._columns = parsed
 
+    @classmethod
+    def _of_instants(cls, instants: np.ndarray, columns: Mapping[str, np.ndarray]) -> "Drive":
+        """A drive on `instants` (its changes, then its end) and `columns`, taken as they
+        are: the library's own arrays, already checked (a plan's instants, strictly
+        increasing and made for this drive alone; columns read by :func:`level_columns`,
+        read-only).  Saves copying and checking a long plan's arrays again."""
+        if not (instants.ndim == 1 and instants.size >= 2 and math.isfinite(float(instants[-1]))):
+            raise ValueError("a drive's own instants must be finite, a change and an end at least")
+        drive = cls.__new__(cls)
+        instants.setflags(write=False)
+        drive._instants = instants
+        drive._times = instants[:-1]
+        drive._end = float(instants[-1])
+        drive._columns = dict(columns)
+        return drive
+
     # -- construction helpers -------------------------------------------------
     @classmethod
     def steps(cls, steps: Iterable[tuple[Any, Any]], end: Any, name: str = "vin") -> "Drive":

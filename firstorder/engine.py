@@ -33,8 +33,8 @@ import numpy as np
 
 from . import _kernels, _parallel
 
-__all__ = ["decay_factors", "segment_factors", "affine_scan", "relaxation_scan", "SegmentLocator", "evaluate",
-           "evaluate_sorted", "exp_in_place", "settling_columns"]
+__all__ = ["decay_factors", "segment_factors", "affine_scan", "scan_blocks", "relaxation_scan", "SegmentLocator",
+           "evaluate", "evaluate_sorted", "exp_in_place", "settling_columns"]
 
 #: Below this many maps a plain loop is quicker than the blocked scan.
 _LOOP_LIMIT = 64
@@ -263,25 +263,29 @@ def relaxation_scan(decay: np.ndarray, growth: np.ndarray | None, target: np.nda
     return _compiled_scan(kernels, decay, growth, target, float(scale), x0)
 
 
+def scan_blocks(kernels, a: np.ndarray, growth: np.ndarray | None, target: np.ndarray, scale: float,
+                x0: float) -> tuple[int, list[tuple[int, int]], np.ndarray]:
+    """The compiled scan's first half: block width, pieces of blocks, each block's start state
+    (for ``block_states``, or a kernel judging each step); `growth` None: ``1 - a``."""
+    width = math.isqrt(a.size - 1) + 1
+    complement, growth = growth is None, a if growth is None else growth
+    block_gain, block_shift = np.empty(-(-a.size // width)), np.empty(-(-a.size // width))
+    spans = _parallel.pieces(block_gain.size, align=_kernels.LANES, min_piece=max(1, _parallel.MIN_PIECE // width))
+    _parallel.run(lambda first, stop: kernels.block_totals(a, growth, complement, target, scale, width, block_gain,
+                                                           block_shift, first, stop), spans)
+    return width, spans, affine_scan(block_gain, block_shift, x0)
+
+
 def _compiled_scan(kernels, a: np.ndarray, growth: np.ndarray | None, target: np.ndarray, scale: float,
                    x0: float) -> np.ndarray:
     """The blocked scan of :func:`affine_scan`, compiled, with shifts ``growth * (scale * target)``
-    (`growth` None: ``1 - a``): the same blocks and the same operations (see
-    firstorder._kernels), on several threads."""
-    n = a.size
-    width = math.isqrt(n - 1) + 1
+    (`growth` None: ``1 - a``): its blocks and operations (firstorder._kernels), on threads."""
     a = np.ascontiguousarray(a, dtype=np.float64)
     complement = growth is None
     growth = a if complement else np.ascontiguousarray(growth, dtype=np.float64)
     target = np.asarray(target, dtype=np.float64)
-    blocks = -(-n // width)
-    block_gain = np.empty(blocks)
-    block_shift = np.empty(blocks)
-    spans = _parallel.pieces(blocks, align=_kernels.LANES, min_piece=max(1, _parallel.MIN_PIECE // width))
-    _parallel.run(lambda first, stop: kernels.block_totals(a, growth, complement, target, scale, width, block_gain,
-                                                           block_shift, first, stop), spans)
-    block_starts = affine_scan(block_gain, block_shift, x0)
-    out = np.empty(n + 1)
+    width, spans, block_starts = scan_blocks(kernels, a, None if complement else growth, target, scale, x0)
+    out = np.empty(a.size + 1)
     out[0] = x0
     _parallel.run(lambda first, stop: kernels.block_states(a, growth, complement, target, scale, width,
                                                            block_starts, out, first, stop), spans)

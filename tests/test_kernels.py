@@ -251,3 +251,31 @@ class TestPlanWalk:
         assert compiled is not None and plain is not None
         for name in ("state", "dwell", "settle", "limit", "error", "limited", "instants"):
             np.testing.assert_array_equal(getattr(compiled, name), getattr(plain, name), err_msg=name)
+
+
+class TestPlanSettled:
+    """A long plan's settled walk (settling/settled.py): the same plan on both paths."""
+
+    @pytest.mark.parametrize("case", ["plain", "min_dwell", "hold", "aims", "probe", "close levels"])
+    def test_identical(self, case, numpy_only):
+        from firstorder.settling.chain import Chain
+        from firstorder.settling.settled import walk_settled
+
+        rng = np.random.default_rng(len(case) + 3)
+        n = 60_001
+        rate = rng.choice([1e3, 1e6, 3e4], n)
+        final = rng.uniform(-2, 2, n)
+        final[rng.integers(0, n, 100)] = 0.5
+        if case == "close levels":
+            final[1000:1012] = 0.5 + 1e-4 * np.arange(12)
+        gain = rng.uniform(0.5, 1.5, n) if case == "probe" else np.ones(n)
+        hold = np.full(n, 2e-6 if case == "hold" else 0.0)
+        chain = Chain(rate, final, gain, 1e-3, False, 0.1, hold, 3e-6 if case == "min_dwell" else 1e-9)
+        aims = np.where(rng.uniform(size=n) < 0.3, 1e-5, np.inf) if case == "aims" else None
+        compiled = walk_settled(chain, 0.3, aims)
+        plain = numpy_only(walk_settled, chain, 0.3, aims)
+        assert compiled is not None and plain is not None
+        np.testing.assert_array_equal(compiled.instants, plain.instants)
+        assert compiled.end_state == plain.end_state
+        for name in ("state", "dwell", "settle", "error", "limited"):
+            np.testing.assert_array_equal(getattr(compiled.whole(), name), getattr(plain.whole(), name), err_msg=name)

@@ -81,6 +81,11 @@ class Walk:
     instants: np.ndarray
     end_state: float
 
+    def whole(self) -> "Walk":
+        """The walk itself (a :class:`~firstorder.settling.settled.Settled` makes its own from
+        its instants)."""
+        return self
+
 
 def tick_up(dwell: float, tick: float) -> float:
     """`dwell` rounded up to whole ticks, never below it.
@@ -175,12 +180,18 @@ def _instants(dwell: np.ndarray) -> np.ndarray | None:
     else:
         np.cumsum(dwell, out=instants[1:])
         np.cumsum(dwell + np.spacing(instants[1:]), out=instants[1:])
+    return instants if _fix_short(instants, dwell) else None
+
+
+def _fix_short(instants: np.ndarray, dwell: np.ndarray) -> bool:
+    """Move each instant that ends a dwell short of `dwell` one float later, in a few
+    rounds; False if some are still short after them."""
     for _ in range(4):
         short = np.flatnonzero(np.diff(instants) < dwell)
         if short.size == 0:
-            return instants
+            return True
         instants[short + 1] = np.nextafter(instants[short + 1], np.inf)
-    return None
+    return False
 
 
 def _round(chain: Chain, x: np.ndarray, aims, holds, some_hold, with_hold, hold_decay, edge, kernels):

@@ -17,12 +17,14 @@ from typing import Any
 
 import numpy as np
 
+from .._arrays import repeated
 from ..drive import Drive
 from ..errors import InputError
 from ..response import read_initial
 from ..segments import Segments
 from ..units import format_value, parse_value, shown
 from .chain import AIM_INSIDE, LIMITS, Chain, Walk, exact_aims, walk, walk_fast
+from .settled import walk_settled
 from .table import check_tolerance, check_unit, constant_probe, sample_delays
 from .tolerance import Tolerance
 
@@ -65,12 +67,12 @@ def _periodic(greedy, guess: float, coefficient: np.ndarray, rate: np.ndarray):
         )
     start, previous = guess, None
     for _ in range(_PERIODIC_ROUNDS):
-        rows, limited_by, end, time = greedy(start)
+        rows, walked, end, time = greedy(start)
         gap = end - start
         # The samples aim AIM_INSIDE of their limit inside it: a start off by far less moves no sample out.
         allowed = 0.25 * AIM_INSIDE * float(np.min(rows["tolerance"] / np.maximum(np.abs(coefficient), 1e-300)))
         if abs(gap) <= allowed:
-            return start, (rows, limited_by, end, time)
+            return start, (rows, walked, end, time)
         if previous is not None and gap != previous[1]:
             following = start - gap * (start - previous[0]) / (gap - previous[1])
         else:
@@ -88,7 +90,7 @@ def _periodic(greedy, guess: float, coefficient: np.ndarray, rate: np.ndarray):
 _SHIFT_STRETCH = 1e-4
 
 
-def _shifted(greedy, state: float, rows: dict, limited_by: list, length: float, start_time: float, start: Any):
+def _shifted(greedy, state: float, rows: dict, walked: Any, length: float, start_time: float, start: Any):
     """The plan made from 0, moved to start at `start_time`.
 
     Each instant ``start_time + t`` is the float at or just after it such that no dwell
@@ -120,9 +122,9 @@ def _shifted(greedy, state: float, rows: dict, limited_by: list, length: float, 
                 f"{float(dwells[worst] / planned[worst] - 1.0):.2g} of itself (at most {_SHIFT_STRETCH:g} "
                 f"is kept); give a start nearer 0 s (the plan's dwells do not depend on it)"
             )
-    moved["start"] = instants[:-1]
+    moved["instants"], moved["start"] = instants, instants[:-1]
     moved["sample_time"] = moved["start"] + moved["sample_delay"]
-    return moved, limited_by, float(instants[-1])
+    return moved, walked, float(instants[-1])
 
 
 def _renamed(sample_delay: Any, hold_after: Any) -> tuple[Any, str]:
@@ -188,13 +190,15 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
             # that noise would be waited for (see settling.table.constant_probe).
             coefficient = np.where(constant_probe(steps, probe), 0.0, coefficient)
     else:
-        coefficient, offset = np.ones(count), np.zeros(count)
+        # The state itself: a coefficient of 1 and no offset in every step, stored once.
+        coefficient, offset = repeated(1.0, count), repeated(0.0, count)
     finals = np.asarray(steps.final, dtype=np.float64)
-    hold = np.zeros(count)
+    hold = repeated(0.0, count)
     if hold_after is not None:
         hold = sample_delays(hold_after, np.full(count, np.inf), field=sample_delay, what="step")
     value, relative = tolerance._scale()
-    chain = Chain(rate, finals, np.abs(coefficient), value, relative, reserve, hold, shortest)
+    gain = coefficient if probe is None else np.abs(coefficient)
+    chain = Chain(rate, finals, gain, value, relative, reserve, hold, shortest)
     proven = np.ones(count, dtype=bool)
 
     def greedy(state: float, dwells: np.ndarray | None = None):
@@ -209,29 +213,30 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
             aims, proven = exact_aims(chain, state)
         walked = None
         if dwells is None and tick is None and count >= _FAST_FROM:
-            walked = walk_fast(chain, state, aims)
+            walked = walk_settled(chain, state, aims) or walk_fast(chain, state, aims)
         if walked is None:
             walked = walk(chain, state, aims, tick, dwells)
-        rows = _Rows(lambda: plan_rows(walked, coefficient, offset, hold, finals, rate))
+        rows = _Rows(lambda: plan_rows(walked.whole(), coefficient, offset, hold, finals, rate))
+        rows["instants"] = walked.instants  # the changes and the end: the drive's own array
         rows["start"] = walked.instants[:-1]
-        return rows, walked.limited, walked.end_state, float(walked.instants[-1])
+        return rows, walked, walked.end_state, float(walked.instants[-1])
 
     start_state = read_initial(initial, steps.state_unit)
     if start_state == "periodic":
-        start_state, (rows, limited_by, _, time) = _periodic(greedy, float(finals[-1]), coefficient, rate)
+        start_state, (rows, walked, _, time) = _periodic(greedy, float(finals[-1]), coefficient, rate)
     else:
         if start_state == "settled":
             if rate[0] == 0.0:
                 raise InputError("initial: 'settled' needs a first step that settles, but step 0 holds its state")
             start_state = float(finals[0])
-        rows, limited_by, _, time = greedy(start_state)
+        rows, walked, _, time = greedy(start_state)
     if start_time != 0.0:
-        rows, limited_by, time = _shifted(greedy, start_state, rows, limited_by, time, start_time, start)
-    drive = Drive(rows["start"].copy(), time, **steps.columns)
+        rows, walked, time = _shifted(greedy, start_state, rows, walked, time, start_time, start)
+    drive = Drive._of_instants(rows["instants"], steps.columns)
     if not table:
         return drive, None
     rows = {name: rows[name] for name in _COLUMNS}
-    return drive, plan_frame(rows, limited_by, tolerance, unit, label, time - start_time, method, bool(proven.all()),
+    return drive, plan_frame(rows, walked.whole().limited, tolerance, unit, label, time - start_time, method, bool(proven.all()),
                          start_state)
 
 

@@ -190,3 +190,51 @@ class TestWalkFast:
         # Falling after rising: the residual sits on the near side already, greedy is best.
         chain = Chain(1 / tau, np.array([1.0, 0.99]), np.ones(2), 1e-3, False, 0.0, np.zeros(2), 0.0)
         assert exact_aims(chain, 0.0)[0] is None
+
+
+class TestWalkSettled:
+    """The whole-array walk of a chain whose steps settle (settling/settled.py) against the
+    step-by-step walk, and its compiled pieces against its numpy path."""
+
+    @pytest.mark.parametrize("case", ["plain", "min_dwell", "hold", "margin", "aims", "probe", "close levels"])
+    def test_same_plan_as_step_by_step(self, case):
+        from firstorder.settling.settled import walk_settled
+
+        rng = np.random.default_rng(len(case) + 7)
+        n = 500
+        rate = rng.choice([1e3, 1e6, 3e4], n)
+        final = rng.uniform(-2, 2, n)
+        final[rng.integers(0, n, 40)] = 0.5  # repeats: steps that do not move
+        if case == "close levels":
+            final[100:110] = 0.5 + 1.5e-3 * np.arange(10)  # jumps within two reaches: sides looked up a few back
+        gain = rng.uniform(0.5, 1.5, n) if case == "probe" else np.ones(n)
+        hold = np.full(n, 2e-6 if case == "hold" else 0.0)
+        chain = Chain(rate, final, gain, 1e-3, False, 0.2 if case == "margin" else 0.0, hold,
+                      3e-6 if case == "min_dwell" else 1e-9)  # min_dwell rules a few fast steps
+        aims = np.where(rng.uniform(size=n) < 0.3, 1e-5, np.inf) if case == "aims" else None
+        slow = walk(chain, 0.3, aims)
+        settled = walk_settled(chain, 0.3, aims)
+        assert settled is not None
+        fast = settled.whole()
+        rounding = 4 * np.spacing(slow.instants[-1])
+        np.testing.assert_allclose(fast.dwell, slow.dwell, rtol=1e-10, atol=rounding)
+        np.testing.assert_allclose(fast.state, slow.state, rtol=1e-10, atol=4 * rate.max() * 1e-3 * rounding)
+        np.testing.assert_array_equal(fast.limited, slow.limited)
+        # Every sample inside, judged again from the real dwells: the handbook form
+        # |f - x_k| e^(-r (dwell - hold)) of each step (c_k times it for a probe).
+        assert (fast.error <= 1e-3 * (0.8 if case == "margin" else 1.0)).all()
+        assert (np.diff(fast.instants) >= fast.dwell * (1 - 1e-15)).all()
+        assert settled.end_state == pytest.approx(slow.end_state, rel=1e-9, abs=1e-12)
+
+    def test_declines_what_it_does_not_plan(self):
+        from firstorder.settling.settled import walk_settled
+
+        n = 100
+        levels = np.where(np.arange(n) % 2 == 0, 1.0, -1.0)
+        relative = Chain(np.full(n, 1e3), levels, np.ones(n), 0.01, True, 0.0, np.zeros(n), 0.0)
+        held = Chain(np.where(np.arange(n) == 5, 0.0, 1e3), levels, np.ones(n), 1e-3, False, 0.0, np.zeros(n), 0.0)
+        # min_dwell longer than every settling: no step lands where the passes assume
+        ruled = Chain(np.full(n, 1e3), levels, np.ones(n), 1e-3, False, 0.0, np.zeros(n), 1.0)
+        assert walk_settled(relative, 0.0) is None
+        assert walk_settled(held, 0.0) is None
+        assert walk_settled(ruled, 0.0) is None
