@@ -498,6 +498,7 @@ def _compile():
         the state after the last step goes to ``end[0]``.  Without `gain_on` (a gain of
         1), `gain` is one element read at index 0."""
         on = u(1) if gain_on else u(0)
+        last = -(-a.size // width) - 1  # the block that ends with the last step
         n = a.size
         full = min(stop, n // width)
         w = u(width)
@@ -515,12 +516,12 @@ def _compile():
                     distance = levels[k] - x[lane]
                     e = abs(distance) * gain[k * on] * held[k]
                     planned = side[k]
-                    # planned != 0 is the usual case, so this branch predicts well; the sides do not
-                    wrong = planned != 0 and not planned * distance < 0.0
-                    bad += (not e <= allowed) | wrong
+                    # no branch: the sides are random
+                    bad += (not e <= allowed) | ((planned != 0) & (planned * distance >= 0.0))
                     x[lane] = a[k] * x[lane] + (1.0 - a[k]) * (1.0 * levels[k])
-                    if k == u(n - 1):
-                        end[0] = x[lane]
+            for lane in range(lanes):
+                if c0 + lane == last:
+                    end[0] = x[lane]
             c0 += lanes
         for c in range(c0, stop):
             state = starts[c]
@@ -529,11 +530,10 @@ def _compile():
                 distance = levels[k] - state
                 e = abs(distance) * gain[k * on] * held[k]
                 planned = side[k]
-                wrong = planned != 0 and not planned * distance < 0.0
-                bad += (not e <= allowed) | wrong
+                bad += (not e <= allowed) | ((planned != 0) & (planned * distance >= 0.0))
                 state = a[k] * state + (1.0 - a[k]) * (1.0 * levels[k])
-                if k == u(n - 1):
-                    end[0] = state
+            if c == last:
+                end[0] = state
         return bad
 
     return types.SimpleNamespace(
