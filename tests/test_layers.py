@@ -44,7 +44,7 @@ LAYERS = [
     "engine",
     "response",
     "settling.tolerance", "settling.table", "settling.chain", "settling.planning", "settling.order", "settling",
-    "studies.spread", "studies.lot", "studies.summary", "studies.run", "studies.budget", "studies.adaptive",
+    "studies.spread", "studies.lot", "studies.summary", "studies.progress", "studies.run", "studies.budget", "studies.adaptive",
     "studies.display", "studies.study", "studies.worst", "studies.sweep", "studies.plan", "studies",
     "cautions",
     "symbolic.names", "symbolic.nodal", "symbolic.steps", "symbolic.derivation", "symbolic",
@@ -54,7 +54,7 @@ LAYERS = [
     "cluster",
     "plotting.palette", "plotting.format", "plotting.sampling", "plotting.error_view", "plotting",
     "report.tables", "report.mathml", "report.markdown", "report.figure", "report.html", "report",
-    "widgets._loader", "widgets._drive_table", "widgets._generators", "widgets._files", "widgets._fields", "widgets._lot",
+    "widgets._loader", "widgets._drive_table", "widgets._generators", "widgets._files", "widgets._fields", "widgets._lot", "widgets._lot_work",
     "widgets._plot", "widgets._session", "widgets._panels", "widgets._study_panels", "widgets._bench", "widgets",
     "cli", "__main__",
     "",  # the package itself: it re-exports everything
