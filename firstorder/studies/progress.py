@@ -19,14 +19,15 @@ _listening = threading.local()
 
 
 @contextmanager
-def each_chunk(callback: Callable[[int, int], None]) -> Iterator[None]:
+def each_chunk(callback: Callable[[int, int], None] | None) -> Iterator[None]:
     """Within the block, ``callback(done, total)`` after each chunk of units that a study
     runs on this thread: building a study that holds its units, then each question's pass
     over the chunks (``done`` of that pass's ``total`` chunks).  An exception the callback
     raises stops the study between chunks and leaves the block: a caller cancels that way.
 
     Only this thread is heard, so a worker thread follows its own study while another
-    thread asks questions of a finished one.
+    thread asks questions of a finished one; ``each_chunk(None)`` listens to nothing
+    within its block.
 
     Examples
     --------

@@ -202,6 +202,7 @@ class Plots:
         lot_hover = _hover(unit)
         self.value_formatters.append(lot_hover)
         fig.add_tools(_band_hover(lot, "units", lot_hover))
+        self.band_renderers["envelope"] = lot
         self.mark_items["envelope"] = LegendItem(label="units", renderers=[lot], visible=False)
         items.append(self.mark_items["envelope"])
         for name in curve_names:
@@ -412,11 +413,14 @@ class Plots:
             if self.mark_items[name].visible != shown:
                 self.mark_items[name].visible = shown
 
-    def update_lot(self, study, probe, view: View, fraction: float, worst=None, worst_label: str = "") -> None:
+    def update_lot(self, study, probe, view: View, fraction: float, worst=None, worst_label: str = "",
+                   updating: bool = False) -> None:
         """The band holding the central `fraction` of `study`'s units
         (:meth:`Study.envelope <firstorder.studies.Study.envelope>`) at the view's samples
         (crowded: per pixel column the lowest low edge and the highest high edge), and
-        `worst` (a unit's response) as a curve; nothing without a study."""
+        `worst` (a unit's response) as a curve; nothing without a study.  `updating`: the
+        study is of the last inputs studied (a newer one runs), so both are drawn faint
+        (muted) and their legend says so."""
         empty = np.zeros(0)
         band, curve = {"t": empty, "low": empty, "high": empty}, _empty_curve()
         mode = "line"
@@ -438,8 +442,12 @@ class Plots:
         _assign(self.sources["worst"], curve)
         items = self.mark_items
         # fixed(): a plain string set on a legend item would be read as a column's name.
-        items["envelope"].update(visible=band["t"].size > 0, label=fixed(f"{fraction * 100:g} % of units"))
-        items["worst"].update(visible=curve["t"].size > 0, label=fixed(worst_label or "worst unit"))
+        note = " (updating)" if updating else ""
+        items["envelope"].update(visible=band["t"].size > 0, label=fixed(f"{fraction * 100:g} % of units{note}"))
+        items["worst"].update(visible=curve["t"].size > 0, label=fixed((worst_label or "worst unit") + note))
+        for name in ("envelope", "worst"):
+            self.band_renderers[name].muted = updating
+        self.line_renderers["worst"].muted = updating
         self.line_renderers["worst"].visible = curve["t"].size > 0 and mode == "line"
         self.band_renderers["worst"].visible = curve["t"].size > 0 and mode == "envelope"
 
