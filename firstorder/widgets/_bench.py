@@ -399,9 +399,11 @@ class Bench(widgets.VBox):
                 s.trace.times, s.trace.values, s.residual.times, s.residual.values, view))
         lot = self.spread_panel
         worst = self._worst_unit() if lot.worst.value else None
-        self._redraw("lot", (s.study, s.probe, s.view, lot.fraction.value, worst, updating),
-                     lambda: self.plots.update_lot(s.study, s.probe, view, lot.fraction.value, *(worst or (None, "")),
-                                                   updating=updating))
+        # While a newer study runs, the last band stays as drawn, faint: not computed again for a stale study.
+        self._redraw("lot", (s.study, s.probe, s.view, lot.fraction.value, worst),
+                     lambda: self.plots.update_lot(s.study, s.probe, view, lot.fraction.value, *(worst or (None, ""))),
+                     when=not updating)
+        self._redraw("lot updating", (updating, lot.fraction.value), lambda: self.plots.mark_lot(updating))
         self._redraw("progress", (s.studying,), lambda: self.lot_progress.show(s.studying))
         self._redraw("lot status", (s.study, s.errors.get("study"), s.study_table, lot.worst.value, s.studying),
                      lambda: setattr(lot.status, "value", lot_panels.status_html(

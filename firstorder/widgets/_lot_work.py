@@ -50,7 +50,7 @@ __all__ = ["BACKGROUND_ELEMENTS", "STEP_ELEMENTS", "LotAsk", "LotFigures", "LotW
 BACKGROUND_ELEMENTS = 2 ** 20
 #: Unit-segments per chunk of a study on the worker: its progress steps and the points at
 #: which a newer edit stops it (4 to 16 steps of some 20 to 40 ms for the Bench's sizes).
-STEP_ELEMENTS = 2 ** 18
+STEP_ELEMENTS = 2 ** 20
 #: The share of a background ask's time its build takes, against its table (measured as above).
 _BUILD_SHARE = 0.6
 

@@ -99,6 +99,7 @@ class Plots:
         self.value_formatters = []  # response-value tick and hover formatters (their unit follows the probe)
         self.mode = "line"  # of the last sampling plan: "line" or "envelope"
         self.shown: tuple[str, ...] = ()  # the curves drawn last, in curve order
+        self._lot_labels = ("units", "worst unit")  # the band's and worst unit's legend, as update_lot wrote them
         self._build_drive_figure(level_names, level_units, switch_names)
         self._build_response_figure(curve_names, contribution_names, state_unit, value_label, trace_name)
         figures = [self.drive_figure, self.response_figure]
@@ -413,14 +414,11 @@ class Plots:
             if self.mark_items[name].visible != shown:
                 self.mark_items[name].visible = shown
 
-    def update_lot(self, study, probe, view: View, fraction: float, worst=None, worst_label: str = "",
-                   updating: bool = False) -> None:
+    def update_lot(self, study, probe, view: View, fraction: float, worst=None, worst_label: str = "") -> None:
         """The band holding the central `fraction` of `study`'s units
         (:meth:`Study.envelope <firstorder.studies.Study.envelope>`) at the view's samples
         (crowded: per pixel column the lowest low edge and the highest high edge), and
-        `worst` (a unit's response) as a curve; nothing without a study.  `updating`: the
-        study is of the last inputs studied (a newer one runs), so both are drawn faint
-        (muted) and their legend says so."""
+        `worst` (a unit's response) as a curve; nothing without a study."""
         empty = np.zeros(0)
         band, curve = {"t": empty, "low": empty, "high": empty}, _empty_curve()
         mode = "line"
@@ -442,14 +440,21 @@ class Plots:
         _assign(self.sources["worst"], curve)
         items = self.mark_items
         # fixed(): a plain string set on a legend item would be read as a column's name.
-        note = " (updating)" if updating else ""
-        items["envelope"].update(visible=band["t"].size > 0, label=fixed(f"{fraction * 100:g} % of units{note}"))
-        items["worst"].update(visible=curve["t"].size > 0, label=fixed((worst_label or "worst unit") + note))
-        for name in ("envelope", "worst"):
-            self.band_renderers[name].muted = updating
-        self.line_renderers["worst"].muted = updating
+        self._lot_labels = (f"{fraction * 100:g} % of units", worst_label or "worst unit")
+        items["envelope"].update(visible=band["t"].size > 0, label=fixed(self._lot_labels[0]))
+        items["worst"].update(visible=curve["t"].size > 0, label=fixed(self._lot_labels[1]))
         self.line_renderers["worst"].visible = curve["t"].size > 0 and mode == "line"
         self.band_renderers["worst"].visible = curve["t"].size > 0 and mode == "envelope"
+
+    def mark_lot(self, updating: bool) -> None:
+        """Draw the band of units and the worst unit faint (bokeh's muted glyphs), their legend
+        saying "updating", while a newer study runs; as :meth:`update_lot` drew them otherwise."""
+        note = " (updating)" if updating else ""
+        envelope, worst = self._lot_labels
+        self.mark_items["envelope"].label = fixed(envelope + note)
+        self.mark_items["worst"].label = fixed(worst + note)
+        for renderer in (self.band_renderers["envelope"], self.band_renderers["worst"], self.line_renderers["worst"]):
+            renderer.muted = updating
 
     def update_trace(self, times: np.ndarray, values: np.ndarray, residual_times: np.ndarray,
                      residual: np.ndarray, view: View) -> None:
