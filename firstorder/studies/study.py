@@ -30,6 +30,7 @@ from ..response import COMPONENTS
 from ..settling.table import check_tolerance, check_unit, watched
 from ..units import parse_array, parse_value, shown
 from .lot import Lot
+from .progress import chunk_done
 from .run import LotSettling, Request, UnitsRun, read_delays
 from .spread import Spread
 from .summary import Ranked, SettlingSummary, merge_all, rank, sides
@@ -52,7 +53,6 @@ CHUNK_ELEMENTS = 2 ** 22
 
 #: A study of at least this many unit-segments over several chunks shows a progress bar.
 PROGRESS_ELEMENTS = 2 ** 24
-
 
 def order_statistics(values: np.ndarray, fractions: tuple[float, ...]) -> tuple[list[np.ndarray], np.ndarray]:
     """For (units, n) `values`: per column, the value at each fraction's :func:`rank` and the
@@ -132,8 +132,10 @@ class Study:
         :data:`CHUNK_ELEMENTS` unit-segments at a time and runs the chunks again for each
         question.  The numbers are the same either way, bit for bit.
     chunk : int, optional
-        Units per chunk (default: as many as fit :data:`CHUNK_ELEMENTS`); it changes memory
-        and speed, never a number.
+        Units per chunk (default: as many as fit :data:`CHUNK_ELEMENTS`, or every unit in
+        one when kept); it changes memory and speed, never a number.  A kept study given a
+        chunk holds its units in runs of that many, so building it passes chunk by chunk
+        (:func:`~.progress.each_chunk` hears each one).
     progress : bool
         Show a progress bar (tqdm) while a long study runs its chunks; False silences it.
     tolerance, sample_delay, probe, target, fractions
@@ -208,9 +210,10 @@ class Study:
         chunks = self._chunks()
         # Held: every unit when kept, else the one chunk of a study that has only one.
         self._cache = self.keep or len(chunks) == 1
-        for first, size in chunks:
+        for done, (first, size) in enumerate(chunks, 1):
             if self._cache:
                 self._run(first, size)
+                chunk_done(done, len(chunks))
             else:  # refuses a bad unit now, naming it, as a run would
                 self._lot.unit_values(drive, self._lot.draw(first, size))
 
@@ -460,7 +463,7 @@ class Study:
         return times, flat, segment
 
     def _chunk_size(self) -> int:
-        if self.keep and self.units:
+        if self.keep and self.units and self._chunk_units is None:
             return self.units
         return self._chunk_units or max(1, CHUNK_ELEMENTS // max(len(self.drive), 1))
 
@@ -489,8 +492,9 @@ class Study:
 
             bar = tqdm(total=len(chunks), desc="study chunks", unit="chunk", leave=False)
         try:
-            for a, n in chunks:
+            for done, (a, n) in enumerate(chunks, 1):
                 yield self._run(a, n)
+                chunk_done(done, len(chunks))
                 if bar is not None:
                     bar.update(1)
         finally:

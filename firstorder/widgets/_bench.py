@@ -36,7 +36,7 @@ _DERIVATION_TAB, _SETTLING_TAB = panels.TAB_TITLES.index("Derivation"), panels.T
 _ERROR_TAB, _SPREAD_TAB = panels.TAB_TITLES.index("Error view"), panels.TAB_TITLES.index("Spread")
 #: Every session trait a drawing depends on.
 _WATCHED = ["texts", "errors", "notice", "table", "drive", "view", "probe", "response", "settling", "summary", "residual",
-            "curves", "segment", "study", "study_table"]
+            "curves", "segment", "study", "study_table", "studying"]
 
 
 def _same(old: tuple, new: tuple) -> bool:
@@ -167,6 +167,7 @@ class Bench(widgets.VBox):
         self.table_source.on_change("data", self._on_table)
         self.table_source.selected.on_change("indices", self._on_table_selection)
         self.status, self.info, self.cautions_panel = widgets.HTML(), widgets.HTML(), widgets.HTML()
+        self.lot_progress = lot_panels.StudyProgress()
         self.info.add_class("fo-info")
         self.derivation, self.settling_panel = widgets.HTMLMath(value=""), widgets.HTML(value="")
         self.error_view = widgets.VBox()
@@ -187,7 +188,7 @@ class Bench(widgets.VBox):
         left = widgets.VBox([parts.box, setup.box, view.box], layout=widgets.Layout(flex="0 0 320px", width="320px"))
         self.header = widgets.HTML()
         top = widgets.HBox([left, self.plot_view], layout=widgets.Layout(flex_flow="row wrap", width="100%"))
-        super().__init__([self.header, self.status, self.cautions_panel, top, self.info, self.tabs],
+        super().__init__([self.header, self.status, self.lot_progress.box, self.cautions_panel, top, self.info, self.tabs],
                          layout=widgets.Layout(width="100%", max_width="100%"))
         self.add_class("fo-bench")
         session.observe(self._refresh, names=_WATCHED)
@@ -283,6 +284,11 @@ class Bench(widgets.VBox):
         """
         return self.session.undo()
 
+    def wait_study(self, timeout: float | None = None) -> bool:
+        """Wait for a large lot's study, running on the worker thread while the controls stay
+        live, and show it; False when `timeout` (s) passes first (:meth:`BenchSession.wait_study`)."""
+        return self.session.wait_study(timeout)
+
     def _on_field(self, key: str, text: str) -> None:
         if not self._syncing:
             s = self.session
@@ -359,7 +365,12 @@ class Bench(widgets.VBox):
 
     # -- drawing: whatever the session changed ---------------------------------------------------------
     def _refresh(self, change=None) -> None:
+        with self.session.lock:  # the worker's answers, applied without a kernel loop, wait for this
+            self._draw()
+
+    def _draw(self) -> None:
         s = self.session
+        updating = s.studying is not None  # the lot's figures are of the last inputs studied
         tab = self.tabs.selected_index
         shown_segment = self._drawn.get("derivation", (None, None, None))[2]
         view = View(*s.view)
@@ -388,11 +399,15 @@ class Bench(widgets.VBox):
                 s.trace.times, s.trace.values, s.residual.times, s.residual.values, view))
         lot = self.spread_panel
         worst = self._worst_unit() if lot.worst.value else None
+        # While a newer study runs, the last band stays as drawn, faint: not computed again for a stale study.
         self._redraw("lot", (s.study, s.probe, s.view, lot.fraction.value, worst),
-                     lambda: self.plots.update_lot(s.study, s.probe, view, lot.fraction.value, *(worst or (None, ""))))
-        self._redraw("lot status", (s.study, s.errors.get("study"), s.study_table, lot.worst.value),
+                     lambda: self.plots.update_lot(s.study, s.probe, view, lot.fraction.value, *(worst or (None, ""))),
+                     when=not updating)
+        self._redraw("lot updating", (updating, lot.fraction.value), lambda: self.plots.mark_lot(updating))
+        self._redraw("progress", (s.studying,), lambda: self.lot_progress.show(s.studying))
+        self._redraw("lot status", (s.study, s.errors.get("study"), s.study_table, lot.worst.value, s.studying),
                      lambda: setattr(lot.status, "value", lot_panels.status_html(
-                         s.study, s.errors.get("study"), s.study_table is None and lot.worst.value)))
+                         s.study, s.errors.get("study"), s.study_table is None and lot.worst.value, s.studying)))
         self._redraw("value axis", (s.response, s.probe, s.view, s.curves, s.settling, s.sample_delay, s.residual,
                                     s.study, lot.fraction.value, worst), self.plots.fit_values)
         self._redraw("info", (s.response, self.plots.mode, s.residual),
@@ -405,12 +420,12 @@ class Bench(widgets.VBox):
         # a newly selected segment shows its derivation at once.
         self._redraw("settling panel", (s.settling, s.summary),
                      lambda: setattr(self.settling_panel, "value", panels.settling_html(s)), when=tab == _SETTLING_TAB)
-        self._redraw("study", (s.study, s.study_table, s.segment, self.histogram_of.value), self._show_study,
+        self._redraw("study", (s.study, s.study_table, s.segment, self.histogram_of.value, updating), self._show_study,
                      when=tab == _SETTLING_TAB)
         self._redraw("derivation", (s.fixture, s.response, s.segment, s.probe),
                      lambda: setattr(self.derivation, "value", panels.derivation_html(s)),
                      when=tab == _DERIVATION_TAB or s.segment != shown_segment)
-        self._redraw("error view", (s.response, s.settling, s.probe, s.view),
+        self._redraw("error view", (s.response, s.settling, s.probe, s.view, s.study_table, updating),
                      self._show_error_view, when=tab == _ERROR_TAB)
 
     def _worst_unit(self):
@@ -419,7 +434,7 @@ class Bench(widgets.VBox):
         s = self.session
         if s.study_table is None:
             return None
-        segment = shown_segment(s.study_table, s.segment)
+        segment = shown_segment(s.study_table, self._lot_segment())
         unit = int(s.study_table["worst_unit"].iloc[segment])
         key = (s.study, unit)
         if getattr(self, "_worst", (None, None))[0] != key:
@@ -434,14 +449,22 @@ class Bench(widgets.VBox):
             self.study_panel.value = "" if study is None else (
                 "<p>Give a tolerance (Setup) to see the lot's settling per segment.</p>")
             return
-        segment = shown_segment(table, s.segment)
-        self.study_panel.value = lot_panels.study_html(table, table.attrs["unit"], segment, study.units)
+        segment = shown_segment(table, self._lot_segment())
+        self.study_panel.value = lot_panels.study_html(table, table.attrs["unit"], segment, study.units, s.studying)
+        if s.studying is not None:  # the figures keep the last study's numbers, marked, until the new one is done
+            self.study_figures.mark_updating()
+            return
         tolerance = s.judged(s.tolerance, s.probe)
         quantity = self.histogram_of.value
         settle, _ = study.segment_values(segment, "settle_time", tolerance, None, s.probe)
         values, unit = (settle, "s") if quantity == "settle_time" else study.segment_values(
             segment, quantity, tolerance, s.sample_delay, s.probe)
         self.study_figures.update(values, unit, quantity, settle, s.lot.fractions, s.sample_delay, segment)
+
+    def _lot_segment(self) -> int | None:
+        """The selected segment, if the study shown has it (while a study of another drive runs, it may not)."""
+        s = self.session
+        return s.segment if s.segment is not None and s.study is not None and s.segment < len(s.study.drive) else None
 
     def _show_error_view(self) -> None:
         # A new figure each time it is looked at after a change (a few ms; it is not on the edit path).

@@ -1,19 +1,60 @@
-"""The Bench's field and trace records: a part value's text field, a measured trace
-drawn over the model, and its residual (plain values, checked once; no UI)."""
+"""The Bench's field and trace records: a part value's text field, the setup fields'
+labels and readings, the view's and selection's checks, a measured trace drawn over the
+model, and its residual (plain values, checked once; no UI)."""
 
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Callable
 
 import numpy as np
 
+from ..drive import Drive
 from ..errors import InputError
 from ..fixture import Fixture
 from ..netlist import PART_UNITS
-from ..units import format_value
+from ..units import format_value, parse_value
 
-__all__ = ["MeasuredTrace", "PartField", "Residual", "part_fields"]
+__all__ = ["SETUP_LABELS", "MeasuredTrace", "PartField", "Residual", "checked_segment", "checked_view", "labelled",
+           "part_fields", "read_delay"]
+
+#: Each setup field's label on screen: its errors begin with it.
+SETUP_LABELS = {"initial": "start", "tolerance": "tolerance", "sample_delay": "sample at"}
+
+
+def read_delay(value: Any) -> float | None:
+    """A sample delay as typed ("" or None: none)."""
+    if value is None or (isinstance(value, str) and not value.strip()):
+        return None
+    return parse_value(value, field=SETUP_LABELS["sample_delay"], unit="s", positive=True)
+
+
+def labelled(key: str, read: Callable, *args: Any) -> Any:
+    """`read(*args)`, its error (which names the keyword, ``initial: ...``) under the field's label."""
+    try:
+        return read(*args)
+    except InputError as error:
+        text = str(error)
+        raise InputError(SETUP_LABELS[key] + text[len(key):] if text.startswith(key) else text) from None
+
+
+def checked_view(start: Any, end: Any, drive: Drive) -> tuple[float, float]:
+    """The span ``[start, end]`` within the drive (the whole drive when none of it is)."""
+    low, high = float(start), float(end)
+    if not high > low:
+        raise InputError(f"view: end {end!r} must be later than start {start!r}")
+    low, high = max(low, float(drive.start)), min(high, float(drive.end))
+    return (low, high) if high > low else (float(drive.start), float(drive.end))
+
+
+def checked_segment(segment: Any, drive: Drive) -> int | None:
+    """`segment` as a segment of `drive` (None: no selection)."""
+    if segment is None:
+        return None
+    if isinstance(segment, bool) or not isinstance(segment, (int, np.integer)) or not 0 <= segment < len(drive):
+        raise InputError(f"segment: {segment!r} is not a segment; segments are 0 to {len(drive) - 1}")
+    return int(segment)
+
 
 @dataclass(frozen=True)
 class PartField:

@@ -168,8 +168,10 @@ def lot_inputs(fixture: Fixture, spread: Any, units: Any, seed: Any, fractions: 
     return LotInputs(spread, units, seed, fractions)
 
 
-def make_study(fixture: Fixture, drive: Drive, initial: Any, lot: LotInputs | None) -> Study | None:
-    """The study of `lot` (None without a spread): one chunk of units, held for every question."""
+def make_study(fixture: Fixture, drive: Drive, initial: Any, lot: LotInputs | None,
+               chunk: int | None = None) -> Study | None:
+    """The study of `lot` (None without a spread): every unit held for every question, in
+    one chunk or in runs of `chunk` units (a study on the worker thread, told chunk by chunk)."""
     if lot is None or lot.spread is None:
         return None
     if lot.units * len(drive) > CHUNK_ELEMENTS:
@@ -179,7 +181,7 @@ def make_study(fixture: Fixture, drive: Drive, initial: Any, lot: LotInputs | No
     # Kept: one chunk either way (the cap above), and questions then size their memory by the
     # study's units, not by a whole chunk's worth of them.
     return fixture.study(drive, lot.spread, units=lot.units, seed=lot.seed, initial=initial, keep=True,
-                         progress=False)
+                         chunk=chunk, progress=False)
 
 
 def shown_segment(table, segment: int | None) -> int:

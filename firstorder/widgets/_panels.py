@@ -509,10 +509,15 @@ def error_view_children(session: BenchSession) -> tuple:
     view = error_view(session.response, table, session.probe, start=start, end=end,
                       max_segments=ERROR_VIEW_SEGMENTS)
     factor, unit = time_scale(end - start)
-    lot = None if session.study_table is None else lot_errors(view, session.study_table)
+    # While the study of the inputs shown runs, the last one's marks would be of other inputs: none, and a note.
+    studying = session.studying
+    lot = None if session.study_table is None or studying else lot_errors(view, session.study_table)
     figure = error_figure(view, factor, unit, width=560, height=260, lot=lot)
     note = (f"<p style='color:#566573;margin:2px 0'>The first {ERROR_VIEW_SEGMENTS} segments in view; zoom in for "
             f"the others.</p>" if view.segments.size == ERROR_VIEW_SEGMENTS else "")
+    if studying is not None:
+        note += (f"<p class='fo-lot-updating' style='color:#566573;margin:2px 0'>The lot's marks are being "
+                 f"recomputed: {html.escape(str(studying))}</p>")
     return (widgets.HTML(note), BokehModel(figure))
 
 

@@ -99,6 +99,7 @@ class Plots:
         self.value_formatters = []  # response-value tick and hover formatters (their unit follows the probe)
         self.mode = "line"  # of the last sampling plan: "line" or "envelope"
         self.shown: tuple[str, ...] = ()  # the curves drawn last, in curve order
+        self._lot_labels = ("units", "worst unit")  # the band's and worst unit's legend, as update_lot wrote them
         self._build_drive_figure(level_names, level_units, switch_names)
         self._build_response_figure(curve_names, contribution_names, state_unit, value_label, trace_name)
         figures = [self.drive_figure, self.response_figure]
@@ -202,6 +203,7 @@ class Plots:
         lot_hover = _hover(unit)
         self.value_formatters.append(lot_hover)
         fig.add_tools(_band_hover(lot, "units", lot_hover))
+        self.band_renderers["envelope"] = lot
         self.mark_items["envelope"] = LegendItem(label="units", renderers=[lot], visible=False)
         items.append(self.mark_items["envelope"])
         for name in curve_names:
@@ -438,10 +440,21 @@ class Plots:
         _assign(self.sources["worst"], curve)
         items = self.mark_items
         # fixed(): a plain string set on a legend item would be read as a column's name.
-        items["envelope"].update(visible=band["t"].size > 0, label=fixed(f"{fraction * 100:g} % of units"))
-        items["worst"].update(visible=curve["t"].size > 0, label=fixed(worst_label or "worst unit"))
+        self._lot_labels = (f"{fraction * 100:g} % of units", worst_label or "worst unit")
+        items["envelope"].update(visible=band["t"].size > 0, label=fixed(self._lot_labels[0]))
+        items["worst"].update(visible=curve["t"].size > 0, label=fixed(self._lot_labels[1]))
         self.line_renderers["worst"].visible = curve["t"].size > 0 and mode == "line"
         self.band_renderers["worst"].visible = curve["t"].size > 0 and mode == "envelope"
+
+    def mark_lot(self, updating: bool) -> None:
+        """Draw the band of units and the worst unit faint (bokeh's muted glyphs), their legend
+        saying "updating", while a newer study runs; as :meth:`update_lot` drew them otherwise."""
+        note = " (updating)" if updating else ""
+        envelope, worst = self._lot_labels
+        self.mark_items["envelope"].label = fixed(envelope + note)
+        self.mark_items["worst"].label = fixed(worst + note)
+        for renderer in (self.band_renderers["envelope"], self.band_renderers["worst"], self.line_renderers["worst"]):
+            renderer.muted = updating
 
     def update_trace(self, times: np.ndarray, values: np.ndarray, residual_times: np.ndarray,
                      residual: np.ndarray, view: View) -> None:

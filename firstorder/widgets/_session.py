@@ -6,6 +6,9 @@ below validate it), compute the response once and the settling table once,
 and only then replace the last good state, one assignment per trait inside
 one held notification, so every observer fires once and sees the whole new
 state.  A refused edit records its error by field and changes nothing else.
+A large lot's study runs on a worker thread (:mod:`._lot_work`): the edit's other
+results are replaced at once, ``studying`` tells how far the study is, and its answer
+replaces ``study`` and ``study_table`` when it is done, unless a newer edit came first.
 
 The results and the edited inputs are read-only traits: observe them, or
 ``traitlets.dlink`` from them.  The view span, the selected segment, the probe
@@ -16,7 +19,8 @@ second view or a dashboard can drive them.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+import threading
+from dataclasses import dataclass, replace
 from typing import Any, Callable
 
 import numpy as np
@@ -30,11 +34,12 @@ from ..response import COMPONENTS, Response, read_initial
 from ..settling.table import SettlingSummary, table_summary
 from ..settling.tolerance import Tolerance, parse_tolerance, tolerance_text
 from ..studies.study import Study
-from ..units import format_value, parse_value
+from ..units import format_value
 from ._drive_table import DriveText
-from ._fields import MeasuredTrace, PartField, Residual, part_fields
+from ._fields import MeasuredTrace, PartField, Residual, checked_segment, checked_view, labelled, part_fields, read_delay
 from ._generators import generated_drive
-from ._lot import LotInputs, is_lot_key, lot_inputs, lot_texts, make_study, read_lot
+from ._lot import LotInputs, is_lot_key, lot_inputs, lot_texts, read_lot
+from ._lot_work import LotAsk, LotWorker, Studying, locked, lot_errors, lot_figures
 
 __all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS", "TOLERANCE_UNIT", "UNDO_DEPTH",
            "part_fields"]
@@ -43,8 +48,6 @@ __all__ = ["BenchSession", "MeasuredTrace", "PartField", "Residual", "SETUP_KEYS
 UNDO_DEPTH = 50
 #: The setup fields, by key.
 SETUP_KEYS = ("initial", "tolerance", "sample_delay")
-#: Each setup field's label on screen: its errors begin with it.
-SETUP_LABELS = {"initial": "start", "tolerance": "tolerance", "sample_delay": "sample at"}
 #: The error key of a tolerance whose unit is not that of the quantity shown (shown beside
 #: the tolerance field; not a refused entry, so undo does not stop at it).
 TOLERANCE_UNIT = "tolerance unit"
@@ -53,6 +56,8 @@ TOLERANCE_UNIT = "tolerance unit"
 RESULT_ERRORS = frozenset({"settling", TOLERANCE_UNIT, "study"})
 #: Curves shown when a session opens; the rest are one click away.
 DEFAULT_CURVES = ("total", "forced")
+#: The key of a change that starts the worker on an ask (`_replace` takes it out).
+_LOT_WORK = "lot work"
 
 
 # eq=False: two snapshots are the same only if they are one object (comparing their
@@ -68,49 +73,6 @@ class _Snapshot:
     tolerance: Tolerance | None
     sample_delay: float | None
     lot: LotInputs
-
-
-def _read_delay(value: Any) -> float | None:
-    """A sample delay as typed ("" or None: none)."""
-    if value is None or (isinstance(value, str) and not value.strip()):
-        return None
-    return parse_value(value, field=SETUP_LABELS["sample_delay"], unit="s", positive=True)
-
-
-def _labelled(key: str, read: Callable, *args: Any) -> Any:
-    """`read(*args)`, its error (which names the keyword, ``initial: ...``) under the field's label."""
-    try:
-        return read(*args)
-    except InputError as error:
-        text = str(error)
-        raise InputError(SETUP_LABELS[key] + text[len(key):] if text.startswith(key) else text) from None
-
-
-def _study_of(fixture: Fixture, drive: Drive, initial: Any, lot: LotInputs, refuse: bool):
-    """`(study, None)`, or `(None, its error)` (raised instead when `refuse`)."""
-    try:
-        return make_study(fixture, drive, initial, lot), None
-    except ValueError as error:
-        if refuse:
-            raise
-        return None, str(error)
-
-
-def _checked_view(start: Any, end: Any, drive: Drive) -> tuple[float, float]:
-    """The span ``[start, end]`` within the drive (the whole drive when none of it is)."""
-    low, high = float(start), float(end)
-    if not high > low:
-        raise InputError(f"view: end {end!r} must be later than start {start!r}")
-    low, high = max(low, float(drive.start)), min(high, float(drive.end))
-    return (low, high) if high > low else (float(drive.start), float(drive.end))
-
-
-def _checked_segment(segment: Any, drive: Drive) -> int | None:
-    if segment is None:
-        return None
-    if isinstance(segment, bool) or not isinstance(segment, (int, np.integer)) or not 0 <= segment < len(drive):
-        raise InputError(f"segment: {segment!r} is not a segment; segments are 0 to {len(drive) - 1}")
-    return int(segment)
 
 
 class BenchSession(traitlets.HasTraits):
@@ -174,11 +136,15 @@ class BenchSession(traitlets.HasTraits):
     study = traitlets.Instance(Study, allow_none=True, read_only=True, help="The study of the lot (None: no spread)")
     study_table = traitlets.Any(None, allow_none=True, read_only=True,
                                 help="The study's per-segment table (Study.settling; None without a tolerance)")
+    studying = traitlets.Instance(Studying, allow_none=True, read_only=True, help="The study running on the worker "
+                                  "thread, and how far (None: the study and its table are of the inputs shown)")
 
     def __init__(self, fixture: Fixture, drive: Drive, initial: Any = 0.0, tolerance: Tolerance | None = None,
                  sample_delay: Any = None, trace: Any = None, spread: Any = None, units: Any = None,
                  seed: Any = None, fractions: Any = None) -> None:
         super().__init__()
+        self.lock = threading.RLock()  # held while the state changes (the worker's answers too)
+        self._worker = LotWorker(self._deliver, self._progress)
         if not isinstance(fixture, Fixture):
             raise InputError(f"Bench fixture: {fixture!r} is not a firstorder Fixture")
         if not isinstance(drive, Drive):
@@ -187,7 +153,7 @@ class BenchSession(traitlets.HasTraits):
             raise InputError(f"Bench tolerance: {tolerance!r} is not a firstorder Tolerance (or None)")
         unit = fixture.state_unit
         start = read_initial(initial, unit)
-        delay = _read_delay(sample_delay)
+        delay = read_delay(sample_delay)
         lot = lot_inputs(fixture, spread, units, seed, fractions)
         self.trace = None if trace is None else MeasuredTrace.read(trace)
         sources = tuple(p.name for p in fixture.sources)
@@ -202,18 +168,16 @@ class BenchSession(traitlets.HasTraits):
                      sample_delay="" if delay is None else sample_delay.strip() if isinstance(sample_delay, str)
                      else format_value(delay, "s", digits=6))
         texts.update(lot_texts(fixture, lot.spread, lot.units))
-        study = make_study(fixture, drive, start, lot)
         with self.hold_trait_notifications():
             for name, value in dict(fixture=fixture, table=table, drive=drive, initial=start, tolerance=tolerance,
-                                    sample_delay=delay, response=response, texts=texts, lot=lot,
-                                    study=study).items():
+                                    sample_delay=delay, response=response, texts=texts, lot=lot).items():
                 self.set_trait(name, value)
             self.view = (float(drive.start), float(drive.end))
             self.curves = DEFAULT_CURVES
+        # refuse "": a study that cannot be built refuses the Bench at once (a large one's error shows later).
+        self._replace(self._results(response, tolerance, delay, None, residual=True, errors={}, build=True, refuse=""))
         if self.trace is not None and self.trace.name in {p.name for p in fixture.probes}:
             self.probe = self.trace.name  # a trace of a probe is compared with that probe
-        else:
-            self._replace(self._results(response, tolerance, delay, None, residual=True, errors={}, study=study))
 
     # -- reading ---------------------------------------------------------------------------------
     @property
@@ -287,9 +251,9 @@ class BenchSession(traitlets.HasTraits):
     def edit_setup(self, key: str, text: str) -> bool:
         """A setup field typed: ``"initial"``, ``"tolerance"`` or ``"sample_delay"``."""
         readers: dict[str, Callable[[], dict]] = {
-            "initial": lambda: {"initial": _labelled("initial", read_initial, text, self.fixture.state_unit)},
+            "initial": lambda: {"initial": labelled("initial", read_initial, text, self.fixture.state_unit)},
             "tolerance": lambda: {"tolerance": parse_tolerance(text, unit=self.value_unit)},
-            "sample_delay": lambda: {"sample_delay": _read_delay(text)},
+            "sample_delay": lambda: {"sample_delay": read_delay(text)},
         }
         if key not in readers:
             raise InputError(f"edit_setup: {key!r} is not a setup field; fields are {list(SETUP_KEYS)}")
@@ -372,11 +336,11 @@ class BenchSession(traitlets.HasTraits):
 
     def set_view(self, start: Any, end: Any) -> None:
         """Show the time span [start, end] (s); it is kept within the drive."""
-        self.view = _checked_view(start, end, self.drive)
+        self.view = checked_view(start, end, self.drive)
 
     def select_segment(self, segment: int | None) -> None:
         """Select `segment` (None: no selection)."""
-        self.segment = _checked_segment(segment, self.drive)
+        self.segment = checked_segment(segment, self.drive)
 
     def undo(self) -> bool:
         """Take back the last edit; False when there is nothing to take back.
@@ -422,11 +386,18 @@ class BenchSession(traitlets.HasTraits):
         snapshot = _Snapshot(fixture, table, texts, initial, tolerance, sample_delay, lot)
         self._restore(snapshot, history=(*self.history, self._snapshot())[-UNDO_DEPTH:])
 
+    def wait_study(self, timeout: float | None = None) -> bool:
+        """Wait for the study running on the worker thread (``studying``) and apply it here;
+        False when `timeout` (s) passes first.  A newer edit meanwhile would have replaced it."""
+        return self._worker.wait(timeout)
+
     # -- the one path of an edit ----------------------------------------------------------------------
+    @locked
     def _edit(self, key: str, make: Callable[[], dict[str, Any]], texts: dict[str, str] | None = None,
               reset_view: bool = False) -> bool:
         """Build the new inputs with `make`, compute their results, and replace the state;
-        on a ValueError from any layer record it under `key` and change nothing else."""
+        on a ValueError from any layer (a Spread entry the study cannot take, too) record it
+        under `key` and change nothing else."""
         try:
             if texts is not None and all(self.texts.get(k) == v for k, v in texts.items()):
                 return self._unchanged(key)
@@ -439,21 +410,16 @@ class BenchSession(traitlets.HasTraits):
             drive, initial = inputs.get("drive", self.drive), inputs.get("initial", self.initial)
             changed_response = bool({"fixture", "drive", "initial"} & inputs.keys())
             response = fixture.respond(drive, initial) if changed_response else self.response
-            lot, study, study_error = inputs.get("lot", self.lot), self.study, None
-            rebuilt = changed_response or "lot" in inputs
-            if rebuilt:
-                # A Spread field the study cannot take is refused; another edit is kept, the study's error shown.
-                study, study_error = _study_of(fixture, drive, initial, lot, refuse="lot" in inputs)
+            changes = dict(inputs, response=response)
+            changes.update(self._results(response, inputs.get("tolerance", self.tolerance),
+                                         inputs.get("sample_delay", self.sample_delay), self.probe,
+                                         residual=changed_response, errors={k: v for k, v in self.errors.items() if k != key},
+                                         build=changed_response or "lot" in inputs,
+                                         refuse=key if "lot" in inputs else None,
+                                         inputs=(fixture, drive, initial, inputs.get("lot", self.lot))))
         except ValueError as error:
             self._set_error(key, str(error))
             return False
-        changes = dict(inputs, response=response, study=study)
-        changes.update(self._results(response, inputs.get("tolerance", self.tolerance),
-                                     inputs.get("sample_delay", self.sample_delay), self.probe,
-                                     residual=changed_response, study=study, fractions=lot.fractions,
-                                     errors={k: v for k, v in self.errors.items() if k != key and not (rebuilt and k == "study")}))
-        if study_error:
-            changes["errors"] = {**changes["errors"], "study": study_error}
         changes["texts"] = {**self.texts, **(texts or {})}
         changes["notice"] = ""
         changes["history"] = (*self.history, self._snapshot())[-UNDO_DEPTH:]
@@ -470,12 +436,12 @@ class BenchSession(traitlets.HasTraits):
         return True
 
     def _results(self, response: Response, tolerance: Tolerance | None, sample_delay: float | None,
-                 probe: str | None, residual: bool, errors: dict[str, str], study: Study | None = None,
-                 fractions: tuple[float, ...] = ()) -> dict[str, Any]:
-        """The settling table and its summary, the study's table (with a `study`) and, with
-        `residual`, the trace's residual for these inputs, and `errors` with the settling's
-        and the study's own errors in place of the last ones."""
-        table = summary = problem = mismatch = study_table = study_problem = None
+                 probe: str | None, residual: bool, errors: dict[str, str], build: bool = False,
+                 refuse: str | None = None, inputs: tuple | None = None) -> dict[str, Any]:
+        """The settling table and its summary, the lot's figures of `inputs` (fixture, drive, start, lot; default
+        the current ones: :meth:`_lot_results`), with `residual` the trace's residual, and `errors` with the
+        settling's and the study's own errors in place of the last ones."""
+        table = summary = problem = mismatch = None
         try:
             tolerance = self.judged(tolerance, probe)
         except InputError as error:
@@ -487,25 +453,55 @@ class BenchSession(traitlets.HasTraits):
                 summary = table_summary(table)
             except ValueError as error:
                 problem = str(error)
-        if study is not None and tolerance is not None and problem is None:
-            try:
-                study_table = study.settling(tolerance, sample_delay=sample_delay, probe=probe,
-                                             fractions=fractions or self.lot.fractions)
-            except ValueError as error:
-                study_problem = str(error)
-        # Without a study, a study error is that of building it (kept until the next edit).
-        errors = {k: v for k, v in errors.items()
-                  if k not in ("settling", TOLERANCE_UNIT) and not (k == "study" and study is not None)}
-        if study_problem:
-            errors["study"] = study_problem
+        errors = {k: v for k, v in errors.items() if k not in ("settling", TOLERANCE_UNIT)}
         if problem:
             errors["settling"] = problem
         if mismatch:
             errors[TOLERANCE_UNIT] = mismatch
-        results = {"settling": table, "summary": summary, "errors": errors, "study_table": study_table}
+        fixture, drive, initial, lot = inputs or (self.fixture, self.drive, self.initial, self.lot)
+        ask = LotAsk(fixture, drive, initial, lot, build, None if build else self.study,
+                     None if problem else tolerance, sample_delay, probe, refuse)
+        results = {"settling": table, "summary": summary, **self._lot_results(ask, errors)}
         if residual:
             results["residual"] = self._residual(response, probe)
         return results
+
+    def _lot_results(self, ask: LotAsk, errors: dict[str, str]) -> dict[str, Any]:
+        """The lot's figures for `ask` at once, or the ask for the worker (the last figures
+        stay, marked by ``studying``, until its answer is applied)."""
+        pending = self._worker.pending
+        if pending is not None and pending.build and not ask.build:
+            ask = replace(ask, build=True, study=None)  # the study to ask again is still being built
+        if ask.background:
+            return {"errors": lot_errors(errors, ask, None), _LOT_WORK: ask}
+        figures = lot_figures(ask)
+        if figures.refused:
+            raise InputError(figures.error)
+        self._worker.supersede()  # this answer is newer than any the worker has yet to give
+        return {"study": figures.study, "study_table": figures.table, "studying": None,
+                "errors": lot_errors(errors, ask, figures)}
+
+    @locked
+    def _deliver(self, job, figures) -> None:
+        """The worker's answer to `job`, applied unless a newer ask replaced it (on the kernel's thread)."""
+        if not self._worker.is_current(job):
+            return
+        self._worker.finish(job)
+        ask = job.ask
+        if figures.refused and ask.refuse:
+            # The Spread entry is refused, as in line: back to the state before it, its error beside it (and
+            # the figures that edit had replaced asked for again, if they were not done either).
+            last = self.history[-1]
+            self._replace({"lot": last.lot, "texts": dict(last.texts), "history": self.history[:-1], "studying": None,
+                           "errors": {**self.errors, ask.refuse: figures.error}, _LOT_WORK: job.previous})
+        else:
+            self._replace({"study": figures.study, "study_table": figures.table, "studying": None,
+                           "errors": lot_errors(self.errors, ask, figures)})
+
+    @locked
+    def _progress(self, job, studying: Studying) -> None:
+        if self._worker.is_current(job):
+            self.set_trait("studying", studying)
 
     def _residual(self, response: Response, probe: str | None) -> Residual | None:
         trace = self.trace
@@ -520,17 +516,22 @@ class BenchSession(traitlets.HasTraits):
     def _placed(self, drive: Drive, reset_view: bool) -> dict[str, Any]:
         """The view and selection for a new drive: the view kept within it (the whole drive
         after a structural edit), a selection past its end dropped."""
-        view = (float(drive.start), float(drive.end)) if reset_view else _checked_view(*self.view, drive)
+        view = (float(drive.start), float(drive.end)) if reset_view else checked_view(*self.view, drive)
         segment = self.segment if self.segment is not None and self.segment < len(drive) else None
         return {"view": view, "segment": segment}
 
+    @locked
     def _replace(self, changes: dict[str, Any]) -> None:
         # Held: every trait takes its new value before any observer runs, so an observer of
         # the response already sees the settling table that goes with it.
+        ask = changes.pop(_LOT_WORK, None)
+        if ask is not None:
+            changes["studying"] = self._worker.start(ask)
         with self.hold_trait_notifications():
             for name, value in changes.items():
                 self.set_trait(name, value)
 
+    @locked
     def _set_error(self, key: str, message: str | None) -> None:
         errors = {k: v for k, v in self.errors.items() if k != key or message}
         if message:
@@ -541,19 +542,18 @@ class BenchSession(traitlets.HasTraits):
         return _Snapshot(self.fixture, self.table, dict(self.texts), self.initial, self.tolerance, self.sample_delay,
                          self.lot)
 
+    @locked
     def _restore(self, snapshot: _Snapshot, history: tuple | None = None) -> None:
         tolerance = snapshot.tolerance
         drive = snapshot.table.to_drive()
         response = snapshot.fixture.respond(drive, snapshot.initial)
         lot = snapshot.lot
-        study, study_error = _study_of(snapshot.fixture, drive, snapshot.initial, lot, refuse=False)
         changes = dict(fixture=snapshot.fixture, table=snapshot.table, drive=drive, initial=snapshot.initial,
                        tolerance=tolerance, sample_delay=snapshot.sample_delay, response=response,
-                       texts=dict(snapshot.texts), notice="", lot=lot, study=study)
+                       texts=dict(snapshot.texts), notice="", lot=lot)
         # Undo clears every refused entry: the fields go back to their last good text.
-        changes.update(self._results(response, tolerance, snapshot.sample_delay, self.probe, residual=True,
-                                     errors={"study": study_error} if study_error else {}, study=study,
-                                     fractions=lot.fractions))
+        changes.update(self._results(response, tolerance, snapshot.sample_delay, self.probe, residual=True, errors={},
+                                     build=True, inputs=(snapshot.fixture, drive, snapshot.initial, lot)))
         if history is not None:
             changes["history"] = history
         changes.update(self._placed(drive, reset_view=True))
@@ -563,14 +563,14 @@ class BenchSession(traitlets.HasTraits):
     @traitlets.validate("view")
     def _validate_view(self, proposal):
         try:
-            return _checked_view(*proposal.value, self.drive)
+            return checked_view(*proposal.value, self.drive)
         except InputError as error:
             raise traitlets.TraitError(str(error)) from None
 
     @traitlets.validate("segment")
     def _validate_segment(self, proposal):
         try:
-            return _checked_segment(proposal.value, self.drive)
+            return checked_segment(proposal.value, self.drive)
         except InputError as error:
             raise traitlets.TraitError(str(error)) from None
 
@@ -591,7 +591,8 @@ class BenchSession(traitlets.HasTraits):
         return tuple(name for name in names if name in proposal.value)
 
     @traitlets.observe("probe")
+    @locked
     def _observe_probe(self, change) -> None:
         # The same limit, judging what is now watched if it is in the same unit (_results).
         self._replace(self._results(self.response, self.tolerance, self.sample_delay, change["new"], residual=True,
-                                    errors=self.errors, study=self.study, fractions=self.lot.fractions))
+                                    errors=self.errors))

@@ -25,14 +25,39 @@ from ..units import format_value
 from ._lot import BAND_PREFIX, MAX_UNITS, TEMPCO, TEMPERATURE, UNITS, quantity_units
 from ._panels import FieldsPanel, error_html
 
-__all__ = ["HISTOGRAM_QUANTITIES", "SpreadPanel", "StudyFigures", "TABLE_ROWS", "spread_panel", "status_html",
-           "study_html"]
+__all__ = ["HISTOGRAM_QUANTITIES", "UPDATING", "SpreadPanel", "StudyFigures", "StudyProgress", "TABLE_ROWS",
+           "spread_panel", "status_html", "study_html"]
 
 _HINT = "color:#566573;font-size:0.85em;line-height:1.25;display:inline-block"
 #: What the histogram can show, key to its label.
 HISTOGRAM_QUANTITIES = {"settle_time": "settle time", "error_at_sample": "error at the sample"}
 #: Rows of the study table shown (the least yield first; a short drive shows every row).
 TABLE_ROWS = 12
+#: What a lot's figure says while the study of the inputs shown runs on the worker thread.
+UPDATING = "updating: the last study's figures until the new one is done"
+#: How faint the last study's table is drawn meanwhile.
+_STALE_STYLE = "opacity:0.45"
+
+
+class StudyProgress:
+    """A progress bar and its line (``Studying 20,000 units × 200 segments… 35 %``) above the
+    plots, shown only while a study runs on the worker thread (``box``, ``bar``, ``label``)."""
+
+    def __init__(self) -> None:
+        self.bar = widgets.FloatProgress(value=0.0, min=0.0, max=1.0, bar_style="info",
+                                         layout=widgets.Layout(width="240px"))
+        self.label = widgets.HTML()
+        self.box = widgets.HBox([self.bar, self.label], layout=widgets.Layout(display="none", align_items="center"))
+        self.box.add_class("fo-study-progress")
+
+    def show(self, studying) -> None:
+        """Show `studying` (a :class:`~._lot_work.Studying`), or hide the bar when None."""
+        if studying is None:
+            self.box.layout.display = "none"
+            return
+        self.bar.value = studying.done
+        self.label.value = f"<span style='{_HINT}'>{html.escape(str(studying))}</span>"
+        self.box.layout.display = None
 
 
 def _label(text: str) -> widgets.HTML:
@@ -89,9 +114,10 @@ def spread_panel(fixture, texts: dict[str, str], fractions: tuple[float, ...], o
     return SpreadPanel(box, FieldsPanel(widgets.VBox(), fields, errors), fraction, worst, status)
 
 
-def study_html(table, unit: str, segment: int, count: int) -> str:
+def study_html(table, unit: str, segment: int, count: int, studying=None) -> str:
     """The study's per-segment table (:meth:`Study.settling <firstorder.studies.Study.settling>`):
-    the rows with the least yield and the segment shown, each cell by ``settling_cell``."""
+    the rows with the least yield and the segment shown, each cell by ``settling_cell``; faint
+    under a note while `studying` (the study of the inputs shown still runs)."""
     order = np.argsort(table["yield"].to_numpy(), kind="stable")[:TABLE_ROWS]
     rows = sorted(set(order.tolist()) | {segment})
     columns = [c for c in table.columns if c not in ("start", "sample_time")]
@@ -109,8 +135,12 @@ def study_html(table, unit: str, segment: int, count: int) -> str:
     caption = (f"{count:,} units (seed {attrs.get('seed')}): {passing:,} pass every sample "
                f"({passing / count:.2%}); tolerance {attrs.get('tolerance')}")
     more = f"; {left:,} more segments not shown (the least yield first)" if left > 0 else ""
-    return (f"<p><b>The lot, per segment</b> ({html.escape(caption + more)})</p>"
+    page = (f"<p><b>The lot, per segment</b> ({html.escape(caption + more)})</p>"
             f"<table style='font-size:0.85em'><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>")
+    if studying is None:
+        return page
+    return (f"<p class='fo-lot-updating'><b>{html.escape(UPDATING.capitalize())}</b> "
+            f"({html.escape(str(studying))})</p><div style='{_STALE_STYLE}'>{page}</div>")
 
 
 class StudyFigures:
@@ -176,10 +206,29 @@ class StudyFigures:
         self.inside.title.text = (f"Segment {segment}: units inside against the sample delay"
                                   + (f"; {labels[-1]}" if labels else ""))
         self.delay_line.update(location=sample_delay or 0.0, visible=sample_delay is not None)
+        self._mute(False)
+
+    def mark_updating(self) -> None:
+        """Say on both figures that they hold the last study's numbers (:data:`UPDATING`) and
+        fade them, until :meth:`update` fills them from the new study."""
+        for fig in (self.counts, self.inside):
+            if not fig.title.text.startswith("("):
+                fig.title.text = f"({UPDATING}) {fig.title.text}"
+        self._mute(True)
+
+    def _mute(self, muted: bool) -> None:
+        # A muted glyph is bokeh's own faint copy of it (alpha 0.2).
+        for fig in (self.counts, self.inside):
+            for renderer in fig.renderers:
+                if renderer.muted != muted:
+                    renderer.muted = muted
 
 
-def status_html(study, error: str | None, worst_needs_tolerance: bool = False) -> str:
-    """A line on the study under the Spread fields: its units and seed, or its error."""
+def status_html(study, error: str | None, worst_needs_tolerance: bool = False, studying=None) -> str:
+    """A line on the study under the Spread fields: its units and seed, or its error; while
+    `studying`, how far the study of the inputs shown is."""
+    if studying is not None:
+        return f"<span style='{_HINT}'><b>{html.escape(str(studying))}</b> ({html.escape(UPDATING)})</span>"
     if error:
         return error_html(error)
     if study is None:

@@ -385,12 +385,16 @@ class TestChunks:
                 (lambda b: np.array([b.mc_sd, b.mc_low, b.mc_high, b.units]))(study.budget(segment=2, quantity="tau")),
                 study.boundary)
 
-    @pytest.mark.parametrize("chunk, threads", [(1, "1"), (7, "4"), (64, "1"), (129, "4"), (None, "2")])
-    def test_the_same_numbers_kept_or_a_chunk_at_a_time(self, kept, chunk, threads, monkeypatch):
+    @pytest.mark.parametrize("chunk, threads, keep", [(1, "1", False), (7, "4", False), (64, "1", False),
+                                                      (129, "4", False), (None, "2", False), (7, "1", True),
+                                                      (64, "2", True)])
+    def test_the_same_numbers_kept_or_a_chunk_at_a_time(self, kept, chunk, threads, keep, monkeypatch):
         monkeypatch.setenv("FIRSTORDER_THREADS", threads)
         study = general_fixture().study(general_drive(), general_spread(), units=130, seed=5, initial=0.25,
-                                        chunk=chunk)
-        assert study._cache == (chunk is None or chunk >= 130)
+                                        chunk=chunk, keep=keep)
+        assert study._cache == (keep or chunk is None or chunk >= 130)
+        if keep:  # held in runs of `chunk` units, each built once
+            assert sorted(study._runs) == [(a, min(chunk, 130 - a)) for a in range(0, 130, chunk)]
         for mine, reference in zip(self.answers(study), self.answers(kept)):
             if hasattr(mine, "equals"):
                 assert mine.equals(reference)
