@@ -34,7 +34,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "firstorder"
 #: Modules from the bottom up (relative to the package); a package's name comes right
 #: after its last module and stands for its ``__init__``.
 LAYERS = [
-    "_version", "errors", "units", "_html", "_parallel", "_kernels", "_arrays", "_scratch", "io.atomic",
+    "_version", "errors", "units", "_html", "_parallel", "_kernels", "_select", "_arrays", "_scratch", "io.atomic",
     "netlist",
     "drive",
     "network.topology", "network.mna", "network.reduce", "network",
@@ -45,7 +45,7 @@ LAYERS = [
     "response",
     "settling.tolerance", "settling.table", "settling.chain", "settling.settled", "settling.planning", "settling.order",
     "settling",
-    "studies.spread", "studies.lot", "studies.summary", "studies.progress", "studies.run", "studies.budget",
+    "studies.spread", "studies.lot", "studies.summary", "studies._fused", "studies.progress", "studies.run", "studies.budget",
     "studies.adaptive",
     "studies.display", "studies.study", "studies.worst", "studies.sweep", "studies.plan", "studies",
     "cautions",

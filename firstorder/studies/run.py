@@ -25,6 +25,7 @@ from ..errors import InputError
 from ..response import read_initial
 from ..segments import Segments
 from ..settling.table import check_tolerance, check_unit, hold_segments, sample_delays
+from ._fused import lot_summary
 from .lot import Draw, Lot
 from .summary import Ranked, SettlingSummary, Worst
 
@@ -187,9 +188,31 @@ class UnitsRun:
         return limit, settle, error
 
     def summary(self, request: Request) -> SettlingSummary:
-        """This run's :class:`SettlingSummary` for `request`."""
+        """This run's :class:`SettlingSummary` for `request` (the same numbers from the
+        compiled passes of :mod:`._fused` when they are in use and the target is each
+        unit's final value, else from :meth:`columns`)."""
+        if request.aim is None:
+            fused = self._fused_summary(request)
+            if fused is not None:
+                return fused
         lot = self.columns(request.tolerance, request.delays, request.probe, request.aim, request.within_segment)
         return summarize(lot, request, self.draw.first)
+
+    def _fused_summary(self, request: Request) -> SettlingSummary | None:
+        check_tolerance(request.tolerance)
+        unit, label, start, final = self.watched(request.probe)
+        check_unit(request.tolerance, unit, label)
+        value, relative = request.tolerance._scale()
+        parts = lot_summary(start, final, self.rate, self._flat_tau().reshape(self.rate.shape), self.decay,
+                            self.drive.durations, request.delays,
+                            self.holds_judged_as_droop(), value, relative, request.within_segment,
+                            request.settle_sides, request.error_sides)
+        if parts is None:
+            return None
+        settle, error, inside, passing, score, worst = parts
+        return SettlingSummary(Ranked(self.count, *settle, *request.settle_sides),
+                               Ranked(self.count, *error, *request.error_sides), inside, passing,
+                               Worst(score, worst + self.draw.first))
 
     def tau(self) -> np.ndarray:
         """(units, n): every unit's time constant (inf where a segment holds)."""

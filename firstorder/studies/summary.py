@@ -23,6 +23,8 @@ from typing import Iterable, Sequence
 
 import numpy as np
 
+from .._select import kept_sides
+
 __all__ = ["Ranked", "SettlingSummary", "Worst", "merge_all", "rank", "sides"]
 
 
@@ -117,6 +119,9 @@ class Ranked:
         ([[1.0]], [2.0, 3.0], 2.0)
         """
         values = np.asarray(values, dtype=np.float64)
+        picked = kept_sides(values, low, high, nan_as)  # compiled, when in use
+        if picked is not None:
+            return cls(values.shape[0], *picked, low, high)
         by_column = _canonical(values.T, nan_as)  # each column's units side by side, a new array
         return cls._kept(values.shape[0], by_column, low, high)
 
