@@ -6,7 +6,7 @@ The fixture: a DAC behind a 4.99 kΩ filter resistor, a relay (0.2 Ω on, 1 GΩ 
 varied parts (the resistor 1 %, the capacitor 10 %, the relay's on resistance 50-300 mΩ)
 and the temperature (0-50 °C, the capacitor -750 ppm/K).
 
-Figures, each the best of a few runs in this one process:
+Figures, each the best of a few runs in this one process (the loop too: best of three):
 
 * ``study.settling`` (the per-segment order statistics at 50 %, 99 % and 99.9 %, the
   largest, the yield and the worst unit) of a study that keeps its units (``keep=True``;
@@ -76,7 +76,7 @@ def main() -> None:
             unit = lot.unit_fixture(draw, k)
             unit.respond(schedule, 0.0).settling(HALF_LSB, sample_delay="19m")
 
-    loop = best(by_hand, repeat=1) * UNITS / LOOP_UNITS
+    loop = best(by_hand) * UNITS / LOOP_UNITS
     print(f"(g) {UNITS:,} units x {SEGMENTS:,} segments; bare exp over {UNITS * SEGMENTS:,} points "
           f"{bare * 1e3:.1f} ms")
     print(f"(g) kept study: settling {settling * 1e3:.0f} ms = {settling / bare:.1f}x bare exp (target <= 20); "
