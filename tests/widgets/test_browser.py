@@ -679,3 +679,77 @@ class TestBenchAsUsed:
             assert "Channel 3 hold capacitor" in page.title() + page.locator("h1").first.inner_text()
             page.screenshot(path=str(BUILD / "bench-browser-downloaded-report.png"), full_page=True)
             assert not messages, messages
+
+
+#: A Bench with a lot whose study, once its units are raised, runs on the worker thread.
+#: The kernel stands for a machine several times slower than this one: each chunk of units
+#: waits a moment, so the study lasts long enough to watch (the waits are this notebook's own).
+_SLOW_LOT_CELL = """
+import time
+import numpy as np
+import firstorder as fo
+import firstorder.studies.study as study_module
+
+_chunk_done = study_module.chunk_done
+def slow_machine(done, total):
+    time.sleep(0.7)
+    _chunk_done(done, total)
+study_module.chunk_done = slow_machine
+
+fx = (fo.Fixture().voltage_source("vdac", "dac", "gnd").resistor("r_filter", "dac", "a", "4.99k")
+      .switch("k1", "a", "b", r_on="0.2", r_off="1G").capacitor("c_filter", "b", "gnd", "330n")
+      .resistor("r_in", "b", "gnd", "1M"))
+n = 1000
+levels = np.random.default_rng(1).uniform(0.0, 5.0, n)
+drive = fo.Drive(np.arange(n) * 20e-3, n * 20e-3, vdac=levels, k1=(np.arange(n) % 4 != 3).astype(float))
+bench = fo.Bench(fx, drive, tolerance=fo.Tolerance.lsb(bits=16, span=5.0), sample_delay="19m",
+                 spread=fo.Spread({"r_filter": "1%", "c_filter": "10%"}), units=500, seed=1)
+bench
+"""
+
+_PROGRESS_SHOWN = """() => {
+    const box = document.querySelector('.fo-bench .fo-study-progress');
+    return box !== null && getComputedStyle(box).display !== 'none' && box.getBoundingClientRect().height > 0;
+}"""
+
+
+class TestLongStudyInBrowser:
+    def test_shows_progress_and_keeps_the_controls_live(self, lab):
+        with _notebook_page(lab, "long_study.ipynb", _SLOW_LOT_CELL, viewport=(1400, 1100)) as (page, messages):
+            _bench_ready(page)
+            _tab(page, "Spread")
+            units = page.locator(".fo-bench .fo-spread-lot-units input")
+            units.fill("4000")  # 4,000,000 unit-segments: past what the Bench studies in line
+            units.press("Enter")
+            page.wait_for_function(_PROGRESS_SHOWN, timeout=60_000)
+            label = page.locator(".fo-bench .fo-study-progress").inner_text()
+            assert "4,000 units" in label, label
+            page.locator(".fo-bench .fo-study-progress").scroll_into_view_if_needed()
+            page.screenshot(path=str(BUILD / "bench-long-study-progress.png"))
+            # While it runs, the controls answer: a part edit redraws the nominal response.
+            canvas = _response_canvas(page)
+            before = page.screenshot(clip={k: canvas[k] for k in ("x", "y", "width", "height")})
+            part = page.locator(".fo-bench .fo-part-r_filter input")
+            part.fill("10k")
+            part.press("Enter")
+            redrawn = False
+            for _ in range(40):
+                page.wait_for_timeout(250)
+                if page.screenshot(clip={k: canvas[k] for k in ("x", "y", "width", "height")}) != before:
+                    redrawn = True
+                    break
+            assert redrawn, "a part edit during the study did not redraw the response"
+            assert page.evaluate(_PROGRESS_SHOWN), "the edit's new study shows no progress"
+            page.screenshot(path=str(BUILD / "bench-long-study-edited.png"))
+            # The bar moves on as chunks of units are done (the label says how far).
+            page.wait_for_function("""() => /[1-9][0-9]* %/.test(
+                (document.querySelector('.fo-bench .fo-study-progress') || {}).innerText || '')""", timeout=60_000)
+            page.locator(".fo-bench .fo-study-progress").scroll_into_view_if_needed()
+            page.screenshot(path=str(BUILD / "bench-long-study-moving.png"))
+            # The study of the edited fixture ends: the bar goes and the lot table counts its units.
+            page.wait_for_function(f"() => !({_PROGRESS_SHOWN})()", timeout=180_000)
+            _tab(page, "Settling")
+            page.locator(".fo-bench", has_text="4,000 units (seed 1)").first.wait_for(timeout=30_000)
+            page.locator(".fo-bench .widget-tab").first.scroll_into_view_if_needed()
+            page.screenshot(path=str(BUILD / "bench-long-study-done.png"))
+            assert not messages, messages
