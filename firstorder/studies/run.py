@@ -124,24 +124,38 @@ class UnitsRun:
 
     # -- settling ---------------------------------------------------------------------------
     def columns(self, tolerance: "Tolerance", delays: np.ndarray | None, probe: str | None,
-                aim: np.ndarray | None, within_segment: bool = True) -> LotSettling:
+                aim: np.ndarray | None, within_segment: bool = True, segment: int | None = None) -> LotSettling:
         """Every unit's settling columns; `delays` None samples at each segment's end, `aim`
-        None takes each unit's own final value as the target (see ``Study.columns``)."""
+        None takes each unit's own final value as the target (see ``Study.columns``).  With
+        `segment`, only that segment's column (the same numbers: every operation works
+        element by element)."""
         check_tolerance(tolerance)
         unit, label, start, final = self.watched(probe)
         check_unit(tolerance, unit, label)
         value, relative = tolerance._scale()
-        shape = self.rate.shape
         drive = self.drive
-        sample_time = drive.ends if delays is None else drive.times + delays
+        if segment is not None:
+            segment = range(self.rate.shape[1])[segment]  # from the end when negative; IndexError past it
+        which = slice(None) if segment is None else slice(segment, segment + 1)
+        start, final, rate, durations = start[:, which], final[:, which], self.rate[:, which], drive.durations[which]
+        delays = None if delays is None else delays[which]
+        shape = rate.shape
+        sample_time = drive.ends[which] if delays is None else drive.times[which] + delays
         if aim is None:
             # The table's `ends - times` is each segment's duration, exactly (Drive.durations
             # is that difference), so a zero start and the durations give the same columns.
             size = shape[0] * shape[1]
             times = np.broadcast_to(0.0, (size,))
-            ends = self._flat_durations() if within_segment else np.broadcast_to(np.inf, (size,))
+            if segment is None:
+                ends, tau, decay = self._flat_durations(), self._flat_tau(), self.decay.ravel()
+            else:
+                ends = np.repeat(durations, shape[0])
+                tau = self._flat_tau().reshape(self.rate.shape)[:, which].ravel()
+                decay = self.decay[:, which].ravel()
+            if not within_segment:
+                ends = np.broadcast_to(np.inf, (size,))
             limit, settle, _, residual = engine.settling_columns(
-                start.ravel(), final.ravel(), self._flat_tau(), self.decay.ravel(), times, ends, value, relative)
+                start.ravel(), final.ravel(), tau, decay, times, ends, value, relative)
             limit = np.broadcast_to(limit, (size,)).reshape(shape)
             if delays is None:
                 error = residual.reshape(shape)
@@ -150,16 +164,18 @@ class UnitsRun:
                 # (the same operations, in place: two arrays made, not four).
                 error = np.subtract(final, start)
                 np.abs(error, out=error)
-                error *= engine.exp_in_place(np.multiply(-delays, self.rate))
+                error *= engine.exp_in_place(np.multiply(-delays, rate))
             settle = settle.reshape(shape)
-            hold = self.holds_judged_as_droop()
+            hold = self.holds_judged_as_droop()[which]
             if hold.any():
-                limit, settle, error = self._droop(hold, start, final, limit, settle, error, delays, value, relative)
+                limit, settle, error = _droop(hold, start, final, rate, durations, limit, settle, error, delays, value,
+                                              relative)
         else:
-            durations = drive.durations if within_segment else np.full(shape[1], np.inf)
-            step_delays = drive.durations if delays is None else delays
-            limit, settle, error = against_target(start, final, aim, self.rate, durations, step_delays, value,
-                                                  relative)
+            aim = aim[which]
+            step_delays = durations if delays is None else delays
+            if not within_segment:
+                durations = np.full(shape[1], np.inf)
+            limit, settle, error = against_target(start, final, aim, rate, durations, step_delays, value, relative)
         return LotSettling(settle, error, limit, error <= limit, sample_time, unit, label)
 
     def holds_judged_as_droop(self) -> np.ndarray:
@@ -168,24 +184,6 @@ class UnitsRun:
         if self._holds is None:
             self._holds = hold_segments(self.nominal)
         return self._holds
-
-    def _droop(self, hold, start, final, limit, settle, error, delays, value, relative):
-        """The settling table's rule for holds, on every unit at once: droop from the held
-        value, ``|start - final| (1 - e^(-d/tau))``, against the limit (relative: of the
-        held value); the same operations as the table, so each row is its unit's table.
-        Only the hold segments' columns are formed (and written into `settle` and `error`)."""
-        columns = np.flatnonzero(hold)
-        held, rate = start[:, columns], self.rate[:, columns]
-        step = np.abs(held - final[:, columns])
-        droop_end = step * -np.expm1(-self.drive.durations[columns] * rate)
-        if relative:
-            limit = np.array(limit)  # a broadcast of the fixed part until now
-            limit[:, columns] = value * np.abs(held)
-        within = droop_end <= limit[:, columns]
-        # A hold that stays inside is settled at once; one that droops out never settles.
-        settle[:, columns] = np.where(within, 0.0, np.nan)
-        error[:, columns] = droop_end if delays is None else step * -np.expm1(-delays[columns] * rate)
-        return limit, settle, error
 
     def summary(self, request: Request) -> SettlingSummary:
         """This run's :class:`SettlingSummary` for `request` (the same numbers from the
@@ -313,6 +311,25 @@ class UnitsRun:
             rate = self.rate.ravel()
             self._tau = np.where(rate > 0, 1.0 / np.where(rate > 0, rate, 1.0), np.inf)
         return self._tau
+
+
+def _droop(hold, start, final, rate, durations, limit, settle, error, delays, value, relative):
+    """The settling table's rule for holds, on every unit at once: droop from the held
+    value, ``|start - final| (1 - e^(-d/tau))``, against the limit (relative: of the
+    held value); the same operations as the table, so each row is its unit's table.
+    Only the hold segments' columns are formed (and written into `settle` and `error`)."""
+    columns = np.flatnonzero(hold)
+    held, rate = start[:, columns], rate[:, columns]
+    step = np.abs(held - final[:, columns])
+    droop_end = step * -np.expm1(-durations[columns] * rate)
+    if relative:
+        limit = np.array(limit)  # a broadcast of the fixed part until now
+        limit[:, columns] = value * np.abs(held)
+    within = droop_end <= limit[:, columns]
+    # A hold that stays inside is settled at once; one that droops out never settles.
+    settle[:, columns] = np.where(within, 0.0, np.nan)
+    error[:, columns] = droop_end if delays is None else step * -np.expm1(-delays[columns] * rate)
+    return limit, settle, error
 
 
 def summarize(lot: LotSettling, request: Request, first: int) -> SettlingSummary:

@@ -370,9 +370,10 @@ class Study:
                 unit, _, _, final = run.watched(probe)
                 parts.append(np.array(final[:, segment]))
             else:
-                lot = run.columns(tolerance, delays, probe, aim, within_segment=quantity == "error_at_sample")
+                lot = run.columns(tolerance, delays, probe, aim, within_segment=quantity == "error_at_sample",
+                                  segment=segment)
                 column = lot.settle_time if quantity == "settle_time" else lot.error_at_sample
-                parts.append(np.array(column[:, segment]))
+                parts.append(np.array(column[:, 0]))
                 unit = "s" if quantity == "settle_time" else lot.unit
         return np.concatenate(parts), unit
 

@@ -110,3 +110,28 @@ def test_without_the_kernels_the_numpy_path_answers(run, monkeypatch):
     monkeypatch.setenv("FIRSTORDER_KERNELS", "0")
     assert run._fused_summary(ask) is None
     assert run.summary(ask) == numpy_path(run, ask)
+
+
+@pytest.mark.parametrize("tolerance", ["absolute", "relative"])
+@pytest.mark.parametrize("probe", [None, "i_rs"])
+@pytest.mark.parametrize("target", ["final", "aim"])
+def test_one_segments_columns_are_that_column_of_all(run, tolerance, probe, target):
+    """UnitsRun.columns(segment=k), which a histogram of one segment asks for, is column k of
+    the whole columns, bit for bit (settling, holds, ends and the sample, both targets)."""
+    unit = "A" if probe else "V"
+    value = fo.Tolerance.absolute("1m", unit=unit) if tolerance == "absolute" else fo.Tolerance.relative(1e-3, unit=unit)
+    aim = None if target == "final" else np.linspace(-1.0, 1.0, SEGMENTS) * (1e-3 if probe else 1.0)
+    hold = run.holds_judged_as_droop()
+    picked = [0, 1, int(np.flatnonzero(hold)[0]), SEGMENTS - 1, -2]
+    for delays in (None, np.full(SEGMENTS, 0.1e-3)):
+        for within in (True, False):
+            whole = run.columns(value, delays, probe, aim, within)
+            for k in picked:
+                one = run.columns(value, delays, probe, aim, within, segment=k)
+                for name in ("settle_time", "error_at_sample", "limit", "ok"):
+                    got = getattr(one, name)
+                    assert got.shape == (UNITS, 1), name
+                    assert np.array_equal(got[:, 0], getattr(whole, name)[:, k], equal_nan=True), (name, k)
+                assert np.array_equal(one.sample_time, whole.sample_time[[k]]), k
+    with pytest.raises(IndexError):
+        run.columns(value, None, probe, aim, True, segment=SEGMENTS)
