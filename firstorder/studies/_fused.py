@@ -1,4 +1,4 @@
-"""A study's settling summary for a slice of units in three compiled passes (numba).
+"""A study's settling summary for a slice of units in compiled passes (numba).
 
 The numpy path (:mod:`.run`: ``UnitsRun.columns``, then ``summarize``) forms every
 (unit, segment) column as an array of its own, takes the hold segments' droop on
@@ -35,9 +35,8 @@ _compiled: object = None
 
 
 def lot_summary(start: np.ndarray, final: np.ndarray, rate: np.ndarray, tau: np.ndarray, decay: np.ndarray,
-                durations: np.ndarray,
-                delays: np.ndarray | None, hold: np.ndarray, value: float, relative: bool, within_segment: bool,
-                settle_sides: tuple[int, int], error_sides: tuple[int, int]) -> tuple | None:
+                durations: np.ndarray, delays: np.ndarray | None, hold: np.ndarray, value: float, relative: bool,
+                within_segment: bool, settle_sides: tuple[int, int], error_sides: tuple[int, int]) -> tuple | None:
     """The parts of a settling summary of (units, n) units, or None when the compiled
     kernels are not in use.
 
