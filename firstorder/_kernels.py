@@ -353,6 +353,7 @@ def _compile():
         the side it came from): ``step / aim``, the side of the start (int8) and the code
         (0 regular, 8 the side of the step before not known within `depth` steps back, 9
         not moving; the quotient and side of a step that is not regular are not used).
+        Returns how many got code 8.
 
         Each step's aim is ``base - allowance * gain`` (``base`` if that is not > 0),
         capped by `aims`; its reach is ``aim / gain`` (no division with `unit_gain`: the
@@ -396,6 +397,7 @@ def _compile():
                     codes[k] = 7 if not abs(jump) > 2.0 * reach_two else (0 if size_k > threshold else 9)
             reach_two = reach_before
             reach_before = reach
+        unknown = 0  # steps given code 8, returned
         for k in range(u(first), u(stop)):
             if codes[k] != 7:
                 continue
@@ -442,6 +444,7 @@ def _compile():
                 quotient[k] = 1.0
                 side[k] = 0
                 codes[k] = 8
+                unknown += 1
                 continue
             c = gain[k * gain_on]
             goal = base - allowance * c
@@ -461,12 +464,17 @@ def _compile():
                 quotient[k] = 1.0
                 side[k] = 0
                 codes[k] = 9
+        return unknown
 
     @jit_dividing
     def settled_dwells(logarithm, rate, hold, with_hold, shortest, dwell, codes, first, stop):
         """Steps first:stop: the settle time ``log(step / aim) / rate`` (in place of the
         logarithm) and the dwell ``max(shortest, settle + hold)``; a regular step that
-        needs less than `shortest` gets code 9 (its end then depends on its start)."""
+        needs less than `shortest` gets code 9 (its end then depends on its start).
+        Returns how many steps have code 9 (these and earlier ones) and how many dwells
+        are not > 0."""
+        irregular = 0
+        not_positive = 0
         for k in range(u(first), u(stop)):
             settle = logarithm[k] / rate[k]
             need = settle + hold[k] if with_hold else settle
@@ -474,6 +482,9 @@ def _compile():
             dwell[k] = max(shortest, need)
             if codes[k] == 0 and not need >= shortest:
                 codes[k] = 9
+            irregular += codes[k] == 9
+            not_positive += not dwell[k] > 0.0
+        return irregular, not_positive
 
     @jit_dividing
     def settled_exponents(instants, dwell, rate, hold, with_hold, exponent, held_exponent, first, stop):

@@ -279,3 +279,48 @@ class TestPlanSettled:
         assert compiled.end_state == plain.end_state
         for name in ("state", "dwell", "settle", "error", "limited"):
             np.testing.assert_array_equal(getattr(compiled.whole(), name), getattr(plain.whole(), name), err_msg=name)
+
+    @pytest.mark.parametrize("case", ["plain", "unknown sides", "min_dwell", "zero dwells"])
+    def test_the_counts_the_walk_trusts(self, case, numpy_only):
+        """The settled walk skips its whole-array checks on the kernels' counts: steps whose
+        side is not known, steps that do not settle, dwells that are not > 0; both paths
+        count what their codes and dwells hold."""
+        from firstorder.settling import settled
+        from firstorder.settling.chain import Chain
+
+        rng = np.random.default_rng(len(case))
+        n = 50_000
+        final = rng.uniform(-2, 2, n)
+        if case == "unknown sides":
+            final[2000:2000 + 3 * settled.LOOKBACK] = 0.25  # no jump: sides not known that far back
+        if case == "zero dwells":
+            final[3000:3010] = final[2999]  # steps that do not move, with no min_dwell
+        shortest = {"min_dwell": 2e-3, "zero dwells": 0.0}.get(case, 1e-9)
+        chain = Chain(np.full(n, 1e3), final, np.ones(n), 1e-3, False, 0.0, np.zeros(n), shortest)
+        allowed = chain.value
+
+        def counted():
+            quotient, side, codes, unknown = settled._steps(chain, 0.1, allowed, None, None, _kernels.available(n))
+            codes_before = codes.copy()
+            np.log(quotient, out=quotient)
+            dwell = np.empty(n)
+            irregular, not_positive = settled._dwells(chain, quotient, dwell, codes, False, _kernels.available(n))
+            return (unknown, int(np.count_nonzero(codes_before == settled._UNKNOWN)), irregular,
+                    int(np.count_nonzero(codes == settled._IRREGULAR)), not_positive,
+                    int(np.count_nonzero(~(dwell > 0.0))), codes.copy())
+
+        compiled, plain = counted(), numpy_only(counted)
+        for found in (compiled, plain):  # each path counts what it holds
+            assert found[0] == found[1] and found[2] == found[3] and found[4] == found[5], found[:6]
+        # The codes are the same on both paths; the dwells of steps that are not regular are
+        # not used (the walk returns None, or walks those steps again), so they may differ.
+        np.testing.assert_array_equal(compiled[6], plain[6])
+        assert compiled[:4] == plain[:4]
+        if compiled[2] == 0 and compiled[0] == 0:
+            assert compiled[4] == plain[4]
+        if case == "unknown sides":
+            assert compiled[0] > 0
+        if case in ("min_dwell", "zero dwells"):
+            assert compiled[2] > 0
+        if case == "zero dwells":
+            assert compiled[4] > 0

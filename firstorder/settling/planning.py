@@ -199,7 +199,7 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
     value, relative = tolerance._scale()
     gain = coefficient if probe is None else np.abs(coefficient)
     chain = Chain(rate, finals, gain, value, relative, reserve, hold, shortest)
-    proven = np.ones(count, dtype=bool)
+    proven: np.ndarray | None = None  # per step, whether the exact plan is proven least there
 
     def greedy(state: float, dwells: np.ndarray | None = None):
         """The plan from `state` (or for the given `dwells`): its rows, what limited each
@@ -236,8 +236,8 @@ def _plan(fixture: Any, levels: Any, tolerance: Any, initial: Any, min_dwell: An
     if not table:
         return drive, None
     rows = {name: rows[name] for name in _COLUMNS}
-    return drive, plan_frame(rows, walked.whole().limited, tolerance, unit, label, time - start_time, method, bool(proven.all()),
-                         start_state)
+    return drive, plan_frame(rows, walked.whole().limited, tolerance, unit, label, time - start_time, method,
+                             proven is None or bool(proven.all()), start_state)
 
 
 #: Plans this long or longer are walked with whole-array operations (chain.walk_fast).

@@ -111,27 +111,27 @@ def walk_settled(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Set
     (True, 7.6004)
     """
     n = chain.rate.size
-    if chain.relative or n < 2 or not (chain.rate > 0.0).all():
+    if chain.relative or n < 2 or not _all_positive(chain.rate):
         return None
     kernels = _kernels.available(n)
     allowed = chain.value * (1.0 - chain.margin)
     with_hold = not _all_equal(chain.hold, 0.0)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore", under="ignore"):
         hold_decay = np.exp(-chain.rate * chain.hold) if with_hold else None
-        settle, side, codes = _steps(chain, x0, allowed, aims, hold_decay, kernels)
-        if (codes == _UNKNOWN).any():
+        settle, side, codes, unknown = _steps(chain, x0, allowed, aims, hold_decay, kernels)
+        if unknown:
             return None
         _logarithm(settle, kernels)
         dwell = working("settled.dwell", n)
-        _dwells(chain, settle, dwell, codes, with_hold, kernels)
-        odd = np.flatnonzero(codes == _IRREGULAR)
-        if odd.size > _irregular_allowed(n):
+        irregular, not_positive = _dwells(chain, settle, dwell, codes, with_hold, kernels)
+        if irregular > _irregular_allowed(n):
             return None
-        if odd.size:
+        if irregular:
+            odd = np.flatnonzero(codes == _IRREGULAR)
             _walk_odd(chain, x0, allowed, aims, hold_decay, odd, settle, dwell, side, codes)
-        bad = np.flatnonzero(~(dwell > 0.0))
-        if bad.size:
-            raise _zero_dwell(int(bad[0]))
+            not_positive = not dwell.min() > 0.0  # the odd steps' dwells are new (a reduction; NaN too)
+        if not_positive:
+            raise _zero_dwell(int(np.flatnonzero(~(dwell > 0.0))[0]))
         for _ in range(_REPAIRS):
             judged = _judged(chain, x0, allowed, dwell, side, with_hold, kernels)
             if judged is not None:
@@ -166,6 +166,14 @@ def _failures(chain: Chain, x0: float, allowed: float, dwell: np.ndarray, side: 
     return states, np.flatnonzero(~(error <= allowed) | ((side != 0) & ~(side * distance < 0.0)))
 
 
+def _all_positive(values: np.ndarray) -> bool:
+    """Whether every element is > 0 (at once for a value stored once, stride 0; else a
+    reduction, no array of flags; NaN is not)."""
+    if values.size == 0:
+        return True
+    return bool(values[0] > 0.0) if values.strides == (0,) else bool(values.min() > 0.0)
+
+
 def _all_equal(values: np.ndarray, value: float) -> bool:
     """Whether every element is `value` (at once for a value stored once, stride 0)."""
     if values.strides == (0,):
@@ -189,8 +197,8 @@ def _sign(value: float) -> float:
 
 
 def _steps(chain: Chain, x0: float, allowed: float, aims, hold_decay, kernels):
-    """Per step ``step / aim`` (1 where not regular), the side of its start (int8) and its
-    code (the operations of the kernel ``settled_steps``)."""
+    """Per step ``step / aim`` (1 where not regular), the side of its start (int8), its
+    code (the operations of the kernel ``settled_steps``) and how many are unknown."""
     n = chain.rate.size
     quotient = working("settled.quotient", n)
     side = working("settled.side", n, np.int8)
@@ -205,8 +213,8 @@ def _steps(chain: Chain, x0: float, allowed: float, aims, hold_decay, kernels):
                      float(x0), allowed, base, allowance, _INF if aims is None else aims, aims is not None,
                      _ONE if hold_decay is None else hold_decay, hold_decay is not None, LOOKBACK,
                      quotient, side, codes)
-        _parallel.run(lambda first, stop: kernels.settled_steps(*arguments, first, stop), _parallel.pieces(n))
-        return quotient, side, codes
+        unknown = _parallel.run(lambda first, stop: kernels.settled_steps(*arguments, first, stop), _parallel.pieces(n))
+        return quotient, side, codes, sum(unknown)
     goal = base - allowance * gain
     goal = np.where(goal <= 0.0, base, goal)
     threshold: np.ndarray | float = allowed
@@ -238,10 +246,12 @@ def _steps(chain: Chain, x0: float, allowed: float, aims, hold_decay, kernels):
     regular = step > threshold
     # The quotient and side of a step that is not regular are not used (as the kernel's).
     np.divide(step, goal, out=quotient)
-    side[:] = np.sign(offset)
+    signs = np.sign(offset)
+    signs[np.isnan(signs)] = 0.0  # an unknown side (its step is not used), not a NaN cast to int8
+    side[:] = signs
     codes[:] = np.where(regular, _REGULAR, _IRREGULAR)
     codes[1:][np.isnan(sides[:-1])] = _UNKNOWN
-    return quotient, side, codes
+    return quotient, side, codes, int(np.count_nonzero(codes == _UNKNOWN))
 
 
 def _logarithm(quotient: np.ndarray, kernels) -> None:
@@ -252,16 +262,18 @@ def _logarithm(quotient: np.ndarray, kernels) -> None:
 
 def _dwells(chain: Chain, settle: np.ndarray, dwell: np.ndarray, codes: np.ndarray, with_hold: bool,
             kernels) -> None:
-    """Settle times (in place of their logarithms) and dwells; code 9 where `min_dwell` rules."""
+    """Settle times (in place of their logarithms) and dwells; code 9 where `min_dwell` rules.
+    Returns how many steps have code 9 and how many dwells are not > 0."""
     if kernels is not None:
         arguments = (settle, chain.rate, chain.hold, with_hold, float(chain.shortest), dwell, codes)
-        _parallel.run(lambda first, stop: kernels.settled_dwells(*arguments, first, stop),
-                      _parallel.pieces(settle.size))
-        return
+        counts = _parallel.run(lambda first, stop: kernels.settled_dwells(*arguments, first, stop),
+                               _parallel.pieces(settle.size))
+        return sum(c[0] for c in counts), sum(c[1] for c in counts)
     np.divide(settle, chain.rate, out=settle)
     need = settle + chain.hold if with_hold else settle
     np.maximum(chain.shortest, need, out=dwell)
     codes[(codes == _REGULAR) & ~(need >= chain.shortest)] = _IRREGULAR
+    return int(np.count_nonzero(codes == _IRREGULAR)), int(np.count_nonzero(~(dwell > 0.0)))
 
 
 def _walk_odd(chain: Chain, x0: float, allowed: float, aims, hold_decay, odd: np.ndarray, settle: np.ndarray,
