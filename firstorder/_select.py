@@ -3,15 +3,16 @@
 A study keeps, per segment, the ``low`` smallest and ``high`` largest of its units'
 values (:class:`firstorder.studies.summary.Ranked`), from a (units, segments) array.
 With numpy that is a transposed copy and an introselect per segment (``np.partition``,
-8 to 14 ns a value on one core).  The kernel here reads the array where it lies, a group
-of :data:`GROUP` columns at a time (one cache line of each row, copied into a buffer
-that stays in the cache), and finds each side's cut by counting instead of moving data:
+8 to 14 ns a value on one core).  Here :func:`kept_sides` copies the array transposed a
+tile at a time (``transposed``: each value made canonical, -0.0 as 0.0 and every NaN as
+the caller's `nan_as`), and :func:`kept_rows` finds each side's cut in a segment's row by
+counting instead of moving data (a caller that writes the rows itself, as
+:mod:`firstorder.studies._fused` does, calls it directly):
 
 1. each value becomes an unsigned key in the same order (the sign bit flipped for
-   positive numbers, every bit for negative ones; NaN, made positive, comes last, above
-   +inf, as in ``np.partition``), after it is made canonical (-0.0 as 0.0, every NaN as
-   the caller's `nan_as`);
-2. the keys between the column's smallest and largest are counted into at most
+   positive numbers, every bit for negative ones; NaN, stored positive, comes last,
+   above +inf, as in ``np.partition``);
+2. the keys between the row's smallest and largest are counted into at most
    :data:`BUCKETS` buckets of equal width, the bucket holding the wanted rank is kept and
    counted again, until it holds at most :data:`GATHERED` keys (sorted then) or one value;
 3. one last pass copies every value below the low cut and above the high cut, and as
@@ -19,7 +20,7 @@ that stays in the cache), and finds each side's cut by counting instead of movin
 
 Nothing is computed from the values, only compared and copied, so the kept multisets
 are exactly those a partition of the canonical values keeps (``tests/test_select.py``
-checks them against ``np.sort``).  Columns are shared out among threads.
+checks them against ``np.sort``).  Rows are shared out among threads.
 
 numba is optional, as for :mod:`firstorder._kernels` (the same switch and threshold):
 :func:`kept_sides` returns None without it and the caller partitions.
