@@ -28,6 +28,8 @@ numba is optional, as for :mod:`firstorder._kernels` (the same switch and thresh
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from . import _kernels, _parallel
@@ -42,9 +44,6 @@ GATHERED = 48
 
 #: Values and columns of a tile of the transposing copy (32 x 32 values: 8 KiB).
 TILE = 32
-
-_compiled: object = None
-
 
 def kept_sides(values: np.ndarray, low: int, high: int, nan_as: float = np.nan) -> tuple[np.ndarray, np.ndarray] | None:
     """``(smallest, largest)``, each (columns, kept): the `low` smallest and `high` largest
@@ -62,7 +61,7 @@ def kept_sides(values: np.ndarray, low: int, high: int, nan_as: float = np.nan) 
     count, columns = values.shape
     if _kernels.available(values.size) is None or count == 0:
         return None
-    transposed, _ = _kernel()
+    transposed, _ = _compile()
     source = np.asarray(values, dtype=np.float64)
     by_column = np.empty((columns, count))
     smallest, largest = sides_for(columns, count, low, high)
@@ -84,7 +83,7 @@ def kept_rows(by_column: np.ndarray, smallest: np.ndarray, largest: np.ndarray, 
     """Rows ``first:stop`` of `smallest` and `largest` (:func:`sides_for`): the smallest and
     largest values of those rows of the C-ordered (columns, count) array `by_column` of
     canonical values (-0.0 as 0.0, every NaN positive), compiled."""
-    _kernel()[1](by_column.view(np.uint64), smallest.shape[1], largest.shape[1], smallest.view(np.uint64),
+    _compile()[1](by_column.view(np.uint64), smallest.shape[1], largest.shape[1], smallest.view(np.uint64),
                  largest.view(np.uint64), first, stop)
 
 
@@ -93,13 +92,7 @@ def column_pieces(columns: int, count: int) -> list[tuple[int, int]]:
     return _parallel.pieces(columns, align=TILE, min_piece=max(1, _parallel.MIN_PIECE // max(count, 1)))
 
 
-def _kernel():
-    global _compiled
-    if _compiled is None:
-        _compiled = _compile()
-    return _compiled
-
-
+@functools.cache  # compiled (or loaded from numba's cache) once, on first use
 def _compile():
     import numba
 

@@ -261,7 +261,7 @@ def _logarithm(quotient: np.ndarray, kernels) -> None:
 
 
 def _dwells(chain: Chain, settle: np.ndarray, dwell: np.ndarray, codes: np.ndarray, with_hold: bool,
-            kernels) -> None:
+            kernels) -> tuple[int, int]:
     """Settle times (in place of their logarithms) and dwells; code 9 where `min_dwell` rules.
     Returns how many steps have code 9 and how many dwells are not > 0."""
     if kernels is not None:

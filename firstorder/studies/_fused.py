@@ -24,15 +24,14 @@ Only the target ``"final"`` (each unit's own final value) takes this path.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from .. import _kernels, _parallel, _select
 from ..engine import exp_in_place
 
 __all__ = ["lot_summary"]
-
-_compiled: object = None
-
 
 def lot_summary(start: np.ndarray, final: np.ndarray, rate: np.ndarray, tau: np.ndarray, decay: np.ndarray,
                 durations: np.ndarray, delays: np.ndarray | None, hold: np.ndarray, value: float, relative: bool,
@@ -67,7 +66,7 @@ def lot_summary(start: np.ndarray, final: np.ndarray, rate: np.ndarray, tau: np.
     units, n = rate.shape
     if _kernels.available(rate.size) is None or units == 0:
         return None
-    exponents, finish = _kernels_of()
+    exponents, finish = _compile()
     # Any strides (the state at each change is a view of the scan's boundary): numba reads them.
     start, final, rate, tau, decay = (np.asarray(a, dtype=np.float64) for a in (start, final, rate, tau, decay))
     has_delays = delays is not None
@@ -126,19 +125,13 @@ def lot_summary(start: np.ndarray, final: np.ndarray, rate: np.ndarray, tau: np.
 BLOCK = 32_768
 
 
-def _kernels_of():
-    global _compiled
-    if _compiled is None:
-        _compiled = _compile()
-    return _compiled
-
-
+@functools.cache  # compiled (or loaded from numba's cache) once, on first use
 def _compile():
     import numba
 
     # numpy's rules for dividing by zero (inf, NaN), as on the numpy path.
     jit = numba.njit(cache=True, nogil=True, error_model="numpy")
-    tile = 32
+    tile = _select.TILE
     nan, inf = np.nan, np.inf
 
     @jit

@@ -129,10 +129,7 @@ class UnitsRun:
         None takes each unit's own final value as the target (see ``Study.columns``).  With
         `segment`, only that segment's column (the same numbers: every operation works
         element by element)."""
-        check_tolerance(tolerance)
-        unit, label, start, final = self.watched(probe)
-        check_unit(tolerance, unit, label)
-        value, relative = tolerance._scale()
+        unit, label, start, final, value, relative = self._checked(tolerance, probe)
         drive = self.drive
         if segment is not None:
             segment = range(self.rate.shape[1])[segment]  # from the end when negative; IndexError past it
@@ -150,7 +147,7 @@ class UnitsRun:
                 ends, tau, decay = self._flat_durations(), self._flat_tau(), self.decay.ravel()
             else:
                 ends = np.repeat(durations, shape[0])
-                tau = self._flat_tau().reshape(self.rate.shape)[:, which].ravel()
+                tau = self.tau()[:, which].ravel()
                 decay = self.decay[:, which].ravel()
             if not within_segment:
                 ends = np.broadcast_to(np.inf, (size,))
@@ -178,6 +175,14 @@ class UnitsRun:
             limit, settle, error = against_target(start, final, aim, rate, durations, step_delays, value, relative)
         return LotSettling(settle, error, limit, error <= limit, sample_time, unit, label)
 
+    def _checked(self, tolerance: "Tolerance", probe: str | None) -> tuple:
+        """The watched quantity (:meth:`watched`) with `tolerance` checked against its unit,
+        and the tolerance's ``(value, relative)``."""
+        check_tolerance(tolerance)
+        unit, label, start, final = self.watched(probe)
+        check_unit(tolerance, unit, label)
+        return (unit, label, start, final, *tolerance._scale())
+
     def holds_judged_as_droop(self) -> np.ndarray:
         """(n,): the segments in which the capacitor holds, cut off from every source
         (:func:`~firstorder.settling.table.hold_segments`, structural: the same for every unit)."""
@@ -197,12 +202,8 @@ class UnitsRun:
         return summarize(lot, request, self.draw.first)
 
     def _fused_summary(self, request: Request) -> SettlingSummary | None:
-        check_tolerance(request.tolerance)
-        unit, label, start, final = self.watched(request.probe)
-        check_unit(request.tolerance, unit, label)
-        value, relative = request.tolerance._scale()
-        parts = lot_summary(start, final, self.rate, self._flat_tau().reshape(self.rate.shape), self.decay,
-                            self.drive.durations, request.delays,
+        _, _, start, final, value, relative = self._checked(request.tolerance, request.probe)
+        parts = lot_summary(start, final, self.rate, self.tau(), self.decay, self.drive.durations, request.delays,
                             self.holds_judged_as_droop(), value, relative, request.within_segment,
                             request.settle_sides, request.error_sides)
         if parts is None:
