@@ -43,7 +43,7 @@ LAYERS = [
     "segments",
     "engine",
     "response",
-    "settling.tolerance", "settling.table", "settling.chain", "settling.settled", "settling.planning", "settling.order",
+    "settling.tolerance", "settling.table", "settling.stretch", "settling.chain", "settling.settled", "settling.planning", "settling.order",
     "settling",
     "studies.spread", "studies.lot", "studies.summary", "studies._fused", "studies.progress", "studies.run", "studies.budget",
     "studies.adaptive",

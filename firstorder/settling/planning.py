@@ -384,10 +384,11 @@ def plan_dwells(fixture: Any, levels: Any, tolerance: Tolerance, initial: Any = 
     every step the plan is also the fastest overall.  When switches change tau,
     lingering in a fast step can shorten a following slow one: ``method="exact"``
     then picks each step's residual at its end, within its tolerance, to make
-    the total least (the chain separates into one variable per step, each with
-    a closed-form best; the proof and its conditions are in
-    :func:`firstorder.settling.chain.exact_aims`, and ``plan_table(...).attrs
-    ["exact"]`` says whether they held for every step).
+    the total least (where each step lands on a known side and must settle
+    longer than its least dwell, the chain separates into one variable per step,
+    each with a closed-form best; the other stretches are solved by dynamic
+    programming over the state; see :func:`firstorder.settling.chain.exact_aims`,
+    and ``plan_table(...).attrs["exact"]`` says whether every step was solved).
 
     Each sample is aimed a few parts per billion inside its limit (plus a few
     units of rounding of the state), so that evaluating the planned drive again
