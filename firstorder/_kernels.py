@@ -331,18 +331,18 @@ def _compile():
         is read from its bits (the next float up is its bits + 1), not from nextafter,
         which numba calls out to one element at a time."""
         n = dwell.size
-        bits = instants.view(np.int64)
-        scratch = np.empty(1)
+        scratch = np.empty(2)
         scratch_bits = scratch.view(np.int64)
         plain = 0.0
-        for k in range(u(n)):
-            plain = plain + dwell[k]
-            instants[k + u(1)] = plain
         padded = 0.0
         instants[0] = 0.0
+        # One loop: the plain sum and the padded one are two independent chains of additions
+        # (the padding reads only the plain sum), so the processor overlaps them.
         for k in range(u(n)):
-            scratch_bits[0] = bits[k + u(1)] + 1
-            padded = padded + (dwell[k] + (scratch[0] - instants[k + u(1)]))
+            plain = plain + dwell[k]
+            scratch[0] = plain
+            scratch_bits[1] = scratch_bits[0] + 1
+            padded = padded + (dwell[k] + (scratch[1] - plain))
             instants[k + u(1)] = padded
 
     # -- plans whose steps settle (settling/settled.py): the same operations as its numpy path --
