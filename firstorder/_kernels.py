@@ -181,6 +181,16 @@ def _compile():
         return not_finite == 0, not_increasing == 0
 
     @jit
+    def largest_magnitude(values, first, stop):
+        """``max |values[first:stop]|`` in one pass (0 for no values; finite values: the
+        levels are checked at the boundary)."""
+        piece = values[first:stop]
+        largest = 0.0
+        for i in range(piece.size):
+            largest = max(largest, abs(piece[i]))
+        return largest
+
+    @jit
     def walk(t, first, stop, starts, rate, k, k_stop, out, bounds):
         """Walk ``t[first:stop]`` (from segment `k`): ``(t - start) * -rate`` of each point's
         segment into `out` (numpy: repeat, subtract, multiply), and into `bounds` the first
@@ -552,6 +562,7 @@ def _compile():
         block_states=block_states,
         segment_exponents=segment_exponents,
         copy_checked=copy_checked,
+        largest_magnitude=largest_magnitude,
         walk=walk,
         combine=combine,
         settle_quotients=settle_quotients,

@@ -300,7 +300,9 @@ class TestPlanSettled:
         allowed = chain.value
 
         def counted():
-            quotient, side, codes, unknown = settled._steps(chain, 0.1, allowed, None, None, _kernels.available(n))
+            kernels = _kernels.available(n)
+            allowance = settled._allowance(chain, 0.1, allowed, kernels)
+            quotient, side, codes, unknown = settled._steps(chain, 0.1, allowed, None, None, kernels, allowance)
             codes_before = codes.copy()
             np.log(quotient, out=quotient)
             dwell = np.empty(n)

@@ -118,7 +118,8 @@ def walk_settled(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Set
     with_hold = not _all_equal(chain.hold, 0.0)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore", under="ignore"):
         hold_decay = np.exp(-chain.rate * chain.hold) if with_hold else None
-        settle, side, codes, unknown = _steps(chain, x0, allowed, aims, hold_decay, kernels)
+        allowance = _allowance(chain, x0, allowed, kernels)
+        settle, side, codes, unknown = _steps(chain, x0, allowed, aims, hold_decay, kernels, allowance)
         if unknown:
             return None
         _logarithm(settle, kernels)
@@ -128,7 +129,7 @@ def walk_settled(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Set
             return None
         if irregular:
             odd = np.flatnonzero(codes == _IRREGULAR)
-            _walk_odd(chain, x0, allowed, aims, hold_decay, odd, settle, dwell, side, codes)
+            _walk_odd(chain, x0, allowed, allowance, aims, hold_decay, odd, settle, dwell, side, codes)
             not_positive = not dwell.min() > 0.0  # the odd steps' dwells are new (a reduction; NaN too)
         if not_positive:
             raise _zero_dwell(int(np.flatnonzero(~(dwell > 0.0))[0]))
@@ -142,7 +143,7 @@ def walk_settled(chain: Chain, x0: float, aims: np.ndarray | None = None) -> Set
             states, failing = _failures(chain, x0, allowed, dwell, side, with_hold)
             if failing is None or failing.size > _irregular_allowed(n):
                 return None
-            _walk_odd(chain, x0, allowed, aims, hold_decay, failing, settle, dwell, side, codes, states)
+            _walk_odd(chain, x0, allowed, allowance, aims, hold_decay, failing, settle, dwell, side, codes, states)
     return None
 
 
@@ -181,22 +182,27 @@ def _all_equal(values: np.ndarray, value: float) -> bool:
     return bool((values == value).all())
 
 
-def _state_bound(chain: Chain, x0: float, allowed: float) -> float:
-    """A bound of ``|state|`` over the whole walk, for the aims' rounding allowance: a
-    state lies between the start, the finals and a reach (at most ``allowed / gain``)
-    beyond a final."""
+def _allowance(chain: Chain, x0: float, allowed: float, kernels) -> float:
+    """The aims' rounding allowance: a few units in the last place of a bound of
+    ``|state|`` over the whole walk (a state lies between the start, the finals and a
+    reach, at most ``allowed / gain``, beyond a final).  Formed once per walk."""
     gain = chain.gain[:1] if chain.gain.strides == (0,) else chain.gain
     seen = gain[gain > 0.0]
     reach = allowed / float(seen.min()) if seen.size else 0.0
-    # max and min, not abs: no array as long as the levels for one number
-    return max(abs(float(x0)), float(chain.final.max()), -float(chain.final.min())) + reach
+    levels = chain.final
+    if kernels is not None:  # one pass over the levels for the largest |level|, in pieces
+        largest = max(_parallel.run(lambda first, stop: kernels.largest_magnitude(levels, first, stop),
+                                    _parallel.pieces(levels.size)))
+    else:  # max and min, not abs: no array as long as the levels for one number
+        largest = max(float(levels.max()), -float(levels.min()))
+    return _ROUNDING_ULPS * _EPS * (max(abs(float(x0)), largest) + reach)
 
 
 def _sign(value: float) -> float:
     return 1.0 if value > 0.0 else (-1.0 if value < 0.0 else 0.0)
 
 
-def _steps(chain: Chain, x0: float, allowed: float, aims, hold_decay, kernels):
+def _steps(chain: Chain, x0: float, allowed: float, aims, hold_decay, kernels, allowance: float):
     """Per step ``step / aim`` (1 where not regular), the side of its start (int8), its
     code (the operations of the kernel ``settled_steps``) and how many are unknown."""
     n = chain.rate.size
@@ -205,7 +211,6 @@ def _steps(chain: Chain, x0: float, allowed: float, aims, hold_decay, kernels):
     codes = working("settled.codes", n, np.int8)
     levels, gain = chain.final, chain.gain
     base = allowed * (1.0 - AIM_INSIDE)
-    allowance = _ROUNDING_ULPS * _EPS * _state_bound(chain, x0, allowed)
     if kernels is not None:
         unit_gain = _all_equal(gain, 1.0)
         # An absent per-step array is one element the kernel reads at index 0 (see settled_steps).
@@ -276,8 +281,9 @@ def _dwells(chain: Chain, settle: np.ndarray, dwell: np.ndarray, codes: np.ndarr
     return int(np.count_nonzero(codes == _IRREGULAR)), int(np.count_nonzero(~(dwell > 0.0)))
 
 
-def _walk_odd(chain: Chain, x0: float, allowed: float, aims, hold_decay, odd: np.ndarray, settle: np.ndarray,
-              dwell: np.ndarray, side: np.ndarray, codes: np.ndarray, starts: np.ndarray | None = None) -> None:
+def _walk_odd(chain: Chain, x0: float, allowed: float, allowance: float, aims, hold_decay, odd: np.ndarray,
+              settle: np.ndarray, dwell: np.ndarray, side: np.ndarray, codes: np.ndarray,
+              starts: np.ndarray | None = None) -> None:
     """Walk the steps that do not settle (and those after them, until the walk lands where
     the passes assumed) one at a time, as :func:`~firstorder.settling.chain.walk` does;
     their settle times, dwells and codes are written in place and their sides cleared
@@ -288,8 +294,6 @@ def _walk_odd(chain: Chain, x0: float, allowed: float, aims, hold_decay, odd: np
     levels, gain, rate, hold = chain.final, chain.gain, chain.rate, chain.hold
     base = allowed * (1.0 - AIM_INSIDE)
     ulps = _ROUNDING_ULPS * _EPS
-
-    allowance = ulps * _state_bound(chain, x0, allowed)
 
     def reach(i: int) -> float:  # the passes' reach of step i (the kernel's operations)
         goal = base - allowance * float(gain[i])
