@@ -22,7 +22,7 @@ import numpy as np
 import firstorder as fo
 from firstorder.settling.chain import Chain, walk
 
-REPEATS = 3
+REPEATS = 5
 
 
 def best(function) -> float:
