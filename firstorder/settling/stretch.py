@@ -54,10 +54,6 @@ _DEEPEST = 700.0
 #: Residuals below this many units in the last place of the final value are not resolved.
 _UNSEEN = 64
 
-#: A piece of a value function: over states [lo, hi], ``A ln|x - p| + B``.
-_Piece = tuple  # (lo, hi, A, p, B)
-
-
 def _at(A: float, p: float, B: float, x: float) -> float:
     return B if A == 0.0 else A * math.log(abs(x - p)) + B
 
@@ -104,9 +100,9 @@ class _Side:
                     if h0 < least:
                         least, at = h0, u0
                     self._flat(u0, u1, least, at)
-        self.top = top
 
     def g(self, t: float, A: float, p: float, B: float) -> float:
+        """``g(t)`` on the piece ``(A, p, B)`` of ``J_(k+1)`` (+inf at 0: no step ends on f)."""
         if t <= 0.0:
             return math.inf
         return -self.tau * math.log(t) + _at(A, p, B, self.f + self.s * t)
@@ -257,7 +253,23 @@ def stretch_aims(chain, x0: float, free: np.ndarray, reach: np.ndarray, least: n
     `proven` True for the steps of each stretch solved.
 
     `reach` is each step's largest residual ``R_k`` (inf where no limit applies), `least`
-    its least dwell, `side` the sign of its start's offset where it is free.
+    its least dwell, `side` the sign of its start's offset where it is free.  The value
+    functions are lists of pieces ``(lo, hi, A, p, B)``: ``A ln|x - p| + B`` over states
+    ``[lo, hi]``.
+
+    Examples
+    --------
+    A fast step (tau 1 µs) to 1 V, then a slow one (1 ms) that creeps 0.5 mV on, within
+    the 1 mV tolerance (so step 1 is not free): the fast step is told to linger.
+
+    >>> from firstorder.settling.chain import Chain
+    >>> chain = Chain(np.array([1e6, 1e3]), np.array([1.0, 1.0005]), np.ones(2), 1e-3, False, 0.0,
+    ...               np.zeros(2), 1e-6)
+    >>> free, aims = np.array([True, False]), np.full(2, np.inf)
+    >>> proven = free.copy()
+    >>> stretch_aims(chain, 0.0, free, np.full(2, 1e-3), np.full(2, 1e-6), np.array([-1.0, -1.0]), aims, proven)
+    >>> proven.tolist(), bool(aims[0] < 1e-3), bool(aims[1] == np.inf)
+    ([True, True], True, True)
     """
     n = free.size
     rate, finals, gain, hold = chain.rate, chain.final, chain.gain, chain.hold
@@ -273,17 +285,30 @@ def stretch_aims(chain, x0: float, free: np.ndarray, reach: np.ndarray, least: n
         k += 1
         steps = last - first + 1
         if steps > budget:
-            break
+            continue  # past the budget: greedy's residuals there, not proven
         budget -= steps
-        trial = aims.copy()
         try:
-            _solve(first, last, n, x0, rate, finals, gain, hold, reach, least, side, trial, proven)
+            lingering = _solve(first, last, n, x0, rate, finals, gain, hold, reach, least, side)
         except _Unsolved:
             continue
-        aims[:] = trial
+        if lingering is None:
+            continue
+        chosen, solved = lingering
+        for step, aim in chosen.items():
+            aims[step] = aim
+        if solved:
+            proven[first:last + 1] = True
+            if first > 0:
+                proven[first - 1] = True
 
 
-def _solve(first, last, n, x0, rate, finals, gain, hold, reach, least, side, aims, proven) -> None:
+def _solve(first, last, n, x0, rate, finals, gain, hold, reach, least, side) -> tuple[dict, bool] | None:
+    """The aims of the steps that linger in the stretch ``first:last + 1`` and the free
+    step before it ({step: error at its sample}) and whether that is the least plan;
+    None where the pieces grow past MOST_PIECES.  With a step that cannot be told to
+    linger the plan is the least of those that do not linger there (greedy among them),
+    so never slower than greedy, but not proven least."""
+    aims = {}
     head = first - 1  # a free step whose residual the stretch may want (none before step 0)
     if head >= 0:
         ends = (finals[head], finals[head] + side[head] * reach[head])
@@ -301,7 +326,7 @@ def _solve(first, last, n, x0, rate, finals, gain, hold, reach, least, side, aim
         following, sides = _back(following, windows[step - first], float(finals[step]), float(rate[step]),
                                  float(reach[step]), float(least[step]))
         if len(following) > MOST_PIECES:
-            return
+            return None
         solved[step - first] = sides
     if head >= 0:
         s = float(side[head])
@@ -309,7 +334,7 @@ def _solve(first, last, n, x0, rate, finals, gain, hold, reach, least, side, aim
             float(reach[head]))
         if not largest:
             aims[head] = _error(choice, head, rate, gain, hold)
-        x = float(finals[head]) + s * (choice if not largest else float(reach[head]))
+        x = float(finals[head]) + s * choice
     else:
         x = float(x0)
     for step in range(first, last + 1):
@@ -326,11 +351,7 @@ def _solve(first, last, n, x0, rate, finals, gain, hold, reach, least, side, aim
         if not largest:
             aims[step] = _error(choice, step, rate, gain, hold)
         x = f + s * choice
-    if not np.isfinite(reach[span][rate[span] > 0.0]).all():
-        return  # a step that cannot be told to linger: the least plan of those that do not (see _back)
-    proven[first:last + 1] = True
-    if head >= 0:
-        proven[head] = True
+    return aims, bool(np.isfinite(reach[span][rate[span] > 0.0]).all())
 
 
 def _error(residual: float, k: int, rate, gain, hold) -> float:
