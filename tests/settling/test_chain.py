@@ -11,19 +11,10 @@ import pytest
 import firstorder as fo
 from firstorder.settling.chain import Chain, exact_aims, walk, walk_fast
 
+from builders import three_speeds
+
 TOLERANCE = 1e-3  # V, absolute
 
-
-def three_speeds() -> fo.Fixture:
-    """A source behind 1 GΩ, with two relays that bypass it through 1 MΩ or 1 kΩ, into 1 nF
-    (our own scenario): tau is 1 s with both open, ~1 ms with k1, ~1 µs with k2."""
-    fx = fo.Fixture()
-    fx.voltage_source("vin", "in", "gnd")
-    fx.resistor("r", "in", "out", "1G")
-    fx.switch("k1", "in", "out", r_on="1M")
-    fx.switch("k2", "in", "out", r_on="1k")
-    fx.capacitor("c", "out", "gnd", "1n")
-    return fx
 
 
 def handbook_taus(k1, k2) -> np.ndarray:

@@ -20,6 +20,8 @@ from firstorder.settling import stretch
 from firstorder.settling.chain import AIM_INSIDE, Chain, exact_aims, walk
 from firstorder.units import parse_value
 
+from builders import three_speeds
+
 TOLERANCE = 1e-3
 
 
@@ -144,17 +146,6 @@ class TestAgainstReferences:
             savings.append(1.0 - exact_total(chain, x0)[0] / float(walk(chain, x0).instants[-1]))
         assert sum(saving > 0.01 for saving in savings) >= 4
 
-
-def three_speeds() -> fo.Fixture:
-    """A source behind 1 GΩ, with relays that bypass it through 1 MΩ or 1 kΩ, into 1 nF (our
-    own scenario): tau 1 s, ~1 ms (k1) or ~1 µs (k2)."""
-    fx = fo.Fixture()
-    fx.voltage_source("vin", "in", "gnd")
-    fx.resistor("r", "in", "out", "1G")
-    fx.switch("k1", "in", "out", r_on="1M")
-    fx.switch("k2", "in", "out", r_on="1k")
-    fx.capacitor("c", "out", "gnd", "1n")
-    return fx
 
 
 #: Sequences where some step is not free (our own scenarios).
