@@ -377,8 +377,9 @@ def exact_aims(chain: Chain, x0: float) -> tuple[np.ndarray | None, np.ndarray]:
     solved by dynamic programming over the state (:mod:`firstorder.settling.stretch`),
     and the free step after it closes it: its time is ``tau ln|a|`` plus a constant
     whatever its start.  A stretch with a step whose watched quantity does not see the
-    state (a probe's coefficient of 0), or past the module's budget, keeps greedy's
-    residuals there and is not proven; the plan is never slower than greedy.
+    state (a probe's coefficient of 0) gets the least plan that does not linger there;
+    one past the module's budget keeps greedy's residuals.  Neither is reported as
+    proven, and the plan is never slower than greedy.
 
     Examples
     --------

@@ -154,21 +154,22 @@ class _Side:
         else:
             self.segments.append((t0, t1, True, 0.0, 0.0, 0.0, m, at))
 
+    def _at_limit(self, limit: float) -> tuple:
+        """The segment of ``M`` holding `limit` (the nearest at an edge's rounding)."""
+        starts = [segment[0] for segment in self.segments]
+        return self.segments[min(max(bisect.bisect_right(starts, limit) - 1, 0), len(self.segments) - 1)]
+
     def choice(self, limit: float) -> tuple[float, bool]:
         """The residual to leave when at most `limit` is allowed, and whether it is the
         largest allowed (greedy's choice)."""
-        starts = [segment[0] for segment in self.segments]
-        index = min(max(bisect.bisect_right(starts, limit) - 1, 0), len(self.segments) - 1)
-        segment = self.segments[index]
+        segment = self._at_limit(limit)
         if not segment[2] or segment[7] >= limit:
             return limit, True
         return segment[7], False
 
     def least(self, limit: float) -> float:
         """``M(limit)``."""
-        starts = [segment[0] for segment in self.segments]
-        index = min(max(bisect.bisect_right(starts, limit) - 1, 0), len(self.segments) - 1)
-        _, _, flat, A, p, B, m, _ = self.segments[index]
+        _, _, flat, A, p, B, m, _ = self._at_limit(limit)
         return m if flat else self.g(limit, A, p, B)
 
 
@@ -206,7 +207,7 @@ def _back(following: list, window: tuple, f: float, rate: float, reach: float, l
             if flat:
                 found.append((a0, a1, tau, f, m))
             else:
-                found.append((a0, a1, A, f - (f - p) * grow, B + least - A * rate * least))
+                found.append((a0, a1) + _moved(A, p, B, f, grow, rate, least))
         for a0, a1, A, p, B in found:
             pieces.append((f + a0, f + a1, A, p, B) if s > 0 else (f - a1, f - a0, A, p, B))
     if lo <= f <= hi:
@@ -215,13 +216,19 @@ def _back(following: list, window: tuple, f: float, rate: float, reach: float, l
     return pieces, sides
 
 
+def _moved(A: float, p: float, B: float, f: float, grow: float, rate: float, least: float) -> tuple:
+    """A piece ``A ln|y - p| + B`` of ``J_(k+1)`` seen from the start ``x`` of a step that
+    ends at ``y = f + (x - f) / grow`` after its least dwell: ``least + A ln|x - p'| + B -
+    A r least`` with ``p' = f - (f - p) grow``."""
+    return A, f - (f - p) * grow, B + least - A * rate * least
+
+
 def _through(following: list, lo: float, hi: float, f: float, grow: float, rate: float, least: float) -> list:
     """``least + J_(k+1)(f + (x - f) / grow)`` over [lo, hi]: the pieces of `following` the
     map meets, each moved back through it (the outermost stretched to the window's edges,
     which the map's rounding may not reach)."""
     y0, y1 = f + (lo - f) / grow, f + (hi - f) / grow
-    found = [(max(f + (a - f) * grow, lo), min(f + (b - f) * grow, hi), A, f - (f - p) * grow,
-              B + least - A * rate * least)
+    found = [(max(f + (a - f) * grow, lo), min(f + (b - f) * grow, hi)) + _moved(A, p, B, f, grow, rate, least)
              for a, b, A, p, B in following if b >= y0 and a <= y1]
     if not found:
         raise _Unsolved
